@@ -1,0 +1,28 @@
+namespace OrderUnfold.Cli.Commands;
+
+/// <summary>One CLI verb: parses its options, calls the library, prints, returns an exit code.</summary>
+public interface ICommand
+{
+    string Name { get; }
+
+    /// <summary>One line for the command list.</summary>
+    string Summary { get; }
+
+    /// <summary>Full usage text for <c>orderunfold help NAME</c>.</summary>
+    string Usage { get; }
+
+    /// <summary>Runs the command; throw <see cref="UsageException"/> or <see cref="InputException"/> for bad input.</summary>
+    int Run(string[] args, TextWriter stdout, TextWriter stderr);
+}
+
+/// <summary>Exit codes, decided in one place.</summary>
+public static class ExitCodes
+{
+    public const int Ok = 0;
+
+    /// <summary>Ran, but some items failed or a stated requirement was not met.</summary>
+    public const int SomeFailed = 1;
+
+    /// <summary>Usage or input error: nothing useful was produced.</summary>
+    public const int BadInput = 2;
+}

@@ -1,0 +1,102 @@
+using OrderUnfold.Instruments;
+
+namespace OrderUnfold.Io;
+
+/// <summary>One instrument as described in a setup file (before calibration refines it).</summary>
+public sealed record InstrumentSpec
+{
+    public required string Name { get; init; }
+    public CavityGeometry Geometry { get; init; } = CavityGeometry.Planar;
+
+    /// <summary>Mirror spacing in m, or null when <see cref="FsrHz"/> is given.</summary>
+    public double? LengthM { get; init; }
+
+    /// <summary>FSR in Hz, or null when it follows from the length.</summary>
+    public double? FsrHz { get; init; }
+
+    public double RefractiveIndex { get; init; } = 1.0;
+
+    /// <summary>Finesse given directly, or null.</summary>
+    public double? Finesse { get; init; }
+
+    /// <summary>Mirror reflectance R (finesse π√R/(1−R)) when the finesse is not given.</summary>
+    public double? Reflectance { get; init; }
+
+    /// <summary>Mirror loss A per mirror (for peak transmission), default 0.</summary>
+    public double MirrorLoss { get; init; }
+
+    /// <summary>True: keep the stated finesse even when a calibration sweep measures another.</summary>
+    public bool FixFinesse { get; init; }
+
+    /// <summary>1-based line of the [[instrument]] table in the setup file (for messages).</summary>
+    public int Line { get; init; }
+
+    /// <summary>The instrument with the stated values (finesse from reflectance when needed).</summary>
+    public Instrument ToInstrument()
+    {
+        var fsr = FsrHz ?? Instrument.FsrFromLength(LengthM!.Value, Geometry, RefractiveIndex);
+        var finesse = Finesse ?? Airy.ReflectanceFinesse(Reflectance!.Value);
+        var peak = Reflectance is double r ? Airy.PeakTransmission(r, MirrorLoss) : 1.0;
+        return new Instrument(Name, fsr, finesse, Geometry, LengthM, RefractiveIndex, peak);
+    }
+}
+
+/// <summary>A measured sweep file and the instrument it was taken with.</summary>
+public sealed record SweepSpec
+{
+    public required string Instrument { get; init; }
+    public required SweepFileOptions File { get; init; }
+    public int Line { get; init; }
+}
+
+/// <summary>A calibration sweep: a single-frequency laser through the same cavity and ramp.</summary>
+public sealed record CalibrationSpec
+{
+    public required string Instrument { get; init; }
+    public required SweepFileOptions File { get; init; }
+
+    /// <summary>Wavelength of the calibration laser in m, when it differs from the source (issue: reference laser).</summary>
+    public double? WavelengthM { get; init; }
+
+    /// <summary>Polynomial degree of the axis; null chooses it from the data.</summary>
+    public int? AxisDegree { get; init; }
+
+    public int Line { get; init; }
+}
+
+/// <summary>Options of the inversion ([solve] table).</summary>
+public sealed record SolveOptions
+{
+    /// <summary>Frequency window relative to the anchor, Hz; null chooses it from the instruments.</summary>
+    public double? WindowStartHz { get; init; }
+    public double? WindowEndHz { get; init; }
+
+    /// <summary>Grid step in Hz; null: a quarter of the narrowest linewidth.</summary>
+    public double? GridStepHz { get; init; }
+
+    /// <summary>L1 (sparsity) weight in units of noise σ × typical column norm. Default 3.</summary>
+    public double Sparsity { get; init; } = 3.0;
+
+    /// <summary>Smoothness weight (second-difference penalty), relative; 0 = off.</summary>
+    public double Smoothness { get; init; }
+
+    /// <summary>Absolute frequency of the anchor line in Hz; null reports frequencies relative to the anchor.</summary>
+    public double? AnchorFrequencyHz { get; init; }
+
+    /// <summary>Lines whose signal-to-noise ratio is below this are not reported. Default 5.</summary>
+    public double MinSnr { get; init; } = 5.0;
+
+    /// <summary>Source wavelength in m (needed only to transfer a calibration made at another wavelength).</summary>
+    public double? SourceWavelengthM { get; init; }
+}
+
+/// <summary>Everything a setup file says. Paths inside are already resolved relative to the setup file.</summary>
+public sealed record Setup
+{
+    /// <summary>Path of the setup file itself (null when built in code).</summary>
+    public string? Path { get; init; }
+    public required IReadOnlyList<InstrumentSpec> Instruments { get; init; }
+    public required IReadOnlyList<SweepSpec> Sweeps { get; init; }
+    public IReadOnlyList<CalibrationSpec> Calibrations { get; init; } = [];
+    public SolveOptions Solve { get; init; } = new();
+}
