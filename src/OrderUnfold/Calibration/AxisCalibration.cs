@@ -1,0 +1,153 @@
+using OrderUnfold.Instruments;
+using OrderUnfold.Io;
+using OrderUnfold.Units;
+
+namespace OrderUnfold.Calibration;
+
+/// <summary>
+/// A calibrated sweep axis for one instrument and ramp direction.
+/// </summary>
+/// <param name="Instrument">Instrument name.</param>
+/// <param name="Direction">Ramp direction it applies to.</param>
+/// <param name="Source">File or sweep it came from.</param>
+/// <param name="Method">How it was obtained ("calibration sweep", …).</param>
+/// <param name="Axis">f(x) in Hz (for the source's wavelength).</param>
+/// <param name="PointX">Scan coordinate of each calibration point.</param>
+/// <param name="PointHz">Frequency assigned to each point.</param>
+/// <param name="ResidualHz">Fit residual at each point, Hz.</param>
+/// <param name="ResidualRmsHz">RMS of the residuals, Hz.</param>
+/// <param name="Finesse">Effective finesse measured from the peak widths, when measurable.</param>
+/// <param name="FinesseSigma">Standard error of that finesse.</param>
+/// <param name="Warnings">What looked wrong.</param>
+public sealed record AxisCalibration(
+    string Instrument,
+    RampDirection Direction,
+    string Source,
+    string Method,
+    AxisPolynomial Axis,
+    double[] PointX,
+    double[] PointHz,
+    double[] ResidualHz,
+    double ResidualRmsHz,
+    double? Finesse,
+    double? FinesseSigma,
+    IReadOnlyList<string> Warnings)
+{
+    public int PointCount => PointX.Length;
+}
+
+/// <summary>Builds sweep axes from calibration sweeps (a single-frequency laser through the same cavity and ramp).</summary>
+public static class AxisCalibrator
+{
+    /// <summary>Largest polynomial degree tried when the degree is chosen from the data.</summary>
+    public const int MaxAutoDegree = 5;
+
+    /// <summary>
+    /// Finds the peaks of a calibration sweep (one FSR apart), numbers them by order, and fits a monotone
+    /// polynomial f(x) with f(x_p) = ±p·FSR·(λ_cal/λ_source). The degree is chosen by the Bayesian information
+    /// criterion among monotone fits with at least one degree of freedom, unless given.
+    /// </summary>
+    /// <param name="sweep">Calibration sweep (x relative to the segment start for time scans).</param>
+    /// <param name="instrument">The cavity.</param>
+    /// <param name="degree">Polynomial degree, or null to choose it.</param>
+    /// <param name="wavelengthRatio">λ_calibration / λ_source: one calibration FSR of mirror travel moves the source's comb by this many FSRs.</param>
+    public static AxisCalibration FromCalibrationSweep(Sweep sweep, Instrument instrument, int? degree = null, double wavelengthRatio = 1.0)
+    {
+        var peaks = PeakFinder.Find(sweep.X, sweep.Y, minHeightFraction: 0.3, minSnr: 5);
+        if (peaks.Count == 0)
+            throw new InputException($"no calibration peaks found in {sweep.Name}: expected a single-frequency laser's transmission peaks, one per FSR; check the signal column and that the laser was locked through the sweep", sweep.Source);
+        if (peaks.Count == 1)
+            throw new InputException($"only one calibration peak found in {sweep.Name}: the sweep must cover more than one FSR ({Quantity.FormatFrequency(instrument.FsrHz)}) to calibrate the axis", sweep.Source);
+
+        var warnings = new List<string>();
+        var sign = sweep.Direction == RampDirection.Down && sweep.Scan == ScanCoordinate.Time ? -1.0 : 1.0;
+        var ordered = peaks.OrderBy(p => p.X).ToList();
+        var spacings = new List<double>();
+        for (var i = 1; i < ordered.Count; i++) spacings.Add(ordered[i].X - ordered[i - 1].X);
+        var sorted = spacings.OrderBy(v => v).ToList();
+        var typical = sorted[sorted.Count / 2];
+        var orders = new int[ordered.Count];
+        for (var i = 1; i < ordered.Count; i++)
+        {
+            var ratio = spacings[i - 1] / typical;
+            var step = Math.Max(1, (int)Math.Round(ratio));
+            if (Math.Abs(ratio - step) > 0.3)
+                warnings.Add($"calibration peaks at x = {ordered[i - 1].X:G6} and {ordered[i].X:G6} are {ratio:F2} typical spacings apart: an extra or missing peak (transverse mode? mode hop?)");
+            if (step > 1) warnings.Add($"{step - 1} calibration peak(s) missing between x = {ordered[i - 1].X:G6} and {ordered[i].X:G6}");
+            orders[i] = orders[i - 1] + step;
+        }
+
+        var fsr = instrument.FsrHz * wavelengthRatio;
+        var px = ordered.Select(p => p.X).ToArray();
+        var pf = orders.Select(o => sign * o * fsr).ToArray();
+        var n = px.Length;
+        AxisPolynomial? best = null;
+        if (degree is int d)
+        {
+            if (d < 1) throw new InputException($"axis degree must be at least 1 but got {d}");
+            if (n < d + 1)
+                throw new InputException($"{sweep.Name}: {n} calibration peaks are too few for a degree-{d} axis (needs at least {d + 1}); lower axis_degree or sweep over more FSRs", sweep.Source);
+            best = AxisPolynomial.Fit(px, pf, d);
+            if (!best.IsMonotone(sweep.X.Min(), sweep.X.Max()))
+                throw new InputException($"{sweep.Name}: the fitted degree-{d} axis is not monotone over the sweep; lower axis_degree", sweep.Source);
+        }
+        else
+        {
+            var floor = 1e-5 * fsr;
+            var bestBic = double.PositiveInfinity;
+            var maxDegree = Math.Min(MaxAutoDegree, n - 2);
+            for (var deg = 1; deg <= Math.Max(1, maxDegree); deg++)
+            {
+                var fit = AxisPolynomial.Fit(px, pf, deg);
+                if (!fit.IsMonotone(sweep.X.Min(), sweep.X.Max())) continue;
+                var rss = 0.0;
+                for (var i = 0; i < n; i++) rss += Math.Pow(pf[i] - fit.Evaluate(px[i]), 2);
+                rss = Math.Max(rss, n * floor * floor);
+                var bic = n * Math.Log(rss / n) + (deg + 1) * Math.Log(n);
+                if (bic < bestBic - 1e-9)
+                {
+                    bestBic = bic;
+                    best = fit;
+                }
+            }
+
+            if (best is null)
+                throw new InputException($"{sweep.Name}: no monotone axis polynomial fits the calibration peaks; the peaks may not be one FSR apart", sweep.Source);
+            if (n <= 3)
+                warnings.Add($"{sweep.Name}: only {n} calibration peaks: the axis is at most linear-plus-one-term and a non-linear piezo is not fully corrected; sweep over more FSRs or use self-calibration");
+        }
+
+        var residuals = new double[n];
+        for (var i = 0; i < n; i++) residuals[i] = pf[i] - best.Evaluate(px[i]);
+        var rms = Math.Sqrt(residuals.Sum(r => r * r) / n);
+
+        // effective finesse from the peak widths
+        var finesses = new List<double>();
+        foreach (var p in ordered)
+        {
+            var i = (int)Math.Clamp(Math.Round(p.Position), 1, sweep.X.Length - 2);
+            var dxdi = Math.Abs(sweep.X[i + 1] - sweep.X[i - 1]) / 2;
+            var fwhmHz = p.WidthSamples * dxdi * Math.Abs(best.Derivative(p.X)) / wavelengthRatio;
+            if (fwhmHz > 0 && fwhmHz < instrument.FsrHz / 2) finesses.Add(Airy.FinesseFromFwhm(instrument.FsrHz, fwhmHz));
+        }
+
+        double? finesse = null, finesseSigma = null;
+        if (finesses.Count > 0)
+        {
+            var fs = finesses.OrderBy(v => v).ToList();
+            finesse = fs[fs.Count / 2];
+            if (fs.Count > 1)
+            {
+                var mean = fs.Average();
+                finesseSigma = Math.Sqrt(fs.Sum(v => (v - mean) * (v - mean)) / (fs.Count - 1) / fs.Count);
+            }
+
+            var samplesPerFwhm = ordered.Average(p => p.WidthSamples);
+            if (samplesPerFwhm < 4)
+                warnings.Add($"{sweep.Name}: calibration peaks are only {samplesPerFwhm:F1} samples wide; the measured finesse is unreliable (sample faster or sweep fewer FSRs)");
+        }
+
+        return new AxisCalibration(instrument.Name, sweep.Direction, sweep.Name, "calibration sweep", best, px, pf, residuals, rms,
+            finesse, finesseSigma, warnings);
+    }
+}

@@ -1,0 +1,115 @@
+using MathNet.Numerics.LinearAlgebra;
+
+namespace OrderUnfold.Calibration;
+
+/// <summary>
+/// Sweep axis: frequency shift f(x) in Hz as a polynomial in the normalised scan coordinate
+/// t = (x − Center) / HalfRange, so that the coefficients stay well conditioned whatever x's unit.
+/// </summary>
+public sealed record AxisPolynomial
+{
+    public AxisPolynomial(double[] coefficients, double center, double halfRange, double xMin, double xMax)
+    {
+        if (coefficients.Length == 0) throw new ArgumentException("an axis polynomial needs at least one coefficient");
+        if (!(halfRange > 0)) throw new ArgumentException($"half range must be positive but got {halfRange}");
+        Coefficients = coefficients;
+        Center = center;
+        HalfRange = halfRange;
+        XMin = xMin;
+        XMax = xMax;
+    }
+
+    /// <summary>Coefficients c₀…c_d of f(t) = Σ cᵢ tⁱ, in Hz.</summary>
+    public double[] Coefficients { get; }
+
+    public double Center { get; }
+    public double HalfRange { get; }
+
+    /// <summary>The x range the polynomial was fitted over (extrapolation beyond it is not trusted).</summary>
+    public double XMin { get; }
+    public double XMax { get; }
+
+    public int Degree => Coefficients.Length - 1;
+
+    /// <summary>f(x) in Hz.</summary>
+    public double Evaluate(double x)
+    {
+        var t = (x - Center) / HalfRange;
+        var r = 0.0;
+        for (var i = Coefficients.Length - 1; i >= 0; i--) r = r * t + Coefficients[i];
+        return r;
+    }
+
+    /// <summary>df/dx in Hz per unit of x.</summary>
+    public double Derivative(double x)
+    {
+        var t = (x - Center) / HalfRange;
+        var r = 0.0;
+        for (var i = Coefficients.Length - 1; i >= 1; i--) r = r * t + i * Coefficients[i];
+        return r / HalfRange;
+    }
+
+    public double[] Evaluate(IReadOnlyList<double> x)
+    {
+        var r = new double[x.Count];
+        for (var i = 0; i < r.Length; i++) r[i] = Evaluate(x[i]);
+        return r;
+    }
+
+    /// <summary>True when f is strictly monotone (same sign of f′ everywhere) on [a, b], checked on a dense grid.</summary>
+    public bool IsMonotone(double a, double b, int points = 2001)
+    {
+        var sign = 0;
+        for (var i = 0; i < points; i++)
+        {
+            var d = Derivative(a + (b - a) * i / (points - 1));
+            var s = Math.Sign(d);
+            if (s == 0) return false;
+            if (sign == 0) sign = s;
+            else if (s != sign) return false;
+        }
+
+        return true;
+    }
+
+    /// <summary>The same axis scaled by a factor (e.g. the wavelength ratio of a calibration laser) and shifted.</summary>
+    public AxisPolynomial Scaled(double factor, double shiftHz = 0)
+    {
+        var c = Coefficients.Select(v => v * factor).ToArray();
+        c[0] += shiftHz;
+        return new AxisPolynomial(c, Center, HalfRange, XMin, XMax);
+    }
+
+    /// <summary>
+    /// Weighted least-squares fit of a degree-d polynomial to points (x, f), by QR on the normalised Vandermonde matrix.
+    /// </summary>
+    public static AxisPolynomial Fit(IReadOnlyList<double> x, IReadOnlyList<double> f, int degree, IReadOnlyList<double>? weights = null)
+    {
+        if (x.Count != f.Count) throw new ArgumentException("x and f differ in length");
+        if (degree < 0) throw new ArgumentOutOfRangeException(nameof(degree));
+        if (x.Count < degree + 1) throw new ArgumentException($"a degree-{degree} axis needs at least {degree + 1} points but got {x.Count}");
+        var xmin = x.Min();
+        var xmax = x.Max();
+        var center = 0.5 * (xmin + xmax);
+        var half = 0.5 * (xmax - xmin);
+        if (!(half > 0)) half = 1;
+        var a = Matrix<double>.Build.Dense(x.Count, degree + 1);
+        var b = Vector<double>.Build.Dense(x.Count);
+        for (var i = 0; i < x.Count; i++)
+        {
+            var w = weights is null ? 1.0 : Math.Sqrt(weights[i]);
+            var t = (x[i] - center) / half;
+            var p = 1.0;
+            for (var j = 0; j <= degree; j++)
+            {
+                a[i, j] = w * p;
+                p *= t;
+            }
+
+            b[i] = w * f[i];
+        }
+
+        var c = a.QR().Solve(b).ToArray();
+        return new AxisPolynomial(c, center, half, xmin, xmax);
+    }
+}

@@ -1,0 +1,221 @@
+using OrderUnfold.Instruments;
+
+namespace OrderUnfold.Inversion;
+
+/// <summary>
+/// Matrix-free forward model of one sweep: grid spectrum s → samples y(xᵢ) = Σⱼ sⱼ T(νⱼ − φ − f(xᵢ)).
+/// Three linear steps, each with an exact transpose:
+/// <list type="number">
+/// <item>fold: each grid bin νⱼ goes to phase θ = (νⱼ − φ) mod FSR on a periodic grid of M points (step h),
+/// split linearly between its two neighbouring points;</item>
+/// <item>circular convolution with the Airy profile sampled on that periodic grid (FFT);</item>
+/// <item>sampling at the scan positions uᵢ = f(xᵢ) mod FSR by linear interpolation.</item>
+/// </list>
+/// The gain and background of the sweep are applied by the caller. The sampling step enters the normal
+/// equations only through SᵀS, which is tridiagonal (cyclic) on the periodic grid, so AᵀA s costs
+/// O(n + M log M) whatever the sweep length.
+/// </summary>
+public sealed class SweepOperator
+{
+    private readonly int[] _sampleBin;
+    private readonly double[] _sampleFrac;
+    private readonly CircularConvolver _conv;
+    private int[] _foldBin = [];
+    private double[] _foldFrac = [];
+
+    /// <param name="instrument">Cavity (FSR, finesse).</param>
+    /// <param name="scanHz">Calibrated scan frequency shift f(xᵢ) of each sample, Hz.</param>
+    /// <param name="grid">Frequency grid of the spectrum.</param>
+    /// <param name="offsetHz">Frequency origin φ of this sweep.</param>
+    /// <param name="periodicStepHz">Step h of the periodic grid (fine compared with the linewidth).</param>
+    public SweepOperator(Instrument instrument, IReadOnlyList<double> scanHz, FrequencyGrid grid, double offsetHz, double periodicStepHz)
+    {
+        Instrument = instrument;
+        Grid = grid;
+        var fsr = instrument.FsrHz;
+        var m = 1 << (int)Math.Ceiling(Math.Log2(Math.Max(16, fsr / periodicStepHz)));
+        M = m;
+        StepHz = fsr / m;
+        var kernel = new double[m];
+        for (var i = 0; i < m; i++) kernel[i] = Airy.Transmission(i * StepHz, fsr, instrument.Finesse);
+        _conv = new CircularConvolver(kernel);
+        SampleCount = scanHz.Count;
+        _sampleBin = new int[SampleCount];
+        _sampleFrac = new double[SampleCount];
+        Diagonal = new double[m];
+        Upper = new double[m];
+        for (var i = 0; i < SampleCount; i++)
+        {
+            var u = PositiveMod(scanHz[i], fsr) / StepHz;
+            var a = (int)Math.Floor(u);
+            var t = u - a;
+            if (a >= m) { a -= m; }
+            _sampleBin[i] = a;
+            _sampleFrac[i] = t;
+            var b = a + 1 == m ? 0 : a + 1;
+            Diagonal[a] += (1 - t) * (1 - t);
+            Diagonal[b] += t * t;
+            Upper[a] += (1 - t) * t; // couples a and a+1 (cyclic)
+        }
+
+        SetOffset(offsetHz);
+    }
+
+    public Instrument Instrument { get; }
+    public FrequencyGrid Grid { get; }
+
+    /// <summary>Points of the periodic grid over one FSR (a power of two).</summary>
+    public int M { get; }
+
+    /// <summary>Step of the periodic grid, Hz.</summary>
+    public double StepHz { get; }
+
+    public int SampleCount { get; }
+    public double OffsetHz { get; private set; }
+
+    /// <summary>Diagonal of SᵀS on the periodic grid.</summary>
+    internal double[] Diagonal { get; }
+
+    /// <summary>Super-diagonal of SᵀS: entry a couples points a and a+1 (mod M).</summary>
+    internal double[] Upper { get; }
+
+    /// <summary>Changes the frequency origin φ (only the fold step depends on it).</summary>
+    public void SetOffset(double offsetHz)
+    {
+        OffsetHz = offsetHz;
+        var n = Grid.Count;
+        _foldBin = new int[n];
+        _foldFrac = new double[n];
+        var fsr = Instrument.FsrHz;
+        for (var j = 0; j < n; j++)
+        {
+            var u = PositiveMod(Grid[j] - offsetHz, fsr) / StepHz;
+            var a = (int)Math.Floor(u);
+            var t = u - a;
+            if (a >= M) a -= M;
+            _foldBin[j] = a;
+            _foldFrac[j] = t;
+        }
+    }
+
+    /// <summary>Fold: grid spectrum (n) → periodic grid (M).</summary>
+    public void Fold(ReadOnlySpan<double> s, double[] periodic)
+    {
+        Array.Clear(periodic);
+        for (var j = 0; j < s.Length; j++)
+        {
+            var v = s[j];
+            if (v == 0) continue;
+            var a = _foldBin[j];
+            var t = _foldFrac[j];
+            periodic[a] += (1 - t) * v;
+            periodic[a + 1 == M ? 0 : a + 1] += t * v;
+        }
+    }
+
+    /// <summary>Transpose of <see cref="Fold"/>: periodic grid (M) → grid (n), added into <paramref name="result"/> times <paramref name="scale"/>.</summary>
+    public void FoldTransposeAdd(double[] periodic, Span<double> result, double scale)
+    {
+        for (var j = 0; j < result.Length; j++)
+        {
+            var a = _foldBin[j];
+            var t = _foldFrac[j];
+            result[j] += scale * ((1 - t) * periodic[a] + t * periodic[a + 1 == M ? 0 : a + 1]);
+        }
+    }
+
+    /// <summary>Value at grid bin j of a periodic-grid vector, gathered with the fold weights.</summary>
+    public double Gather(double[] periodic, int j)
+    {
+        var a = _foldBin[j];
+        var t = _foldFrac[j];
+        return (1 - t) * periodic[a] + t * periodic[a + 1 == M ? 0 : a + 1];
+    }
+
+    /// <summary>Puts a unit bin j onto a cleared periodic vector.</summary>
+    public void FoldUnit(int j, double[] periodic)
+    {
+        Array.Clear(periodic);
+        var a = _foldBin[j];
+        var t = _foldFrac[j];
+        periodic[a] += 1 - t;
+        periodic[a + 1 == M ? 0 : a + 1] += t;
+    }
+
+    /// <summary>Circular convolution with the Airy profile (self-adjoint).</summary>
+    public void Convolve(double[] input, double[] result) => _conv.Apply(input, result);
+
+    /// <summary>Sampling: periodic grid → samples.</summary>
+    public void Sample(double[] periodic, Span<double> samples)
+    {
+        for (var i = 0; i < SampleCount; i++)
+        {
+            var a = _sampleBin[i];
+            var t = _sampleFrac[i];
+            samples[i] = (1 - t) * periodic[a] + t * periodic[a + 1 == M ? 0 : a + 1];
+        }
+    }
+
+    /// <summary>Transpose of <see cref="Sample"/>: samples → periodic grid (overwrites).</summary>
+    public void SampleTranspose(ReadOnlySpan<double> samples, double[] periodic)
+    {
+        Array.Clear(periodic);
+        for (var i = 0; i < SampleCount; i++)
+        {
+            var a = _sampleBin[i];
+            var t = _sampleFrac[i];
+            periodic[a] += (1 - t) * samples[i];
+            periodic[a + 1 == M ? 0 : a + 1] += t * samples[i];
+        }
+    }
+
+    /// <summary>SᵀS v (cyclic tridiagonal), overwriting result.</summary>
+    public void SampleNormal(double[] v, double[] result)
+    {
+        var m = M;
+        for (var a = 0; a < m; a++)
+        {
+            var prev = a == 0 ? m - 1 : a - 1;
+            var next = a + 1 == m ? 0 : a + 1;
+            result[a] = Diagonal[a] * v[a] + Upper[a] * v[next] + Upper[prev] * v[prev];
+        }
+    }
+
+    /// <summary>y = A s (no gain, no background).</summary>
+    public double[] Forward(ReadOnlySpan<double> s)
+    {
+        var p = new double[M];
+        var q = new double[M];
+        Fold(s, p);
+        Convolve(p, q);
+        var y = new double[SampleCount];
+        Sample(q, y);
+        return y;
+    }
+
+    /// <summary>Aᵀ r, added into result times scale.</summary>
+    public void AdjointAdd(ReadOnlySpan<double> r, Span<double> result, double scale = 1)
+    {
+        var p = new double[M];
+        var q = new double[M];
+        SampleTranspose(r, p);
+        Convolve(p, q);
+        FoldTransposeAdd(q, result, scale);
+    }
+
+    /// <summary>The periodic model P(u) = (fold(s) ⊛ T)(u) on the periodic grid.</summary>
+    public double[] PeriodicModel(ReadOnlySpan<double> s)
+    {
+        var p = new double[M];
+        var q = new double[M];
+        Fold(s, p);
+        Convolve(p, q);
+        return q;
+    }
+
+    internal static double PositiveMod(double a, double m)
+    {
+        var r = a % m;
+        return r < 0 ? r + m : r;
+    }
+}

@@ -1,0 +1,218 @@
+using OrderUnfold.Instruments;
+
+namespace OrderUnfold.Inversion;
+
+/// <summary>One calibrated sweep as the inversion needs it.</summary>
+/// <param name="Name">Display name.</param>
+/// <param name="Instrument">Cavity it was taken with.</param>
+/// <param name="ScanHz">Calibrated scan frequency shift f(xᵢ) of each sample.</param>
+/// <param name="Signal">Detector signal yᵢ.</param>
+/// <param name="NoiseSigma">Noise σ of the signal (same units).</param>
+public sealed record CalibratedSweep(string Name, Instrument Instrument, double[] ScanHz, double[] Signal, double NoiseSigma);
+
+/// <summary>
+/// The joint linear problem for all sweeps at fixed offsets and gains: unknowns are the grid spectrum
+/// s ≥ 0 and one free background per sweep, in noise-whitened units. Provides the normal equations
+/// matrix-free to <see cref="ActiveSetNnls"/>, with an L1 weight λ on s and an optional first-difference
+/// smoothness weight μ‖Ds‖².
+/// </summary>
+public sealed class UnfoldProblem : INormalEquations
+{
+    private readonly CalibratedSweep[] _sweeps;
+    private readonly SweepOperator[] _ops;
+    private readonly double[] _gains;
+    private readonly double[][] _kSty; // K Sᵀ(y/σ) on each periodic grid
+    private readonly double[][] _kSt1; // K Sᵀ 1
+    private readonly double[] _rhs;
+    private readonly double _lambda;
+    private readonly double _mu;
+    private readonly double[][] _work1;
+    private readonly double[][] _work2;
+    private readonly double[][] _colCache;
+    private int _colCacheBin = -1;
+
+    public UnfoldProblem(IReadOnlyList<CalibratedSweep> sweeps, FrequencyGrid grid, IReadOnlyList<double> offsetsHz,
+        IReadOnlyList<double> gains, double l1Weight, double smoothness, double periodicStepHz)
+    {
+        _sweeps = sweeps.ToArray();
+        Grid = grid;
+        _gains = gains.ToArray();
+        _lambda = l1Weight;
+        _mu = smoothness;
+        var k = _sweeps.Length;
+        _ops = new SweepOperator[k];
+        _kSty = new double[k][];
+        _kSt1 = new double[k][];
+        _work1 = new double[k][];
+        _work2 = new double[k][];
+        _colCache = new double[k][];
+        for (var s = 0; s < k; s++)
+        {
+            var sw = _sweeps[s];
+            var op = new SweepOperator(sw.Instrument, sw.ScanHz, grid, offsetsHz[s], periodicStepHz);
+            _ops[s] = op;
+            var yw = sw.Signal.Select(v => v / sw.NoiseSigma).ToArray();
+            var p = new double[op.M];
+            op.SampleTranspose(yw, p);
+            _kSty[s] = new double[op.M];
+            op.Convolve(p, _kSty[s]);
+            op.SampleTranspose(Enumerable.Repeat(1.0, sw.Signal.Length).ToArray(), p);
+            _kSt1[s] = new double[op.M];
+            op.Convolve(p, _kSt1[s]);
+            _work1[s] = new double[op.M];
+            _work2[s] = new double[op.M];
+            _colCache[s] = new double[op.M];
+        }
+
+        Count = grid.Count + k;
+        _rhs = new double[Count];
+        for (var s = 0; s < k; s++)
+        {
+            var c = Scale(s);
+            _ops[s].FoldTransposeAdd(_kSty[s], _rhs.AsSpan(0, grid.Count), c);
+            _rhs[grid.Count + s] = _sweeps[s].Signal.Sum() / _sweeps[s].NoiseSigma;
+        }
+
+        for (var j = 0; j < grid.Count; j++) _rhs[j] -= _lambda;
+    }
+
+    public FrequencyGrid Grid { get; }
+    public int Count { get; }
+    public int SweepCount => _sweeps.Length;
+    public IReadOnlyList<SweepOperator> Operators => _ops;
+    public ReadOnlySpan<double> RightHandSide => _rhs;
+    public double L1Weight => _lambda;
+
+    /// <summary>Row scale of sweep s in whitened units: gain / σ.</summary>
+    public double Scale(int s) => _gains[s] / _sweeps[s].NoiseSigma;
+
+    public bool IsFree(int j) => j >= Grid.Count;
+
+    public void Multiply(ReadOnlySpan<double> x, Span<double> result)
+    {
+        var n = Grid.Count;
+        result.Clear();
+        var s = x[..n];
+        for (var k = 0; k < _sweeps.Length; k++)
+        {
+            var op = _ops[k];
+            var c = Scale(k);
+            var bg = x[n + k];
+            op.Fold(s, _work1[k]);
+            op.Convolve(_work1[k], _work2[k]);
+            // bg·Sᵀ1 + c·SᵀS K fold(s) share one convolution below
+            op.SampleNormal(_work2[k], _work1[k]);
+            var w1 = _work1[k];
+            // K (c SᵀS K f s) + bg K Sᵀ1
+            op.Convolve(w1, _work2[k]);
+            var w2 = _work2[k];
+            var kst1 = _kSt1[k];
+            for (var a = 0; a < op.M; a++) w2[a] = c * w2[a] + bg * kst1[a];
+            op.FoldTransposeAdd(w2, result[..n], c);
+            // background row: (c·A s)ᵀ1 + m·bg = c·(SᵀS... ) use K Sᵀ1 · fold(s)
+            op.Fold(s, w1);
+            var dot = 0.0;
+            for (var a = 0; a < op.M; a++) dot += kst1[a] * w1[a];
+            result[n + k] = c * dot + _sweeps[k].Signal.Length * bg;
+        }
+
+        if (_mu > 0)
+        {
+            for (var j = 0; j < n; j++)
+            {
+                var v = 0.0;
+                if (j > 0) v += s[j] - s[j - 1];
+                if (j < n - 1) v += s[j] - s[j + 1];
+                result[j] += _mu * v;
+            }
+        }
+    }
+
+    public void Column(int j, IReadOnlyList<int> rows, Span<double> result, out double diagonal)
+    {
+        var n = Grid.Count;
+        if (j >= n)
+        {
+            var k = j - n;
+            var c = Scale(k);
+            for (var r = 0; r < rows.Count; r++)
+            {
+                var i = rows[r];
+                result[r] = i >= n ? 0 : c * _ops[k].Gather(_kSt1[k], i);
+            }
+
+            diagonal = _sweeps[k].Signal.Length;
+            return;
+        }
+
+        // grid column: u_k = K SᵀS K fold(e_j) per sweep, then gather
+        for (var k = 0; k < _sweeps.Length; k++)
+        {
+            var op = _ops[k];
+            op.FoldUnit(j, _work1[k]);
+            op.Convolve(_work1[k], _work2[k]);
+            op.SampleNormal(_work2[k], _work1[k]);
+            op.Convolve(_work1[k], _colCache[k]);
+        }
+
+        _colCacheBin = j;
+        diagonal = 0;
+        for (var k = 0; k < _sweeps.Length; k++)
+        {
+            var c = Scale(k);
+            diagonal += c * c * _ops[k].Gather(_colCache[k], j);
+        }
+
+        if (_mu > 0) diagonal += _mu * ((j > 0 ? 1 : 0) + (j < n - 1 ? 1 : 0));
+        for (var r = 0; r < rows.Count; r++)
+        {
+            var i = rows[r];
+            double v = 0;
+            if (i >= n)
+            {
+                var k = i - n;
+                v = Scale(k) * _ops[k].Gather(_kSt1[k], j);
+            }
+            else
+            {
+                for (var k = 0; k < _sweeps.Length; k++)
+                {
+                    var c = Scale(k);
+                    v += c * c * _ops[k].Gather(_colCache[k], i);
+                }
+
+                if (_mu > 0 && Math.Abs(i - j) == 1) v -= _mu;
+            }
+
+            result[r] = v;
+        }
+    }
+
+    /// <summary>Diagonal entry G[j, j] of a grid column without the penalty (its squared column norm).</summary>
+    public double ColumnNormSquared(int j)
+    {
+        Span<double> none = stackalloc double[0];
+        Column(j, Array.Empty<int>(), none, out var d);
+        if (_mu > 0) d -= _mu * ((j > 0 ? 1 : 0) + (j < Grid.Count - 1 ? 1 : 0));
+        return d;
+    }
+
+    /// <summary>Model of every sweep (in signal units) for a solution x = (s, whitened backgrounds).</summary>
+    public double[][] Model(ReadOnlySpan<double> x)
+    {
+        var n = Grid.Count;
+        var result = new double[_sweeps.Length][];
+        for (var k = 0; k < _sweeps.Length; k++)
+        {
+            var a = _ops[k].Forward(x[..n]);
+            var bg = x[n + k] * _sweeps[k].NoiseSigma;
+            for (var i = 0; i < a.Length; i++) a[i] = _gains[k] * a[i] + bg;
+            result[k] = a;
+        }
+
+        return result;
+    }
+
+    /// <summary>Unscaled A_k s for one sweep (no gain, no background): used to refit gains.</summary>
+    public double[] ForwardUnscaled(int k, ReadOnlySpan<double> s) => _ops[k].Forward(s);
+}

@@ -1,0 +1,98 @@
+namespace OrderUnfold.Inversion;
+
+/// <summary>Options of <see cref="Unfolder"/>.</summary>
+public sealed record UnfoldOptions
+{
+    /// <summary>Window relative to the anchor, Hz; null: the unambiguous range of the instruments.</summary>
+    public double? WindowStartHz { get; init; }
+    public double? WindowEndHz { get; init; }
+
+    /// <summary>Grid step, Hz; null: a quarter of the narrowest linewidth.</summary>
+    public double? GridStepHz { get; init; }
+
+    /// <summary>L1 weight in units of (noise σ × median column norm). 0 gives plain NNLS.</summary>
+    public double Sparsity { get; init; } = 3.0;
+
+    /// <summary>First-difference smoothness weight relative to the median squared column norm.</summary>
+    public double Smoothness { get; init; }
+
+    /// <summary>Lines below this signal-to-noise ratio are dropped.</summary>
+    public double MinSnr { get; init; } = 5.0;
+
+    /// <summary>Candidate offsets tried per sweep (its strongest folded peaks).</summary>
+    public int OffsetCandidates { get; init; } = 4;
+
+    /// <summary>Rounds of gain refit after the first solve.</summary>
+    public int GainRounds { get; init; } = 2;
+
+    /// <summary>Alias margin (in linewidths) below which two shifts count as confusable when choosing the default window.</summary>
+    public double AliasThresholdLinewidths { get; init; } = 3.0;
+
+    /// <summary>Largest grid the default window may use.</summary>
+    public int MaxGridBins { get; init; } = 200_000;
+}
+
+/// <summary>A line: a cluster of nonzero grid bins.</summary>
+/// <param name="FrequencyHz">Intensity-weighted centroid, relative to the anchor line (Hz).</param>
+/// <param name="Intensity">Summed intensity relative to the strongest line.</param>
+/// <param name="RawIntensity">Summed intensity in the solver's units (gain of the first sweep = 1).</param>
+/// <param name="Snr">Intensity over its noise-limited uncertainty.</param>
+/// <param name="FirstBin">First grid bin of the cluster.</param>
+/// <param name="LastBin">Last grid bin of the cluster.</param>
+public sealed record UnfoldedLine(double FrequencyHz, double Intensity, double RawIntensity, double Snr, int FirstBin, int LastBin)
+{
+    /// <summary>Uncertainty of the relative intensity (from the SNR).</summary>
+    public double IntensitySigma => Snr > 0 ? Intensity / Snr : double.NaN;
+}
+
+/// <summary>How one sweep is fitted.</summary>
+/// <param name="Name">Sweep name.</param>
+/// <param name="Instrument">Instrument name.</param>
+/// <param name="OffsetHz">Fitted frequency origin φ relative to the anchor.</param>
+/// <param name="Gain">Gain relative to the first sweep.</param>
+/// <param name="Background">Fitted background, signal units.</param>
+/// <param name="NoiseSigma">Noise σ estimated from the data, signal units.</param>
+/// <param name="ChiSquare">Σ((y − model)/σ)².</param>
+/// <param name="ReducedChiSquare">χ² per degree of freedom.</param>
+/// <param name="ResidualRms">RMS of y − model, signal units.</param>
+/// <param name="Samples">Number of samples.</param>
+public sealed record SweepFit(string Name, string Instrument, double OffsetHz, double Gain, double Background, double NoiseSigma,
+    double ChiSquare, double ReducedChiSquare, double ResidualRms, int Samples)
+{
+    /// <summary>The model at each sample (signal units).</summary>
+    public double[] Model { get; init; } = [];
+}
+
+/// <summary>Everything one unfold produced.</summary>
+public sealed record UnfoldResult
+{
+    /// <summary>Frequency grid, relative to the anchor line.</summary>
+    public required FrequencyGrid Grid { get; init; }
+
+    /// <summary>Recovered intensity per grid bin, relative to the strongest line's summed intensity.</summary>
+    public required double[] Spectrum { get; init; }
+
+    public required IReadOnlyList<UnfoldedLine> Lines { get; init; }
+    public required IReadOnlyList<SweepFit> Sweeps { get; init; }
+    public required NnlsResult Solver { get; init; }
+
+    /// <summary>L1 weight used, in whitened units.</summary>
+    public double L1Weight { get; init; }
+
+    /// <summary>True when at least two instruments of different FSR were combined.</summary>
+    public bool OrdersResolved { get; init; }
+
+    /// <summary>Smallest shift at which the instruments' alias margin falls below the threshold (Hz).</summary>
+    public double UnambiguousRangeHz { get; init; }
+
+    /// <summary>Offset candidates tried and their χ² (for the report).</summary>
+    public IReadOnlyList<OffsetTrial> OffsetTrials { get; init; } = [];
+
+    public IReadOnlyList<string> Warnings { get; init; } = [];
+
+    /// <summary>Reduced χ² over all sweeps.</summary>
+    public double ReducedChiSquare { get; init; }
+}
+
+/// <summary>One candidate frequency origin for a sweep and the χ² it gave.</summary>
+public sealed record OffsetTrial(string Sweep, double OffsetHz, double ChiSquare, bool Chosen);

@@ -1,0 +1,336 @@
+using OrderUnfold.Analysis;
+using OrderUnfold.Calibration;
+using OrderUnfold.Instruments;
+
+namespace OrderUnfold.Inversion;
+
+/// <summary>
+/// Solves for the spectrum from calibrated sweeps of one or more cavities: finds each sweep's frequency
+/// origin, fits gains and backgrounds, runs L1-weighted NNLS on one grid for all sweeps at once, and
+/// turns the solution into lines relative to the strongest one.
+/// </summary>
+public static class Unfolder
+{
+    public static UnfoldResult Run(IReadOnlyList<CalibratedSweep> sweeps, UnfoldOptions? options = null, IProgress<string>? progress = null)
+    {
+        options ??= new UnfoldOptions();
+        if (sweeps.Count == 0) throw new InputException("no sweeps to unfold");
+        var warnings = new List<string>();
+        foreach (var s in sweeps)
+        {
+            if (s.ScanHz.Length != s.Signal.Length) throw new ArgumentException($"{s.Name}: scan and signal lengths differ");
+            var span = Math.Abs(s.ScanHz[^1] - s.ScanHz[0]);
+            if (span < s.Instrument.FsrHz)
+                throw new InputException($"sweep covers {span / s.Instrument.FsrHz:F2} FSR of '{s.Instrument.Name}'; it must cover at least one full FSR ({Units.Quantity.FormatFrequency(s.Instrument.FsrHz)}) to be unfolded", s.Name);
+            if (!(s.NoiseSigma > 0)) throw new InputException("the signal is constant (no noise or signal level could be measured)", s.Name);
+        }
+
+        var instruments = sweeps.Select(s => s.Instrument).DistinctBy(i => i.FsrHz).ToList();
+        var narrowest = sweeps.Min(s => s.Instrument.LinewidthHz);
+        var step = options.GridStepHz ?? narrowest / 4;
+        var ordersResolved = instruments.Count > 1;
+        double unambiguous;
+        double start, end;
+        if (ordersResolved)
+        {
+            unambiguous = AliasMargin.FirstAlias(instruments, options.AliasThresholdLinewidths, options.MaxGridBins * step);
+            start = options.WindowStartHz ?? -unambiguous / 2;
+            end = options.WindowEndHz ?? unambiguous / 2;
+        }
+        else
+        {
+            unambiguous = instruments[0].FsrHz;
+            start = options.WindowStartHz ?? -unambiguous / 2;
+            end = options.WindowEndHz ?? unambiguous / 2;
+            if (end - start > unambiguous) end = start + unambiguous - step;
+            warnings.Add($"only one instrument (FSR {Units.Quantity.FormatFrequency(unambiguous)}): the spectrum is folded into one FSR and the orders of the lines are unknown");
+        }
+
+        if (!(end > start)) throw new InputException($"the frequency window is empty ({start} Hz to {end} Hz)");
+        var grid = FrequencyGrid.Covering(start, end, step);
+        if (grid.Count > options.MaxGridBins)
+            throw new InputException($"the frequency window needs {grid.Count} grid bins, more than the limit of {options.MaxGridBins}; narrow the window or enlarge the grid step");
+        var periodicStep = Math.Min(step / 2, narrowest / 20);
+
+        // initial gains from the sweep means: the mean Airy transmission over whole FSRs is Tmax/√(1+F)
+        var gains = new double[sweeps.Count];
+        for (var k = 0; k < sweeps.Count; k++)
+        {
+            var y = sweeps[k].Signal;
+            var level = y.Average() - PeakFinder.Percentile(y, 0.02);
+            gains[k] = Math.Max(level, 1e-300) * Math.Sqrt(1 + Airy.CoefficientOfFinesse(sweeps[k].Instrument.Finesse));
+        }
+
+        var g0 = gains[0];
+        for (var k = 0; k < gains.Length; k++) gains[k] /= g0;
+
+        // reference sweep: its strongest folded peak is the provisional origin
+        var offsets = new double[sweeps.Count];
+        var folded = sweeps.Select(FoldedPeaks).ToArray();
+        offsets[0] = folded[0].Count > 0 ? -folded[0][0] : 0;
+        var trials = new List<OffsetTrial>();
+        progress?.Report("finding sweep offsets");
+        for (var k = 1; k < sweeps.Count; k++)
+        {
+            var candidates = folded[k].Take(options.OffsetCandidates).Select(u => -u).ToList();
+            if (candidates.Count == 0) candidates.Add(0);
+            var pair = new[] { sweeps[0], sweeps[k] };
+            var pairGains = new[] { gains[0], gains[k] };
+            double[]? warm = null;
+            double Chi(double phi)
+            {
+                var (chi, x) = SolveChi(pair, grid, [offsets[0], phi], pairGains, options, periodicStep, warm);
+                return chi;
+            }
+
+            var results = candidates.Select(c => (phi: c, chi: Chi(c))).ToList();
+            var best = results.MinBy(r => r.chi);
+            warm = SolveChi(pair, grid, [offsets[0], best.phi], pairGains, options, periodicStep, null).Solution;
+            // refine by a parabola through χ² at φ ± δ
+            var delta = sweeps[k].Instrument.LinewidthHz / 4;
+            var phiBest = best.phi;
+            var chiBest = best.chi;
+            for (var it = 0; it < 3; it++)
+            {
+                var cm = Chi(phiBest - delta);
+                var cp = Chi(phiBest + delta);
+                var curvature = cm + cp - 2 * chiBest;
+                double shift;
+                if (curvature > 0) shift = Math.Clamp(0.5 * delta * (cm - cp) / curvature, -delta, delta);
+                else shift = cm < cp ? -delta : delta;
+                var phiNew = phiBest + shift;
+                var cn = Chi(phiNew);
+                if (cn < chiBest)
+                {
+                    phiBest = phiNew;
+                    chiBest = cn;
+                }
+
+                if (Math.Abs(shift) < delta / 8) break;
+                delta /= 2;
+            }
+
+            offsets[k] = phiBest;
+            foreach (var r in results) trials.Add(new OffsetTrial(sweeps[k].Name, r.phi, r.chi, false));
+            trials.Add(new OffsetTrial(sweeps[k].Name, phiBest, chiBest, true));
+        }
+
+        // joint solve with gain refits
+        progress?.Report("solving NNLS on all sweeps");
+        UnfoldProblem problem = null!;
+        NnlsResult nnls = null!;
+        for (var round = 0; round <= options.GainRounds; round++)
+        {
+            problem = BuildProblem(sweeps, grid, offsets, gains, options, periodicStep);
+            nnls = ActiveSetNnls.Solve(problem, SolverOptions(problem), round == 0 ? default : nnls.Solution);
+            if (round == options.GainRounds) break;
+            var s = nnls.Solution.AsSpan(0, grid.Count);
+            var newGains = new double[sweeps.Count];
+            for (var k = 0; k < sweeps.Count; k++)
+            {
+                var a = problem.ForwardUnscaled(k, s);
+                newGains[k] = RegressGain(a, sweeps[k].Signal, gains[k]);
+            }
+
+            var n0 = newGains[0];
+            for (var k = 0; k < gains.Length; k++) gains[k] = newGains[k] / n0;
+        }
+
+        if (nnls.Status != SolverStatus.Converged) warnings.Add($"NNLS did not converge: {nnls.Message} (KKT violation {nnls.KktViolation:G3})");
+
+        // sweep fits
+        var models = problem.Model(nnls.Solution);
+        var fits = new List<SweepFit>();
+        double chiTotal = 0;
+        var samples = 0;
+        for (var k = 0; k < sweeps.Count; k++)
+        {
+            var y = sweeps[k].Signal;
+            var m = models[k];
+            double chi = 0, ss = 0;
+            for (var i = 0; i < y.Length; i++)
+            {
+                var r = y[i] - m[i];
+                ss += r * r;
+                chi += r * r / (sweeps[k].NoiseSigma * sweeps[k].NoiseSigma);
+            }
+
+            var dof = Math.Max(1, y.Length - 2 - nnls.ActiveCount / sweeps.Count);
+            chiTotal += chi;
+            samples += y.Length;
+            fits.Add(new SweepFit(sweeps[k].Name, sweeps[k].Instrument.Name, offsets[k], gains[k],
+                nnls.Solution[grid.Count + k] * sweeps[k].NoiseSigma, sweeps[k].NoiseSigma, chi, chi / dof, Math.Sqrt(ss / y.Length), y.Length) { Model = m });
+            if (chi / dof > 3)
+                warnings.Add($"{sweeps[k].Name}: the model does not fit well (reduced χ² = {chi / dof:F2}); check the axis calibration, the finesse and the offsets");
+        }
+
+        // lines
+        var spectrum = nnls.Solution[..grid.Count];
+        var lines = ExtractLines(problem, spectrum, options.MinSnr);
+        var anchorHz = 0.0;
+        var scale = 1.0;
+        if (lines.Count > 0)
+        {
+            var strongest = lines.MaxBy(l => l.RawIntensity)!;
+            anchorHz = strongest.FrequencyHz;
+            scale = strongest.RawIntensity;
+        }
+
+        var shiftedGrid = new FrequencyGrid(grid.StartHz - anchorHz, grid.StepHz, grid.Count);
+        var finalLines = lines.Select(l => l with { FrequencyHz = l.FrequencyHz - anchorHz, Intensity = l.RawIntensity / scale })
+            .OrderBy(l => l.FrequencyHz).ToList();
+        foreach (var l in finalLines)
+        {
+            if (l.FirstBin <= 1 || l.LastBin >= grid.Count - 2)
+                warnings.Add($"line at {Units.Quantity.FormatFrequency(l.FrequencyHz)} sits at the edge of the frequency window; it may belong outside it");
+        }
+
+        if (lines.Count == 0) warnings.Add("no line above the detection threshold was found");
+        var fitsShifted = fits.Select(f => f with { OffsetHz = f.OffsetHz - anchorHz }).ToList();
+        return new UnfoldResult
+        {
+            Grid = shiftedGrid,
+            Spectrum = spectrum.Select(v => v / scale).ToArray(),
+            Lines = finalLines,
+            Sweeps = fitsShifted,
+            Solver = nnls,
+            L1Weight = problem.L1Weight,
+            OrdersResolved = ordersResolved,
+            UnambiguousRangeHz = unambiguous,
+            OffsetTrials = trials.Select(t => t with { OffsetHz = t.OffsetHz - anchorHz }).ToList(),
+            Warnings = warnings,
+            ReducedChiSquare = chiTotal / Math.Max(1, samples - nnls.ActiveCount - 2 * sweeps.Count),
+        };
+    }
+
+    /// <summary>Folded positions (Hz within one FSR) of a sweep's peaks, strongest first, merged across repeats.</summary>
+    internal static List<double> FoldedPeaks(CalibratedSweep sweep)
+    {
+        var idx = Enumerable.Range(0, sweep.Signal.Length).Select(i => (double)i).ToArray();
+        var peaks = PeakFinder.Find(idx, sweep.Signal, minHeightFraction: 0.05, minSnr: 5);
+        var fsr = sweep.Instrument.FsrHz;
+        var lw = sweep.Instrument.LinewidthHz;
+        var list = new List<(double u, double h)>();
+        foreach (var p in peaks.OrderByDescending(p => p.Height))
+        {
+            var f = PeakFinder.Interpolate(sweep.ScanHz, p.Position);
+            var u = SweepOperator.PositiveMod(f, fsr);
+            var dup = list.Any(q =>
+            {
+                var d = Math.Abs(q.u - u);
+                return Math.Min(d, fsr - d) < 2 * lw;
+            });
+            if (!dup) list.Add((u, p.Height));
+        }
+
+        return list.Select(q => q.u).ToList();
+    }
+
+    private static UnfoldProblem BuildProblem(IReadOnlyList<CalibratedSweep> sweeps, FrequencyGrid grid, IReadOnlyList<double> offsets,
+        IReadOnlyList<double> gains, UnfoldOptions options, double periodicStep)
+    {
+        // first pass without penalties to measure the typical column norm, then the weighted problem
+        var probe = new UnfoldProblem(sweeps, grid, offsets, gains, 0, 0, periodicStep);
+        var norms = new List<double>();
+        var count = Math.Min(33, grid.Count);
+        for (var i = 0; i < count; i++)
+        {
+            var j = (int)((long)i * (grid.Count - 1) / Math.Max(1, count - 1));
+            norms.Add(probe.ColumnNormSquared(j));
+        }
+
+        norms.Sort();
+        var median = norms[norms.Count / 2];
+        var lambda = options.Sparsity * Math.Sqrt(median);
+        var mu = options.Smoothness * median;
+        return new UnfoldProblem(sweeps, grid, offsets, gains, lambda, mu, periodicStep);
+    }
+
+    private static ActiveSetNnls.Options SolverOptions(UnfoldProblem problem)
+    {
+        var tol = Math.Max(1e-3 * problem.L1Weight, 1e-9);
+        return new ActiveSetNnls.Options { Tolerance = tol, MaxIterations = Math.Max(2000, problem.Grid.Count) };
+    }
+
+    private static (double Chi, double[] Solution) SolveChi(IReadOnlyList<CalibratedSweep> sweeps, FrequencyGrid grid, IReadOnlyList<double> offsets,
+        IReadOnlyList<double> gains, UnfoldOptions options, double periodicStep, double[]? warm)
+    {
+        var problem = BuildProblem(sweeps, grid, offsets, gains, options, periodicStep);
+        var nnls = ActiveSetNnls.Solve(problem, SolverOptions(problem), warm);
+        var models = problem.Model(nnls.Solution);
+        double chi = 0;
+        for (var k = 0; k < sweeps.Count; k++)
+        {
+            var y = sweeps[k].Signal;
+            var s2 = sweeps[k].NoiseSigma * sweeps[k].NoiseSigma;
+            for (var i = 0; i < y.Length; i++)
+            {
+                var r = y[i] - models[k][i];
+                chi += r * r / s2;
+            }
+        }
+
+        return (chi, nnls.Solution);
+    }
+
+    private static double RegressGain(double[] a, double[] y, double fallback)
+    {
+        // least squares y ≈ g a + b
+        var n = a.Length;
+        double sa = 0, sy = 0, saa = 0, say = 0;
+        for (var i = 0; i < n; i++)
+        {
+            sa += a[i];
+            sy += y[i];
+            saa += a[i] * a[i];
+            say += a[i] * y[i];
+        }
+
+        var det = n * saa - sa * sa;
+        if (!(det > 0)) return fallback;
+        var g = (n * say - sa * sy) / det;
+        return g > 0 && double.IsFinite(g) ? g : fallback;
+    }
+
+    private static List<UnfoldedLine> ExtractLines(UnfoldProblem problem, double[] s, double minSnr)
+    {
+        var grid = problem.Grid;
+        var max = s.Length > 0 ? s.Max() : 0;
+        var lines = new List<UnfoldedLine>();
+        if (!(max > 0)) return lines;
+        var j = 0;
+        while (j < s.Length)
+        {
+            if (s[j] <= 0)
+            {
+                j++;
+                continue;
+            }
+
+            var first = j;
+            var last = j;
+            while (true)
+            {
+                if (last + 1 < s.Length && s[last + 1] > 0) last++;
+                else if (last + 2 < s.Length && s[last + 2] > 0) last += 2; // bridge one empty bin
+                else break;
+            }
+
+            double sum = 0, sumF = 0, norm = 0;
+            for (var k = first; k <= last; k++)
+            {
+                sum += s[k];
+                sumF += s[k] * grid[k];
+            }
+
+            var top = first;
+            for (var k = first; k <= last; k++) if (s[k] > s[top]) top = k;
+            norm = Math.Sqrt(problem.ColumnNormSquared(top));
+            var snr = sum * norm;
+            if (snr >= minSnr) lines.Add(new UnfoldedLine(sumF / sum, 0, sum, snr, first, last));
+            j = last + 1;
+        }
+
+        return lines;
+    }
+}
