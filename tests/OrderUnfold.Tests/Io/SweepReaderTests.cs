@@ -112,6 +112,29 @@ public sealed class SweepReaderTests : IDisposable
     }
 
     [Fact]
+    public void Explicit_header_delimiter_and_decimal_mark_override_detection()
+    {
+        // A header made of numbers (channel numbers) looks like data unless the header option says otherwise.
+        var path = Write("simulated_numeric_header.csv", "1;2\n" + TimeRows(20, ";").Replace('.', ','));
+        Assert.Contains("not strictly increasing", Fails(new SweepFileOptions { Path = path }).Message);
+
+        var t = SweepReader.Read(new SweepFileOptions { Path = path, HasHeader = true, Delimiter = ';', DecimalComma = true });
+        Assert.Equal(20, t.X.Length);
+        Assert.Equal(2, t.Lines[0]);
+        Assert.Equal(Signal(3), t.Y[3], 12);
+    }
+
+    [Fact]
+    public void Bad_options_are_reported()
+    {
+        var path = Write("simulated_opts.csv", TimeRows(20));
+        Assert.Contains("sample interval must be a positive time", Fails(new SweepFileOptions { Path = path, SampleIntervalS = 0 }).Message);
+        Assert.Contains("delimiter must be", Fails(new SweepFileOptions { Path = path, Delimiter = ':' }).Message);
+        Assert.Contains("index must be 1 or more", Fails(new SweepFileOptions { Path = path, YColumn = "0" }).Message);
+        Assert.Contains("same column", Fails(new SweepFileOptions { Path = path, XColumn = "2" }).Message);
+    }
+
+    [Fact]
     public void Skips_settings_preamble_and_finds_header_above_the_data()
     {
         var content = "Model,XYZ\nSample Interval,1e-6\nRecord Length,25\nVertical Units,V\n\nTime,CH1\n" + TimeRows(25);
@@ -322,9 +345,9 @@ public sealed class SweepReaderTests : IDisposable
 
     /// <summary>
     /// Simulated triangle ramp, 0 → 5 V → 0 → 5 V, 300 samples per leg, recorded by an 8-bit ADC over 0–5 V with
-    /// a little Gaussian noise (fixed seed), so the recorded ramp steps and jitters.
+    /// Gaussian noise of 50 mV (fixed seed), so the recorded ramp steps and jitters back and forth.
     /// </summary>
-    private static (double[] Ramp, double[] Ideal) TriangleRamp(int legs = 3, int perLeg = 300, double noise = 0.01, int seed = 7)
+    private static (double[] Ramp, double[] Ideal) TriangleRamp(int legs = 3, int perLeg = 300, double noise = 0.05, int seed = 7)
     {
         var rng = new Random(seed);
         int n = legs * perLeg;
@@ -465,6 +488,21 @@ public sealed class SweepReaderTests : IDisposable
         var e = Assert.Throws<InputException>(() => SweepReader.Split(trace));
         Assert.Equal("x is not monotonic at line 15; name a ramp column to split a triangle ramp", e.Message);
         Assert.Equal(15, e.Line);
+    }
+
+    [Fact]
+    public void Turns_need_the_hysteresis_so_noise_alone_makes_none()
+    {
+        // Unsmoothed simulated triangle (3 legs of 300 samples, 0-5 V) with uniform noise 0.2 V peak to peak: every few samples the
+        // record goes back, but only the two apexes move back by 5 % of the span (0.25 V).
+        var rng = new Random(11);
+        var (_, ideal) = TriangleRamp();
+        var noisy = ideal.Select(v => v + 0.2 * (rng.NextDouble() - 0.5)).ToArray();
+        var turns = RampSegments.Turns(noisy, RampSegments.TurnFraction * 5.0);
+        Assert.Equal(2, turns.Count);
+        Assert.InRange(turns[0], 270, 330);
+        Assert.InRange(turns[1], 570, 630);
+        Assert.True(RampSegments.Turns(noisy, 0.001 * 5.0).Count > 10); // without hysteresis the noise makes turns
     }
 
     [Fact]
