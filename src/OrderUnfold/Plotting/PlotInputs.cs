@@ -32,3 +32,13 @@ public sealed record AxisPlotInput(
     double[] CurveX,
     double[] CurveFrequencyHz,
     double[] ResidualHz);
+
+/// <summary>One transmission peak with the fitted Airy profile (top panel) and residuals beneath.
+/// <see cref="DetuningHz"/> is the frequency offset from the peak centre in Hz; the plot shows it in MHz.</summary>
+public sealed record FinessePlotInput(
+    string Title,
+    double[] DetuningHz,
+    double[] Measured,
+    double[] Model,
+    double Finesse,
+    double? FinesseSigma);
