@@ -2,7 +2,7 @@ using OrderUnfold;
 using OrderUnfold.Cli;
 using OrderUnfold.Cli.Commands;
 
-return OrderUnfold.Cli.Cli.Main(args, Console.Out, Console.Error);
+return OrderUnfold.Cli.Cli.Run(args, Console.Out, Console.Error);
 
 namespace OrderUnfold.Cli
 {
@@ -11,7 +11,7 @@ namespace OrderUnfold.Cli
     {
         public static IReadOnlyList<ICommand> Commands { get; } = CommandList.All();
 
-        public static int Main(IReadOnlyList<string> argv, TextWriter stdout, TextWriter stderr)
+        public static int Run(IReadOnlyList<string> argv, TextWriter stdout, TextWriter stderr)
         {
             var args = argv.ToArray();
             if (args.Length == 0 || args[0] is "-h" or "--help" or "help" && args.Length == 1)
