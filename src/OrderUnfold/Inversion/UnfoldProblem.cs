@@ -213,6 +213,36 @@ public sealed class UnfoldProblem : INormalEquations
         return result;
     }
 
+    /// <summary>
+    /// Gauss–Newton step for the frequency origin of sweep k given a solution x: the model's derivative with
+    /// respect to φ_k by central differences (two forward evaluations), then δφ = dᵀr / dᵀd.
+    /// </summary>
+    public double OffsetStep(int k, ReadOnlySpan<double> x)
+    {
+        var n = Grid.Count;
+        var op = _ops[k];
+        var phi = op.OffsetHz;
+        var eps = op.Instrument.LinewidthHz / 50;
+        op.SetOffset(phi + eps);
+        var plus = op.Forward(x[..n]);
+        op.SetOffset(phi - eps);
+        var minus = op.Forward(x[..n]);
+        op.SetOffset(phi);
+        var model = op.Forward(x[..n]);
+        var y = _sweeps[k].Signal;
+        var bg = x[n + k] * _sweeps[k].NoiseSigma;
+        double dr = 0, dd = 0;
+        for (var i = 0; i < y.Length; i++)
+        {
+            var d = _gains[k] * (plus[i] - minus[i]) / (2 * eps);
+            var r = y[i] - (_gains[k] * model[i] + bg);
+            dr += d * r;
+            dd += d * d;
+        }
+
+        return dd > 0 ? dr / dd : 0;
+    }
+
     /// <summary>Unscaled A_k s for one sweep (no gain, no background): used to refit gains.</summary>
     public double[] ForwardUnscaled(int k, ReadOnlySpan<double> s) => _ops[k].Forward(s);
 }

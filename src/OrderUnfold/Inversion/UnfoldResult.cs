@@ -22,8 +22,8 @@ public sealed record UnfoldOptions
     /// <summary>Candidate offsets tried per sweep (its strongest folded peaks).</summary>
     public int OffsetCandidates { get; init; } = 4;
 
-    /// <summary>Rounds of gain refit after the first solve.</summary>
-    public int GainRounds { get; init; } = 2;
+    /// <summary>Most rounds of gain and offset refit after the first joint solve (stops earlier when settled).</summary>
+    public int GainRounds { get; init; } = 12;
 
     /// <summary>Alias margin (in linewidths) below which two shifts count as confusable when choosing the default window.</summary>
     public double AliasThresholdLinewidths { get; init; } = 3.0;

@@ -70,44 +70,61 @@ public static class Unfolder
         offsets[0] = folded[0].Count > 0 ? -folded[0][0] : 0;
         var trials = new List<OffsetTrial>();
         progress?.Report("finding sweep offsets");
+        // Offsets: for each sweep, candidates from pairing its strongest folded peaks with the reference's
+        // strongest peak. Each candidate gets a solve of the pair, one Gauss–Newton step of its offset and a
+        // second solve (a candidate is only known to a fraction of a linewidth); the best one is refined by a
+        // parabolic line search on χ²(φ). The search runs with a heavier L1 weight (SearchSparsityFactor) so that
+        // a slightly misaligned model does not pull in hundreds of small bins: that keeps each solve cheap
+        // and does not change which offset fits best.
+        const double SearchSparsityFactor = 4;
+        var searchOptions = options with { Sparsity = Math.Max(options.Sparsity, 1) * SearchSparsityFactor };
+        var cap = 4 * folded.Sum(f => f.Count) + 60;
         for (var k = 1; k < sweeps.Count; k++)
         {
             var candidates = folded[k].Take(options.OffsetCandidates).Select(u => -u).ToList();
             if (candidates.Count == 0) candidates.Add(0);
             var pair = new[] { sweeps[0], sweeps[k] };
             var pairGains = new[] { gains[0], gains[k] };
+            var lw = sweeps[k].Instrument.LinewidthHz;
             double[]? warm = null;
-            double Chi(double phi)
+            (double Chi, double[] X, UnfoldProblem P) Eval(double phi, double[]? start)
             {
-                var (chi, x) = SolveChi(pair, grid, [offsets[0], phi], pairGains, options, periodicStep, warm);
-                return chi;
+                var pr = BuildProblem(pair, grid, [offsets[0], phi], pairGains, searchOptions, periodicStep);
+                var r = ActiveSetNnls.Solve(pr, SolverOptions(pr) with { MaxIterations = cap }, start);
+                return (ChiSquare(pr, r.Solution, pair), r.Solution, pr);
             }
 
-            var results = candidates.Select(c => (phi: c, chi: Chi(c))).ToList();
+            var results = new List<(double phi, double chi, double[] x)>();
+            foreach (var c in candidates)
+            {
+                var first = Eval(c, null);
+                var phi2 = c + Math.Clamp(first.P.OffsetStep(1, first.X), -lw, lw);
+                var second = Eval(phi2, first.X);
+                results.Add(second.Chi < first.Chi ? (phi2, second.Chi, second.X) : (c, first.Chi, first.X));
+            }
+
             var best = results.MinBy(r => r.chi);
-            warm = SolveChi(pair, grid, [offsets[0], best.phi], pairGains, options, periodicStep, null).Solution;
-            // refine by a parabola through χ² at φ ± δ
-            var delta = sweeps[k].Instrument.LinewidthHz / 4;
             var phiBest = best.phi;
             var chiBest = best.chi;
-            for (var it = 0; it < 3; it++)
+            warm = best.x;
+            var h = lw / 4;
+            for (var it = 0; it < 5 && h > lw / 200; it++)
             {
-                var cm = Chi(phiBest - delta);
-                var cp = Chi(phiBest + delta);
-                var curvature = cm + cp - 2 * chiBest;
-                double shift;
-                if (curvature > 0) shift = Math.Clamp(0.5 * delta * (cm - cp) / curvature, -delta, delta);
-                else shift = cm < cp ? -delta : delta;
-                var phiNew = phiBest + shift;
-                var cn = Chi(phiNew);
-                if (cn < chiBest)
+                var minus = Eval(phiBest - h, warm);
+                var plus = Eval(phiBest + h, warm);
+                var curvature = minus.Chi + plus.Chi - 2 * chiBest;
+                var shift = curvature > 0 ? Math.Clamp(0.5 * h * (minus.Chi - plus.Chi) / curvature, -2 * h, 2 * h) : (minus.Chi < plus.Chi ? -2 * h : 2 * h);
+                var next = Eval(phiBest + shift, warm);
+                var options3 = new[] { (phi: phiBest - h, r: minus), (phi: phiBest + h, r: plus), (phi: phiBest + shift, r: next) };
+                var winner = options3.MinBy(o => o.r.Chi);
+                if (winner.r.Chi < chiBest)
                 {
-                    phiBest = phiNew;
-                    chiBest = cn;
+                    phiBest = winner.phi;
+                    chiBest = winner.r.Chi;
+                    warm = winner.r.X;
                 }
 
-                if (Math.Abs(shift) < delta / 8) break;
-                delta /= 2;
+                h /= 2.5;
             }
 
             offsets[k] = phiBest;
@@ -115,16 +132,26 @@ public static class Unfolder
             trials.Add(new OffsetTrial(sweeps[k].Name, phiBest, chiBest, true));
         }
 
-        // joint solve with gain refits
+        // joint solve: alternate NNLS (warm-started) with Gauss–Newton offset steps and gain refits
         progress?.Report("solving NNLS on all sweeps");
         UnfoldProblem problem = null!;
         NnlsResult nnls = null!;
-        for (var round = 0; round <= options.GainRounds; round++)
+        var rounds = Math.Max(1, options.GainRounds);
+        for (var round = 0; round <= rounds; round++)
         {
             problem = BuildProblem(sweeps, grid, offsets, gains, options, periodicStep);
             nnls = ActiveSetNnls.Solve(problem, SolverOptions(problem), round == 0 ? default : nnls.Solution);
-            if (round == options.GainRounds) break;
+            if (round == rounds) break;
             var s = nnls.Solution.AsSpan(0, grid.Count);
+            var moved = 0.0;
+            for (var k = 1; k < sweeps.Count; k++)
+            {
+                var lw = sweeps[k].Instrument.LinewidthHz;
+                var d = Math.Clamp(problem.OffsetStep(k, nnls.Solution), -lw / 2, lw / 2);
+                offsets[k] += d;
+                moved = Math.Max(moved, Math.Abs(d) / lw);
+            }
+
             var newGains = new double[sweeps.Count];
             for (var k = 0; k < sweeps.Count; k++)
             {
@@ -133,7 +160,15 @@ public static class Unfolder
             }
 
             var n0 = newGains[0];
-            for (var k = 0; k < gains.Length; k++) gains[k] = newGains[k] / n0;
+            var gainChange = 0.0;
+            for (var k = 0; k < gains.Length; k++)
+            {
+                var g = newGains[k] / n0;
+                gainChange = Math.Max(gainChange, Math.Abs(g / gains[k] - 1));
+                gains[k] = g;
+            }
+
+            if (moved < 0.005 && gainChange < 0.002) rounds = round + 1;
         }
 
         if (nnls.Status != SolverStatus.Converged) warnings.Add($"NNLS did not converge: {nnls.Message} (KKT violation {nnls.KktViolation:G3})");
@@ -252,12 +287,9 @@ public static class Unfolder
         return new ActiveSetNnls.Options { Tolerance = tol, MaxIterations = Math.Max(2000, problem.Grid.Count) };
     }
 
-    private static (double Chi, double[] Solution) SolveChi(IReadOnlyList<CalibratedSweep> sweeps, FrequencyGrid grid, IReadOnlyList<double> offsets,
-        IReadOnlyList<double> gains, UnfoldOptions options, double periodicStep, double[]? warm)
+    private static double ChiSquare(UnfoldProblem problem, double[] solution, IReadOnlyList<CalibratedSweep> sweeps)
     {
-        var problem = BuildProblem(sweeps, grid, offsets, gains, options, periodicStep);
-        var nnls = ActiveSetNnls.Solve(problem, SolverOptions(problem), warm);
-        var models = problem.Model(nnls.Solution);
+        var models = problem.Model(solution);
         double chi = 0;
         for (var k = 0; k < sweeps.Count; k++)
         {
@@ -270,7 +302,7 @@ public static class Unfolder
             }
         }
 
-        return (chi, nnls.Solution);
+        return chi;
     }
 
     private static double RegressGain(double[] a, double[] y, double fallback)

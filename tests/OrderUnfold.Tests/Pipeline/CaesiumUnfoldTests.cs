@@ -20,15 +20,15 @@ public class CaesiumUnfoldTests(ITestOutputHelper output)
         var lines = new[]
         {
             new SimulatedLine(0, 1.0), new SimulatedLine(151e6, 0.55),
-            new SimulatedLine(CsHyperfineHz, 0.8), new SimulatedLine(CsHyperfineHz + 201e6, 0.45), new SimulatedLine(CsHyperfineHz - 263e6, 0.3),
+            new SimulatedLine(CsHyperfineHz, 0.8), new SimulatedLine(CsHyperfineHz + 237e6, 0.45), new SimulatedLine(CsHyperfineHz - 263e6, 0.3),
         };
         var spec = new SimulationSpec
         {
             Lines = lines,
             Cavities =
             [
-                new SimulatedCavity { Instrument = Instrument.FromLength("short", 0.1, CavityGeometry.Planar, 150), Gain = 0.9 },
-                new SimulatedCavity { Instrument = Instrument.FromLength("long", 0.0937, CavityGeometry.Planar, 150), Gain = 1.2, Quadratic = 0.04, Cubic = -0.02 },
+                new SimulatedCavity { Instrument = Instrument.FromLength("short", 0.1, CavityGeometry.Planar, 150), Gain = 0.9, SpanFsr = 6, Samples = 16000 },
+                new SimulatedCavity { Instrument = Instrument.FromLength("long", 0.0937, CavityGeometry.Planar, 150), Gain = 1.2, Quadratic = 0.04, Cubic = -0.02, SpanFsr = 6, Samples = 16000 },
             ],
             Seed = 7,
         };

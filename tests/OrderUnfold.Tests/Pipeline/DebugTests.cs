@@ -38,7 +38,7 @@ public class DebugTwo(ITestOutputHelper output)
         const double Cs = 9_192_631_770;
         var spec = new SimulationSpec
         {
-            Lines = [new SimulatedLine(0, 1.0), new SimulatedLine(151e6, 0.55), new SimulatedLine(Cs, 0.8), new SimulatedLine(Cs + 201e6, 0.45), new SimulatedLine(Cs - 263e6, 0.3)],
+            Lines = [new SimulatedLine(0, 1.0), new SimulatedLine(151e6, 0.55), new SimulatedLine(Cs, 0.8), new SimulatedLine(Cs + 237e6, 0.45), new SimulatedLine(Cs - 263e6, 0.3)],
             Cavities =
             [
                 new SimulatedCavity { Instrument = Instrument.FromLength("short", 0.1, CavityGeometry.Planar, 150), Gain = 0.9 },
@@ -81,7 +81,7 @@ public class DebugProfile(ITestOutputHelper output)
         const double Cs = 9_192_631_770;
         var spec = new SimulationSpec
         {
-            Lines = [new SimulatedLine(0, 1.0), new SimulatedLine(151e6, 0.55), new SimulatedLine(Cs, 0.8), new SimulatedLine(Cs + 201e6, 0.45), new SimulatedLine(Cs - 263e6, 0.3)],
+            Lines = [new SimulatedLine(0, 1.0), new SimulatedLine(151e6, 0.55), new SimulatedLine(Cs, 0.8), new SimulatedLine(Cs + 237e6, 0.45), new SimulatedLine(Cs - 263e6, 0.3)],
             Cavities =
             [
                 new SimulatedCavity { Instrument = Instrument.FromLength("short", 0.1, CavityGeometry.Planar, 150), Gain = 0.9 },
