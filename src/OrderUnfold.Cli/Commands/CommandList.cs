@@ -5,5 +5,9 @@ public static class CommandList
 {
     public static IReadOnlyList<ICommand> All() =>
     [
+        new DemoCommand(),
+        new UnfoldCommand(),
+        new InitCommand(),
+        new SimulateCommand(),
     ];
 }

@@ -43,6 +43,12 @@ public sealed record UnfoldedLine(double FrequencyHz, double Intensity, double R
 {
     /// <summary>Uncertainty of the relative intensity (from the SNR).</summary>
     public double IntensitySigma => Snr > 0 ? Intensity / Snr : double.NaN;
+
+    /// <summary>Standard uncertainty of the frequency, Hz, when it has been estimated.</summary>
+    public double? FrequencySigmaHz { get; init; }
+
+    /// <summary>True when the order of this line is not securely pinned (a near-alias fits almost as well).</summary>
+    public bool Doubtful { get; init; }
 }
 
 /// <summary>How one sweep is fitted.</summary>
@@ -89,6 +95,9 @@ public sealed record UnfoldResult
     public IReadOnlyList<OffsetTrial> OffsetTrials { get; init; } = [];
 
     public IReadOnlyList<string> Warnings { get; init; } = [];
+
+    /// <summary>Smallest relative intensity that would have been detected at each grid bin, when computed.</summary>
+    public double[]? DetectionLimit { get; init; }
 
     /// <summary>Reduced χ² over all sweeps.</summary>
     public double ReducedChiSquare { get; init; }

@@ -1,0 +1,42 @@
+using OrderUnfold.Pipeline;
+using OrderUnfold.Units;
+
+namespace OrderUnfold.Cli.Commands;
+
+/// <summary>Plain-text summaries printed by the commands.</summary>
+internal static class Summary
+{
+    public static void Unfold(UnfoldRun run, TextWriter o)
+    {
+        var r = run.Result;
+        o.WriteLine($"instruments: {string.Join("; ", run.Instruments.Select(i => i.ToString()))}");
+        foreach (var c in run.Calibrations)
+            o.WriteLine($"axis {c.Instrument} ({c.Direction.ToString().ToLowerInvariant()}): {c.Method}, degree {c.Axis.Degree}, {c.PointCount} points, residual RMS {Quantity.FormatFrequency(c.ResidualRmsHz)}"
+                        + (c.Finesse is double f ? $", finesse {f:F0}" : ""));
+        foreach (var s in r.Sweeps)
+            o.WriteLine($"sweep {s.Name}: {s.Samples} samples, reduced χ² {s.ReducedChiSquare:F2}");
+        o.WriteLine(r.OrdersResolved
+            ? $"window {Quantity.FormatFrequency(r.Grid.StartHz)} to {Quantity.FormatFrequency(r.Grid.EndHz)} ({r.Grid.Count} bins of {Quantity.FormatFrequency(r.Grid.StepHz)}); unambiguous range {Quantity.FormatFrequency(r.UnambiguousRangeHz)}"
+            : $"one instrument only: spectrum folded into one FSR ({Quantity.FormatFrequency(r.UnambiguousRangeHz)}); orders unknown");
+        o.WriteLine($"solver: {r.Solver.Status.ToString().ToLowerInvariant()} after {r.Solver.Iterations} iterations; reduced χ² {r.ReducedChiSquare:F2}");
+        var anchor = run.Setup.Solve.AnchorFrequencyHz;
+        o.WriteLine($"{r.Lines.Count} line(s), frequencies relative to the strongest line" + (anchor is double a ? $" (anchored at {Quantity.FormatFrequency(a, 10)})" : "") + ":");
+        o.WriteLine("  frequency            ± sigma        intensity   ± sigma     SNR   order");
+        foreach (var l in r.Lines)
+        {
+            var sig = l.FrequencySigmaHz is double fs ? Quantity.FormatFrequency(fs, 2) : "n/a";
+            o.WriteLine($"  {Quantity.FormatFrequency(l.FrequencyHz, 7),-20} {sig,-14} {l.Intensity,9:F4}   {l.IntensitySigma,7:F4} {l.Snr,7:F0}   {(l.Doubtful ? "doubtful" : r.OrdersResolved ? "secure" : "unknown")}");
+        }
+
+        foreach (var w in run.AllWarnings) o.WriteLine($"warning: {w}");
+    }
+}
+
+/// <summary>Progress lines on standard error.</summary>
+internal sealed class StderrProgress(TextWriter err, bool quiet) : IProgress<string>
+{
+    public void Report(string value)
+    {
+        if (!quiet) err.WriteLine($"... {value}");
+    }
+}

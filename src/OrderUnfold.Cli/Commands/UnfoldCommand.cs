@@ -1,0 +1,35 @@
+using OrderUnfold.Pipeline;
+
+namespace OrderUnfold.Cli.Commands;
+
+/// <summary><c>orderunfold unfold SETUP --out DIR</c>.</summary>
+public sealed class UnfoldCommand : ICommand
+{
+    public string Name => "unfold";
+    public string Summary => "solve for the spectrum from the sweeps a setup file names";
+
+    public string Usage => """
+        orderunfold unfold SETUP [--out DIR] [--no-plots] [--quiet]
+
+        Reads SETUP (TOML; see docs/setup.md), calibrates each sweep axis, solves for the spectrum on one
+        frequency grid from all sweeps, and writes into DIR (default: unfold-out next to the setup):
+          report.json   inputs with hashes, instruments, calibrations, fit quality, lines, warnings
+          lines.csv     one row per line: frequency_hz (relative to the strongest line), intensity, ...
+          spectrum.csv  the frequency grid and recovered intensity
+          *.png         each sweep with the model and residuals, the spectrum, the axis calibrations
+        Exit code 0 on success, 2 on bad input.
+        """;
+
+    public int Run(string[] args, TextWriter stdout, TextWriter stderr)
+    {
+        var a = new Args(Name, args, ["out"], ["no-plots", "quiet"]);
+        var setup = a.Positional(0, "SETUP (a setup .toml file)");
+        a.NoMorePositionals(1);
+        var outDir = a.Value("out") ?? Path.Combine(Path.GetDirectoryName(Path.GetFullPath(setup)) ?? ".", "unfold-out");
+        var run = UnfoldPipeline.Run(setup, new StderrProgress(stderr, a.Flag("quiet")));
+        UnfoldOutputs.Write(run, outDir, plots: !a.Flag("no-plots"), toolVersion: Cli.Version);
+        Commands.Summary.Unfold(run, stdout);
+        stdout.WriteLine($"outputs: {Path.GetFullPath(outDir)}");
+        return ExitCodes.Ok;
+    }
+}

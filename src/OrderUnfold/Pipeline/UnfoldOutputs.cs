@@ -1,0 +1,222 @@
+using System.Globalization;
+using System.Text;
+using System.Text.Json;
+using System.Text.Json.Nodes;
+using OrderUnfold.Calibration;
+using OrderUnfold.Io;
+using OrderUnfold.Plotting;
+
+namespace OrderUnfold.Pipeline;
+
+/// <summary>Names of the files an unfold writes.</summary>
+public static class OutputNames
+{
+    public const string Report = "report.json";
+    public const string Lines = "lines.csv";
+    public const string Spectrum = "spectrum.csv";
+    public const string SpectrumPlot = "spectrum.png";
+}
+
+/// <summary>Writes an unfold run's report, tables and plots. Every file is written atomically.</summary>
+public static class UnfoldOutputs
+{
+    private static readonly CultureInfo C = CultureInfo.InvariantCulture;
+
+    /// <summary>Writes report.json, lines.csv, spectrum.csv and (unless <paramref name="plots"/> is false) the PNGs.
+    /// Returns the paths written.</summary>
+    public static IReadOnlyList<string> Write(UnfoldRun run, string directory, bool plots = true, string? toolVersion = null)
+    {
+        Directory.CreateDirectory(directory);
+        var written = new List<string>();
+        void Text(string name, string content)
+        {
+            var p = Path.Combine(directory, name);
+            AtomicFile.WriteAllText(p, content);
+            written.Add(p);
+        }
+
+        Text(OutputNames.Lines, LinesCsv(run));
+        Text(OutputNames.Spectrum, SpectrumCsv(run));
+        if (plots)
+        {
+            written.AddRange(WritePlots(run, directory));
+        }
+
+        // the report last: its presence means the run's outputs are complete
+        Text(OutputNames.Report, Report(run, toolVersion).ToJsonString(new JsonSerializerOptions { WriteIndented = true }) + "\n");
+        return written;
+    }
+
+    /// <summary>lines.csv: one row per line, frequencies relative to the anchor (strongest line).</summary>
+    public static string LinesCsv(UnfoldRun run)
+    {
+        var anchor = run.Setup.Solve.AnchorFrequencyHz;
+        var sb = new StringBuilder();
+        sb.Append("frequency_hz,frequency_sigma_hz,intensity,intensity_sigma,snr");
+        if (anchor is not null) sb.Append(",absolute_frequency_hz");
+        sb.Append('\n');
+        foreach (var l in run.Result.Lines)
+        {
+            sb.Append(F(l.FrequencyHz)).Append(',')
+              .Append(F(l.FrequencySigmaHz)).Append(',')
+              .Append(F(l.Intensity)).Append(',')
+              .Append(F(l.IntensitySigma)).Append(',')
+              .Append(F(l.Snr));
+            if (anchor is double a) sb.Append(',').Append(F(a + l.FrequencyHz));
+            sb.Append('\n');
+        }
+
+        return sb.ToString();
+    }
+
+    /// <summary>spectrum.csv: the grid and the recovered intensity per bin.</summary>
+    public static string SpectrumCsv(UnfoldRun run)
+    {
+        var sb = new StringBuilder("frequency_hz,intensity\n");
+        var g = run.Result.Grid;
+        for (var j = 0; j < g.Count; j++) sb.Append(F(g[j])).Append(',').Append(F(run.Result.Spectrum[j])).Append('\n');
+        return sb.ToString();
+    }
+
+    public static IReadOnlyList<string> WritePlots(UnfoldRun run, string directory)
+    {
+        var written = new List<string>();
+        var r = run.Result;
+        for (var k = 0; k < run.Sweeps.Count; k++)
+        {
+            var s = run.Sweeps[k];
+            var fit = r.Sweeps[k];
+            var p = Path.Combine(directory, $"sweep-{k + 1}-{Slug(s.Name)}.png");
+            Plots.SaveSweepFit(p, new SweepPlotInput($"Sweep {k + 1}: {s.Name} (reduced χ² {fit.ReducedChiSquare:F2})", s.ScanHz, s.Signal, fit.Model, s.Instrument.Name, s.Instrument.FsrHz));
+            written.Add(p);
+        }
+
+        var marks = r.Lines.Select(l => new LineMark(l.FrequencyHz, l.Intensity, Units.Quantity.FormatFrequency(l.FrequencyHz), l.Doubtful,
+            l.FrequencySigmaHz, l.IntensitySigma)).ToList();
+        var sp = Path.Combine(directory, OutputNames.SpectrumPlot);
+        var title = r.OrdersResolved ? "Unfolded spectrum" : "Folded spectrum (one instrument: orders unknown)";
+        Plots.SaveSpectrum(sp, new SpectrumPlotInput(title, r.Grid.ToArray(), r.Spectrum, marks, run.Setup.Solve.AnchorFrequencyHz, r.DetectionLimit));
+        written.Add(sp);
+        foreach (var c in run.Calibrations)
+        {
+            var p = Path.Combine(directory, $"calibration-{Slug(c.Instrument)}-{c.Direction.ToString().ToLowerInvariant()}.png");
+            var xs = Enumerable.Range(0, 200).Select(i => c.Axis.XMin + (c.Axis.XMax - c.Axis.XMin) * i / 199.0).ToArray();
+            Plots.SaveAxisCalibration(p, new AxisPlotInput($"Sweep axis of {c.Instrument} ({c.Direction.ToString().ToLowerInvariant()} ramp), degree {c.Axis.Degree}",
+                "scan coordinate", c.PointX, c.PointHz, xs, c.Axis.Evaluate(xs), c.ResidualHz));
+            written.Add(p);
+        }
+
+        return written;
+    }
+
+    public static JsonObject Report(UnfoldRun run, string? toolVersion = null)
+    {
+        var r = run.Result;
+        var anchor = run.Setup.Solve.AnchorFrequencyHz;
+        var o = new JsonObject
+        {
+            ["tool"] = "orderunfold",
+            ["version"] = toolVersion ?? typeof(UnfoldOutputs).Assembly.GetName().Version?.ToString(3),
+            ["created_utc"] = DateTime.UtcNow.ToString("yyyy-MM-ddTHH:mm:ssZ", C),
+            ["frequencies"] = anchor is null ? "relative to the anchor (strongest) line, Hz" : "relative to the anchor line, Hz; absolute_frequency_hz adds the stated anchor frequency",
+            ["inputs"] = new JsonArray(run.Inputs.Select(i => (JsonNode)new JsonObject
+            {
+                ["role"] = i.Role, ["path"] = i.Path, ["bytes"] = i.Bytes, ["sha256"] = i.Sha256,
+            }).ToArray()),
+            ["instruments"] = new JsonArray(run.Instruments.Select(i => (JsonNode)new JsonObject
+            {
+                ["name"] = i.Name,
+                ["geometry"] = i.Geometry.ToString().ToLowerInvariant(),
+                ["length_m"] = N(i.LengthM),
+                ["refractive_index"] = i.RefractiveIndex,
+                ["fsr_hz"] = N(i.FsrHz),
+                ["finesse"] = N(i.Finesse),
+                ["linewidth_hz"] = N(i.LinewidthHz),
+            }).ToArray()),
+            ["calibrations"] = new JsonArray(run.Calibrations.Select(CalibrationNode).ToArray()),
+            ["solve"] = new JsonObject
+            {
+                ["grid_start_hz"] = N(r.Grid.StartHz),
+                ["grid_step_hz"] = N(r.Grid.StepHz),
+                ["grid_bins"] = r.Grid.Count,
+                ["l1_weight"] = N(r.L1Weight),
+                ["orders_resolved"] = r.OrdersResolved,
+                ["unambiguous_range_hz"] = N(r.UnambiguousRangeHz),
+                ["solver_status"] = r.Solver.Status.ToString().ToLowerInvariant(),
+                ["solver_message"] = r.Solver.Message,
+                ["solver_iterations"] = r.Solver.Iterations,
+                ["solver_removals"] = r.Solver.Removals,
+                ["kkt_violation"] = N(r.Solver.KktViolation),
+                ["nonzero_bins"] = r.Solver.ActiveCount - run.Sweeps.Count,
+            },
+            ["reduced_chi_square"] = N(r.ReducedChiSquare),
+            ["sweeps"] = new JsonArray(r.Sweeps.Select(s => (JsonNode)new JsonObject
+            {
+                ["name"] = s.Name,
+                ["instrument"] = s.Instrument,
+                ["samples"] = s.Samples,
+                ["offset_hz"] = N(s.OffsetHz),
+                ["gain"] = N(s.Gain),
+                ["background"] = N(s.Background),
+                ["noise_sigma"] = N(s.NoiseSigma),
+                ["chi_square"] = N(s.ChiSquare),
+                ["reduced_chi_square"] = N(s.ReducedChiSquare),
+                ["residual_rms"] = N(s.ResidualRms),
+            }).ToArray()),
+            ["anchor_frequency_hz"] = N(anchor),
+            ["detection_limit"] = N(r.DetectionLimit?.Where(double.IsFinite).DefaultIfEmpty(double.NaN).Max()),
+            ["lines"] = new JsonArray(r.Lines.Select(l => (JsonNode)new JsonObject
+            {
+                ["frequency_hz"] = N(l.FrequencyHz),
+                ["frequency_sigma_hz"] = N(l.FrequencySigmaHz),
+                ["absolute_frequency_hz"] = anchor is double a ? N(a + l.FrequencyHz) : null,
+                ["intensity"] = N(l.Intensity),
+                ["intensity_sigma"] = N(l.IntensitySigma),
+                ["snr"] = N(l.Snr),
+                ["doubtful"] = l.Doubtful,
+            }).ToArray()),
+            ["offset_trials"] = new JsonArray(r.OffsetTrials.Select(t => (JsonNode)new JsonObject
+            {
+                ["sweep"] = t.Sweep, ["offset_hz"] = N(t.OffsetHz), ["chi_square"] = N(t.ChiSquare), ["chosen"] = t.Chosen,
+            }).ToArray()),
+            ["warnings"] = new JsonArray(run.AllWarnings.Select(w => (JsonNode)JsonValue.Create(w)!).ToArray()),
+        };
+        return o;
+    }
+
+    private static JsonNode CalibrationNode(AxisCalibration c) => new JsonObject
+    {
+        ["instrument"] = c.Instrument,
+        ["direction"] = c.Direction.ToString().ToLowerInvariant(),
+        ["source"] = c.Source,
+        ["method"] = c.Method,
+        ["degree"] = c.Axis.Degree,
+        ["points"] = c.PointCount,
+        ["residual_rms_hz"] = N(c.ResidualRmsHz),
+        ["max_residual_hz"] = N(c.ResidualHz.Select(Math.Abs).DefaultIfEmpty(0).Max()),
+        ["finesse"] = N(c.Finesse),
+        ["finesse_sigma"] = N(c.FinesseSigma),
+        ["axis_coefficients_hz"] = new JsonArray(c.Axis.Coefficients.Select(v => (JsonNode?)N(v)).ToArray()),
+        ["axis_center"] = N(c.Axis.Center),
+        ["axis_half_range"] = N(c.Axis.HalfRange),
+        ["warnings"] = new JsonArray(c.Warnings.Select(w => (JsonNode)JsonValue.Create(w)!).ToArray()),
+    };
+
+    /// <summary>A finite number, or null (never NaN in a report).</summary>
+    internal static JsonNode? N(double? v) => v is double d && double.IsFinite(d) ? JsonValue.Create(d) : null;
+
+    /// <summary>Round-trip number text for CSV; empty for missing or non-finite values.</summary>
+    internal static string F(double? v) => v is double d && double.IsFinite(d) ? d.ToString("R", C) : "";
+
+    internal static string Slug(string name)
+    {
+        var sb = new StringBuilder();
+        foreach (var ch in name.ToLowerInvariant())
+        {
+            if (char.IsLetterOrDigit(ch)) sb.Append(ch);
+            else if (sb.Length > 0 && sb[^1] != '-') sb.Append('-');
+        }
+
+        return sb.ToString().Trim('-');
+    }
+}

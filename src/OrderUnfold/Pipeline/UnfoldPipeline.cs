@@ -1,0 +1,179 @@
+using System.Security.Cryptography;
+using OrderUnfold.Calibration;
+using OrderUnfold.Instruments;
+using OrderUnfold.Inversion;
+using OrderUnfold.Io;
+using OrderUnfold.Units;
+
+namespace OrderUnfold.Pipeline;
+
+/// <summary>One unfold from a setup: read sweeps, calibrate the axes, solve, collect what happened.</summary>
+public static class UnfoldPipeline
+{
+    /// <summary>Samples this far (as a fraction of the calibrated x range) outside the calibration points are still used.</summary>
+    public const double TrimMargin = 0.02;
+
+    /// <summary>Reads a setup file and runs it.</summary>
+    public static UnfoldRun Run(string setupPath, IProgress<string>? progress = null) => Run(SetupReader.Read(setupPath), progress);
+
+    public static UnfoldRun Run(Setup setup, IProgress<string>? progress = null)
+    {
+        var warnings = new List<string>();
+        var inputs = new List<InputFile>();
+        if (setup.Path is not null) inputs.Add(Describe("setup", setup.Path));
+        var specs = setup.Instruments.ToDictionary(i => i.Name);
+        var instruments = setup.Instruments.ToDictionary(i => i.Name, i => i.ToInstrument());
+
+        // calibration sweeps → axes per (instrument, direction)
+        var calibrations = new List<AxisCalibration>();
+        foreach (var cal in setup.Calibrations)
+        {
+            progress?.Report($"calibrating {cal.Instrument} from {Path.GetFileName(cal.File.Path)}");
+            inputs.Add(Describe("calibration", cal.File.Path));
+            var inst = Lookup(instruments, cal.Instrument, cal.File.Path);
+            var ratio = WavelengthRatio(cal, setup);
+            var segments = ReadSegments(cal.File);
+            var byDirection = new Dictionary<RampDirection, AxisCalibration>();
+            foreach (var seg in segments)
+            {
+                AxisCalibration axis;
+                try
+                {
+                    axis = AxisCalibrator.FromCalibrationSweep(seg, inst, cal.AxisDegree, ratio);
+                }
+                catch (InputException e) when (segments.Count > 1)
+                {
+                    warnings.Add($"{seg.Name}: calibration segment skipped: {e.Message}");
+                    continue;
+                }
+
+                if (!byDirection.TryGetValue(seg.Direction, out var have) || axis.PointCount > have.PointCount) byDirection[seg.Direction] = axis;
+            }
+
+            if (byDirection.Count == 0) throw new InputException("no usable calibration segment in this file", cal.File.Path);
+            foreach (var a in byDirection.Values)
+            {
+                calibrations.Add(a);
+                warnings.AddRange(a.Warnings);
+            }
+        }
+
+        // effective finesse from the calibration peaks unless fixed
+        foreach (var (name, inst) in instruments.ToList())
+        {
+            var measured = calibrations.Where(c => c.Instrument == name && c.Finesse is not null).Select(c => c.Finesse!.Value).ToList();
+            if (measured.Count == 0 || specs[name].FixFinesse) continue;
+            var f = measured.OrderBy(v => v).ElementAt(measured.Count / 2);
+            if (Math.Abs(f / inst.Finesse - 1) > 0.2)
+                warnings.Add($"instrument '{name}': measured finesse {f:F0} differs from the stated {inst.Finesse:F0} by more than 20 %; using the measured value (set fix_finesse = true to keep the stated one)");
+            instruments[name] = inst with { Finesse = Math.Max(1, f) };
+        }
+
+        // source sweeps
+        var calibrated = new List<CalibratedSweep>();
+        var raw = new List<Sweep>();
+        foreach (var spec in setup.Sweeps)
+        {
+            progress?.Report($"reading {Path.GetFileName(spec.File.Path)}");
+            inputs.Add(Describe("sweep", spec.File.Path));
+            var inst = Lookup(instruments, spec.Instrument, spec.File.Path);
+            foreach (var segment in ReadSegments(spec.File))
+            {
+                var seg = segment;
+                var axis = FindAxis(calibrations, spec.Instrument, seg, warnings);
+                if (axis is null)
+                    throw new InputException($"no calibration for instrument '{spec.Instrument}' ({Direction(seg.Direction)} ramp): add a [[calibration]] table with a calibration-laser sweep for it", setup.Path);
+                // keep only samples inside the calibrated range (plus a small margin): a polynomial axis is not
+                // trusted where it is extrapolated, and a misplaced peak there would be fitted with spurious lines
+                var range = axis.Axis.XMax - axis.Axis.XMin;
+                var keepLo = axis.Axis.XMin - TrimMargin * range;
+                var keepHi = axis.Axis.XMax + TrimMargin * range;
+                var keep = Enumerable.Range(0, seg.Count).Where(i => seg.X[i] >= keepLo && seg.X[i] <= keepHi).ToArray();
+                if (keep.Length < seg.Count)
+                {
+                    warnings.Add($"{seg.Name}: {seg.Count - keep.Length} of {seg.Count} samples lie outside the calibrated range of the axis (calibration peaks from x = {axis.Axis.XMin:G4} to {axis.Axis.XMax:G4}) and were not used");
+                    seg = seg with { X = keep.Select(i => seg.X[i]).ToArray(), Y = keep.Select(i => seg.Y[i]).ToArray() };
+                }
+
+                var scan = axis.Axis.Evaluate(seg.X);
+                calibrated.Add(new CalibratedSweep(seg.Name, inst, scan, seg.Y, PeakFinder.NoiseSigma(seg.Y)));
+                raw.Add(seg);
+            }
+        }
+
+        var solve = setup.Solve;
+        var options = new UnfoldOptions
+        {
+            WindowStartHz = solve.WindowStartHz,
+            WindowEndHz = solve.WindowEndHz,
+            GridStepHz = solve.GridStepHz,
+            Sparsity = solve.Sparsity,
+            Smoothness = solve.Smoothness,
+            MinSnr = solve.MinSnr,
+        };
+        var result = Unfolder.Run(calibrated, options, progress);
+        return new UnfoldRun
+        {
+            Setup = setup,
+            Inputs = inputs.DistinctBy(i => i.Path).ToList(),
+            Instruments = instruments.Values.ToList(),
+            Calibrations = calibrations,
+            Sweeps = calibrated,
+            RawSweeps = raw,
+            Result = result,
+            Warnings = warnings,
+        };
+    }
+
+    /// <summary>Reads a file's segments; for time scans x is made relative to each segment's start, so that a
+    /// calibration made on one segment applies to another segment of the same direction.</summary>
+    internal static IReadOnlyList<Sweep> ReadSegments(SweepFileOptions file)
+    {
+        var segments = SweepReader.ReadSweeps(file);
+        if (segments.Count == 0) throw new InputException("no sweep segment of the requested ramp direction was found", file.Path);
+        return segments.Select(s => s.Scan == ScanCoordinate.Time ? s with { X = s.X.Select(v => v - s.X[0]).ToArray() } : s).ToList();
+    }
+
+    private static AxisCalibration? FindAxis(List<AxisCalibration> calibrations, string instrument, Sweep seg, List<string> warnings)
+    {
+        var mine = calibrations.Where(c => c.Instrument == instrument).ToList();
+        if (mine.Count == 0) return null;
+        var exact = mine.FirstOrDefault(c => c.Direction == seg.Direction);
+        if (exact is not null) return exact;
+        // a single-direction calibration is usable for a single-direction sweep and vice versa when the ramp is the same kind
+        var single = mine.FirstOrDefault(c => c.Direction == RampDirection.Single || seg.Direction == RampDirection.Single);
+        if (single is not null)
+        {
+            warnings.Add($"{seg.Name}: calibrated with the {Direction(single.Direction)} ramp of the calibration sweep; piezo hysteresis may differ between directions");
+            return single;
+        }
+
+        return null;
+    }
+
+    private static string Direction(RampDirection d) => d switch
+    {
+        RampDirection.Up => "up",
+        RampDirection.Down => "down",
+        _ => "single",
+    };
+
+    private static double WavelengthRatio(CalibrationSpec cal, Setup setup)
+    {
+        if (cal.WavelengthM is not double lc) return 1.0;
+        if (setup.Solve.SourceWavelengthM is not double ls)
+            throw new InputException($"the calibration for '{cal.Instrument}' states a laser wavelength ({Quantity.FormatLength(lc)}) but [solve] has no source_wavelength to transfer it to", setup.Path, cal.Line);
+        return lc / ls;
+    }
+
+    private static Instrument Lookup(Dictionary<string, Instrument> instruments, string name, string file) =>
+        instruments.TryGetValue(name, out var i) ? i : throw new InputException($"unknown instrument '{name}'", file);
+
+    /// <summary>Size and SHA-256 of a file, read without modifying it.</summary>
+    public static InputFile Describe(string role, string path)
+    {
+        using var stream = File.OpenRead(path);
+        var hash = SHA256.HashData(stream);
+        return new InputFile(role, Path.GetFullPath(path), stream.Length, Convert.ToHexString(hash).ToLowerInvariant());
+    }
+}
