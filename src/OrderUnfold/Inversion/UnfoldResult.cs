@@ -49,6 +49,35 @@ public sealed record UnfoldedLine(double FrequencyHz, double Intensity, double R
 
     /// <summary>True when the order of this line is not securely pinned (a near-alias fits almost as well).</summary>
     public bool Doubtful { get; init; }
+
+    /// <summary>Cramér–Rao bound of the frequency (relative to the anchor), Hz: the unscaled covariance at the fit.</summary>
+    public double? FrequencyCrbHz { get; init; }
+
+    /// <summary>Standard error of the relative intensity from the refinement covariance (overrides the SNR-based value).</summary>
+    public double? IntensitySigma2 { get; init; }
+
+    /// <summary>Residual-bootstrap standard error of the frequency, Hz, when a bootstrap was run.</summary>
+    public double? BootstrapSigmaHz { get; init; }
+
+    /// <summary>Fitted intrinsic Lorentzian FWHM, Hz (when widths are fitted).</summary>
+    public double? WidthHz { get; init; }
+
+    public double? WidthSigmaHz { get; init; }
+
+    /// <summary>Shift to the best alternative placement tried (a near-alias), Hz.</summary>
+    public double? AliasShiftHz { get; init; }
+
+    /// <summary>χ² increase when the line is moved to that placement and refitted.</summary>
+    public double? AliasDeltaChiSquare { get; init; }
+
+    /// <summary>Order verdict (secure, doubtful, or unknown with one instrument).</summary>
+    public Analysis.OrderVerdict Verdict { get; init; }
+
+    /// <summary>Anything the refinement has to say about this line.</summary>
+    public string? Note { get; init; }
+
+    /// <summary>Standard error of the relative intensity: from the refinement when available, else from the SNR.</summary>
+    public double IntensityError => IntensitySigma2 ?? IntensitySigma;
 }
 
 /// <summary>How one sweep is fitted.</summary>
@@ -98,6 +127,9 @@ public sealed record UnfoldResult
 
     /// <summary>Smallest relative intensity that would have been detected at each grid bin, when computed.</summary>
     public double[]? DetectionLimit { get; init; }
+
+    /// <summary>True when the lines were refined off-grid against the raw sweeps.</summary>
+    public bool Refined { get; init; }
 
     /// <summary>Reduced χ² over all sweeps.</summary>
     public double ReducedChiSquare { get; init; }

@@ -88,6 +88,18 @@ public sealed record SolveOptions
 
     /// <summary>Source wavelength in m (needed only to transfer a calibration made at another wavelength).</summary>
     public double? SourceWavelengthM { get; init; }
+
+    /// <summary>Refine the lines off-grid against the raw sweeps (uncertainties, order confidence). Default true.</summary>
+    public bool Refine { get; init; } = true;
+
+    /// <summary>Fit an intrinsic Lorentzian width per line during refinement. Default false.</summary>
+    public bool FitWidths { get; init; }
+
+    /// <summary>Residual-bootstrap replicates for the frequency uncertainties (0: covariance only).</summary>
+    public int Bootstrap { get; init; }
+
+    /// <summary>Δχ² to the best alternative placement below which a line's order is doubtful. Default 25.</summary>
+    public double DoubtfulDeltaChiSquare { get; init; } = 25;
 }
 
 /// <summary>Everything a setup file says. Paths inside are already resolved relative to the setup file.</summary>

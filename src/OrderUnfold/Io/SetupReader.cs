@@ -385,8 +385,20 @@ public static class SetupReader
             var wavelength = t.OptionalQuantity("source_wavelength", Dimension.Length);
             if (wavelength is <= 0) throw t.AtValue("source_wavelength", $"source_wavelength must be positive but got {t.ValueText("source_wavelength")}");
 
+            var refine = t.OptionalBool("refine") ?? true;
+            var fitWidths = t.OptionalBool("fit_widths") ?? false;
+            var bootstrap = t.OptionalNumber("bootstrap") ?? 0;
+            if (bootstrap < 0 || bootstrap != Math.Floor(bootstrap) || bootstrap > 10000)
+                throw t.AtValue("bootstrap", $"bootstrap must be a whole number of replicates from 0 to 10000 but got {t.ValueText("bootstrap")}");
+            var doubtful = t.OptionalNumber("doubtful_delta_chi2") ?? 25.0;
+            if (doubtful <= 0) throw t.AtValue("doubtful_delta_chi2", $"doubtful_delta_chi2 must be positive but got {t.ValueText("doubtful_delta_chi2")}");
+
             return new SolveOptions
             {
+                Refine = refine,
+                FitWidths = fitWidths,
+                Bootstrap = (int)bootstrap,
+                DoubtfulDeltaChiSquare = doubtful,
                 WindowStartHz = start,
                 WindowEndHz = end,
                 GridStepHz = step,

@@ -40,6 +40,7 @@ public static class SetupSchema
     public static IReadOnlyList<string> SolveKeys { get; } =
     [
         "window", "grid_step", "sparsity", "smoothness", "anchor_frequency", "min_snr", "source_wavelength",
+        "refine", "fit_widths", "bootstrap", "doubtful_delta_chi2",
     ];
 
     /// <summary>Largest polynomial degree accepted for a sweep axis.</summary>

@@ -98,6 +98,10 @@ internal static class SetupTemplate
         anchor_frequency = "281.627 THz"  # absolute frequency of the strongest line, to report absolute values
         min_snr = 5.0                     # lines with a lower signal-to-noise ratio are not reported
         source_wavelength = "1064.5 nm"   # source wavelength; needed when a calibration uses another laser
+        refine = true                     # refine lines off the grid: uncertainties and order confidence
+        fit_widths = false                # also fit an intrinsic (Lorentzian) width per line
+        bootstrap = 0                     # residual-bootstrap replicates for frequency errors (0: none)
+        doubtful_delta_chi2 = 25.0        # a line whose best alias fits within this Δχ² is called doubtful
 
         """;
 }

@@ -137,6 +137,10 @@ public static class SetupWriter
         if (s.AnchorFrequencyHz is double anchor) Key(w, "anchor_frequency", Quantity(anchor, FrequencyUnits, "anchor_frequency"));
         Key(w, "min_snr", Number(s.MinSnr, "min_snr"));
         if (s.SourceWavelengthM is double wl) Key(w, "source_wavelength", Quantity(wl, LengthUnits, "source_wavelength"));
+        Key(w, "refine", s.Refine ? "true" : "false");
+        Key(w, "fit_widths", s.FitWidths ? "true" : "false");
+        Key(w, "bootstrap", s.Bootstrap.ToString(System.Globalization.CultureInfo.InvariantCulture));
+        Key(w, "doubtful_delta_chi2", Number(s.DoubtfulDeltaChiSquare, "doubtful_delta_chi2"));
     }
 
     private static void Key(StringBuilder w, string key, string value) => w.Append(key).Append(" = ").Append(value).Append('\n');

@@ -112,6 +112,20 @@ public static class UnfoldPipeline
             MinSnr = solve.MinSnr,
         };
         var result = Unfolder.Run(calibrated, options, progress);
+        Analysis.RefinementDiagnostics? refinement = null;
+        if (solve.Refine && result.Lines.Count > 0)
+        {
+            progress?.Report("refining lines against the raw sweeps");
+            var refineOptions = new Analysis.RefineOptions
+            {
+                FitWidths = solve.FitWidths,
+                Bootstrap = solve.Bootstrap,
+                MinSnr = solve.MinSnr,
+                DoubtfulDeltaChiSquare = solve.DoubtfulDeltaChiSquare,
+            };
+            (result, refinement) = Analysis.LineRefiner.Refine(calibrated, result, refineOptions);
+        }
+
         return new UnfoldRun
         {
             Setup = setup,
@@ -121,6 +135,7 @@ public static class UnfoldPipeline
             Sweeps = calibrated,
             RawSweeps = raw,
             Result = result,
+            Refinement = refinement,
             Warnings = warnings,
         };
     }

@@ -25,6 +25,9 @@ public sealed record UnfoldRun
 
     public required UnfoldResult Result { get; init; }
 
+    /// <summary>Diagnostics of the off-grid line refinement, when it ran.</summary>
+    public Analysis.RefinementDiagnostics? Refinement { get; init; }
+
     /// <summary>Warnings from reading and calibrating (the result's own warnings are in <see cref="Result"/>).</summary>
     public IReadOnlyList<string> Warnings { get; init; } = [];
 
