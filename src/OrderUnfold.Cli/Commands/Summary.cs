@@ -25,7 +25,7 @@ internal static class Summary
         foreach (var l in r.Lines)
         {
             var sig = l.FrequencySigmaHz is double fs ? Quantity.FormatFrequency(fs, 2) : "n/a";
-            o.WriteLine($"  {Quantity.FormatFrequency(l.FrequencyHz, 7),-20} {sig,-14} {l.Intensity,9:F4}   {l.IntensitySigma,7:F4} {l.Snr,7:F0}   {(l.Doubtful ? "doubtful" : r.OrdersResolved ? "secure" : "unknown")}");
+            o.WriteLine($"  {Quantity.FormatFrequency(l.FrequencyHz, 7),-20} {sig,-14} {l.Intensity,9:F4}   {l.IntensityError,7:F4} {l.Snr,7:F0}   {UnfoldOutputs.Verdict(run, l)}");
         }
 
         foreach (var w in run.AllWarnings) o.WriteLine($"warning: {w}");

@@ -3,6 +3,7 @@ using System.Text;
 using System.Text.Json;
 using System.Text.Json.Nodes;
 using OrderUnfold.Calibration;
+using OrderUnfold.Inversion;
 using OrderUnfold.Io;
 using OrderUnfold.Plotting;
 
@@ -51,17 +52,23 @@ public static class UnfoldOutputs
     public static string LinesCsv(UnfoldRun run)
     {
         var anchor = run.Setup.Solve.AnchorFrequencyHz;
+        var widths = run.Result.Lines.Any(l => l.WidthHz is not null);
         var sb = new StringBuilder();
-        sb.Append("frequency_hz,frequency_sigma_hz,intensity,intensity_sigma,snr");
+        sb.Append("frequency_hz,frequency_sigma_hz,frequency_crb_hz,intensity,intensity_sigma,snr");
+        if (widths) sb.Append(",fwhm_hz,fwhm_sigma_hz");
+        sb.Append(",order,alias_shift_hz,alias_delta_chi2");
         if (anchor is not null) sb.Append(",absolute_frequency_hz");
         sb.Append('\n');
         foreach (var l in run.Result.Lines)
         {
             sb.Append(F(l.FrequencyHz)).Append(',')
               .Append(F(l.FrequencySigmaHz)).Append(',')
+              .Append(F(l.FrequencyCrbHz)).Append(',')
               .Append(F(l.Intensity)).Append(',')
-              .Append(F(l.IntensitySigma)).Append(',')
+              .Append(F(l.IntensityError)).Append(',')
               .Append(F(l.Snr));
+            if (widths) sb.Append(',').Append(F(l.WidthHz)).Append(',').Append(F(l.WidthSigmaHz));
+            sb.Append(',').Append(Verdict(run, l)).Append(',').Append(F(l.AliasShiftHz)).Append(',').Append(F(l.AliasDeltaChiSquare));
             if (anchor is double a) sb.Append(',').Append(F(a + l.FrequencyHz));
             sb.Append('\n');
         }
@@ -69,12 +76,22 @@ public static class UnfoldOutputs
         return sb.ToString();
     }
 
+    /// <summary>"secure", "doubtful", "unknown" (one instrument) or "unchecked" (no refinement).</summary>
+    public static string Verdict(UnfoldRun run, UnfoldedLine l) =>
+        !run.Result.OrdersResolved ? "unknown" : !run.Result.Refined ? "unchecked" : l.Doubtful ? "doubtful" : "secure";
+
     /// <summary>spectrum.csv: the grid and the recovered intensity per bin.</summary>
     public static string SpectrumCsv(UnfoldRun run)
     {
-        var sb = new StringBuilder("frequency_hz,intensity\n");
+        var limit = run.Result.DetectionLimit;
+        var sb = new StringBuilder(limit is null ? "frequency_hz,intensity\n" : "frequency_hz,intensity,detection_limit\n");
         var g = run.Result.Grid;
-        for (var j = 0; j < g.Count; j++) sb.Append(F(g[j])).Append(',').Append(F(run.Result.Spectrum[j])).Append('\n');
+        for (var j = 0; j < g.Count; j++)
+        {
+            sb.Append(F(g[j])).Append(',').Append(F(run.Result.Spectrum[j]));
+            if (limit is not null) sb.Append(',').Append(F(limit[j]));
+            sb.Append('\n');
+        }
         return sb.ToString();
     }
 
@@ -92,7 +109,7 @@ public static class UnfoldOutputs
         }
 
         var marks = r.Lines.Select(l => new LineMark(l.FrequencyHz, l.Intensity, Units.Quantity.FormatFrequency(l.FrequencyHz), l.Doubtful,
-            l.FrequencySigmaHz, l.IntensitySigma)).ToList();
+            l.FrequencySigmaHz, l.IntensityError)).ToList();
         var sp = Path.Combine(directory, OutputNames.SpectrumPlot);
         var title = r.OrdersResolved ? "Unfolded spectrum" : "Folded spectrum (one instrument: orders unknown)";
         Plots.SaveSpectrum(sp, new SpectrumPlotInput(title, r.Grid.ToArray(), r.Spectrum, marks, run.Setup.Solve.AnchorFrequencyHz, r.DetectionLimit));
@@ -165,15 +182,36 @@ public static class UnfoldOutputs
             }).ToArray()),
             ["anchor_frequency_hz"] = N(anchor),
             ["detection_limit"] = N(r.DetectionLimit?.Where(double.IsFinite).DefaultIfEmpty(double.NaN).Max()),
+            ["refinement"] = run.Refinement is { } rd ? new JsonObject
+            {
+                ["converged"] = rd.Converged,
+                ["exit_reason"] = rd.ExitReason,
+                ["iterations"] = rd.Iterations,
+                ["chi_square"] = N(rd.ChiSquare),
+                ["reduced_chi_square"] = N(rd.ReducedChiSquare),
+                ["detection_threshold_delta_chi2"] = N(rd.DetectionThresholdDeltaChiSquare),
+                ["clusters_dropped_as_insignificant"] = rd.Dropped,
+                ["uncertainties"] = "standard errors from the fit covariance scaled by the reduced chi-square; frequency_crb_hz is the unscaled covariance (Cramér–Rao bound at the fit); the axis-calibration uncertainty is not included",
+            } : null,
+            ["unambiguous_range_statement"] = r.OrdersResolved
+                ? $"lines closer than {Units.Quantity.FormatFrequency(r.UnambiguousRangeHz)} apart cannot be an exact alias of one another for these instruments (alias margin ≥ 3 linewidths); each line's alias_delta_chi2 says how securely its order is pinned at this noise level"
+                : "one instrument: the spectrum is folded into one FSR; orders are unknown",
             ["lines"] = new JsonArray(r.Lines.Select(l => (JsonNode)new JsonObject
             {
                 ["frequency_hz"] = N(l.FrequencyHz),
                 ["frequency_sigma_hz"] = N(l.FrequencySigmaHz),
+                ["frequency_crb_hz"] = N(l.FrequencyCrbHz),
+                ["frequency_bootstrap_sigma_hz"] = N(l.BootstrapSigmaHz),
                 ["absolute_frequency_hz"] = anchor is double a ? N(a + l.FrequencyHz) : null,
                 ["intensity"] = N(l.Intensity),
-                ["intensity_sigma"] = N(l.IntensitySigma),
+                ["intensity_sigma"] = N(l.IntensityError),
                 ["snr"] = N(l.Snr),
-                ["doubtful"] = l.Doubtful,
+                ["fwhm_hz"] = N(l.WidthHz),
+                ["fwhm_sigma_hz"] = N(l.WidthSigmaHz),
+                ["order"] = Verdict(run, l),
+                ["alias_shift_hz"] = N(l.AliasShiftHz),
+                ["alias_delta_chi2"] = N(l.AliasDeltaChiSquare),
+                ["note"] = l.Note,
             }).ToArray()),
             ["offset_trials"] = new JsonArray(r.OffsetTrials.Select(t => (JsonNode)new JsonObject
             {
