@@ -14,60 +14,16 @@ public static class UnfoldPipeline
     public const double TrimMargin = 0.02;
 
     /// <summary>Reads a setup file and runs it.</summary>
-    public static UnfoldRun Run(string setupPath, IProgress<string>? progress = null) => Run(SetupReader.Read(setupPath), progress);
+    public static UnfoldRun Run(string setupPath, IProgress<string>? progress = null, CalibrationSet? reuse = null) => Run(SetupReader.Read(setupPath), progress, reuse);
 
-    public static UnfoldRun Run(Setup setup, IProgress<string>? progress = null)
+    /// <summary>Runs a setup. With <paramref name="reuse"/>, the setup's calibration sweeps are skipped and the saved axes
+    /// and instrument parameters are used instead (archived sweeps of one session share one calibration).</summary>
+    public static UnfoldRun Run(Setup setup, IProgress<string>? progress = null, CalibrationSet? reuse = null)
     {
         var warnings = new List<string>();
         var inputs = new List<InputFile>();
         if (setup.Path is not null) inputs.Add(Describe("setup", setup.Path));
-        var specs = setup.Instruments.ToDictionary(i => i.Name);
-        var instruments = setup.Instruments.ToDictionary(i => i.Name, i => i.ToInstrument());
-
-        // calibration sweeps → axes per (instrument, direction)
-        var calibrations = new List<AxisCalibration>();
-        foreach (var cal in setup.Calibrations)
-        {
-            progress?.Report($"calibrating {cal.Instrument} from {Path.GetFileName(cal.File.Path)}");
-            inputs.Add(Describe("calibration", cal.File.Path));
-            var inst = Lookup(instruments, cal.Instrument, cal.File.Path);
-            var ratio = WavelengthRatio(cal, setup);
-            var segments = ReadSegments(cal.File);
-            var byDirection = new Dictionary<RampDirection, AxisCalibration>();
-            foreach (var seg in segments)
-            {
-                AxisCalibration axis;
-                try
-                {
-                    axis = AxisCalibrator.FromCalibrationSweep(seg, inst, cal.AxisDegree, ratio);
-                }
-                catch (InputException e) when (segments.Count > 1)
-                {
-                    warnings.Add($"{seg.Name}: calibration segment skipped: {e.Message}");
-                    continue;
-                }
-
-                if (!byDirection.TryGetValue(seg.Direction, out var have) || axis.PointCount > have.PointCount) byDirection[seg.Direction] = axis;
-            }
-
-            if (byDirection.Count == 0) throw new InputException("no usable calibration segment in this file", cal.File.Path);
-            foreach (var a in byDirection.Values)
-            {
-                calibrations.Add(a);
-                warnings.AddRange(a.Warnings);
-            }
-        }
-
-        // effective finesse from the calibration peaks unless fixed
-        foreach (var (name, inst) in instruments.ToList())
-        {
-            var measured = calibrations.Where(c => c.Instrument == name && c.Finesse is not null).Select(c => c.Finesse!.Value).ToList();
-            if (measured.Count == 0 || specs[name].FixFinesse) continue;
-            var f = measured.OrderBy(v => v).ElementAt(measured.Count / 2);
-            if (Math.Abs(f / inst.Finesse - 1) > 0.2)
-                warnings.Add($"instrument '{name}': measured finesse {f:F0} differs from the stated {inst.Finesse:F0} by more than 20 %; using the measured value (set fix_finesse = true to keep the stated one)");
-            instruments[name] = inst with { Finesse = Math.Max(1, f) };
-        }
+        var (instruments, calibrations) = CalibrateAll(setup, progress, reuse, warnings, inputs);
 
         // source sweeps
         var calibrated = new List<CalibratedSweep>();
@@ -138,6 +94,77 @@ public static class UnfoldPipeline
             Refinement = refinement,
             Warnings = warnings,
         };
+    }
+
+
+    /// <summary>Calibration only: the axes and instruments a setup's calibration sweeps give (for <c>calibrate</c>).</summary>
+    public static CalibrationSet Calibrate(Setup setup, IProgress<string>? progress, out IReadOnlyList<string> warnings)
+    {
+        var w = new List<string>();
+        var (instruments, calibrations) = CalibrateAll(setup, progress, null, w, []);
+        warnings = w;
+        return new CalibrationSet(instruments.Values.ToList(), calibrations, setup.Path ?? "setup");
+    }
+
+    private static (Dictionary<string, Instrument> Instruments, List<AxisCalibration> Calibrations) CalibrateAll(
+        Setup setup, IProgress<string>? progress, CalibrationSet? reuse, List<string> warnings, List<InputFile> inputs)
+    {
+        var specs = setup.Instruments.ToDictionary(i => i.Name);
+        var instruments = setup.Instruments.ToDictionary(i => i.Name, i => i.ToInstrument());
+
+        // calibration sweeps → axes per (instrument, direction)
+        var calibrations = new List<AxisCalibration>();
+        if (reuse is not null)
+        {
+            CalibrationFile.CheckAgainst(reuse, setup.Instruments, reuse.Source);
+            calibrations.AddRange(reuse.Axes);
+            foreach (var inst in reuse.Instruments.Where(i => instruments.ContainsKey(i.Name))) instruments[inst.Name] = inst;
+        }
+
+        foreach (var cal in reuse is null ? setup.Calibrations : [])
+        {
+            progress?.Report($"calibrating {cal.Instrument} from {Path.GetFileName(cal.File.Path)}");
+            inputs.Add(Describe("calibration", cal.File.Path));
+            var inst = Lookup(instruments, cal.Instrument, cal.File.Path);
+            var ratio = WavelengthRatio(cal, setup);
+            var segments = ReadSegments(cal.File);
+            var byDirection = new Dictionary<RampDirection, AxisCalibration>();
+            foreach (var seg in segments)
+            {
+                AxisCalibration axis;
+                try
+                {
+                    axis = AxisCalibrator.FromCalibrationSweep(seg, inst, cal.AxisDegree, ratio);
+                }
+                catch (InputException e) when (segments.Count > 1)
+                {
+                    warnings.Add($"{seg.Name}: calibration segment skipped: {e.Message}");
+                    continue;
+                }
+
+                if (!byDirection.TryGetValue(seg.Direction, out var have) || axis.PointCount > have.PointCount) byDirection[seg.Direction] = axis;
+            }
+
+            if (byDirection.Count == 0) throw new InputException("no usable calibration segment in this file", cal.File.Path);
+            foreach (var a in byDirection.Values)
+            {
+                calibrations.Add(a);
+                warnings.AddRange(a.Warnings);
+            }
+        }
+
+        // effective finesse from the calibration peaks unless fixed
+        foreach (var (name, inst) in instruments.ToList())
+        {
+            var measured = calibrations.Where(c => c.Instrument == name && c.Finesse is not null).Select(c => c.Finesse!.Value).ToList();
+            if (measured.Count == 0 || specs[name].FixFinesse || reuse is not null) continue;
+            var f = measured.OrderBy(v => v).ElementAt(measured.Count / 2);
+            if (Math.Abs(f / inst.Finesse - 1) > 0.2)
+                warnings.Add($"instrument '{name}': measured finesse {f:F0} differs from the stated {inst.Finesse:F0} by more than 20 %; using the measured value (set fix_finesse = true to keep the stated one)");
+            instruments[name] = inst with { Finesse = Math.Max(1, f) };
+        }
+
+        return (instruments, calibrations);
     }
 
     /// <summary>Reads a file's segments; for time scans x is made relative to each segment's start, so that a
