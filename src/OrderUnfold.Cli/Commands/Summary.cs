@@ -35,8 +35,10 @@ internal static class Summary
 /// <summary>Progress lines on standard error.</summary>
 internal sealed class StderrProgress(TextWriter err, bool quiet) : IProgress<string>
 {
+    private readonly System.Diagnostics.Stopwatch _clock = System.Diagnostics.Stopwatch.StartNew();
+
     public void Report(string value)
     {
-        if (!quiet) err.WriteLine($"... {value}");
+        if (!quiet) err.WriteLine($"... {_clock.Elapsed.TotalSeconds,6:F1} s (cpu {System.Diagnostics.Process.GetCurrentProcess().TotalProcessorTime.TotalSeconds,5:F1} s)  {value}");
     }
 }

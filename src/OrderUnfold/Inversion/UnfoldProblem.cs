@@ -83,6 +83,9 @@ public sealed class UnfoldProblem : INormalEquations
     public ReadOnlySpan<double> RightHandSide => _rhs;
     public double L1Weight => _lambda;
 
+    /// <summary>Smoothness weight μ in whitened units.</summary>
+    public double SmoothnessWeight => _mu;
+
     /// <summary>Row scale of sweep s in whitened units: gain / σ.</summary>
     public double Scale(int s) => _gains[s] / _sweeps[s].NoiseSigma;
 

@@ -79,17 +79,53 @@ public static class Unfolder
         const double SearchSparsityFactor = 4;
         var searchOptions = options with { Sparsity = Math.Max(options.Sparsity, 1) * SearchSparsityFactor };
         var cap = 4 * folded.Sum(f => f.Count) + 60;
+        // the search runs on a grid twice as coarse (and a periodic grid of a tenth linewidth): enough to rank
+        // candidates and place the offset within a small fraction of a linewidth; the joint rounds below polish it
+        var searchGrid = FrequencyGrid.Covering(grid.StartHz, grid.EndHz, step * 2);
+        var searchPeriodicStep = Math.Min(step, narrowest / 10);
+        // Sweeps of an instrument already aligned (same FSR and finesse) are aligned to it by the cross-correlation
+        // of their folded profiles: both see the same folded spectrum, shifted by the difference of their origins.
+        var profiles = new Dictionary<int, double[]>();
+        double[] Profile(int k)
+        {
+            if (!profiles.TryGetValue(k, out var p))
+            {
+                var inst = sweeps[k].Instrument;
+                var bins = 1 << (int)Math.Ceiling(Math.Log2(Math.Max(64, 10 * inst.Finesse)));
+                profiles[k] = p = FoldedProfile.Fold(sweeps[k], bins);
+            }
+
+            return p;
+        }
+
         for (var k = 1; k < sweeps.Count; k++)
         {
+            var sibling = Enumerable.Range(0, k).FirstOrDefault(r => SameInstrument(sweeps[r].Instrument, sweeps[k].Instrument), -1);
+            if (sibling >= 0)
+            {
+                var delta = FoldedProfile.Shift(Profile(sibling), Profile(k), sweeps[k].Instrument.FsrHz);
+                offsets[k] = offsets[sibling] + delta;
+                trials.Add(new OffsetTrial(sweeps[k].Name, offsets[k], double.NaN, true));
+                continue;
+            }
+
             var candidates = folded[k].Take(options.OffsetCandidates).Select(u => -u).ToList();
             if (candidates.Count == 0) candidates.Add(0);
             var pair = new[] { sweeps[0], sweeps[k] };
             var pairGains = new[] { gains[0], gains[k] };
             var lw = sweeps[k].Instrument.LinewidthHz;
             double[]? warm = null;
+            (double Lambda, double Mu)? weights = null;
             (double Chi, double[] X, UnfoldProblem P) Eval(double phi, double[]? start)
             {
-                var pr = BuildProblem(pair, grid, [offsets[0], phi], pairGains, searchOptions, periodicStep);
+                UnfoldProblem pr;
+                if (weights is (double l, double mu)) pr = new UnfoldProblem(pair, searchGrid, [offsets[0], phi], pairGains, l, mu, searchPeriodicStep);
+                else
+                {
+                    pr = BuildProblem(pair, searchGrid, [offsets[0], phi], pairGains, searchOptions, searchPeriodicStep);
+                    weights = (pr.L1Weight, pr.SmoothnessWeight);
+                }
+
                 var r = ActiveSetNnls.Solve(pr, SolverOptions(pr) with { MaxIterations = cap }, start);
                 return (ChiSquare(pr, r.Solution, pair), r.Solution, pr);
             }
@@ -108,7 +144,7 @@ public static class Unfolder
             var chiBest = best.chi;
             warm = best.x;
             var h = lw / 4;
-            for (var it = 0; it < 5 && h > lw / 200; it++)
+            for (var it = 0; it < 4 && h > lw / 200; it++)
             {
                 var minus = Eval(phiBest - h, warm);
                 var plus = Eval(phiBest + h, warm);
@@ -124,7 +160,7 @@ public static class Unfolder
                     warm = winner.r.X;
                 }
 
-                h /= 2.5;
+                h /= 3;
             }
 
             offsets[k] = phiBest;
@@ -237,6 +273,9 @@ public static class Unfolder
             ReducedChiSquare = chiTotal / Math.Max(1, samples - nnls.ActiveCount - 2 * sweeps.Count),
         };
     }
+
+    private static bool SameInstrument(Instrument a, Instrument b) =>
+        a.Name == b.Name && a.FsrHz == b.FsrHz && a.Finesse == b.Finesse;
 
     /// <summary>Folded positions (Hz within one FSR) of a sweep's peaks, strongest first, merged across repeats.</summary>
     internal static List<double> FoldedPeaks(CalibratedSweep sweep)

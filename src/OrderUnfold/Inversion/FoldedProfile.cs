@@ -1,0 +1,146 @@
+namespace OrderUnfold.Inversion;
+
+/// <summary>
+/// A sweep folded onto one FSR: the mean signal (minus its mean) in each bin of a periodic grid of M = 2^k points.
+/// Two sweeps of the same instrument see the same folded spectrum shifted by the difference of their frequency
+/// origins, P_k(u) = P_ref(u + φ_k − φ_ref), so that difference follows from their circular cross-correlation
+/// without solving the inverse problem.
+/// </summary>
+public static class FoldedProfile
+{
+    /// <summary>Folds a calibrated sweep onto M bins over its instrument's FSR; empty bins are filled by linear interpolation.</summary>
+    public static double[] Fold(CalibratedSweep sweep, int m)
+    {
+        var fsr = sweep.Instrument.FsrHz;
+        var sum = new double[m];
+        var count = new int[m];
+        for (var i = 0; i < sweep.Signal.Length; i++)
+        {
+            var b = (int)(SweepOperator.PositiveMod(sweep.ScanHz[i], fsr) / fsr * m);
+            if (b >= m) b = m - 1;
+            sum[b] += sweep.Signal[i];
+            count[b]++;
+        }
+
+        var p = new double[m];
+        var filled = new List<int>();
+        for (var b = 0; b < m; b++)
+        {
+            if (count[b] == 0) continue;
+            p[b] = sum[b] / count[b];
+            filled.Add(b);
+        }
+
+        if (filled.Count == 0) return p;
+        // fill gaps cyclically by linear interpolation between the nearest filled bins
+        for (var f = 0; f < filled.Count; f++)
+        {
+            var a = filled[f];
+            var c = filled[(f + 1) % filled.Count];
+            var gap = (c - a + m) % m;
+            if (gap <= 1 && filled.Count > 1) continue;
+            if (filled.Count == 1) gap = m;
+            for (var g = 1; g < gap; g++)
+            {
+                var t = g / (double)gap;
+                p[(a + g) % m] = (1 - t) * p[a] + t * p[c];
+            }
+        }
+
+        var mean = p.Average();
+        for (var b = 0; b < m; b++) p[b] -= mean;
+        return p;
+    }
+
+    /// <summary>
+    /// The shift δ (Hz, in [−FSR/2, FSR/2)) that maximises Σ_u P_k(u) P_ref(u + δ), to sub-bin precision by a parabola
+    /// through the peak of the circular cross-correlation.
+    /// </summary>
+    public static double Shift(double[] reference, double[] other, double fsrHz)
+    {
+        var m = reference.Length;
+        var re1 = (double[])reference.Clone();
+        var im1 = new double[m];
+        var re2 = (double[])other.Clone();
+        var im2 = new double[m];
+        Fft.Transform(re1, im1, forward: true);
+        Fft.Transform(re2, im2, forward: true);
+        // C(δ) = Σ_u P_k(u) P_ref(u + δ)  ⇒  Ĉ = conj(P̂_k) · P̂_ref
+        var re = new double[m];
+        var im = new double[m];
+        for (var i = 0; i < m; i++)
+        {
+            re[i] = re2[i] * re1[i] + im2[i] * im1[i];
+            im[i] = re2[i] * im1[i] - im2[i] * re1[i];
+        }
+
+        Fft.Transform(re, im, forward: false);
+        var best = 0;
+        for (var i = 1; i < m; i++) if (re[i] > re[best]) best = i;
+        var ym = re[(best - 1 + m) % m];
+        var y0 = re[best];
+        var yp = re[(best + 1) % m];
+        var curvature = ym - 2 * y0 + yp;
+        var frac = curvature < 0 ? 0.5 * (ym - yp) / curvature : 0;
+        var lag = best + Math.Clamp(frac, -0.5, 0.5);
+        if (lag >= m / 2.0) lag -= m;
+        return lag * fsrHz / m;
+    }
+}
+
+/// <summary>In-place iterative radix-2 complex FFT on separate real and imaginary arrays (length a power of two).</summary>
+public static class Fft
+{
+    public static void Transform(double[] re, double[] im, bool forward)
+    {
+        var n = re.Length;
+        if (n != im.Length || n < 1 || (n & (n - 1)) != 0) throw new ArgumentException($"FFT length must be a power of two but got {n}");
+        for (int i = 1, j = 0; i < n; i++)
+        {
+            var bit = n >> 1;
+            for (; (j & bit) != 0; bit >>= 1) j ^= bit;
+            j ^= bit;
+            if (i < j)
+            {
+                (re[i], re[j]) = (re[j], re[i]);
+                (im[i], im[j]) = (im[j], im[i]);
+            }
+        }
+
+        var sign = forward ? -1.0 : 1.0;
+        for (var size = 2; size <= n; size <<= 1)
+        {
+            var half = size >> 1;
+            var angle = sign * 2 * Math.PI / size;
+            var wr0 = Math.Cos(angle);
+            var wi0 = Math.Sin(angle);
+            for (var start = 0; start < n; start += size)
+            {
+                double wr = 1, wi = 0;
+                for (var k = 0; k < half; k++)
+                {
+                    var a = start + k;
+                    var b = a + half;
+                    var tr = wr * re[b] - wi * im[b];
+                    var ti = wr * im[b] + wi * re[b];
+                    re[b] = re[a] - tr;
+                    im[b] = im[a] - ti;
+                    re[a] += tr;
+                    im[a] += ti;
+                    var t = wr * wr0 - wi * wi0;
+                    wi = wr * wi0 + wi * wr0;
+                    wr = t;
+                }
+            }
+        }
+
+        if (!forward)
+        {
+            for (var i = 0; i < n; i++)
+            {
+                re[i] /= n;
+                im[i] /= n;
+            }
+        }
+    }
+}
