@@ -141,7 +141,8 @@ public sealed class PlanCommand : ICommand
         limit = Math.Max(limit, span);
         var unambiguous = AliasMargin.FirstBelow(instruments, margin, chosen.MinimumShiftHz, limit);
         stdout.WriteLine();
-        stdout.WriteLine(candidates is null ? "Design:" : "Recommended:");
+        stdout.WriteLine(chosen.Passes ? (candidates is null ? "Design:" : "Recommended:") :
+            candidates is null ? "Design (does not meet the required margin):" : "Best found (does not meet the required margin):");
         stdout.Write(PlanReport.Describe(chosen, unambiguous, limit, settings.Sampling, settings.RequiredDeltaChiSquare));
 
         // files
@@ -155,7 +156,8 @@ public sealed class PlanCommand : ICommand
         PlanPlots.SaveMarginCurve(marginPath, new MarginCurveInput(
             $"Alias margin of {names} ({chosen.Cavities[0].Instrument.Geometry.ToString().ToLowerInvariant()} reference)",
             $"worst within tolerance {chosen.Robust.MarginLinewidths:0.##} linewidths at {Quantity.FormatFrequency(chosen.Robust.DeltaHz)} · verdict: {chosen.VerdictText} · curve at nominal lengths",
-            curve, margin, chosen.MinimumShiftHz, AliasMargin.Aliases(instruments, margin, chosen.MinimumShiftHz, span), chosen.Nominal, chosen.Repeat?.RepeatHz));
+            curve, margin, chosen.MinimumShiftHz, AliasMargin.Aliases(instruments, margin, chosen.MinimumShiftHz, span), chosen.Nominal, chosen.Repeat?.RepeatHz,
+            "worst alias at nominal lengths"));
         var written = new List<string> { csvPath, marginPath };
         if (candidates is not null)
         {
@@ -165,10 +167,11 @@ public sealed class PlanCommand : ICommand
             PlanPlots.SaveCandidateMap(candPath, new CandidateMapInput(
                 $"Worst alias margin over {Quantity.FormatFrequency(span)} against the length of the added cavity",
                 $"with {string.Join(" + ", fixedCavities.Select(c => c.Describe()))}" + (tolerance > 0 ? $" · tolerance ±{Quantity.FormatLength(tolerance)}" : "") +
-                (chosen.Cavities.Count > fixedCavities.Count + 1 ? " · marked: best two-cavity design (the recommendation has three)" : ""),
+                (chosen.Cavities.Count > fixedCavities.Count + 1 ? " · the chosen design has a third cavity (see plan.csv)" : ""),
                 lengths, ranked.Select(d => d.Nominal.MarginLinewidths).ToArray(),
                 tolerance > 0 ? ranked.Select(d => d.Robust.MarginLinewidths).ToArray() : null,
-                margin, chosenLength, candidates.Stepped));
+                margin, chosenLength, candidates.Stepped,
+                chosen.Cavities.Count > fixedCavities.Count + 1 ? "best two-cavity design" : chosen.Passes ? "recommended" : "best found"));
             written.Add(candPath);
         }
 

@@ -17,7 +17,8 @@ namespace OrderUnfold.Plotting;
 /// <param name="ThresholdLinewidths">Required margin, drawn as a dashed line with the region below it shaded.</param>
 /// <param name="MinimumShiftHz">Shifts below this are the line itself (shaded grey).</param>
 /// <param name="Aliases">Local minima below the threshold, marked.</param>
-/// <param name="Worst">The worst alias over the span, marked and labelled; null to leave out.</param>
+/// <param name="Worst">The worst alias of the drawn curve, marked and labelled; null to leave out.</param>
+/// <param name="WorstLabel">Legend entry and label prefix of <paramref name="Worst"/>.</param>
 /// <param name="RepeatHz">Common period of the FSRs, drawn as a vertical line when it lies inside the plotted range.</param>
 public sealed record MarginCurveInput(
     string Title,
@@ -27,7 +28,8 @@ public sealed record MarginCurveInput(
     double MinimumShiftHz,
     IReadOnlyList<MarginPoint> Aliases,
     MarginPoint? Worst,
-    double? RepeatHz);
+    double? RepeatHz,
+    string WorstLabel = "worst alias");
 
 /// <summary>The worst alias margin of each candidate length.</summary>
 /// <param name="Title">Plot title.</param>
@@ -38,6 +40,7 @@ public sealed record MarginCurveInput(
 /// <param name="ThresholdLinewidths">Required margin, dashed.</param>
 /// <param name="ChosenLengthM">The recommended length, marked; null for none.</param>
 /// <param name="Stepped">True when the lengths form an evenly stepped range (drawn as a line); false for a catalogue (markers).</param>
+/// <param name="ChosenLabel">Legend entry of the marked length.</param>
 public sealed record CandidateMapInput(
     string Title,
     string? Subtitle,
@@ -46,7 +49,8 @@ public sealed record CandidateMapInput(
     double[]? RobustMargin,
     double ThresholdLinewidths,
     double? ChosenLengthM,
-    bool Stepped);
+    bool Stepped,
+    string ChosenLabel = "recommended");
 
 /// <summary>
 /// Plots of the measurement planner: the alias margin against the shift for a design, and the map of the worst
@@ -137,7 +141,7 @@ public static class PlanPlots
             Position = AxisPosition.Left,
             StartPosition = 0,
             EndPosition = 0.38,
-            Title = "near the threshold",
+            Title = "zoom (linewidths)",
             Minimum = 0,
             Maximum = cut,
             MajorGridlineStyle = LineStyle.Solid,
@@ -224,7 +228,7 @@ public static class PlanPlots
             {
                 var worst = new ScatterSeries
                 {
-                    Title = "worst alias",
+                    Title = input.WorstLabel,
                     MarkerType = MarkerType.Diamond,
                     MarkerSize = 7,
                     MarkerFill = WorstColor,
@@ -242,7 +246,7 @@ public static class PlanPlots
                     var dx = 0.01 * scale.FromHertz(hi - lo) * (right ? -1 : 1);
                     model.Annotations.Add(new TextAnnotation
                     {
-                        Text = $"worst: {w.MarginLinewidths.ToString("0.##", CultureInfo.InvariantCulture)} linewidths at {Quantity.FormatFrequency(w.DeltaHz)}",
+                        Text = $"{input.WorstLabel}: {w.MarginLinewidths.ToString("0.##", CultureInfo.InvariantCulture)} linewidths at {Quantity.FormatFrequency(w.DeltaHz)}",
                         TextPosition = new DataPoint(wx + dx, Math.Min(w.MarginLinewidths + 0.06 * cut, 0.85 * cut)),
                         TextHorizontalAlignment = right ? HorizontalAlignment.Right : HorizontalAlignment.Left,
                         TextVerticalAlignment = VerticalAlignment.Bottom,
@@ -341,7 +345,7 @@ public static class PlanPlots
             var y = (input.RobustMargin ?? input.NominalMargin)[idx];
             var mark = new ScatterSeries
             {
-                Title = "recommended",
+                Title = input.ChosenLabel,
                 MarkerType = MarkerType.Diamond,
                 MarkerSize = 8,
                 MarkerFill = WorstColor,
