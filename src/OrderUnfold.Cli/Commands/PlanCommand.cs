@@ -101,6 +101,8 @@ public sealed class PlanCommand : ICommand
         stdout.WriteLine("orderunfold plan");
         stdout.WriteLine($"Reference: {reference.Name}, {fixedCavities[0].Describe()}, finesse {reference.Finesse.ToString("0.#", CultureInfo.InvariantCulture)}, linewidth {Quantity.FormatFrequency(reference.LinewidthHz)}");
         foreach (var c in fixedCavities.Skip(1)) stdout.WriteLine($"Given:     {c.Instrument.Name}, {c.Describe()}, finesse {c.Instrument.Finesse.ToString("0.#", CultureInfo.InvariantCulture)}");
+        if (tolerance > 0 && fixedCavities.Skip(1).Any(c => c.Instrument.LengthM is null))
+            stdout.WriteLine("Note: --tolerance applies only to cavities given by a length; cavities given by their FSR are taken as exact.");
         stdout.WriteLine($"Span {Quantity.FormatFrequency(span)}; required margin {margin.ToString("G3", CultureInfo.InvariantCulture)} linewidths" +
                          (settings.MinimumShiftHz is double ms ? $"; shifts below {Quantity.FormatFrequency(ms)} count as the line itself" : "; shifts below 2 × margin × the narrowest linewidth count as the line itself"));
 

@@ -267,7 +267,8 @@ public static class AliasMargin
             var half = inst.FsrHz / 2;
             var first = (long)Math.Ceiling(fromHz / half);
             var last = (long)Math.Floor(toHz / half);
-            if (last - first > 50_000_000) throw new ArgumentException($"the range {fromHz} Hz to {toHz} Hz spans too many FSRs of '{inst.Name}'");
+            if (last - first > 20_000_000)
+                throw new InputException($"the range {Units.Quantity.FormatFrequency(fromHz)} to {Units.Quantity.FormatFrequency(toHz)} spans {(last - first) / 2} FSRs of '{inst.Name}' ({Units.Quantity.FormatFrequency(inst.FsrHz)}), more than the 10 million the margin is evaluated over");
             for (var j = first; j <= last; j++)
             {
                 var d = j * half;
