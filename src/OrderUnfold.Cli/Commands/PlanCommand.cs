@@ -15,10 +15,13 @@ public sealed class PlanCommand : ICommand
     /// <summary>How many of the best two-cavity designs a three-cavity search extends.</summary>
     private const int PairsExtended = 5;
 
+    /// <inheritdoc/>
     public string Name => "plan";
 
+    /// <inheritdoc/>
     public string Summary => "choose cavity lengths that keep aliases away over the source's span";
 
+    /// <inheritdoc/>
     public string Usage => """
         orderunfold plan: choose the length of a second (or third) cavity so that no alias comes closer than the
         required margin over the span of the source, robust to the length tolerance; or judge a given set.
@@ -54,6 +57,7 @@ public sealed class PlanCommand : ICommand
         1 when it does not, 2 for bad input.
         """;
 
+    /// <inheritdoc/>
     public int Run(string[] argv, TextWriter stdout, TextWriter stderr)
     {
         var args = new Args(Name, argv,
