@@ -9,5 +9,6 @@ public static class CommandList
         new UnfoldCommand(),
         new InitCommand(),
         new SimulateCommand(),
+        new PlanCommand(),
     ];
 }
