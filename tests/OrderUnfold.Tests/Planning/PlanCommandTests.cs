@@ -25,7 +25,7 @@ public sealed class PlanCommandTests : IDisposable
     {
         var o = new StringWriter();
         var e = new StringWriter();
-        var code = Cli.Cli.Run(["plan", .. args], o, e);
+        var code = global::OrderUnfold.Cli.Cli.Run(["plan", .. args], o, e);
         return (code, o.ToString(), e.ToString());
     }
 
