@@ -182,7 +182,7 @@ public static class Plots
 
         var stems = new StemSeries
         {
-            Title = "recovered spectrum (grid)",
+            Title = "recovered spectrum (per grid bin)",
             Color = SpectrumColor,
             StrokeThickness = 1.0,
             Base = 0,
@@ -216,7 +216,7 @@ public static class Plots
             model.Series.Add(curve);
         }
 
-        var confident = LineMarkers("line", MarkerType.Circle, LineMarkColor, LineMarkColor);
+        var confident = LineMarkers("line (summed over its bins)", MarkerType.Circle, LineMarkColor, LineMarkColor);
         var doubtful = LineMarkers("doubtful line", MarkerType.Diamond, OxyColors.White, DoubtfulColor);
         var labels = new List<(double X, double Y, LineMark Line)>();
         foreach (var line in lines)

@@ -146,7 +146,7 @@ public sealed class PlotsTests : IDisposable
     {
         var model = Plots.BuildSpectrum(SimulatedPlotInputs.Spectrum());
         var marks = model.Series.OfType<ScatterErrorSeries>().ToList();
-        Assert.Equal(["line", "doubtful line"], marks.Select(s => s.Title));
+        Assert.Equal(["line (summed over its bins)", "doubtful line"], marks.Select(s => s.Title));
         Assert.Equal(6, marks[0].Points.Count);
         Assert.Single(marks[1].Points);
         Assert.NotEqual(marks[1].MarkerStroke, marks[1].MarkerFill);
