@@ -2,6 +2,7 @@ using MathNet.Numerics.LinearAlgebra;
 using MathNet.Numerics.Optimization;
 using OrderUnfold.Instruments;
 using OrderUnfold.Inversion;
+using OrderUnfold.Units;
 
 namespace OrderUnfold.Analysis;
 
@@ -28,6 +29,13 @@ public sealed record RefineOptions
 
     /// <summary>Maximum Levenberg–Marquardt iterations.</summary>
     public int MaxIterations { get; init; } = 200;
+
+    /// <summary>Two refined lines closer than this many linewidths (of the narrowest instrument) are merged into one.</summary>
+    public double MergeLinewidths { get; init; } = 0.5;
+
+    /// <summary>A refined line that ends farther than this many linewidths (of the widest instrument) outside its grid
+    /// cluster is pinned at its grid position (its position is not refined and gets no uncertainty).</summary>
+    public double WanderLinewidths { get; init; } = 2;
 }
 
 /// <summary>How sure the tool is that a line sits in the order given.</summary>
@@ -39,20 +47,47 @@ public enum OrderVerdict
     /// <summary>An alternative placement fits almost as well.</summary>
     Doubtful,
 
-    /// <summary>One instrument only: orders are not determined at all.</summary>
+    /// <summary>One instrument only, or no refinement: orders are not determined.</summary>
     Unknown,
 }
 
 /// <summary>Diagnostics of one refinement.</summary>
 /// <param name="Converged">True when Levenberg–Marquardt stopped on a convergence criterion.</param>
 /// <param name="ExitReason">MathNet's exit reason, as text.</param>
-/// <param name="Iterations">Iterations used.</param>
+/// <param name="Iterations">Iterations used (last fit).</param>
 /// <param name="ChiSquare">χ² at the solution.</param>
 /// <param name="ReducedChiSquare">χ² per degree of freedom.</param>
 /// <param name="DetectionThresholdDeltaChiSquare">Δχ² a line must add to be kept (from MinSnr and the BIC penalty).</param>
 /// <param name="Dropped">Grid clusters dropped as not significant after refinement.</param>
 public sealed record RefinementDiagnostics(bool Converged, string ExitReason, int Iterations, double ChiSquare, double ReducedChiSquare,
-    double DetectionThresholdDeltaChiSquare, int Dropped);
+    double DetectionThresholdDeltaChiSquare, int Dropped)
+{
+    /// <summary>Pairs of lines merged because they ended closer than <see cref="RefineOptions.MergeLinewidths"/>.</summary>
+    public int Merged { get; init; }
+
+    /// <summary>Lines whose position was pinned at the grid value because the refinement moved them away from their cluster.</summary>
+    public int Pinned { get; init; }
+
+    /// <summary>True when the refinement failed as a whole and the grid result was kept.</summary>
+    public bool FellBackToGrid { get; init; }
+
+    /// <summary>
+    /// Range over which the order of the weakest kept line is unambiguous for these instruments and this noise: the
+    /// smallest shift Δ (beyond the line's own peak) at which a copy of that line moved by Δ would fit within the
+    /// doubtful Δχ² threshold (estimated from each sweep's sample density, see <see cref="LineRefiner.AliasChiSquareEstimate"/>).
+    /// Null when not computed.
+    /// </summary>
+    public double? UnambiguousRangeHz { get; init; }
+
+    /// <summary>True when no confusable shift was found up to <see cref="UnambiguousRangeHz"/> (the range is at least that).</summary>
+    public bool UnambiguousRangeIsLowerBound { get; init; }
+
+    /// <summary>Relative intensity (to the anchor) of the line <see cref="UnambiguousRangeHz"/> was computed for.</summary>
+    public double? UnambiguousForIntensity { get; init; }
+
+    /// <summary>One sentence stating the unambiguous range for these instruments and this noise.</summary>
+    public string? UnambiguousStatement { get; init; }
+}
 
 /// <summary>
 /// Off-grid refinement of the lines of an NNLS grid solution against the raw sweeps: positions, intensities
@@ -61,76 +96,301 @@ public sealed record RefinementDiagnostics(bool Converged, string ExitReason, in
 /// (the unscaled covariance at the solution), optional residual-bootstrap errors, significance-based pruning,
 /// a detection-limit curve, and for each line Δχ² to its best alternative placement (order confidence).
 /// </summary>
+/// <remarks>
+/// Failure handling: a fit that does not converge, gives non-finite values or raises χ² keeps the grid result with
+/// a note on every line; a line that wanders off its grid cluster is pinned at its grid position; two lines that end
+/// closer than <see cref="RefineOptions.MergeLinewidths"/> are merged; a line whose parameters lie in the null space
+/// of a singular Fisher matrix gets no uncertainty and a note. No reported number is NaN: missing values are null.
+/// </remarks>
 public static class LineRefiner
 {
+    /// <summary>Refines <paramref name="grid"/>'s lines against <paramref name="sweeps"/> (the same sweeps, in the same
+    /// order, that produced the grid result).</summary>
     public static (UnfoldResult Result, RefinementDiagnostics Diagnostics) Refine(IReadOnlyList<CalibratedSweep> sweeps, UnfoldResult grid, RefineOptions? options = null)
     {
+        ArgumentNullException.ThrowIfNull(sweeps);
+        ArgumentNullException.ThrowIfNull(grid);
         options ??= new RefineOptions();
-        var warnings = grid.Warnings.ToList();
+        if (sweeps.Count == 0) throw new ArgumentException("no sweeps to refine against", nameof(sweeps));
+        if (sweeps.Count != grid.Sweeps.Count)
+            throw new ArgumentException($"the grid result has {grid.Sweeps.Count} sweep fits but {sweeps.Count} sweeps were given", nameof(grid));
+
         var data = new Data(sweeps);
-        var lines = grid.Lines.ToList();
-        if (lines.Count == 0)
-        {
-            var diag0 = new RefinementDiagnostics(true, "no lines", 0, double.NaN, grid.ReducedChiSquare, double.NaN, 0);
-            return (grid with { DetectionLimit = DetectionLimit(sweeps, grid, Threshold(options, data.M), 1.0) }, diag0);
-        }
-
         var threshold = Threshold(options, data.M);
-        var layout = new Layout(lines.Count, sweeps.Count, options.FitWidths);
-        var p0 = layout.Initial(lines, grid.Sweeps);
-        var fit = Fit(data, layout, p0, options);
-        var dropped = 0;
-
-        // prune lines whose intensity is not significant (Wald test with the χ²-scaled covariance), weakest first
-        while (layout.Lines > 1)
+        var warnings = grid.Warnings.ToList();
+        if (grid.Lines.Count == 0)
         {
-            var z = Enumerable.Range(0, layout.Lines).Select(j => fit.P[layout.A(j)] / Math.Sqrt(Math.Max(fit.Scaled[layout.A(j), layout.A(j)], 1e-300))).ToArray();
-            var weakest = Enumerable.Range(0, layout.Lines).MinBy(j => z[j]);
-            if (z[weakest] * z[weakest] >= threshold && fit.P[layout.A(weakest)] > 0) break;
-            (layout, var p) = layout.Without(weakest, fit.P);
-            lines.RemoveAt(weakest);
-            dropped++;
-            fit = Fit(data, layout, p, options);
+            var chi0 = grid.Sweeps.Sum(s => s.ChiSquare);
+            return (grid with { DetectionLimit = DetectionLimit(sweeps, grid, threshold, 1.0) },
+                new RefinementDiagnostics(true, "no lines", 0, chi0, grid.ReducedChiSquare, threshold, 0));
         }
 
-        if (!fit.Converged) warnings.Add($"line refinement did not converge ({fit.Reason}); positions are the refined values at the last iteration and may be off");
+        var lwNarrow = sweeps.Min(s => s.Instrument.LinewidthHz);
+        var lwWide = sweeps.Max(s => s.Instrument.LinewidthHz);
+        var tracked = new List<Tracked>();
+        var layout = new Layout(grid.Lines.Count, sweeps.Count, options.FitWidths);
+        var p = layout.Initial(grid.Lines, grid.Sweeps, lwNarrow);
+        for (var j = 0; j < grid.Lines.Count; j++)
+        {
+            var l = grid.Lines[j];
+            var halfCluster = 0.5 * (l.LastBin - l.FirstBin) * grid.Grid.StepHz;
+            tracked.Add(new Tracked(l, p[layout.Nu(j)], p[layout.A(j)], halfCluster + options.WanderLinewidths * lwWide));
+        }
 
-        // merge lines that collapsed onto each other (singular covariance)
+        // fit, then pin wanderers, merge collapsed pairs and prune insignificant lines, one change per round
+        FitResult? fit = null;
+        string? failure = null;
+        int dropped = 0, merged = 0, pinned = 0;
+        var maxRounds = 4 * grid.Lines.Count + 8;
+        for (var round = 0; round < maxRounds && layout.Lines > 0; round++)
+        {
+            var mask = layout.FixedMask(tracked);
+            var chiBefore = data.ChiSquare(layout, p);
+            fit = Fit(data, layout, p, options, mask);
+            if (fit.Reason == nameof(ExitCondition.ExceedIterations) && fit.P.All(double.IsFinite))
+                fit = Fit(data, layout, fit.P, options with { MaxIterations = 2 * options.MaxIterations }, mask);
+            if (!fit.P.All(double.IsFinite) || !double.IsFinite(fit.ChiSquare))
+            {
+                failure = $"the fit produced non-finite values ({fit.Reason})";
+                break;
+            }
+
+            if (!fit.Converged)
+            {
+                failure = $"Levenberg–Marquardt did not converge ({fit.Reason} after {fit.Iterations} iterations)";
+                break;
+            }
+
+            if (fit.ChiSquare > chiBefore * (1 + 1e-6) + 1e-9)
+            {
+                failure = $"the fit ended with a larger χ² than it started from ({fit.ChiSquare:G6} > {chiBefore:G6})";
+                break;
+            }
+
+            p = fit.P;
+
+            // 1. a line that left its grid cluster: pin its position at the grid value
+            var wanderer = Enumerable.Range(0, layout.Lines)
+                .FirstOrDefault(j => !tracked[j].Pinned && Math.Abs(p[layout.Nu(j)] - tracked[j].GridNu) > tracked[j].Tolerance, -1);
+            if (wanderer >= 0)
+            {
+                var t = tracked[wanderer];
+                t.Pinned = true;
+                t.Notes.Add($"the refinement moved this line by {Quantity.FormatFrequency(p[layout.Nu(wanderer)] - t.GridNu, 3)}, out of its grid cluster: position kept at the grid value (no frequency uncertainty)");
+                p[layout.Nu(wanderer)] = t.GridNu;
+                p[layout.A(wanderer)] = t.GridA;
+                pinned++;
+                continue;
+            }
+
+            // 2. two lines that collapsed onto each other: merge them
+            var pair = ClosestPair(layout, p);
+            if (pair is var (i1, i2, sep) && sep < options.MergeLinewidths * lwNarrow)
+            {
+                var (keep, lose) = p[layout.A(i1)] >= p[layout.A(i2)] ? (i1, i2) : (i2, i1);
+                double ak = p[layout.A(keep)], al = p[layout.A(lose)];
+                if (ak > 0 && al > 0) p[layout.Nu(keep)] = (ak * p[layout.Nu(keep)] + al * p[layout.Nu(lose)]) / (ak + al);
+                p[layout.A(keep)] = Math.Max(ak, 0) + Math.Max(al, 0);
+                if (layout.Widths) p[layout.W(keep)] = Math.Max(Math.Abs(p[layout.W(keep)]), Math.Abs(p[layout.W(lose)]));
+                var tk = tracked[keep];
+                var tl = tracked[lose];
+                tk.Notes.Add($"merged with a second line {Quantity.FormatFrequency(sep, 3)} away (closer than {options.MergeLinewidths:G3} linewidth): the two cannot be told apart");
+                tk.Notes.AddRange(tl.Notes);
+                tk.FirstBin = Math.Min(tk.FirstBin, tl.FirstBin);
+                tk.LastBin = Math.Max(tk.LastBin, tl.LastBin);
+                tk.Pinned &= tl.Pinned;
+                (layout, p) = layout.Without(lose, p);
+                tracked.RemoveAt(lose);
+                merged++;
+                continue;
+            }
+
+            // 3. the weakest line below the detection threshold (Wald test with the χ²-scaled covariance): drop it
+            var weakest = -1;
+            var zMin = double.PositiveInfinity;
+            for (var j = 0; j < layout.Lines; j++)
+            {
+                var a = p[layout.A(j)];
+                var va = fit.Scaled[layout.A(j), layout.A(j)];
+                var z = a <= 0 ? double.NegativeInfinity : double.IsFinite(va) && va > 0 ? a / Math.Sqrt(va) : double.NaN;
+                if (double.IsNaN(z)) continue; // undetermined: kept, with a note below
+                if (z < zMin)
+                {
+                    zMin = z;
+                    weakest = j;
+                }
+            }
+
+            if (weakest >= 0 && (zMin <= 0 || zMin * zMin < threshold))
+            {
+                (layout, p) = layout.Without(weakest, p);
+                tracked.RemoveAt(weakest);
+                dropped++;
+                fit = null;
+                continue;
+            }
+
+            break;
+        }
+
+        if (failure is null && fit is null && layout.Lines > 0) failure = "the refinement did not settle within its round limit";
+        if (failure is not null) return FallBack(sweeps, grid, threshold, warnings, failure, fit);
+        if (layout.Lines == 0) return NoLineLeft(data, sweeps, grid, threshold, warnings, dropped, merged);
+        return Finish(data, sweeps, grid, options, threshold, warnings, layout, fit!, tracked, dropped, merged, pinned);
+    }
+
+    /// <summary>Δχ² a line must add: the larger of MinSnr² and the BIC penalty for two parameters, 2·ln(m).</summary>
+    public static double Threshold(RefineOptions options, int samples) => Math.Max(options.MinSnr * options.MinSnr, 2 * Math.Log(Math.Max(2, samples)));
+
+    // ---------------------------------------------------------------- assembling the result
+
+    internal sealed class Tracked(UnfoldedLine grid, double gridNu, double gridA, double tolerance)
+    {
+        public UnfoldedLine Grid { get; } = grid;
+        public double GridNu { get; } = gridNu;
+        public double GridA { get; } = gridA;
+        public double Tolerance { get; } = tolerance;
+        public bool Pinned { get; set; }
+        public int FirstBin { get; set; } = grid.FirstBin;
+        public int LastBin { get; set; } = grid.LastBin;
+        public List<string> Notes { get; } = [];
+    }
+
+    private static (int, int, double)? ClosestPair(Layout layout, double[] p)
+    {
+        (int, int, double)? best = null;
+        for (var i = 0; i < layout.Lines; i++)
+        for (var j = i + 1; j < layout.Lines; j++)
+        {
+            var d = Math.Abs(p[layout.Nu(i)] - p[layout.Nu(j)]);
+            if (best is null || d < best.Value.Item3) best = (i, j, d);
+        }
+
+        return best;
+    }
+
+    private static (UnfoldResult, RefinementDiagnostics) FallBack(IReadOnlyList<CalibratedSweep> sweeps, UnfoldResult grid, double threshold,
+        List<string> warnings, string failure, FitResult? fit)
+    {
+        var note = $"refinement failed: {failure}; grid value kept (no refined uncertainty)";
+        warnings.Add($"line refinement failed ({failure}); the grid lines are reported unrefined");
+        var scale = grid.Lines.Max(l => l.RawIntensity);
+        var result = grid with
+        {
+            Lines = grid.Lines.Select(l => l with { Note = note, Verdict = OrderVerdict.Unknown }).ToList(),
+            DetectionLimit = DetectionLimit(sweeps, grid, threshold, scale),
+            Warnings = warnings,
+            Refined = false,
+        };
+        var chi = grid.Sweeps.Sum(s => s.ChiSquare);
+        var diag = new RefinementDiagnostics(false, fit?.Reason ?? "failed", fit?.Iterations ?? 0, chi, grid.ReducedChiSquare, threshold, 0)
+        {
+            FellBackToGrid = true,
+        };
+        return (result, diag);
+    }
+
+    /// <summary>Every grid cluster was insignificant: no line, flat backgrounds, detection limit relative to the strongest grid cluster.</summary>
+    private static (UnfoldResult, RefinementDiagnostics) NoLineLeft(Data data, IReadOnlyList<CalibratedSweep> sweeps, UnfoldResult grid, double threshold,
+        List<string> warnings, int dropped, int merged)
+    {
+        warnings.Add($"no line is significant after refinement: all {grid.Lines.Count} grid cluster(s) fell below the detection threshold (Δχ² {threshold:G3}); intensities and the detection limit are relative to the strongest grid cluster");
+        var fits = new List<SweepFit>();
+        double chiTotal = 0;
+        for (var k = 0; k < sweeps.Count; k++)
+        {
+            var (start, count) = data.Range(k);
+            var mean = 0.0;
+            for (var i = 0; i < count; i++) mean += data.Y[start + i];
+            mean /= count;
+            double chi = 0, ss = 0;
+            for (var i = 0; i < count; i++)
+            {
+                var r = data.Y[start + i] - mean;
+                ss += r * r;
+                chi += r * r * data.W[start + i];
+            }
+
+            chiTotal += chi;
+            fits.Add(grid.Sweeps[k] with
+            {
+                Background = mean, ChiSquare = chi, ReducedChiSquare = chi / Math.Max(1, count - 1), ResidualRms = Math.Sqrt(ss / count),
+                Model = Enumerable.Repeat(mean, count).ToArray(),
+            });
+        }
+
+        var scale = grid.Lines.Max(l => l.RawIntensity);
+        var red = chiTotal / Math.Max(1, data.M - sweeps.Count);
+        var result = grid with
+        {
+            Lines = [],
+            Sweeps = fits,
+            DetectionLimit = DetectionLimit(sweeps, grid, threshold, scale),
+            Warnings = warnings,
+            ReducedChiSquare = red,
+            Refined = true,
+        };
+        return (result, new RefinementDiagnostics(true, "no significant line", 0, chiTotal, red, threshold, dropped) { Merged = merged });
+    }
+
+    private static (UnfoldResult, RefinementDiagnostics) Finish(Data data, IReadOnlyList<CalibratedSweep> sweeps, UnfoldResult grid, RefineOptions options,
+        double threshold, List<string> warnings, Layout layout, FitResult fit, List<Tracked> tracked, int dropped, int merged, int pinned)
+    {
+        var lwWide = sweeps.Max(s => s.Instrument.LinewidthHz);
         var anchor = Enumerable.Range(0, layout.Lines).MaxBy(j => fit.P[layout.A(j)]);
         var anchorHz = fit.P[layout.Nu(anchor)];
         var aAnchor = fit.P[layout.A(anchor)];
-        var bootstrap = options.Bootstrap > 0 ? BootstrapSigmas(data, layout, fit, anchor, options) : null;
+        var bootstrap = options.Bootstrap > 0 ? BootstrapSigmas(data, layout, fit, anchor, options, layout.FixedMask(tracked)) : null;
+        var red = fit.ChiSquare / Math.Max(1, data.M - layout.FreeCount(layout.FixedMask(tracked)));
         var refined = new List<UnfoldedLine>();
         var ordersResolved = grid.OrdersResolved;
+        var cs = fit.Scaled;
+        var cu = fit.Unscaled;
         for (var j = 0; j < layout.Lines; j++)
         {
+            var t = tracked[j];
+            var note = new List<string>(t.Notes);
             var nu = fit.P[layout.Nu(j)] - anchorHz;
             var a = fit.P[layout.A(j)];
-            double VarDiff(Matrix<double> c, int i1, int i2) => c[i1, i1] + c[i2, i2] - 2 * c[i1, i2];
-            var sigNu = j == anchor ? 0 : Math.Sqrt(Math.Max(0, VarDiff(fit.Scaled, layout.Nu(j), layout.Nu(anchor))));
-            var crbNu = j == anchor ? 0 : Math.Sqrt(Math.Max(0, VarDiff(fit.Unscaled, layout.Nu(j), layout.Nu(anchor))));
+            int nj = layout.Nu(j), na = layout.Nu(anchor), aj = layout.A(j), aa = layout.A(anchor);
+            static double VarDiff(Matrix<double> c, int i1, int i2) => c[i1, i1] + c[i2, i2] - 2 * c[i1, i2];
+            double? sigNu = j == anchor ? 0 : Finite(Math.Sqrt(VarDiff(cs, nj, na)));
+            double? crbNu = j == anchor ? 0 : Finite(Math.Sqrt(VarDiff(cu, nj, na)));
+            if (t.Pinned) sigNu = crbNu = null;
             var rel = a / aAnchor;
-            var ca = fit.Scaled;
-            var varRel = j == anchor ? 0 : rel * rel * (ca[layout.A(j), layout.A(j)] / (a * a) + ca[layout.A(anchor), layout.A(anchor)] / (aAnchor * aAnchor)
-                                                  - 2 * ca[layout.A(j), layout.A(anchor)] / (a * aAnchor));
-            var snr = a / Math.Sqrt(Math.Max(ca[layout.A(j), layout.A(j)], 1e-300));
-            var note = new List<string>();
-            double? bootSigma = bootstrap?[j];
+            var varRel = j == anchor ? 0 : rel * rel * (cs[aj, aj] / (a * a) + cs[aa, aa] / (aAnchor * aAnchor) - 2 * cs[aj, aa] / (a * aAnchor));
+            var snr = Finite(a / Math.Sqrt(cs[aj, aj]));
+            if (!t.Pinned && (sigNu is null || snr is null || (j != anchor && !double.IsFinite(varRel))))
+                note.Add("singular covariance: this line's parameters are not all determined by the data, so some uncertainties are missing");
+            if (t.Pinned && j == anchor) note.Add("the anchor's position is pinned, so the other lines' frequency uncertainties leave out the anchor's");
+
+            double? bootSigma = bootstrap is null ? null : Finite(bootstrap[j]);
             var reportedSigma = sigNu;
-            if (bootSigma is double bs && j != anchor && (bs > 1.43 * sigNu || bs < 0.7 * sigNu))
+            if (bootSigma is double bs && sigNu is double sc && j != anchor && !t.Pinned && (bs > 1.43 * sc || bs < 0.7 * sc))
             {
                 reportedSigma = bs;
-                note.Add($"covariance and bootstrap errors disagree ({Units.Quantity.FormatFrequency(sigNu, 2)} vs {Units.Quantity.FormatFrequency(bs, 2)}): bootstrap used");
+                note.Add($"covariance and bootstrap errors disagree ({Quantity.FormatFrequency(sc, 2)} vs {Quantity.FormatFrequency(bs, 2)}): bootstrap used");
             }
 
-            if (!double.IsFinite(sigNu)) note.Add("singular covariance: no uncertainty for this line");
-            double? width = options.FitWidths ? fit.P[layout.W(j)] : null;
-            double? widthSigma = options.FitWidths ? Math.Sqrt(Math.Max(0, fit.Scaled[layout.W(j), layout.W(j)])) : null;
-            refined.Add(new UnfoldedLine(nu, rel, a, snr, lines[j].FirstBin, lines[j].LastBin)
+            // a neighbour closer than a linewidth (but not merged): strongly correlated parameters
+            for (var i = 0; i < layout.Lines; i++)
             {
-                FrequencySigmaHz = double.IsFinite(reportedSigma) ? reportedSigma : null,
-                FrequencyCrbHz = double.IsFinite(crbNu) ? crbNu : null,
-                IntensitySigma2 = double.IsFinite(varRel) && varRel >= 0 ? Math.Sqrt(varRel) : null,
+                if (i == j) continue;
+                var d = Math.Abs(fit.P[layout.Nu(i)] - fit.P[layout.Nu(j)]);
+                if (d < lwWide)
+                {
+                    note.Add($"another line lies {Quantity.FormatFrequency(d, 3)} away (less than a linewidth): the two positions and intensities are strongly correlated");
+                    break;
+                }
+            }
+
+            double? width = options.FitWidths ? Math.Abs(fit.P[layout.W(j)]) : null;
+            double? widthSigma = options.FitWidths ? Finite(Math.Sqrt(cs[layout.W(j), layout.W(j)])) : null;
+            refined.Add(new UnfoldedLine(nu, rel, a, snr ?? t.Grid.Snr, t.FirstBin, t.LastBin)
+            {
+                FrequencySigmaHz = reportedSigma,
+                FrequencyCrbHz = crbNu,
+                IntensitySigma2 = Finite(Math.Sqrt(varRel)),
                 BootstrapSigmaHz = bootSigma,
                 WidthHz = width,
                 WidthSigmaHz = widthSigma,
@@ -145,19 +405,20 @@ public static class LineRefiner
             var instruments = sweeps.Select(s => s.Instrument).DistinctBy(i => i.FsrHz).ToList();
             var origin = grid.Sweeps[0].OffsetHz + anchorHz; // old relative frequency − origin = new relative frequency
             var window = (grid.Grid.StartHz - origin, grid.Grid.EndHz - origin);
+            var mask = layout.FixedMask(tracked);
             for (var j = 0; j < refined.Count; j++)
             {
-                var (shift, dchi) = BestAlias(data, layout, fit, j, instruments, window, anchorHz, options);
+                var (shift, dchi) = BestAlias(data, layout, fit, j, instruments, window, anchorHz, options, mask);
                 var doubtful = dchi < options.DoubtfulDeltaChiSquare;
                 refined[j] = refined[j] with
                 {
-                    AliasShiftHz = double.IsFinite(shift) ? shift : null,
-                    AliasDeltaChiSquare = double.IsFinite(dchi) ? dchi : null,
+                    AliasShiftHz = Finite(shift),
+                    AliasDeltaChiSquare = Finite(dchi),
                     Doubtful = doubtful,
                     Verdict = doubtful ? OrderVerdict.Doubtful : OrderVerdict.Secure,
                 };
                 if (doubtful)
-                    warnings.Add($"line at {Units.Quantity.FormatFrequency(refined[j].FrequencyHz)}: its order is doubtful; moved by {Units.Quantity.FormatFrequency(shift)} it fits almost as well (Δχ² = {dchi:F1})");
+                    warnings.Add($"line at {Quantity.FormatFrequency(refined[j].FrequencyHz)}: its order is doubtful; moved by {Quantity.FormatFrequency(shift)} it fits almost as well (Δχ² = {dchi:F1})");
             }
         }
 
@@ -188,8 +449,34 @@ public static class LineRefiner
         // internal frequencies are relative to sweep 0's origin: internal = (old relative) − φ₀(old)
         var phi0 = grid.Sweeps[0].OffsetHz;
         var shiftedGrid = new FrequencyGrid(grid.Grid.StartHz - phi0 - anchorHz, grid.Grid.StepHz, grid.Grid.Count);
-        var detection = DetectionLimit(sweeps, grid with { Grid = shiftedGrid, Sweeps = sweepFits }, threshold, aAnchor);
-        var spectrumScale = grid.Lines.Count > 0 ? grid.Lines.Max(l => l.RawIntensity) / aAnchor : 1;
+        // the limit uses the same test as the pruning: Wald z² against the threshold with the χ²-scaled variance
+        var detection = DetectionLimit(sweeps, grid with { Grid = shiftedGrid, Sweeps = sweepFits }, threshold * red, aAnchor);
+        var spectrumScale = grid.Lines.Max(l => l.RawIntensity) / aAnchor;
+
+        // unambiguous range for the weakest kept line at this noise
+        var weakest = Enumerable.Range(0, layout.Lines).MinBy(j => fit.P[layout.A(j)]);
+        var aWeak = fit.P[layout.A(weakest)];
+        double? range = null;
+        var lowerBound = false;
+        string? statement;
+        if (ordersResolved)
+        {
+            var limit = Math.Max(grid.Grid.EndHz - grid.Grid.StartHz, 2 * grid.UnambiguousRangeHz);
+            var (r, lb) = UnambiguousRange(sweeps, sweepFits, aWeak, options.DoubtfulDeltaChiSquare, limit);
+            range = Finite(r);
+            lowerBound = lb;
+            var who = $"a line as weak as the weakest one kept (intensity {aWeak / aAnchor:G3} of the anchor)";
+            statement = range is null
+                ? $"{who} cannot be placed unambiguously at this noise: a small shift already fits within Δχ² {options.DoubtfulDeltaChiSquare:G3}"
+                : lb
+                    ? $"for these instruments and this noise, {who} is unambiguous over at least ±{Quantity.FormatFrequency(r)} (no shift up to there fits within Δχ² {options.DoubtfulDeltaChiSquare:G3})"
+                    : $"for these instruments and this noise, {who} is unambiguous over ±{Quantity.FormatFrequency(r)}: moved by that much it would fit within Δχ² {options.DoubtfulDeltaChiSquare:G3}";
+        }
+        else
+        {
+            statement = "one instrument: the spectrum is folded into one FSR; orders are unknown";
+        }
+
         var result = grid with
         {
             Grid = shiftedGrid,
@@ -198,15 +485,22 @@ public static class LineRefiner
             Sweeps = sweepFits,
             DetectionLimit = detection,
             Warnings = warnings,
-            ReducedChiSquare = fit.ChiSquare / Math.Max(1, data.M - layout.Count),
+            ReducedChiSquare = red,
             Refined = true,
         };
-        var diag = new RefinementDiagnostics(fit.Converged, fit.Reason, fit.Iterations, fit.ChiSquare, fit.ChiSquare / Math.Max(1, data.M - layout.Count), threshold, dropped);
+        var diag = new RefinementDiagnostics(fit.Converged, fit.Reason, fit.Iterations, fit.ChiSquare, red, threshold, dropped)
+        {
+            Merged = merged,
+            Pinned = pinned,
+            UnambiguousRangeHz = range,
+            UnambiguousRangeIsLowerBound = lowerBound,
+            UnambiguousForIntensity = Finite(aWeak / aAnchor),
+            UnambiguousStatement = statement,
+        };
         return (result, diag);
     }
 
-    /// <summary>Δχ² a line must add: the larger of MinSnr² and the BIC penalty for two parameters, 2·ln(m).</summary>
-    public static double Threshold(RefineOptions options, int samples) => Math.Max(options.MinSnr * options.MinSnr, 2 * Math.Log(Math.Max(2, samples)));
+    private static double? Finite(double v) => double.IsFinite(v) ? v : null;
 
     // ---------------------------------------------------------------- model
 
@@ -217,12 +511,18 @@ public static class LineRefiner
         {
             Sweeps = sweeps;
             Start = new int[sweeps.Count + 1];
-            for (var k = 0; k < sweeps.Count; k++) Start[k + 1] = Start[k] + sweeps[k].Signal.Length;
+            for (var k = 0; k < sweeps.Count; k++)
+            {
+                var s = sweeps[k];
+                if (s.ScanHz.Length != s.Signal.Length) throw new ArgumentException($"{s.Name}: scan and signal lengths differ ({s.ScanHz.Length} vs {s.Signal.Length})");
+                if (!(s.NoiseSigma > 0) || !double.IsFinite(s.NoiseSigma)) throw new ArgumentException($"{s.Name}: the noise σ must be positive and finite but is {s.NoiseSigma}");
+                Start[k + 1] = Start[k] + s.Signal.Length;
+            }
+
             M = Start[^1];
             Y = new double[M];
             W = new double[M];
             F = new double[M];
-            K = new int[M];
             for (var k = 0; k < sweeps.Count; k++)
             {
                 var s = sweeps[k];
@@ -231,7 +531,6 @@ public static class LineRefiner
                     Y[Start[k] + i] = s.Signal[i];
                     W[Start[k] + i] = 1 / (s.NoiseSigma * s.NoiseSigma);
                     F[Start[k] + i] = s.ScanHz[i];
-                    K[Start[k] + i] = k;
                 }
             }
         }
@@ -242,11 +541,14 @@ public static class LineRefiner
         public double[] Y { get; }
         public double[] W { get; }
         public double[] F { get; }
-        public int[] K { get; }
 
         public (int Start, int Count) Range(int k) => (Start[k], Start[k + 1] - Start[k]);
 
-        /// <summary>Airy profile of line j in sweep k with optional intrinsic width, and its derivative in δ.</summary>
+        /// <summary>
+        /// Airy profile of a line with an optional intrinsic Lorentzian FWHM <paramref name="width"/>, and its derivative in δ.
+        /// A Lorentzian convolved with the (near-Lorentzian) Airy peak is modelled as an Airy of linewidth (instrument + intrinsic)
+        /// scaled to keep the area: exact for Lorentzians in the high-finesse limit.
+        /// </summary>
         public static (double T, double dT) Profile(Instrument inst, double delta, double width)
         {
             var lw = inst.LinewidthHz;
@@ -260,9 +562,9 @@ public static class LineRefiner
             return (area * t, area * dt);
         }
 
-        public double[] Model(Layout layout, IReadOnlyList<double> p)
+        public double[] Model(Layout layout, IReadOnlyList<double> p, double[]? into = null)
         {
-            var y = new double[M];
+            var y = into ?? new double[M];
             for (var k = 0; k < Sweeps.Count; k++)
             {
                 var inst = Sweeps[k].Instrument;
@@ -273,12 +575,21 @@ public static class LineRefiner
                 {
                     var v = 0.0;
                     for (var j = 0; j < layout.Lines; j++)
-                        v += p[layout.A(j)] * Profile(inst, p[layout.Nu(j)] - phi - F[i], layout.Widths ? Math.Max(0, p[layout.W(j)]) : 0).T;
+                        v += p[layout.A(j)] * Profile(inst, p[layout.Nu(j)] - phi - F[i], layout.Widths ? Math.Abs(p[layout.W(j)]) : 0).T;
                     y[i] = g * v + b;
                 }
             }
 
             return y;
+        }
+
+        public double ChiSquare(Layout layout, IReadOnlyList<double> p, double[]? y = null)
+        {
+            var model = Model(layout, p);
+            var obs = y ?? Y;
+            double chi = 0;
+            for (var i = 0; i < M; i++) chi += (obs[i] - model[i]) * (obs[i] - model[i]) * W[i];
+            return chi;
         }
 
         public Matrix<double> Jacobian(Layout layout, IReadOnlyList<double> p)
@@ -294,16 +605,17 @@ public static class LineRefiner
                     double sumT = 0, sumDT = 0;
                     for (var j = 0; j < layout.Lines; j++)
                     {
-                        var w = layout.Widths ? Math.Max(0, p[layout.W(j)]) : 0;
+                        var w = layout.Widths ? Math.Abs(p[layout.W(j)]) : 0;
                         var a = p[layout.A(j)];
                         var (t, dt) = Profile(inst, p[layout.Nu(j)] - phi - F[i], w);
                         jac[i, layout.Nu(j)] = g * a * dt;
                         jac[i, layout.A(j)] = g * t;
                         if (layout.Widths)
                         {
+                            // the model uses |w|; forward difference in |w|, signed by w
                             var h = inst.LinewidthHz * 1e-3;
                             var tp = Profile(inst, p[layout.Nu(j)] - phi - F[i], w + h).T;
-                            jac[i, layout.W(j)] = g * a * (tp - t) / h;
+                            jac[i, layout.W(j)] = (p[layout.W(j)] < 0 ? -1 : 1) * g * a * (tp - t) / h;
                         }
 
                         sumT += a * t;
@@ -336,7 +648,8 @@ public static class LineRefiner
         public int B(int k) => Base + 2 * (SweepCount - 1) + k;
         public int Count => Base + 3 * SweepCount - 2;
 
-        public double[] Initial(IReadOnlyList<UnfoldedLine> lines, IReadOnlyList<SweepFit> sweeps)
+        /// <summary>Start vector from the grid result; widths start at a tenth of the narrowest linewidth (the model uses |w|).</summary>
+        public double[] Initial(IReadOnlyList<UnfoldedLine> lines, IReadOnlyList<SweepFit> sweeps, double narrowLinewidthHz)
         {
             // grid results are relative to the anchor; internally sweep 0's origin is 0
             var phi0 = sweeps[0].OffsetHz;
@@ -345,7 +658,7 @@ public static class LineRefiner
             {
                 p[Nu(j)] = lines[j].FrequencyHz - phi0;
                 p[A(j)] = lines[j].RawIntensity;
-                if (Widths) p[W(j)] = 0;
+                if (Widths) p[W(j)] = 0.1 * narrowLinewidthHz;
             }
 
             for (var k = 1; k < SweepCount; k++)
@@ -382,12 +695,25 @@ public static class LineRefiner
             for (var k = 0; k < SweepCount; k++) q[next.B(k)] = p[B(k)];
             return (next, q);
         }
+
+        /// <summary>Parameters held fixed: the positions of pinned lines.</summary>
+        public bool[] FixedMask(IReadOnlyList<Tracked> tracked)
+        {
+            var mask = new bool[Count];
+            for (var j = 0; j < Lines; j++) mask[Nu(j)] = tracked[j].Pinned;
+            return mask;
+        }
+
+        public int FreeCount(bool[] mask) => mask.Count(m => !m);
     }
 
+    /// <summary>A fit: parameters, covariance (unscaled: inverse Fisher matrix = CRB; scaled: × reduced χ²), χ², exit state.
+    /// Fixed parameters have zero variance; undetermined ones (null space of a singular Fisher matrix) NaN.</summary>
     internal sealed record FitResult(double[] P, Matrix<double> Unscaled, Matrix<double> Scaled, double ChiSquare, bool Converged, string Reason, int Iterations);
 
-    internal static FitResult Fit(Data data, Layout layout, double[] p0, RefineOptions options, double[]? y = null)
+    internal static FitResult Fit(Data data, Layout layout, double[] p0, RefineOptions options, bool[]? isFixed = null, double[]? y = null)
     {
+        isFixed ??= new bool[layout.Count];
         var observedY = Vector<double>.Build.DenseOfArray(y ?? data.Y);
         var x = Vector<double>.Build.Dense(data.M, i => i);
         var w = Vector<double>.Build.DenseOfArray(data.W);
@@ -395,16 +721,8 @@ public static class LineRefiner
             (p, _) => Vector<double>.Build.DenseOfArray(data.Model(layout, p.ToArray())),
             (p, _) => data.Jacobian(layout, p.ToArray()),
             x, observedY, w);
-        var lower = new double[layout.Count];
-        var upper = new double[layout.Count];
         var scales = new double[layout.Count];
-        for (var i = 0; i < layout.Count; i++)
-        {
-            lower[i] = double.NegativeInfinity;
-            upper[i] = double.PositiveInfinity;
-            scales[i] = 1;
-        }
-
+        for (var i = 0; i < layout.Count; i++) scales[i] = 1;
         var lw = data.Sweeps.Min(s => s.Instrument.LinewidthHz);
         for (var j = 0; j < layout.Lines; j++)
         {
@@ -420,56 +738,101 @@ public static class LineRefiner
         }
 
         NonlinearMinimizationResult r;
-        var converged = true;
+        bool converged;
         string reason;
         try
         {
             var lm = new LevenbergMarquardtMinimizer(maximumIterations: options.MaxIterations);
-            r = lm.FindMinimum(model, Vector<double>.Build.DenseOfArray(p0), null, null, Vector<double>.Build.DenseOfArray(scales));
+            r = lm.FindMinimum(model, Vector<double>.Build.DenseOfArray(p0), null, null, Vector<double>.Build.DenseOfArray(scales),
+                isFixed.Any(f => f) ? isFixed.ToList() : null);
             reason = r.ReasonForExit.ToString();
             converged = r.ReasonForExit is not (ExitCondition.ExceedIterations or ExitCondition.InvalidValues or ExitCondition.None or ExitCondition.ManuallyStopped);
         }
-        catch (Exception e) when (e is MaximumIterationsException or ArithmeticException or ArgumentException)
+        catch (Exception e) when (e is MaximumIterationsException or ArithmeticException or ArgumentException or InvalidOperationException)
         {
-            return Summarise(data, layout, p0, false, e.GetType().Name, options.MaxIterations, y);
+            return Summarise(data, layout, p0, false, e.GetType().Name, options.MaxIterations, isFixed, y);
         }
 
-        return Summarise(data, layout, r.MinimizingPoint.ToArray(), converged, reason, r.Iterations, y);
+        return Summarise(data, layout, r.MinimizingPoint.ToArray(), converged, reason, r.Iterations, isFixed, y);
     }
 
-    private static FitResult Summarise(Data data, Layout layout, double[] p, bool converged, string reason, int iterations, double[]? yObs)
+    private static FitResult Summarise(Data data, Layout layout, double[] p, bool converged, string reason, int iterations, bool[] isFixed, double[]? yObs)
     {
-        var y = yObs ?? data.Y;
-        var model = data.Model(layout, p);
-        double chi = 0;
-        for (var i = 0; i < data.M; i++) chi += (y[i] - model[i]) * (y[i] - model[i]) * data.W[i];
-        var jac = data.Jacobian(layout, p);
-        var jw = jac.Clone();
-        for (var i = 0; i < data.M; i++)
+        var chi = p.All(double.IsFinite) ? data.ChiSquare(layout, p, yObs) : double.NaN;
+        var n = layout.Count;
+        var free = Enumerable.Range(0, n).Where(i => !isFixed[i]).ToArray();
+        var unscaled = Matrix<double>.Build.Dense(n, n);
+        if (double.IsFinite(chi))
         {
-            var sw = Math.Sqrt(data.W[i]);
-            for (var c = 0; c < layout.Count; c++) jw[i, c] *= sw;
+            var jac = data.Jacobian(layout, p);
+            var jw = Matrix<double>.Build.Dense(data.M, free.Length);
+            for (var i = 0; i < data.M; i++)
+            {
+                var sw = Math.Sqrt(data.W[i]);
+                for (var c = 0; c < free.Length; c++) jw[i, c] = jac[i, free[c]] * sw;
+            }
+
+            var cov = PseudoInverse(jw.TransposeThisAndMultiply(jw));
+            for (var a = 0; a < free.Length; a++)
+            for (var b = 0; b < free.Length; b++)
+                unscaled[free[a], free[b]] = cov[a, b];
+        }
+        else
+        {
+            unscaled = Matrix<double>.Build.Dense(n, n, double.NaN);
         }
 
-        var fisher = jw.TransposeThisAndMultiply(jw);
-        Matrix<double> unscaled;
-        try
-        {
-            unscaled = fisher.Inverse();
-            if (unscaled.Enumerate().Any(v => !double.IsFinite(v))) throw new ArithmeticException();
-        }
-        catch (Exception e) when (e is ArithmeticException or ArgumentException)
-        {
-            unscaled = Matrix<double>.Build.Dense(layout.Count, layout.Count, double.NaN);
-        }
-
-        var red = chi / Math.Max(1, data.M - layout.Count);
+        var red = chi / Math.Max(1, data.M - free.Length);
         return new FitResult(p, unscaled, unscaled * red, chi, converged, reason, iterations);
+    }
+
+    /// <summary>
+    /// Inverse of a symmetric positive semi-definite Fisher matrix by eigen-decomposition of its diagonally scaled form.
+    /// Directions with eigenvalues below 1e-12 of the largest are the null space; a parameter with a noticeable component
+    /// there (or a zero diagonal) is undetermined and its row and column are NaN. The rest is the pseudo-inverse.
+    /// </summary>
+    internal static Matrix<double> PseudoInverse(Matrix<double> fisher)
+    {
+        var n = fisher.RowCount;
+        var d = new double[n];
+        var bad = new bool[n];
+        for (var i = 0; i < n; i++)
+        {
+            d[i] = fisher[i, i] > 0 && double.IsFinite(fisher[i, i]) ? 1 / Math.Sqrt(fisher[i, i]) : 0;
+            bad[i] = d[i] == 0;
+        }
+
+        var scaled = Matrix<double>.Build.Dense(n, n, (i, j) => fisher[i, j] * d[i] * d[j]);
+        if (!scaled.Enumerate().All(double.IsFinite)) return Matrix<double>.Build.Dense(n, n, double.NaN);
+        var evd = scaled.Evd(Symmetricity.Symmetric);
+        var values = evd.EigenValues.Select(c => c.Real).ToArray();
+        var vectors = evd.EigenVectors;
+        var max = values.Max();
+        var inv = Matrix<double>.Build.Dense(n, n);
+        for (var e = 0; e < n; e++)
+        {
+            if (values[e] > 1e-12 * max)
+            {
+                for (var i = 0; i < n; i++)
+                for (var j = 0; j < n; j++)
+                    inv[i, j] += vectors[i, e] * vectors[j, e] / values[e];
+            }
+            else
+            {
+                for (var i = 0; i < n; i++)
+                    if (Math.Abs(vectors[i, e]) > 0.05) bad[i] = true;
+            }
+        }
+
+        for (var i = 0; i < n; i++)
+        for (var j = 0; j < n; j++)
+            inv[i, j] = bad[i] || bad[j] ? double.NaN : inv[i, j] * d[i] * d[j];
+        return inv;
     }
 
     // ---------------------------------------------------------------- bootstrap
 
-    private static double[] BootstrapSigmas(Data data, Layout layout, FitResult fit, int anchor, RefineOptions options)
+    private static double[] BootstrapSigmas(Data data, Layout layout, FitResult fit, int anchor, RefineOptions options, bool[] mask)
     {
         var rng = new Random(options.Seed);
         var model = data.Model(layout, fit.P);
@@ -485,16 +848,23 @@ public static class LineRefiner
                 for (var i = 0; i < c; i++) y[s + i] = model[s + i] + resid[s + rng.Next(c)];
             }
 
-            var f = Fit(data, layout, fit.P, options with { MaxIterations = 50 }, y);
+            var f = Fit(data, layout, fit.P, options with { MaxIterations = 50 }, mask, y);
+            if (!f.P.All(double.IsFinite)) continue;
             samples.Add(Enumerable.Range(0, layout.Lines).Select(j => f.P[layout.Nu(j)] - f.P[layout.Nu(anchor)]).ToArray());
         }
 
         var result = new double[layout.Lines];
         for (var j = 0; j < layout.Lines; j++)
         {
+            if (samples.Count < 2)
+            {
+                result[j] = double.NaN;
+                continue;
+            }
+
             var v = samples.Select(s => s[j]).ToArray();
             var mean = v.Average();
-            result[j] = Math.Sqrt(v.Sum(t => (t - mean) * (t - mean)) / Math.Max(1, v.Length - 1));
+            result[j] = Math.Sqrt(v.Sum(t => (t - mean) * (t - mean)) / (v.Length - 1));
         }
 
         return result;
@@ -522,49 +892,86 @@ public static class LineRefiner
         return shifts.OrderBy(s => s.margin).Select(s => s.d).Distinct().Take(count).ToList();
     }
 
+    /// <summary>Best alternative placement of line j: each candidate shift gets a quick refit of the moved line's position
+    /// and intensity and the backgrounds (other lines fixed); the best one, when it is anywhere near the doubtful threshold,
+    /// gets a full Levenberg–Marquardt refit of every parameter. Returns the shift and Δχ² against the solution.</summary>
     private static (double Shift, double DeltaChi) BestAlias(Data data, Layout layout, FitResult fit, int j, IReadOnlyList<Instrument> instruments,
-        (double Start, double End) window, double anchorHz, RefineOptions options)
+        (double Start, double End) window, double anchorHz, RefineOptions options, bool[] mask)
     {
         var nu = fit.P[layout.Nu(j)];
         var shifts = AliasShifts(instruments, nu - anchorHz, window, options.AliasCandidates);
         var bestShift = double.NaN;
         var bestDelta = double.PositiveInfinity;
-        // other lines fixed; refit the moved line's position and intensity and the backgrounds
+        var bestNu = double.NaN;
+        var bestA = double.NaN;
         var others = fit.P.ToArray();
         others[layout.A(j)] = 0;
         var fixedModel = data.Model(layout, others);
         foreach (var d in shifts)
         {
-            var chi = RefitMoved(data, layout, fit.P, j, nu + d, fixedModel);
+            var (chi, nuMoved, aMoved) = RefitMoved(data, layout, fit.P, j, nu + d, fixedModel);
             var delta = chi - fit.ChiSquare;
             if (delta < bestDelta)
             {
                 bestDelta = delta;
                 bestShift = d;
+                bestNu = nuMoved;
+                bestA = aMoved;
             }
+        }
+
+        if (double.IsFinite(bestDelta) && bestDelta < 4 * options.DoubtfulDeltaChiSquare)
+        {
+            var q = fit.P.ToArray();
+            q[layout.Nu(j)] = bestNu;
+            q[layout.A(j)] = Math.Max(bestA, 1e-6 * Math.Abs(fit.P[layout.A(j)]));
+            var m = (bool[])mask.Clone();
+            m[layout.Nu(j)] = false;
+            var alt = Fit(data, layout, q, options with { MaxIterations = Math.Min(options.MaxIterations, 100) }, m);
+            var lw = data.Sweeps.Max(s => s.Instrument.LinewidthHz);
+            if (double.IsFinite(alt.ChiSquare) && Math.Abs(alt.P[layout.Nu(j)] - bestNu) < 2 * lw && alt.ChiSquare - fit.ChiSquare < bestDelta)
+                bestDelta = alt.ChiSquare - fit.ChiSquare;
         }
 
         return (bestShift, Math.Max(0, bestDelta));
     }
 
     /// <summary>χ² after moving line j to <paramref name="nuNew"/> and refitting its position, intensity and the backgrounds
-    /// (Gauss–Newton, a few steps; the other lines stay as fitted).</summary>
-    private static double RefitMoved(Data data, Layout layout, double[] p, int j, double nuNew, double[] fixedModel)
+    /// (Gauss–Newton, a few steps; the other lines stay as fitted). Also returns the moved line's final position and intensity.</summary>
+    private static (double Chi, double Nu, double A) RefitMoved(Data data, Layout layout, double[] p, int j, double nuNew, double[] fixedModel)
     {
         var nu = nuNew;
         var a = p[layout.A(j)];
         var k = data.Sweeps.Count;
         var bg = new double[k];
-        var width = layout.Widths ? Math.Max(0, p[layout.W(j)]) : 0;
+        var width = layout.Widths ? Math.Abs(p[layout.W(j)]) : 0;
         var lw = data.Sweeps.Min(s => s.Instrument.LinewidthHz);
-        double chi = double.PositiveInfinity;
-        for (var it = 0; it < 8; it++)
+
+        double Chi(double nuT, double aT, double[] bgT)
+        {
+            double c = 0;
+            for (var s = 0; s < k; s++)
+            {
+                var inst = data.Sweeps[s].Instrument;
+                var phi = s == 0 ? 0 : p[layout.Phi(s)];
+                var g = s == 0 ? 1 : p[layout.G(s)];
+                for (var i = data.Start[s]; i < data.Start[s + 1]; i++)
+                {
+                    var r = data.Y[i] - (fixedModel[i] + g * aT * Data.Profile(inst, nuT - phi - data.F[i], width).T + bgT[s]);
+                    c += r * r * data.W[i];
+                }
+            }
+
+            return c;
+        }
+
+        var chi = Chi(nu, a, bg);
+        for (var it = 0; it < 10; it++)
         {
             // parameters: nu, a, bg_k (offsets to fixedModel's backgrounds)
             var n = 2 + k;
             var jtj = Matrix<double>.Build.Dense(n, n);
             var jtr = Vector<double>.Build.Dense(n);
-            chi = 0;
             var row = new double[n];
             for (var s = 0; s < k; s++)
             {
@@ -576,7 +983,6 @@ public static class LineRefiner
                     var (t, dt) = Data.Profile(inst, nu - phi - data.F[i], width);
                     var r = data.Y[i] - (fixedModel[i] + g * a * t + bg[s]);
                     var wgt = data.W[i];
-                    chi += r * r * wgt;
                     Array.Clear(row);
                     row[0] = g * a * dt;
                     row[1] = g * t;
@@ -602,26 +1008,94 @@ public static class LineRefiner
             }
 
             if (!step.All(double.IsFinite)) break;
-            nu += Math.Clamp(step[0], -lw, lw);
-            a = Math.Max(0, a + step[1]);
-            for (var s = 0; s < k; s++) bg[s] += step[2 + s];
-        }
-
-        // final χ²
-        double final = 0;
-        for (var s = 0; s < k; s++)
-        {
-            var inst = data.Sweeps[s].Instrument;
-            var phi = s == 0 ? 0 : p[layout.Phi(s)];
-            var g = s == 0 ? 1 : p[layout.G(s)];
-            for (var i = data.Start[s]; i < data.Start[s + 1]; i++)
+            // damped step: halve until χ² does not rise
+            var accepted = false;
+            for (var h = 1.0; h > 1e-3; h /= 2)
             {
-                var r = data.Y[i] - (fixedModel[i] + g * a * Data.Profile(inst, nu - phi - data.F[i], width).T + bg[s]);
-                final += r * r * data.W[i];
+                var nuT = nu + Math.Clamp(h * step[0], -lw, lw);
+                var aT = Math.Max(0, a + h * step[1]);
+                var bgT = bg.Select((b, s) => b + h * step[2 + s]).ToArray();
+                var c = Chi(nuT, aT, bgT);
+                if (c <= chi)
+                {
+                    accepted = chi - c > 1e-9 * chi;
+                    (nu, a, bg, chi) = (nuT, aT, bgT, c);
+                    break;
+                }
             }
+
+            if (!accepted) break;
         }
 
-        return Math.Min(final, chi);
+        return (chi, nu, a);
+    }
+
+    // ---------------------------------------------------------------- unambiguous range at this noise
+
+    /// <summary>
+    /// Approximate Δχ² between a line of raw intensity <paramref name="intensity"/> (first sweep's gain = 1) and the same line
+    /// moved by <paramref name="shiftHz"/> with its intensity refitted, from each sweep's sample density: with N_k samples
+    /// spread evenly over whole FSRs, Σᵢ h(uᵢ) ≈ (N_k/FSR_k)∫₀^FSR h, so with c_k = (a g_k/σ_k)² N_k/FSR_k and the Airy
+    /// autocorrelation R_k(δ) = ∫₀^FSR T(u)T(u+δ)du, Δχ² = S₀ − S₁²/S₀ where S₀ = Σ c_k R_k(0), S₁ = Σ c_k R_k(δ).
+    /// R_k has a closed form: the Airy function is a multiple of the Poisson kernel P_r, and P_r ⊛ P_r = P_{r²}, so
+    /// R(δ) = FSR·((1−r)/(1+r))²·P_{r²}(2πδ/FSR) with P_s(θ) = (1−s²)/(1−2s cos θ+s²) and r from 𝓕 = π√r/(1−r).
+    /// Backgrounds drop out (a moved line has the same mean over whole FSRs); other lines are ignored.
+    /// </summary>
+    public static double AliasChiSquareEstimate(IReadOnlyList<CalibratedSweep> sweeps, IReadOnlyList<SweepFit> fits, double intensity, double shiftHz)
+    {
+        double s0 = 0, s1 = 0;
+        for (var k = 0; k < sweeps.Count; k++)
+        {
+            var inst = sweeps[k].Instrument;
+            var c = Math.Pow(intensity * fits[k].Gain / sweeps[k].NoiseSigma, 2) * sweeps[k].Signal.Length / inst.FsrHz;
+            s0 += c * AiryAutocorrelation(inst, 0);
+            s1 += c * AiryAutocorrelation(inst, shiftHz);
+        }
+
+        return s0 > 0 ? s0 - s1 * s1 / s0 : 0;
+    }
+
+    /// <summary>∫₀^FSR T(u)·T(u+δ) du for the Airy function of peak 1 (closed form via the Poisson kernel).</summary>
+    internal static double AiryAutocorrelation(Instrument inst, double deltaHz)
+    {
+        var f = inst.Finesse;
+        var x = (-Math.PI + Math.Sqrt(Math.PI * Math.PI + 4 * f * f)) / (2 * f); // √r
+        var r = x * x;
+        var s = r * r;
+        var theta = 2 * Math.PI * deltaHz / inst.FsrHz;
+        var poisson = (1 - s * s) / (1 - 2 * s * Math.Cos(theta) + s * s);
+        var q = (1 - r) / (1 + r);
+        return inst.FsrHz * q * q * poisson;
+    }
+
+    /// <summary>
+    /// Smallest shift Δ &gt; 0 beyond the line's own peak at which <see cref="AliasChiSquareEstimate"/> falls below
+    /// <paramref name="threshold"/>, scanned in steps of a quarter of the narrowest linewidth up to <paramref name="limitHz"/>.
+    /// Returns (limit, true) when none is found; (NaN, false) when the line cannot even be told from itself moved by a few
+    /// linewidths (too weak to place).
+    /// </summary>
+    internal static (double RangeHz, bool LowerBound) UnambiguousRange(IReadOnlyList<CalibratedSweep> sweeps, IReadOnlyList<SweepFit> fits,
+        double intensity, double threshold, double limitHz)
+    {
+        var narrow = sweeps.Min(s => s.Instrument.LinewidthHz);
+        var wide = sweeps.Max(s => s.Instrument.LinewidthHz);
+        var step = narrow / 4;
+        var maxSteps = 4_000_000;
+        if (limitHz / step > maxSteps) step = limitHz / maxSteps;
+        var d = step;
+        // leave the line's own peak
+        while (d <= limitHz && AliasChiSquareEstimate(sweeps, fits, intensity, d) < threshold)
+        {
+            d += step;
+            if (d > 4 * wide) return (double.NaN, false);
+        }
+
+        for (; d <= limitHz; d += step)
+        {
+            if (AliasChiSquareEstimate(sweeps, fits, intensity, d) < threshold) return (d, false);
+        }
+
+        return (limitHz, true);
     }
 
     // ---------------------------------------------------------------- detection limit
@@ -629,8 +1103,9 @@ public static class LineRefiner
     /// <summary>
     /// Smallest intensity (relative to <paramref name="scale"/>) that would have added the threshold Δχ² at each grid
     /// frequency: a_min(ν) = √(threshold / Σ_k Σ_i (g_k T_k(ν − φ_k − f_k(x_i)) / σ_k)²). The inner sum is periodic in ν,
-    /// so it is computed once per sweep on the periodic grid as (T² ⊛ Sᵀ1). Correlation with existing lines is ignored
-    /// (the limit is optimistic where a candidate frequency shares its folded position with a strong line).
+    /// so it is computed once per sweep on the periodic grid as (T² ⊛ Sᵀ1). Correlation with existing lines and with the
+    /// backgrounds is ignored (the limit is optimistic where a candidate frequency shares its folded position with a strong
+    /// line). Bins with no information are NaN (callers write them as empty).
     /// </summary>
     internal static double[] DetectionLimit(IReadOnlyList<CalibratedSweep> sweeps, UnfoldResult grid, double threshold, double scale)
     {
