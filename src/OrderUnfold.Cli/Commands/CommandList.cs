@@ -5,5 +5,6 @@ public static class CommandList
 {
     public static IReadOnlyList<ICommand> All() =>
     [
+        new ModesCommand(),
     ];
 }
