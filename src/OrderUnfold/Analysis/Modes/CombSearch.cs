@@ -272,38 +272,41 @@ internal sealed class CombSearch
         return list;
     }
 
-    /// <summary>The run of slots [a, b] through slot 0 with the best (Σ strength of occupied slots − cost·empty slots).</summary>
+    /// <summary>
+    /// The run of slots [a, b] through slot 0 with the best (Σ strength of occupied slots − cost·empty slots).
+    /// The score splits into a part left of slot 0 and a part right of it, so each side is extended on its own
+    /// to its best end (on a tie, the longer run).
+    /// </summary>
     private (int A, int B) BestWindow(List<(int K, double R)>[] adm)
     {
-        var slotWeight = new SortedDictionary<int, double> { [0] = _strength[_seed] };
+        var slotWeight = new Dictionary<int, double>();
         for (var i = 0; i < adm.Length; i++)
             foreach (var (k, _) in adm[i])
-                slotWeight[k] = Math.Max(slotWeight.GetValueOrDefault(k), _strength[i]);
-        var arr = slotWeight.Keys.ToArray();
-        var prefix = new double[arr.Length + 1];
-        for (var j = 0; j < arr.Length; j++) prefix[j + 1] = prefix[j] + slotWeight[arr[j]];
-        var zero = Array.IndexOf(arr, 0);
-        var cost = _o.MissingSlotCost;
-        double bestScore = double.NegativeInfinity;
-        int bestA = 0, bestB = 0, bestOcc = 0;
-        for (var i = zero; i >= 0; i--)
+                if (k != 0) slotWeight[k] = Math.Max(slotWeight.GetValueOrDefault(k), _strength[i]);
+        var right = slotWeight.Keys.Where(k => k > 0).OrderBy(k => k).ToArray();
+        var left = slotWeight.Keys.Where(k => k < 0).OrderByDescending(k => k).ToArray();
+        return (-BestReach(left.Select(k => (-k, slotWeight[k])).ToArray()), BestReach(right.Select(k => (k, slotWeight[k])).ToArray()));
+    }
+
+    /// <summary>Best distance from slot 0 along one side, given the occupied distances (ascending) and their weights.</summary>
+    private int BestReach((int Distance, double Weight)[] side)
+    {
+        var best = 0;
+        var bestScore = 0.0;
+        var sum = 0.0;
+        for (var j = 0; j < side.Length; j++)
         {
-            for (var j = zero; j < arr.Length; j++)
+            sum += side[j].Weight;
+            var empty = side[j].Distance - (j + 1);
+            var score = sum - _o.MissingSlotCost * empty;
+            if (score >= bestScore - 1e-12)
             {
-                var occ = j - i + 1;
-                var len = (long)arr[j] - arr[i] + 1;
-                var score = prefix[j + 1] - prefix[i] - cost * (len - occ);
-                if (score > bestScore + 1e-12 || (Math.Abs(score - bestScore) <= 1e-12 && occ > bestOcc))
-                {
-                    bestScore = score;
-                    bestA = arr[i];
-                    bestB = arr[j];
-                    bestOcc = occ;
-                }
+                bestScore = Math.Max(score, bestScore);
+                best = side[j].Distance;
             }
         }
 
-        return (bestA, bestB);
+        return best;
     }
 
     /// <summary>One line per slot inside [a, b], strongest lines first; the seed is always at slot 0.</summary>

@@ -44,9 +44,21 @@ public static class LaserModes
 
         CombFit? comb = null;
         CombState? state = null;
+        var tooFewAfterTrim = false;
         if (match is not null && match.Members >= options.MinModesForComb)
         {
             (comb, state) = FitComb(match, pts, fold, options, notes);
+            if (comb.MemberCount < options.MinModesForComb)
+            {
+                notes.Add($"No comb: after taking outliers off, {comb.MemberCount} line(s) remain, fewer than the {options.MinModesForComb} required.");
+                comb = null;
+                state = null;
+                tooFewAfterTrim = true;
+            }
+        }
+
+        if (comb is not null && state is not null)
+        {
             for (var p = 0; p < pts.Count; p++)
             {
                 if (state.K[p] == CombSearch.NotMember) continue;
@@ -59,7 +71,7 @@ public static class LaserModes
             if (comb.MemberCount == 2 && positive.Count >= 3)
                 notes.Add("Only two lines lie on a common comb: the spacing is just their difference and cannot be checked against other modes.");
         }
-        else if (positive.Count >= 2)
+        else if (positive.Count >= 2 && !tooFewAfterTrim)
         {
             notes.Add(match is null
                 ? "No comb: a spacing needs at least two lines."

@@ -71,8 +71,12 @@ public static class ModeCheck
 
     private static string Db(double v) => v.ToString("0.##", CultureInfo.InvariantCulture);
 
-    private static string WithSigma(double v, double? sigma) =>
-        sigma is { } s && s > 0 && double.IsFinite(s)
-            ? $"{v.ToString("0.0#", CultureInfo.InvariantCulture)} ± {s.ToString("0.0#", CultureInfo.InvariantCulture)}"
-            : v.ToString("0.0#", CultureInfo.InvariantCulture);
+    /// <summary>"30.97 ± 0.44": rounded to the second significant digit of the sigma; one decimal without a sigma.</summary>
+    private static string WithSigma(double v, double? sigma)
+    {
+        var ci = CultureInfo.InvariantCulture;
+        if (sigma is not { } s || !(s > 0) || !double.IsFinite(s)) return v.ToString("0.0", ci);
+        var decimals = (int)Math.Clamp(1 - Math.Floor(Math.Log10(s)), 1, 6);
+        return $"{v.ToString("F" + decimals, ci)} ± {s.ToString("F" + decimals, ci)}";
+    }
 }
