@@ -123,6 +123,9 @@ public sealed class ModesCommand : ICommand
         return verdict.Passed ? ExitCodes.Ok : ExitCodes.SomeFailed;
     }
 
+    /// <summary>A residual in Hz: "&lt; 1 Hz" below one hertz (a noise-free comb), else three digits.</summary>
+    private static string Small(double hz) => hz < 1 ? "< 1 Hz" : Quantity.FormatFrequency(hz, 3);
+
     private static double? Positive(Args a, string name, double? value)
     {
         if (value is { } v && !(v > 0))
@@ -139,7 +142,7 @@ public sealed class ModesCommand : ICommand
         {
             var missing = c.MissingK.Count == 0 ? "none missing" : $"missing k = {string.Join(", ", c.MissingK.Select(k => k.ToString("+0;-0;0", ci)))}";
             o.WriteLine($"  comb: {c.MemberCount} modes, k = {c.FirstK.ToString("+0;-0;0", ci)} … {c.LastK.ToString("+0;-0;0", ci)}, {missing}; " +
-                        $"irregularity rms {Quantity.FormatFrequency(c.RmsResidualHz, 3)}, max {Quantity.FormatFrequency(c.MaxAbsResidualHz, 3)}");
+                        $"irregularity rms {Small(c.RmsResidualHz)}, max {Small(c.MaxAbsResidualHz)}");
         }
         else
         {
