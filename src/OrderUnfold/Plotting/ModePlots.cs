@@ -291,7 +291,7 @@ public static class ModePlots
         }
 
         var off = a.Lines.Count(l => l.Role == LineRole.OffComb);
-        if (off > 0 && a.Spacing is null && !a.OrdersResolved) parts.Add($"{off} off-comb line{(off == 1 ? "" : "s")} not shown");
+        if (off > 0 && !a.OrdersResolved) parts.Add($"{off} off-comb line{(off == 1 ? "" : "s")} not shown");
         return string.Join(" · ", parts);
     }
 

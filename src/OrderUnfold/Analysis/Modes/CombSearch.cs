@@ -19,8 +19,7 @@ internal sealed record CombMatch(double Origin, double Step, int[] K, double[] R
 /// maximises (Σ strength of the members − cost × empty slots) is kept, each slot takes at most one line (the strongest), and origin
 /// and step are refitted by weighted least squares; this repeats until the membership settles (the first pass
 /// with a wider tolerance, so that an imprecise candidate still collects its members). The candidate with
-/// the best score wins; on a tie the larger step (a finer comb that leaves slots empty is not preferred),
-/// then the smaller normalised residual.
+/// the best score wins (see <see cref="Better"/> for ties).
 /// </para>
 /// </summary>
 internal sealed class CombSearch
@@ -390,21 +389,29 @@ internal sealed class CombSearch
         return (newOrigin, newStep);
     }
 
-    /// <summary>Normalised residual of a match: mean of (residual / tolerance)² over its members.</summary>
-    private static double Spread(CombMatch m)
+    /// <summary>Weighted mean square residual of a match over its members (χ²/n with sigmas, Hz² without).</summary>
+    private double Spread(CombMatch m)
     {
         double sum = 0;
         for (var i = 0; i < m.K.Length; i++)
-            if (m.K[i] != NotMember) sum += m.Residual[i] * m.Residual[i] / (m.Tolerance[i] * m.Tolerance[i]);
+            if (m.K[i] != NotMember) sum += _weight[i] * m.Residual[i] * m.Residual[i];
         return sum / Math.Max(1, m.Members);
     }
 
+    /// <summary>
+    /// Ranking of two candidates: the higher score; on a tie, the clearly tighter fit (spread smaller by more than
+    /// a factor 2: with folded positions, a step that makes the modes look evenly spread round the FSR fits only
+    /// roughly), then the larger step (a finer comb that leaves slots empty is not preferred), then the tighter fit.
+    /// </summary>
     private bool Better(CombMatch a, CombMatch b)
     {
         if (Math.Abs(a.Score - b.Score) > 1e-9) return a.Score > b.Score;
+        var pa = Spread(a);
+        var pb = Spread(b);
+        if (pa < pb / 2 || pb < pa / 2) return pa < pb;
         var sa = Scale(a.Step);
         var sb = Scale(b.Step);
         if (Math.Abs(sa - sb) > 0.05 * Math.Max(sa, sb)) return sa > sb;
-        return Spread(a) < Spread(b);
+        return pa < pb;
     }
 }

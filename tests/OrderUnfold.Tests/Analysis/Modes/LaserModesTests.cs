@@ -444,6 +444,35 @@ public sealed class LaserModesTests
     }
 
     [Fact]
+    public void FoldedStep_Property_RandomSpacingsAndFsrs()
+    {
+        // Simulated: spacing 2–100 GHz, one cavity of FSR 1–3 GHz, 5–9 modes, position noise 1 MHz. Cases where
+        // two modes fold within 3 % of an FSR of each other (j·δ near a multiple of the FSR for j < n) are skipped,
+        // as one cavity cannot separate them, and so are modes spread evenly round the FSR (n·δ near a multiple of
+        // it), which any step δ·j describes as well. The folded step must come back within 4 standard errors (≥ 2 MHz), and a
+        // spacing below six FSRs must be among the listed candidates.
+        Gen.Select(Gen.Double[2e9, 100e9], Gen.Double[1e9, 3e9], Gen.Int[5, 9], Gen.Int[0, 1_000_000]).Sample(t =>
+        {
+            var (d, fsr, n, seed) = t;
+            var r = d % fsr;
+            var delta = Math.Min(r, fsr - r);
+            for (var j = 1; j <= n; j++)
+            {
+                var m = j * delta % fsr;
+                if (Math.Min(m, fsr - m) < 0.03 * fsr) return;
+            }
+
+            var rng = new Random(seed);
+            var lines = Comb(d, 5e9 * rng.NextDouble(), Enumerable.Range(0, n), k => Envelope(k, n / 2.0, n), 1e6, 0.02, rng);
+            var a = LaserModes.Analyze(Folded(lines, fsr));
+            Assert.Equal(n, a.Comb!.MemberCount);
+            Assert.InRange(Math.Abs(a.Folded!.FoldedStepHz - delta), 0, Math.Max(2e6, 4 * a.Folded.FoldedStepSigmaHz!.Value));
+            if (d < 6 * fsr)
+                Assert.Contains(a.Folded.Candidates, c => c.Divisor == 1 && Math.Abs(c.SpacingHz / d - 1) < 1e-3);
+        }, iter: 60);
+    }
+
+    [Fact]
     public void Folded_TwoModes_CannotTellDeltaFromFsrMinusDelta()
     {
         var lines = new List<ModeInputLine> { new(0.2e9, 1e6, 1, 0.01, null), new(0.9e9, 1e6, 0.5, 0.01, null) };
