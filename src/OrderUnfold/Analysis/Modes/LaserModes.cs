@@ -124,7 +124,7 @@ public static class LaserModes
         SecondFamily? second = null;
         if (comb is not null && input.OrdersResolved)
         {
-            second = FindSecondFamily(pts, comb, options, role, kOf, residual, lines, pMax);
+            second = FindSecondFamily(pts, comb, options, role, kOf, residual, pMax);
         }
         else if (comb is not null && role.Count(r => r == LineRole.OffComb) >= 2)
         {
@@ -323,7 +323,7 @@ public static class LaserModes
     // ==================================================================== second family
 
     private static SecondFamily? FindSecondFamily(List<CombPoint> pts, CombFit comb, ModeAnalysisOptions o,
-        LineRole[] role, int?[] kOf, double?[] residual, IReadOnlyList<ModeInputLine> lines, double pMax)
+        LineRole[] role, int?[] kOf, double?[] residual, double pMax)
     {
         var step = comb.StepHz;
         var origin = comb.OriginHz;

@@ -183,7 +183,7 @@ public static class ModeInputReader
                             JsonTokenType.True => fields with { OrdersResolved = true, OrdersResolvedAt = at },
                             JsonTokenType.False => fields with { OrdersResolved = false, OrdersResolvedAt = at },
                             JsonTokenType.Null => fields,
-                            _ => throw new InputException($"expected true or false for \"orders_resolved\" but got {Describe(ref reader, json)}", file, at.Line, at.Column),
+                            _ => throw new InputException($"expected true or false for \"orders_resolved\" but got {Describe(ref reader)}", file, at.Line, at.Column),
                         };
                         break;
                     default:
@@ -222,7 +222,7 @@ public static class ModeInputReader
         return v;
     }
 
-    private static string Describe(ref Utf8JsonReader reader, byte[] json) => reader.TokenType switch
+    private static string Describe(ref Utf8JsonReader reader) => reader.TokenType switch
     {
         JsonTokenType.String => $"the string \"{reader.GetString()}\"",
         JsonTokenType.Number => $"the number {Encoding.UTF8.GetString(reader.ValueSpan)}",
