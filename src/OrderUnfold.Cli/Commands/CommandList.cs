@@ -10,5 +10,6 @@ public static class CommandList
         new InitCommand(),
         new SimulateCommand(),
         new PlanCommand(),
+        new ModesCommand(),
     ];
 }

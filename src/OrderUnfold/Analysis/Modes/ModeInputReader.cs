@@ -1,0 +1,257 @@
+using System.Globalization;
+using System.Text;
+using System.Text.Json;
+using OrderUnfold.Io;
+
+namespace OrderUnfold.Analysis.Modes;
+
+/// <summary>
+/// Reads the mode analysis input from a result folder: <c>lines.csv</c> (required) and <c>report.json</c>
+/// (optional). Every problem is an <see cref="InputException"/> with the file, line and column.
+/// <para>
+/// <c>lines.csv</c>: comma separated, a header row, then one row per line. Columns are found by their header
+/// name (case-insensitive, in any order; other columns are ignored): <c>frequency_hz</c> and
+/// <c>intensity</c> are required, <c>frequency_sigma_hz</c>, <c>intensity_sigma</c> and <c>snr</c> are
+/// optional and may hold empty cells. Numbers use a decimal point.
+/// </para>
+/// <para>
+/// <c>report.json</c>: a JSON object; the top-level fields <c>detection_limit</c> (number),
+/// <c>orders_resolved</c> (true/false, default true), <c>folding_fsr_hz</c> (number) and
+/// <c>anchor_frequency_hz</c> (number) are read when present (null counts as absent); other fields are ignored.
+/// </para>
+/// </summary>
+public static class ModeInputReader
+{
+    /// <summary>Name of the line list inside a result folder.</summary>
+    public const string LinesFileName = "lines.csv";
+
+    /// <summary>Name of the run report inside a result folder.</summary>
+    public const string ReportFileName = "report.json";
+
+    private static readonly string[] Required = ["frequency_hz", "intensity"];
+    private static readonly string[] Optional = ["frequency_sigma_hz", "intensity_sigma", "snr"];
+
+    /// <summary>Reads <c>DIR/lines.csv</c> and, when present, <c>DIR/report.json</c>.</summary>
+    public static ModeInput FromResultDirectory(string dir)
+    {
+        ArgumentException.ThrowIfNullOrWhiteSpace(dir);
+        if (!Directory.Exists(dir))
+            throw new InputException("the result folder does not exist", dir);
+        var linesPath = Path.Combine(dir, LinesFileName);
+        if (!File.Exists(linesPath))
+            throw new InputException($"no {LinesFileName} in the result folder; run 'orderunfold unfold' first", dir);
+
+        var lines = ReadLines(linesPath, File.ReadAllText(linesPath));
+        var reportPath = Path.Combine(dir, ReportFileName);
+        var report = File.Exists(reportPath) ? ReadReport(reportPath, File.ReadAllBytes(reportPath)) : new ReportFields();
+
+        var input = new ModeInput(lines, report.DetectionLimit, report.OrdersResolved ?? true, report.FoldingFsrHz, report.AnchorHz);
+        if (!input.OrdersResolved && input.FoldingFsrHz is null)
+            throw new InputException("\"orders_resolved\" is false but there is no \"folding_fsr_hz\": the folded positions cannot be read",
+                reportPath, report.OrdersResolvedAt?.Line, report.OrdersResolvedAt?.Column);
+        try
+        {
+            input.Validate();
+        }
+        catch (InputException e)
+        {
+            throw e.At(linesPath);
+        }
+
+        return input;
+    }
+
+    /// <summary>Parses the text of a line list; <paramref name="file"/> names it in messages.</summary>
+    public static IReadOnlyList<ModeInputLine> ReadLines(string file, string text)
+    {
+        if (text.Trim().Length == 0) throw new InputException("the file is empty; expected a header row with frequency_hz and intensity", file, 1);
+
+        List<TextRow> rows;
+        try
+        {
+            rows = DelimitedText.Rows(text, ',').Where(r => !r.IsBlank).ToList();
+        }
+        catch (Exception e) when (e is not InputException)
+        {
+            throw new InputException($"cannot split the file into comma-separated fields: {e.Message}", file, inner: e);
+        }
+
+        var header = rows[0];
+        var columns = new Dictionary<string, int>(StringComparer.OrdinalIgnoreCase);
+        for (var i = 0; i < header.Fields.Length; i++)
+        {
+            var name = header.Fields[i].Trim();
+            if (name.Length == 0) continue;
+            if (!columns.TryAdd(name, i) && (Required.Contains(name, StringComparer.OrdinalIgnoreCase) || Optional.Contains(name, StringComparer.OrdinalIgnoreCase)))
+                throw new InputException($"column \"{name}\" appears twice in the header", file, header.Line, i + 1);
+        }
+
+        foreach (var r in Required)
+        {
+            if (!columns.ContainsKey(r))
+                throw new InputException(
+                    $"the header needs a column \"{r}\" but has: {string.Join(", ", header.Fields.Select(f => $"\"{f}\""))}",
+                    file, header.Line, 1);
+        }
+
+        var result = new List<ModeInputLine>();
+        foreach (var row in rows.Skip(1))
+        {
+            var f = Cell(row, columns, "frequency_hz", required: true, file)!.Value;
+            var intensity = Cell(row, columns, "intensity", required: true, file)!.Value;
+            var fs = Cell(row, columns, "frequency_sigma_hz", required: false, file);
+            var isg = Cell(row, columns, "intensity_sigma", required: false, file);
+            var snr = Cell(row, columns, "snr", required: false, file);
+            CheckNonNegative(fs, row, columns, "frequency_sigma_hz", file);
+            CheckNonNegative(isg, row, columns, "intensity_sigma", file);
+            result.Add(new ModeInputLine(f, fs, intensity, isg, snr));
+        }
+
+        if (result.Count == 0)
+            throw new InputException("the file has a header but no lines below it", file, header.Line);
+        return result;
+    }
+
+    private static double? Cell(TextRow row, Dictionary<string, int> columns, string name, bool required, string file)
+    {
+        if (!columns.TryGetValue(name, out var index)) return null;
+        var text = index < row.Fields.Length ? row.Fields[index] : "";
+        if (text.Length == 0)
+        {
+            if (required) throw new InputException($"expected a number in column {index + 1} (\"{name}\") but the cell is empty", file, row.Line, index + 1);
+            return null;
+        }
+
+        if (!double.TryParse(text, NumberStyles.Float, CultureInfo.InvariantCulture, out var v) || !double.IsFinite(v))
+            throw new InputException($"expected a finite number in column {index + 1} (\"{name}\") but got \"{text}\"", file, row.Line, index + 1);
+        return v;
+    }
+
+    private static void CheckNonNegative(double? v, TextRow row, Dictionary<string, int> columns, string name, string file)
+    {
+        if (v is { } x && x < 0)
+            throw new InputException($"an uncertainty cannot be negative: column {columns[name] + 1} (\"{name}\") holds {x.ToString(CultureInfo.InvariantCulture)}",
+                file, row.Line, columns[name] + 1);
+    }
+
+    /// <summary>The fields of report.json this analysis uses; null when absent.</summary>
+    internal sealed record ReportFields(
+        double? DetectionLimit = null,
+        bool? OrdersResolved = null,
+        double? FoldingFsrHz = null,
+        double? AnchorHz = null,
+        (int Line, int Column)? OrdersResolvedAt = null);
+
+    /// <summary>Reads the known top-level fields of a report; every other field is skipped.</summary>
+    internal static ReportFields ReadReport(string file, byte[] json)
+    {
+        var fields = new ReportFields();
+        var reader = new Utf8JsonReader(json, new JsonReaderOptions { CommentHandling = JsonCommentHandling.Skip, AllowTrailingCommas = true });
+        try
+        {
+            if (!reader.Read() || reader.TokenType != JsonTokenType.StartObject)
+            {
+                var (l, c) = Position(json, reader.TokenStartIndex);
+                throw new InputException("expected a JSON object ({ ... }) at the top of the report", file, l, c);
+            }
+
+            while (reader.Read())
+            {
+                if (reader.TokenType == JsonTokenType.EndObject && reader.CurrentDepth == 0) break;
+                if (reader.TokenType != JsonTokenType.PropertyName) continue;
+                var name = reader.GetString();
+                reader.Read();
+                var at = Position(json, reader.TokenStartIndex);
+                switch (name)
+                {
+                    case "detection_limit":
+                        fields = fields with { DetectionLimit = Number(ref reader, file, name, at) };
+                        if (fields.DetectionLimit is { } d && !(d > 0 && d <= 1))
+                            throw new InputException($"\"detection_limit\" is a relative intensity and must lie in (0, 1] but got {d.ToString(CultureInfo.InvariantCulture)}", file, at.Line, at.Column);
+                        break;
+                    case "folding_fsr_hz":
+                        fields = fields with { FoldingFsrHz = Number(ref reader, file, name, at) };
+                        if (fields.FoldingFsrHz is { } f && !(f > 0))
+                            throw new InputException($"\"folding_fsr_hz\" must be a positive frequency in Hz but got {f.ToString(CultureInfo.InvariantCulture)}", file, at.Line, at.Column);
+                        break;
+                    case "anchor_frequency_hz":
+                        fields = fields with { AnchorHz = Number(ref reader, file, name, at) };
+                        break;
+                    case "orders_resolved":
+                        fields = reader.TokenType switch
+                        {
+                            JsonTokenType.True => fields with { OrdersResolved = true, OrdersResolvedAt = at },
+                            JsonTokenType.False => fields with { OrdersResolved = false, OrdersResolvedAt = at },
+                            JsonTokenType.Null => fields,
+                            _ => throw new InputException($"expected true or false for \"orders_resolved\" but got {Describe(ref reader)}", file, at.Line, at.Column),
+                        };
+                        break;
+                    default:
+                        reader.Skip();
+                        break;
+                }
+            }
+        }
+        catch (JsonException e)
+        {
+            throw new InputException($"the report is not valid JSON: {FirstSentence(e.Message)}", file,
+                (int)(e.LineNumber ?? 0) + 1, (int)(e.BytePositionInLine ?? 0) + 1, e);
+        }
+
+        return fields;
+    }
+
+    private static double? Number(ref Utf8JsonReader reader, string file, string name, (int Line, int Column) at)
+    {
+        if (reader.TokenType == JsonTokenType.Null) return null;
+        if (reader.TokenType != JsonTokenType.Number)
+        {
+            var got = reader.TokenType switch
+            {
+                JsonTokenType.String => $"the string \"{reader.GetString()}\"",
+                JsonTokenType.True or JsonTokenType.False => reader.TokenType.ToString().ToLowerInvariant(),
+                JsonTokenType.StartObject => "an object",
+                JsonTokenType.StartArray => "an array",
+                _ => reader.TokenType.ToString(),
+            };
+            throw new InputException($"expected a number for \"{name}\" but got {got}", file, at.Line, at.Column);
+        }
+
+        var v = reader.GetDouble();
+        if (!double.IsFinite(v)) throw new InputException($"expected a finite number for \"{name}\"", file, at.Line, at.Column);
+        return v;
+    }
+
+    private static string Describe(ref Utf8JsonReader reader) => reader.TokenType switch
+    {
+        JsonTokenType.String => $"the string \"{reader.GetString()}\"",
+        JsonTokenType.Number => $"the number {Encoding.UTF8.GetString(reader.ValueSpan)}",
+        JsonTokenType.StartObject => "an object",
+        JsonTokenType.StartArray => "an array",
+        _ => reader.TokenType.ToString(),
+    };
+
+    /// <summary>1-based line and column (in characters) of a byte offset.</summary>
+    private static (int Line, int Column) Position(byte[] bytes, long offset)
+    {
+        var line = 1;
+        var lineStart = 0;
+        var end = (int)Math.Min(offset, bytes.Length);
+        for (var i = 0; i < end; i++)
+        {
+            if (bytes[i] == (byte)'\n')
+            {
+                line++;
+                lineStart = i + 1;
+            }
+        }
+
+        return (line, Encoding.UTF8.GetCharCount(bytes, lineStart, end - lineStart) + 1);
+    }
+
+    private static string FirstSentence(string message)
+    {
+        var cut = message.IndexOf(" Path:", StringComparison.Ordinal);
+        return (cut > 0 ? message[..cut] : message).TrimEnd();
+    }
+}
