@@ -3,7 +3,11 @@ namespace OrderUnfold.Cli.Commands;
 /// <summary>The commands, in the order the help lists them. Add a new command here.</summary>
 public static class CommandList
 {
-    public static IReadOnlyList<ICommand> All() =>
+    public static IReadOnlyList<ICommand> All()
+    {
+        // 'modes SETUP.toml' runs the unfold first
+        ModesCommand.UnfoldSetup ??= path => Pipeline.ModeInputs.FromRun(Pipeline.UnfoldPipeline.Run(path));
+        return
     [
         new DemoCommand(),
         new UnfoldCommand(),
@@ -12,4 +16,5 @@ public static class CommandList
         new PlanCommand(),
         new ModesCommand(),
     ];
+    }
 }

@@ -181,7 +181,9 @@ public static class UnfoldOutputs
                 ["residual_rms"] = N(s.ResidualRms),
             }).ToArray()),
             ["anchor_frequency_hz"] = N(anchor),
-            ["detection_limit"] = N(r.DetectionLimit?.Where(double.IsFinite).DefaultIfEmpty(double.NaN).Max()),
+            ["detection_limit"] = N(ModeInputs.DetectionLimit(r)),
+            ["orders_resolved"] = r.OrdersResolved,
+            ["folding_fsr_hz"] = r.OrdersResolved ? null : N(run.Instruments[0].FsrHz),
             ["refinement"] = run.Refinement is { } rd ? new JsonObject
             {
                 ["converged"] = rd.Converged,
