@@ -235,7 +235,8 @@ public static class Plots
         if (doubtful.Points.Count > 0) model.Series.Add(doubtful);
 
         if (yMax <= 0) yMax = 1;
-        var labelTop = PlaceLineLabels(model, labels, scale.FromHertz(span), yMax);
+        var xs = input.GridHz.Where(double.IsFinite).Select(X).Concat(labels.Select(l => l.X)).ToList();
+        var labelTop = PlaceLineLabels(model, labels, scale.FromHertz(span), yMax, xs.Count > 0 ? xs.Min() : 0, xs.Count > 0 ? xs.Max() : 1);
         model.Axes.Add(new LinearAxis
         {
             Position = AxisPosition.Left,
@@ -507,7 +508,8 @@ public static class Plots
     /// labels side by side (in the order of the lines), lifted above the group's highest marker, each joined
     /// to its marker by a thin leader. Returns the highest label anchor, so the axis can leave room for it.
     /// </summary>
-    private static double PlaceLineLabels(PlotModel model, List<(double X, double Y, LineMark Line)> labels, double spanUnits, double yMax)
+    private static double PlaceLineLabels(PlotModel model, List<(double X, double Y, LineMark Line)> labels, double spanUnits, double yMax,
+        double xLow, double xHigh)
     {
         var widest = labels.Count == 0 ? 0 : labels.Max(l => l.Line.Label.Length);
         var dx = Math.Max(spanUnits, 1e-12) * Math.Max(LabelClearanceX, (widest + 1) * LabelCharWidth);
@@ -522,16 +524,30 @@ public static class Plots
             var group = sorted.GetRange(i, j - i);
             i = j;
 
+            // keep every label inside the plot: a label centred near an edge would be cut (and lose its sign)
+            double Inside(double first, double last)
+            {
+                var half = dx / 2;
+                if (first - half < xLow) return xLow + half - first;
+                if (last + half > xHigh) return xHigh - half - last;
+                return 0;
+            }
+
             if (group.Count == 1)
             {
                 var (x, y, line) = group[0];
-                AddLabel(model, line, x, y);
-                top = Math.Max(top, y);
-                continue;
+                var shift1 = Inside(x, x);
+                if (shift1 == 0)
+                {
+                    AddLabel(model, line, x, y);
+                    top = Math.Max(top, y);
+                    continue;
+                }
             }
 
             var labelY = group.Max(g => g.Y) + lift;
             var centre = (group[0].X + group[^1].X) / 2;
+            centre += Inside(centre - (group.Count - 1) / 2.0 * dx, centre + (group.Count - 1) / 2.0 * dx);
             for (var k = 0; k < group.Count; k++)
             {
                 var (x, y, line) = group[k];

@@ -106,7 +106,7 @@ public static partial class Quantity
     {
         if (!double.IsFinite(m)) return "n/a";
         var a = Math.Abs(m);
-        var (factor, unit) = a >= 1 ? (1.0, "m") : a >= 1e-3 ? (1e-3, "mm") : a >= 1e-6 ? (1e-6, "um") : (1e-9, "nm");
+        var (factor, unit) = a >= 1 ? (1.0, "m") : a >= 1e-3 ? (1e-3, "mm") : a >= 1e-6 ? (1e-6, "µm") : (1e-9, "nm");
         return FormatScaled(m / factor, significant) + " " + unit;
     }
 

@@ -139,7 +139,7 @@ public class QuantityTests
     [InlineData(0.05, "50.00 mm")]
     [InlineData(1.25, "1.250 m")]
     [InlineData(632.8e-9, "632.8 nm")]
-    [InlineData(3e-6, "3.000 um")]
+    [InlineData(3e-6, "3.000 µm")]
     public void FormatsLengths(double m, string expected) => Assert.Equal(expected, Quantity.FormatLength(m));
 
     [Fact]
