@@ -142,22 +142,15 @@ public static class LineRefiner
         string? failure = null;
         int dropped = 0, merged = 0, pinned = 0;
         var maxRounds = 4 * grid.Lines.Count + 8;
+        var retried = false;
         for (var round = 0; round < maxRounds && layout.Lines > 0; round++)
         {
             var mask = layout.FixedMask(tracked);
             var chiBefore = data.ChiSquare(layout, p);
-            fit = Fit(data, layout, p, options, mask);
-            if (fit.Reason == nameof(ExitCondition.ExceedIterations) && fit.P.All(double.IsFinite))
-                fit = Fit(data, layout, fit.P, options with { MaxIterations = 2 * options.MaxIterations }, mask);
+            fit = Fit(data, layout, p, retried ? options with { MaxIterations = 2 * options.MaxIterations } : options, mask);
             if (!fit.P.All(double.IsFinite) || !double.IsFinite(fit.ChiSquare))
             {
                 failure = $"the fit produced non-finite values ({fit.Reason})";
-                break;
-            }
-
-            if (!fit.Converged)
-            {
-                failure = $"Levenberg–Marquardt did not converge ({fit.Reason} after {fit.Iterations} iterations)";
                 break;
             }
 
@@ -167,6 +160,8 @@ public static class LineRefiner
                 break;
             }
 
+            // a fit stopped by its iteration limit still improved χ²: pinning, merging and pruning below often remove the
+            // cause (an undetermined line); otherwise it gets one longer try from where it stopped, then counts as failed
             p = fit.P;
 
             // 1. a line that left its grid cluster: pin its position at the grid value
@@ -206,28 +201,27 @@ public static class LineRefiner
             }
 
             // 3. the weakest line below the detection threshold (Wald test with the χ²-scaled covariance): drop it
-            var weakest = -1;
-            var zMin = double.PositiveInfinity;
-            for (var j = 0; j < layout.Lines; j++)
-            {
-                var a = p[layout.A(j)];
-                var va = fit.Scaled[layout.A(j), layout.A(j)];
-                var z = a <= 0 ? double.NegativeInfinity : double.IsFinite(va) && va > 0 ? a / Math.Sqrt(va) : double.NaN;
-                if (double.IsNaN(z)) continue; // undetermined: kept, with a note below
-                if (z < zMin)
-                {
-                    zMin = z;
-                    weakest = j;
-                }
-            }
-
-            if (weakest >= 0 && (zMin <= 0 || zMin * zMin < threshold))
+            var weakest = WeakestInsignificant(layout, fit, threshold);
+            if (weakest >= 0)
             {
                 (layout, p) = layout.Without(weakest, p);
                 tracked.RemoveAt(weakest);
                 dropped++;
                 fit = null;
                 continue;
+            }
+
+            if (!fit.Converged)
+            {
+                if (!retried && fit.Reason == nameof(ExitCondition.ExceedIterations))
+                {
+                    retried = true;
+                    fit = null;
+                    continue;
+                }
+
+                failure = $"Levenberg–Marquardt did not converge ({fit.Reason} after {fit.Iterations} iterations)";
+                break;
             }
 
             break;
@@ -237,6 +231,28 @@ public static class LineRefiner
         if (failure is not null) return FallBack(sweeps, grid, threshold, warnings, failure, fit);
         if (layout.Lines == 0) return NoLineLeft(data, sweeps, grid, threshold, warnings, dropped, merged);
         return Finish(data, sweeps, grid, options, threshold, warnings, layout, fit!, tracked, dropped, merged, pinned);
+    }
+
+    /// <summary>The line with the smallest Wald statistic z = a/σ_a (χ²-scaled covariance) when z² is below the threshold
+    /// or a ≤ 0; −1 when every line is significant. Lines whose σ_a is undetermined are never chosen.</summary>
+    private static int WeakestInsignificant(Layout layout, FitResult fit, double threshold)
+    {
+        var weakest = -1;
+        var zMin = double.PositiveInfinity;
+        for (var j = 0; j < layout.Lines; j++)
+        {
+            var a = fit.P[layout.A(j)];
+            var va = fit.Scaled[layout.A(j), layout.A(j)];
+            var z = a <= 0 ? double.NegativeInfinity : double.IsFinite(va) && va > 0 ? a / Math.Sqrt(va) : double.NaN;
+            if (double.IsNaN(z)) continue; // undetermined: kept, with a note
+            if (z < zMin)
+            {
+                zMin = z;
+                weakest = j;
+            }
+        }
+
+        return weakest >= 0 && (zMin <= 0 || zMin * zMin < threshold) ? weakest : -1;
     }
 
     /// <summary>Δχ² a line must add: the larger of MinSnr² and the BIC penalty for two parameters, 2·ln(m).</summary>
@@ -742,7 +758,9 @@ public static class LineRefiner
         string reason;
         try
         {
-            var lm = new LevenbergMarquardtMinimizer(maximumIterations: options.MaxIterations);
+            // step tolerance: MathNet stops when ‖ΔP‖ ≤ tol·(tol + ‖P‖²) in scaled units (positions in linewidths), i.e. far
+            // below any uncertainty; its default (1e-15) only stops after dozens of rejected steps at machine precision
+            var lm = new LevenbergMarquardtMinimizer(stepTolerance: 1e-10, maximumIterations: options.MaxIterations);
             r = lm.FindMinimum(model, Vector<double>.Build.DenseOfArray(p0), null, null, Vector<double>.Build.DenseOfArray(scales),
                 isFixed.Any(f => f) ? isFixed.ToList() : null);
             reason = r.ReasonForExit.ToString();
