@@ -9,5 +9,9 @@ public static class CommandList
         new UnfoldCommand(),
         new InitCommand(),
         new SimulateCommand(),
+        new BatchCommand(),
+        new MergeCommand(),
+        new TrackCommand(),
+        new SimulateArchiveCommand(),
     ];
 }
