@@ -200,6 +200,20 @@ public class BatchTests(BatchArchiveFixture fx, ITestOutputHelper output) : ICla
     }
 
     [Fact]
+    public void NoRefineIsPartOfTheKey()
+    {
+        var dir = fx.NewDir("norefine");
+        var quick = BatchRunner.Run(fx.Archive.ManifestPath, dir, new BatchOptions { Jobs = 2, NoRefine = true });
+        Assert.Equal(fx.Reference.Ok, quick.Ok);
+        Assert.Contains("\"refinement\": null", File.ReadAllText(Path.Combine(BatchLayout.Item(dir, "sweep-0001"), OutputNames.Report)));
+        Assert.DoesNotContain("\"refinement\": null", File.ReadAllText(Path.Combine(BatchLayout.Item(fx.ReferenceDir, "sweep-0001"), OutputNames.Report)));
+        // the same folder without --no-refine: every item that ran is run again (failed rows fail before refinement matters, but their key changes too)
+        var full = BatchRunner.Run(fx.Archive.ManifestPath, dir, new BatchOptions { Jobs = 2 });
+        Assert.Equal(0, full.Skipped);
+        Assert.Equal(NoTiming(fx.ReferenceSummary), NoTiming(File.ReadAllLines(full.SummaryPath)));
+    }
+
+    [Fact]
     public void ShardsAreDisjointCompleteAndMergeToTheUnshardedSummary()
     {
         const int k = 3;

@@ -25,6 +25,12 @@ public sealed record BatchOptions
     /// <summary>Write each item's PNG plots too (slow: off by default).</summary>
     public bool Plots { get; init; }
 
+    /// <summary>
+    /// Skip the off-grid line refinement for every item, whatever the setups say (about half the time per item for
+    /// single-sweep items; no refined uncertainties or order checks). False: as each setup says.
+    /// </summary>
+    public bool NoRefine { get; init; }
+
     /// <summary>Run failed items again even when their inputs have not changed.</summary>
     public bool RetryFailed { get; init; }
 
@@ -283,6 +289,7 @@ public static class BatchRunner
             };
         }
 
+        if (ctx.Options.NoRefine && setup.Solve.Refine) setup = setup with { Solve = setup.Solve with { Refine = false } };
         var calibrationPath = row.Calibration is not null ? Path.GetFullPath(Path.Combine(ctx.ManifestDir, row.Calibration)) : ctx.DefaultCalibration;
         CalibrationSet? calibration = null;
         string? missing = null;
@@ -343,6 +350,7 @@ public static class BatchRunner
         sb.Append("tool ").Append(ctx.Tool).Append('\n');
         sb.Append("analysis ").Append(ctx.Analysis.Identity).Append('\n');
         sb.Append("plots ").Append(ctx.Options.Plots ? "yes" : "no").Append('\n');
+        sb.Append("refine ").Append(ctx.Options.NoRefine ? "off" : "setup").Append('\n');
         sb.Append("id ").Append(folder).Append('\n');
         sb.Append("timestamp ").Append(timestamp ?? "-").Append('\n');
         foreach (var p in parts) sb.Append(p).Append('\n');
