@@ -15,6 +15,10 @@ public static class CommandList
         new SimulateCommand(),
         new PlanCommand(),
         new ModesCommand(),
+        new BatchCommand(),
+        new MergeCommand(),
+        new TrackCommand(),
+        new SimulateArchiveCommand(),
     ];
     }
 }

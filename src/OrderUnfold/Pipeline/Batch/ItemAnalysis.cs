@@ -1,0 +1,41 @@
+namespace OrderUnfold.Pipeline.Batch;
+
+/// <summary>
+/// Extra per-item numbers for the summary, computed from a finished unfold (e.g. laser mode spacing and
+/// side-mode suppression). Keys are summary column names; the summary shows <see cref="SummaryTable.ModeSpacingColumn"/>
+/// and <see cref="SummaryTable.SmsrColumn"/>, and every key is kept in the item's done.json.
+/// </summary>
+public interface IItemAnalysis
+{
+    /// <summary>Names this analysis and its settings; it enters each item's key, so changing it re-runs finished items.</summary>
+    string Identity { get; }
+
+    /// <summary>Values by column name (invariant-culture text; an absent key leaves the column empty).</summary>
+    IReadOnlyDictionary<string, string> Analyse(UnfoldRun run);
+}
+
+/// <summary>The default: no mode analysis, so mode_spacing_hz and smsr_db stay empty.</summary>
+public sealed class NoItemAnalysis : IItemAnalysis
+{
+    public static NoItemAnalysis Instance { get; } = new();
+
+    public string Identity => "none";
+
+    public IReadOnlyDictionary<string, string> Analyse(UnfoldRun run) => new Dictionary<string, string>();
+}
+
+/// <summary>
+/// Where the laser-mode analysis is plugged in: set <see cref="Default"/> once at start-up (before any batch
+/// runs) and every batch whose <see cref="BatchOptions.Analysis"/> is not set uses it.
+/// </summary>
+public static class ItemAnalysisRegistry
+{
+    private static IItemAnalysis _default = NoItemAnalysis.Instance;
+
+    /// <summary>The analysis used by batches that do not name one.</summary>
+    public static IItemAnalysis Default
+    {
+        get => Volatile.Read(ref _default);
+        set => Volatile.Write(ref _default, value ?? throw new ArgumentNullException(nameof(value)));
+    }
+}

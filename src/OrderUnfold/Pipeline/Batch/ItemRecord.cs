@@ -1,0 +1,142 @@
+using System.Globalization;
+using System.Text.Json;
+using System.Text.Json.Nodes;
+using OrderUnfold.Io;
+
+namespace OrderUnfold.Pipeline.Batch;
+
+/// <summary>Outcome of one item.</summary>
+public enum ItemStatus
+{
+    /// <summary>Unfolded; outputs written.</summary>
+    Ok,
+
+    /// <summary>Could not be unfolded (bad row, unreadable file, ...): the error says why.</summary>
+    Failed,
+}
+
+/// <summary>
+/// What one item's <c>done.json</c> holds: written last into the item's folder, so its presence (with a key
+/// that matches the item's inputs) means the item is finished. The summary is built from these records.
+/// </summary>
+public sealed record ItemRecord
+{
+    public const string Format = "orderunfold-batch-item";
+    public const int Version = 1;
+
+    /// <summary>Folder name (the id, or <c>@line-NNNNNNN</c> for a row whose id was not accepted).</summary>
+    public required string Id { get; init; }
+
+    /// <summary>SHA-256 (hex) over inputs, setup text, calibration, settings and tool version.</summary>
+    public required string Key { get; init; }
+
+    public required ItemStatus Status { get; init; }
+
+    /// <summary>1-based manifest line the item came from.</summary>
+    public long ManifestLine { get; init; }
+
+    /// <summary>Normalised UTC time stamp, or null.</summary>
+    public string? Timestamp { get; init; }
+
+    /// <summary>Number of lines found.</summary>
+    public int? Lines { get; init; }
+
+    /// <summary>Position of the strongest line on the first sweep's calibrated scan axis, modulo that cavity's FSR, Hz (−φ₁).</summary>
+    public double? StrongestLineHz { get; init; }
+
+    /// <summary>FSR of the first sweep's cavity (the period of <see cref="StrongestLineHz"/>), Hz.</summary>
+    public double? FrameFsrHz { get; init; }
+
+    /// <summary>True when orders were resolved (two or more cavities); false: frequencies are folded into one FSR.</summary>
+    public bool? OrdersResolved { get; init; }
+
+    public double? ReducedChiSquare { get; init; }
+
+    /// <summary>Number of warnings of the run.</summary>
+    public int Warnings { get; init; }
+
+    /// <summary>Wall-clock seconds the item took (timing: differs from run to run).</summary>
+    public double Seconds { get; init; }
+
+    /// <summary>Why the item failed, or null.</summary>
+    public string? Error { get; init; }
+
+    /// <summary>Values from the <see cref="IItemAnalysis"/>, by column name.</summary>
+    public IReadOnlyDictionary<string, string> Analysis { get; init; } = new Dictionary<string, string>();
+
+    /// <summary>The record as JSON text.</summary>
+    public string ToJson()
+    {
+        var analysis = new JsonObject();
+        foreach (var (k, v) in Analysis.OrderBy(p => p.Key, StringComparer.Ordinal)) analysis[k] = v;
+        var o = new JsonObject
+        {
+            ["format"] = Format,
+            ["version"] = Version,
+            ["id"] = Id,
+            ["key"] = Key,
+            ["status"] = Status.ToString().ToLowerInvariant(),
+            ["manifest_line"] = ManifestLine,
+            ["timestamp"] = Timestamp,
+            ["lines"] = Lines,
+            ["strongest_line_hz"] = Finite(StrongestLineHz),
+            ["frame_fsr_hz"] = Finite(FrameFsrHz),
+            ["orders_resolved"] = OrdersResolved,
+            ["reduced_chi2"] = Finite(ReducedChiSquare),
+            ["warnings"] = Warnings,
+            ["seconds"] = Math.Round(Seconds, 4),
+            ["error"] = Error,
+            ["analysis"] = analysis,
+        };
+        return o.ToJsonString(new JsonSerializerOptions { WriteIndented = true }) + "\n";
+    }
+
+    /// <summary>Writes the record atomically.</summary>
+    public void Write(string path) => AtomicFile.WriteAllText(path, ToJson());
+
+    /// <summary>Reads a record; null when the file is missing or is not a readable record (the item then counts as not done).</summary>
+    public static ItemRecord? TryRead(string path)
+    {
+        try
+        {
+            if (!File.Exists(path)) return null;
+            return Parse(File.ReadAllText(path));
+        }
+        catch (Exception e) when (e is IOException or UnauthorizedAccessException or JsonException or InvalidOperationException or FormatException or KeyNotFoundException or NullReferenceException)
+        {
+            return null;
+        }
+    }
+
+    /// <summary>Parses record text; throws on anything that is not a record of this version.</summary>
+    public static ItemRecord Parse(string json)
+    {
+        var o = JsonNode.Parse(json)!.AsObject();
+        if ((string?)o["format"] != Format || (int?)o["version"] != Version) throw new FormatException("not a batch item record of this version");
+        var analysis = new Dictionary<string, string>(StringComparer.Ordinal);
+        if (o["analysis"] is JsonObject a)
+            foreach (var (k, v) in a)
+                if (v is not null) analysis[k] = v.ToString();
+        return new ItemRecord
+        {
+            Id = (string)o["id"]!,
+            Key = (string)o["key"]!,
+            Status = Enum.Parse<ItemStatus>((string)o["status"]!, ignoreCase: true),
+            ManifestLine = (long?)o["manifest_line"] ?? 0,
+            Timestamp = (string?)o["timestamp"],
+            Lines = (int?)o["lines"],
+            StrongestLineHz = (double?)o["strongest_line_hz"],
+            FrameFsrHz = (double?)o["frame_fsr_hz"],
+            OrdersResolved = (bool?)o["orders_resolved"],
+            ReducedChiSquare = (double?)o["reduced_chi2"],
+            Warnings = (int?)o["warnings"] ?? 0,
+            Seconds = (double?)o["seconds"] ?? 0,
+            Error = (string?)o["error"],
+            Analysis = analysis,
+        };
+    }
+
+    private static double? Finite(double? v) => v is double d && double.IsFinite(d) ? d : null;
+
+    internal static string F(double? v) => v is double d && double.IsFinite(d) ? d.ToString("R", CultureInfo.InvariantCulture) : "";
+}

@@ -1,0 +1,205 @@
+using OrderUnfold.Io;
+using OxyPlot;
+using OxyPlot.Annotations;
+using OxyPlot.Axes;
+using OxyPlot.Legends;
+using OxyPlot.Series;
+
+namespace OrderUnfold.Plotting;
+
+/// <summary>Lines of a time series: one point per line per item.</summary>
+/// <param name="Title">Plot title.</param>
+/// <param name="Subtitle">What the frequency axis means.</param>
+/// <param name="TimeS">Time of each point, s since <paramref name="Origin"/> (or an item index when there is no origin).</param>
+/// <param name="FrequencyHz">Frequency of each point, Hz.</param>
+/// <param name="IntensityDb">Intensity of each point, dB relative to the item's strongest line (NaN: not drawn).</param>
+/// <param name="HopTimesS">Times of mode hops (dashed vertical marks).</param>
+/// <param name="Origin">Clock time of t = 0, or null when time is an item index.</param>
+public sealed record TrackPlotInput(string Title, string Subtitle, double[] TimeS, double[] FrequencyHz, double[] IntensityDb,
+    double[] HopTimesS, DateTimeOffset? Origin);
+
+/// <summary>One value per item over time (e.g. side-mode suppression).</summary>
+public sealed record SeriesPlotInput(string Title, string Subtitle, string ValueTitle, double[] TimeS, double[] Values, double[] HopTimesS,
+    DateTimeOffset? Origin);
+
+/// <summary>Time-series plots of a batch (see <c>orderunfold track</c>), written as PNG atomically.</summary>
+public static class TrackPlots
+{
+    /// <summary>Pixel size of both images.</summary>
+    public static readonly (int Width, int Height) Size = (1200, 700);
+
+    /// <summary>Most points drawn; longer series are thinned evenly (the CSV keeps them all).</summary>
+    public const int MaxPoints = 60_000;
+
+    /// <summary>Weakest intensity the colour scale shows, dB; weaker points take its colour.</summary>
+    public const double FloorDb = -40;
+
+    private static readonly OxyColor HopColor = OxyColor.FromRgb(0xB0, 0x1E, 0x3A);
+    private static readonly OxyColor SeriesColor = OxyColor.FromRgb(0x2B, 0x5C, 0x8A);
+    private static readonly OxyColor GridColor = OxyColor.FromRgb(0xE6, 0xE6, 0xE6);
+
+    /// <summary>
+    /// Frequency against time, one dot per line per item, coloured by intensity (dB relative to the item's strongest
+    /// line; colour bar on the right); mode hops are dashed vertical lines. The frequency axis is in MHz or GHz.
+    /// </summary>
+    public static void SaveTrack(string path, TrackPlotInput input) =>
+        AtomicFile.WriteAllBytes(path, Plots.RenderPng(BuildTrack(input), Size.Width, Size.Height));
+
+    /// <summary>A value against time (line with dots); mode hops are dashed vertical lines.</summary>
+    public static void SaveSeries(string path, SeriesPlotInput input) =>
+        AtomicFile.WriteAllBytes(path, Plots.RenderPng(BuildSeries(input), Size.Width, Size.Height));
+
+    internal static PlotModel BuildTrack(TrackPlotInput input)
+    {
+        ArgumentNullException.ThrowIfNull(input);
+        if (input.TimeS.Length != input.FrequencyHz.Length || input.TimeS.Length != input.IntensityDb.Length)
+            throw new ArgumentException($"time ({input.TimeS.Length}), frequency ({input.FrequencyHz.Length}) and intensity ({input.IntensityDb.Length}) need the same length", nameof(input));
+        var model = NewModel(input.Title, input.Subtitle);
+        var scale = FrequencyAxisScale.ForValues(input.FrequencyHz.Where(double.IsFinite).DefaultIfEmpty(0));
+        var span = FrequencyAxisScale.SpanHz(input.FrequencyHz.Where(double.IsFinite).DefaultIfEmpty(0));
+        model.Axes.Add(TimeAxis(input.Origin, input.TimeS));
+        model.Axes.Add(new LinearAxis
+        {
+            Position = AxisPosition.Left,
+            Title = scale.Title("frequency"),
+            StringFormat = scale.TickFormat(span),
+            MajorGridlineStyle = LineStyle.Solid,
+            MajorGridlineColor = GridColor,
+            MinimumPadding = 0.06,
+            MaximumPadding = 0.06,
+        });
+        var finite = input.IntensityDb.Where(double.IsFinite).ToArray();
+        var low = finite.Length == 0 ? FloorDb : Math.Max(FloorDb, Math.Floor(finite.Min() / 5) * 5);
+        if (low > -5) low = -5;
+        model.Axes.Add(new LinearColorAxis
+        {
+            Position = AxisPosition.Right,
+            Key = "intensity",
+            Title = "intensity (dB relative to the item's strongest line)",
+            Palette = OxyPalettes.Viridis(200),
+            Minimum = low,
+            Maximum = 0,
+            LowColor = OxyPalettes.Viridis(200).Colors[0],
+            HighColor = OxyPalettes.Viridis(200).Colors[^1],
+            MajorStep = low <= -20 ? 10 : 5,
+        });
+
+        var dots = new ScatterSeries
+        {
+            RenderInLegend = false,
+            MarkerType = MarkerType.Circle,
+            MarkerSize = input.TimeS.Length > 5000 ? 1.8 : 3.0,
+            ColorAxisKey = "intensity",
+            MarkerStrokeThickness = 0,
+        };
+        var step = Math.Max(1, (input.TimeS.Length + MaxPoints - 1) / MaxPoints);
+        // weak points first, so that strong lines are drawn on top
+        foreach (var i in Enumerable.Range(0, input.TimeS.Length).Where(i => i % step == 0).OrderBy(i => input.IntensityDb[i]))
+        {
+            if (!double.IsFinite(input.TimeS[i]) || !double.IsFinite(input.FrequencyHz[i]) || !double.IsFinite(input.IntensityDb[i])) continue;
+            dots.Points.Add(new ScatterPoint(X(input.Origin, input.TimeS[i]), scale.FromHertz(input.FrequencyHz[i]), double.NaN, Math.Max(input.IntensityDb[i], low)));
+        }
+
+        model.Series.Add(dots);
+        AddHops(model, input.Origin, input.HopTimesS);
+        return model;
+    }
+
+    internal static PlotModel BuildSeries(SeriesPlotInput input)
+    {
+        ArgumentNullException.ThrowIfNull(input);
+        if (input.TimeS.Length != input.Values.Length)
+            throw new ArgumentException($"time ({input.TimeS.Length}) and values ({input.Values.Length}) need the same length", nameof(input));
+        var model = NewModel(input.Title, input.Subtitle);
+        model.Axes.Add(TimeAxis(input.Origin, input.TimeS));
+        model.Axes.Add(new LinearAxis
+        {
+            Position = AxisPosition.Left,
+            Title = input.ValueTitle,
+            MajorGridlineStyle = LineStyle.Solid,
+            MajorGridlineColor = GridColor,
+            MinimumPadding = 0.08,
+            MaximumPadding = 0.08,
+        });
+        var line = new LineSeries
+        {
+            Title = input.ValueTitle,
+            Color = SeriesColor,
+            StrokeThickness = 1.0,
+            MarkerType = input.TimeS.Length > 2000 ? MarkerType.None : MarkerType.Circle,
+            MarkerSize = 2.2,
+            MarkerFill = SeriesColor,
+        };
+        for (var i = 0; i < input.TimeS.Length; i++)
+            line.Points.Add(double.IsFinite(input.Values[i]) ? new DataPoint(X(input.Origin, input.TimeS[i]), input.Values[i]) : DataPoint.Undefined);
+        model.Series.Add(line);
+        AddHops(model, input.Origin, input.HopTimesS);
+        return model;
+    }
+
+    private static PlotModel NewModel(string title, string subtitle)
+    {
+        var model = new PlotModel
+        {
+            Title = title,
+            Subtitle = subtitle,
+            DefaultFont = Plots.FontFamily,
+            DefaultFontSize = 12,
+            TitleFontSize = 16,
+            SubtitleFontSize = 12,
+            Background = OxyColors.White,
+            PlotAreaBorderThickness = new OxyThickness(1, 0, 0, 1),
+            Padding = new OxyThickness(8, 8, 16, 8),
+        };
+        model.Legends.Add(new Legend
+        {
+            LegendPlacement = LegendPlacement.Outside,
+            LegendPosition = LegendPosition.TopRight,
+            LegendOrientation = LegendOrientation.Horizontal,
+            LegendBorderThickness = 0,
+            LegendFontSize = 12,
+        });
+        return model;
+    }
+
+    private static Axis TimeAxis(DateTimeOffset? origin, double[] timeS)
+    {
+        if (origin is null)
+            return new LinearAxis { Position = AxisPosition.Bottom, Title = "item (no time stamps)", MajorGridlineStyle = LineStyle.Solid, MajorGridlineColor = GridColor };
+        var span = timeS.Length > 1 ? timeS.Max() - timeS.Min() : 0;
+        var format = span > 3 * 86400 ? "yyyy-MM-dd" : span > 86400 ? "MM-dd HH:mm" : span > 600 ? "HH:mm" : "HH:mm:ss";
+        return new DateTimeAxis
+        {
+            Position = AxisPosition.Bottom,
+            Title = $"time (UTC, from {origin.Value.UtcDateTime:yyyy-MM-dd HH:mm:ss})",
+            StringFormat = format,
+            MajorGridlineStyle = LineStyle.Solid,
+            MajorGridlineColor = GridColor,
+        };
+    }
+
+    private static double X(DateTimeOffset? origin, double t) =>
+        origin is DateTimeOffset o ? DateTimeAxis.ToDouble(o.UtcDateTime.AddSeconds(t)) : t;
+
+    private static void AddHops(PlotModel model, DateTimeOffset? origin, double[] hopTimes)
+    {
+        var first = true;
+        foreach (var t in hopTimes)
+        {
+            model.Annotations.Add(new LineAnnotation
+            {
+                Type = LineAnnotationType.Vertical,
+                X = X(origin, t),
+                Color = HopColor,
+                LineStyle = LineStyle.Dash,
+                StrokeThickness = 1.2,
+                Text = first ? "mode hop" : null,
+                TextColor = HopColor,
+                TextOrientation = AnnotationTextOrientation.Horizontal,
+                TextVerticalAlignment = VerticalAlignment.Top,
+                TextHorizontalAlignment = HorizontalAlignment.Left,
+            });
+            first = false;
+        }
+    }
+}
