@@ -481,12 +481,13 @@ public static class LineRefiner
             var (r, lb) = UnambiguousRange(sweeps, sweepFits, aWeak, options.DoubtfulDeltaChiSquare, limit);
             range = Finite(r);
             lowerBound = lb;
-            var who = $"a line as weak as the weakest one kept (intensity {aWeak / aAnchor:G3} of the anchor)";
+            var who = $"the order of a line as weak as the weakest one kept (intensity {aWeak / aAnchor:G3} of the anchor)";
+            var dchi = options.DoubtfulDeltaChiSquare.ToString("G3", System.Globalization.CultureInfo.InvariantCulture);
             statement = range is null
-                ? $"{who} cannot be placed unambiguously at this noise: a small shift already fits within Δχ² {options.DoubtfulDeltaChiSquare:G3}"
+                ? $"at this noise {who} cannot be pinned: a shift of a few linewidths already fits within Δχ² < {dchi}"
                 : lb
-                    ? $"for these instruments and this noise, {who} is unambiguous over at least ±{Quantity.FormatFrequency(r)} (no shift up to there fits within Δχ² {options.DoubtfulDeltaChiSquare:G3})"
-                    : $"for these instruments and this noise, {who} is unambiguous over ±{Quantity.FormatFrequency(r)}: moved by that much it would fit within Δχ² {options.DoubtfulDeltaChiSquare:G3}";
+                    ? $"for these instruments and this noise {who} is unambiguous within ±{Quantity.FormatFrequency(r)}: no shift up to that fits within Δχ² < {dchi}"
+                    : $"for these instruments and this noise {who} is unambiguous within ±{Quantity.FormatFrequency(r)}: a shift of that size would fit within Δχ² < {dchi}";
         }
         else
         {

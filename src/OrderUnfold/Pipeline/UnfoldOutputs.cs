@@ -114,6 +114,8 @@ public static class UnfoldOutputs
         var title = r.OrdersResolved ? "Unfolded spectrum" : "Folded spectrum (one instrument: orders unknown)";
         Plots.SaveSpectrum(sp, new SpectrumPlotInput(title, r.Grid.ToArray(), r.Spectrum, marks, run.Setup.Solve.AnchorFrequencyHz, r.DetectionLimit));
         written.Add(sp);
+        // line plots (dB spectrum with detection limit, zoom panels per line group): Plotting/LinePlots.cs
+        written.AddRange(LinePlots.Write(directory, r, run.Instruments.Max(i => i.LinewidthHz), run.Refinement?.UnambiguousStatement));
         foreach (var c in run.Calibrations)
         {
             var p = Path.Combine(directory, $"calibration-{Slug(c.Instrument)}-{c.Direction.ToString().ToLowerInvariant()}.png");
