@@ -7,9 +7,6 @@ public static class CommandList
     {
         // 'modes SETUP.toml' runs the unfold first
         ModesCommand.UnfoldSetup ??= path => Pipeline.ModeInputs.FromRun(Pipeline.UnfoldPipeline.Run(path));
-        // batch summaries fill mode_spacing_hz and smsr_db from the laser-mode analysis
-        if (Pipeline.Batch.ItemAnalysisRegistry.Default is Pipeline.Batch.NoItemAnalysis)
-            Pipeline.Batch.ItemAnalysisRegistry.Default = Pipeline.Batch.ModeItemAnalysis.Instance;
         return
     [
         new DemoCommand(),

@@ -14,7 +14,7 @@ public interface IItemAnalysis
     IReadOnlyDictionary<string, string> Analyse(UnfoldRun run);
 }
 
-/// <summary>The default: no mode analysis, so mode_spacing_hz and smsr_db stay empty.</summary>
+/// <summary>No mode analysis: mode_spacing_hz and smsr_db stay empty (the default is <see cref="ModeItemAnalysis"/>).</summary>
 public sealed class NoItemAnalysis : IItemAnalysis
 {
     public static NoItemAnalysis Instance { get; } = new();
@@ -30,7 +30,7 @@ public sealed class NoItemAnalysis : IItemAnalysis
 /// </summary>
 public static class ItemAnalysisRegistry
 {
-    private static IItemAnalysis _default = NoItemAnalysis.Instance;
+    private static IItemAnalysis _default = ModeItemAnalysis.Instance;
 
     /// <summary>The analysis used by batches that do not name one.</summary>
     public static IItemAnalysis Default
