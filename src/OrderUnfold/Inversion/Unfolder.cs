@@ -19,6 +19,7 @@ public static class Unfolder
         foreach (var s in sweeps)
         {
             if (s.ScanHz.Length != s.Signal.Length) throw new ArgumentException($"{s.Name}: scan and signal lengths differ");
+            if (s.Signal.Length < 2) throw new InputException($"the sweep has {s.Signal.Length} sample(s); at least two are needed", s.Name);
             var span = Math.Abs(s.ScanHz[^1] - s.ScanHz[0]);
             if (span < s.Instrument.FsrHz)
                 throw new InputException($"sweep covers {span / s.Instrument.FsrHz:F2} FSR of '{s.Instrument.Name}'; it must cover at least one full FSR ({Units.Quantity.FormatFrequency(s.Instrument.FsrHz)}) to be unfolded", s.Name);
@@ -323,7 +324,9 @@ public static class Unfolder
     private static ActiveSetNnls.Options SolverOptions(UnfoldProblem problem)
     {
         var tol = Math.Max(1e-3 * problem.L1Weight, 1e-9);
-        return new ActiveSetNnls.Options { Tolerance = tol, MaxIterations = Math.Max(2000, problem.Grid.Count) };
+        // The active set of a line spectrum stays far below this; a model that does not fit the data (wrong axis, wrong
+        // instrument) keeps adding bins, and this bound keeps the cost finite: the result then says it did not converge.
+        return new ActiveSetNnls.Options { Tolerance = tol, MaxIterations = Math.Min(2500, Math.Max(500, problem.Grid.Count / 4)) };
     }
 
     private static double ChiSquare(UnfoldProblem problem, double[] solution, IReadOnlyList<CalibratedSweep> sweeps)

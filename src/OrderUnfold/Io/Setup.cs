@@ -77,7 +77,7 @@ public sealed record SolveOptions
     /// <summary>L1 (sparsity) weight in units of noise σ × typical column norm. Default 3.</summary>
     public double Sparsity { get; init; } = 3.0;
 
-    /// <summary>Smoothness weight (second-difference penalty), relative; 0 = off.</summary>
+    /// <summary>Smoothness weight (first-difference penalty μ‖Ds‖², relative to the median squared column norm); 0 = off.</summary>
     public double Smoothness { get; init; }
 
     /// <summary>Absolute frequency of the anchor line in Hz; null reports frequencies relative to the anchor.</summary>

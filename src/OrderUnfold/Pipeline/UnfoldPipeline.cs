@@ -51,6 +51,9 @@ public static class UnfoldPipeline
                     seg = seg with { X = keep.Select(i => seg.X[i]).ToArray(), Y = keep.Select(i => seg.Y[i]).ToArray() };
                 }
 
+                if (keep.Length < SweepReader.MinSamples)
+                    throw new InputException($"{seg.Name}: only {keep.Length} samples lie within the calibrated range of the axis (x = {axis.Axis.XMin:G4} to {axis.Axis.XMax:G4}); expected the source and calibration records to share the same scan coordinate and ramp", spec.File.Path);
+
                 var scan = axis.Axis.Evaluate(seg.X);
                 calibrated.Add(new CalibratedSweep(seg.Name, inst, scan, seg.Y, PeakFinder.NoiseSigma(seg.Y)));
                 raw.Add(seg);
@@ -129,6 +132,7 @@ public static class UnfoldPipeline
             var ratio = WavelengthRatio(cal, setup);
             var segments = ReadSegments(cal.File);
             var byDirection = new Dictionary<RampDirection, AxisCalibration>();
+            var reasons = new List<string>();
             foreach (var seg in segments)
             {
                 AxisCalibration axis;
@@ -139,13 +143,14 @@ public static class UnfoldPipeline
                 catch (InputException e) when (segments.Count > 1)
                 {
                     warnings.Add($"{seg.Name}: calibration segment skipped: {e.Message}");
+                    reasons.Add($"{seg.Name}: {e.Message}");
                     continue;
                 }
 
                 if (!byDirection.TryGetValue(seg.Direction, out var have) || axis.PointCount > have.PointCount) byDirection[seg.Direction] = axis;
             }
 
-            if (byDirection.Count == 0) throw new InputException("no usable calibration segment in this file", cal.File.Path);
+            if (byDirection.Count == 0) throw new InputException($"no usable calibration segment in this file ({string.Join("; ", reasons)})", cal.File.Path);
             foreach (var a in byDirection.Values)
             {
                 calibrations.Add(a);

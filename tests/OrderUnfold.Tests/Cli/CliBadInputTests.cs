@@ -220,8 +220,7 @@ public class CliBadInputTests(CliTestFolder folder, ITestOutputHelper output) : 
         Assert.Contains("FSR", message);
     }
 
-    [Fact(Skip = "known bug, reported: a sweep trimmed to zero samples reaches Unfolder.Run, which indexes ScanHz[^1] " +
-                 "and throws IndexOutOfRangeException (unhandled, stack trace, exit 134). Remove Skip once fixed.")]
+    [Fact]
     public void SourceSweepEntirelyOutsideTheCalibratedRange()
     {
         // x = ramp voltage; the calibration covers its peaks between about 0 and 10 V, the source ramp is squeezed to
