@@ -731,13 +731,29 @@ public static class LineRefiner
     internal static FitResult Fit(Data data, Layout layout, double[] p0, RefineOptions options, bool[]? isFixed = null, double[]? y = null)
     {
         isFixed ??= new bool[layout.Count];
-        var observedY = Vector<double>.Build.DenseOfArray(y ?? data.Y);
+        // The problem is whitened here (rows scaled by 1/σ) rather than handing MathNet a weight vector: MathNet 5.0
+        // stores the weights as a dense m×m matrix (128 MB for 4 000 samples, gigabytes for long sweeps).
+        var sw = data.W.Select(Math.Sqrt).ToArray();
+        var obs = y ?? data.Y;
+        var observedY = Vector<double>.Build.Dense(data.M, i => obs[i] * sw[i]);
         var x = Vector<double>.Build.Dense(data.M, i => i);
-        var w = Vector<double>.Build.DenseOfArray(data.W);
         var model = ObjectiveFunction.NonlinearModel(
-            (p, _) => Vector<double>.Build.DenseOfArray(data.Model(layout, p.ToArray())),
-            (p, _) => data.Jacobian(layout, p.ToArray()),
-            x, observedY, w);
+            (p, _) =>
+            {
+                var m = data.Model(layout, p.ToArray());
+                for (var i = 0; i < m.Length; i++) m[i] *= sw[i];
+                return Vector<double>.Build.DenseOfArray(m);
+            },
+            (p, _) =>
+            {
+                var jac = data.Jacobian(layout, p.ToArray());
+                var raw = jac.AsColumnMajorArray() ?? throw new InvalidOperationException("a dense Jacobian was expected");
+                for (var c = 0; c < layout.Count; c++)
+                for (var i = 0; i < data.M; i++)
+                    raw[c * data.M + i] *= sw[i];
+                return jac;
+            },
+            x, observedY);
         var scales = new double[layout.Count];
         for (var i = 0; i < layout.Count; i++) scales[i] = 1;
         var lw = data.Sweeps.Min(s => s.Instrument.LinewidthHz);

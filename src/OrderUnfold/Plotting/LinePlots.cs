@@ -185,7 +185,15 @@ public static class LinePlots
     {
         var lines = new List<string>();
         var current = new StringBuilder();
-        foreach (var word in text.Split(' '))
+        // a unit stays on the line of its number
+        var words = new List<string>();
+        foreach (var w in text.Split(' '))
+        {
+            if (words.Count > 0 && w.TrimEnd(':', ',', ';', '.', ')') is "Hz" or "kHz" or "MHz" or "GHz" or "THz" or "dB") words[^1] += " " + w;
+            else words.Add(w);
+        }
+
+        foreach (var word in words)
         {
             if (current.Length > 0 && current.Length + 1 + word.Length > width)
             {
