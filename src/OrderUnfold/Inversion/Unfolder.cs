@@ -173,10 +173,23 @@ public static class Unfolder
         progress?.Report("solving NNLS on all sweeps");
         UnfoldProblem problem = null!;
         NnlsResult nnls = null!;
-        var rounds = Math.Max(1, options.GainRounds);
+        // one sweep has no relative gain or offset to refine: a single solve is the answer
+        var rounds = sweeps.Count == 1 ? 0 : Math.Max(1, options.GainRounds);
+        (double Lambda, double Mu, double[] Gains)? jointWeights = null;
         for (var round = 0; round <= rounds; round++)
         {
-            problem = BuildProblem(sweeps, grid, offsets, gains, options, periodicStep);
+            // the L1 and smoothness weights are set once from the first round's column norms, rescaled when gains move
+            if (jointWeights is (double l0, double mu0, double[] g0s))
+            {
+                var ratio = Math.Sqrt(gains.Zip(g0s, (g, h) => (g / h) * (g / h)).Average());
+                problem = new UnfoldProblem(sweeps, grid, offsets, gains, l0 * ratio, mu0 * ratio * ratio, periodicStep);
+            }
+            else
+            {
+                problem = BuildProblem(sweeps, grid, offsets, gains, options, periodicStep);
+                jointWeights = (problem.L1Weight, problem.SmoothnessWeight, gains.ToArray());
+            }
+
             nnls = ActiveSetNnls.Solve(problem, SolverOptions(problem), round == 0 ? default : nnls.Solution);
             if (round == rounds) break;
             var s = nnls.Solution.AsSpan(0, grid.Count);
