@@ -12,7 +12,9 @@ namespace OrderUnfold.Tests.Analysis;
 internal static class RefinerFixtures
 {
     /// <summary>A simulated line: frequency relative to the sweeps' common origin and its intensity (peak signal at gain 1).</summary>
-    public sealed record Line(double FrequencyHz, double Intensity);
+    /// <param name="WidthHz">Intrinsic Lorentzian FWHM; the line is then an Airy of linewidth (instrument + intrinsic) with its
+    /// area kept, the high-finesse form of a Lorentzian convolved with the Airy peak.</param>
+    public sealed record Line(double FrequencyHz, double Intensity, double WidthHz = 0);
 
     /// <summary>How one simulated sweep is taken: instrument, samples, span in FSRs, its origin φ (Hz), gain, background, noise σ.</summary>
     public sealed record SweepSpec(Instrument Instrument, int Samples, double SpanFsr, double OffsetHz, double Gain = 1, double Background = 0.05,
@@ -29,7 +31,14 @@ internal static class RefinerFixtures
         {
             scan[i] = span * i / n;
             var v = 0.0;
-            foreach (var l in lines) v += l.Intensity * spec.Instrument.Transmission(l.FrequencyHz - spec.OffsetHz - scan[i]);
+            foreach (var l in lines)
+            {
+                var inst = spec.Instrument;
+                var d = l.FrequencyHz - spec.OffsetHz - scan[i];
+                v += l.WidthHz > 0
+                    ? l.Intensity * inst.LinewidthHz / (inst.LinewidthHz + l.WidthHz) * Airy.Transmission(d, inst.FsrHz, inst.FsrHz / (inst.LinewidthHz + l.WidthHz))
+                    : l.Intensity * inst.Transmission(d);
+            }
             y[i] = spec.Gain * v + spec.Background + (noise ? spec.NoiseSigma * Simulator.Gaussian(rng) : 0);
         }
 
