@@ -7,6 +7,7 @@ public static class CommandList
     [
         new DemoCommand(),
         new UnfoldCommand(),
+        new CalibrateCommand(),
         new InitCommand(),
         new SimulateCommand(),
     ];
