@@ -32,6 +32,9 @@ public sealed record FsrRefineOptions
 
     /// <summary>Most lines used (the strongest).</summary>
     public int MaxLines { get; init; } = 14;
+
+    /// <summary>Largest relative FSR error the pre-scan of folded peaks looks for (default 1.2 %).</summary>
+    public double MaxScaleError { get; init; } = 0.012;
 }
 
 /// <summary>The refined FSR of one instrument.</summary>
@@ -92,29 +95,58 @@ public sealed record InstrumentLineFit(string Instrument, double[] FrequencyHz, 
 /// </summary>
 public static class FsrRefiner
 {
-    /// <summary>Refines the FSRs and re-runs the unfold with them.</summary>
-    public static (IReadOnlyList<CalibratedSweep> Sweeps, UnfoldResult Result, FsrRefinement Refinement) RefineAndRerun(
-        IReadOnlyList<CalibratedSweep> sweeps, UnfoldResult result, UnfoldOptions? unfoldOptions, FsrRefineOptions options, IProgress<string>? progress = null)
+    /// <summary>
+    /// Unfolds with refined FSRs: a scan of the folded peak positions first corrects FSR errors of up to
+    /// <see cref="FsrRefineOptions.MaxScaleError"/> (with a known interval, each instrument on its own; without
+    /// one, the ratio to the reference), so that the first unfold already sees consistent instruments; then
+    /// rounds of per-instrument line fits polish the ratios and the absolute scale, each followed by an unfold.
+    /// </summary>
+    /// <param name="sweeps">Calibrated sweeps with the stated FSRs (their axes are in units of those FSRs).</param>
+    /// <param name="unfoldOptions">Options of the unfolds.</param>
+    /// <param name="options">What to refine.</param>
+    /// <param name="progress">Progress messages.</param>
+    public static (IReadOnlyList<CalibratedSweep> Sweeps, UnfoldResult Result, FsrRefinement Refinement) UnfoldWithRefinement(
+        IReadOnlyList<CalibratedSweep> sweeps, UnfoldOptions? unfoldOptions, FsrRefineOptions options, IProgress<string>? progress = null)
     {
         unfoldOptions ??= new UnfoldOptions();
+        var names = sweeps.Select(s => s.Instrument.Name).Distinct().ToList();
+        var reference = options.ReferenceInstrument ?? names[0];
+        var scan = Prescan(sweeps, unfoldOptions, options with { ReferenceInstrument = reference }, names.Count > 1 && options.RefineRatio);
+        var current = sweeps.Select(s => Rescale(s, scan.Scales.GetValueOrDefault(s.Instrument.Name, 1.0))).ToList();
+        progress?.Report("unfolding with the pre-scanned FSRs");
+        var first = Unfolder.Run(current, unfoldOptions);
+        return Polish(sweeps, scan.Scales, scan.Basis, current, first, unfoldOptions, options, progress, scan.Notes, scan.Warnings);
+    }
+
+    /// <summary>Refines the FSRs from an unfold made with the stated FSRs and re-runs the unfold. The stated FSRs
+    /// must already be close (the lines must come out of <paramref name="result"/>); otherwise use
+    /// <see cref="UnfoldWithRefinement"/>.</summary>
+    public static (IReadOnlyList<CalibratedSweep> Sweeps, UnfoldResult Result, FsrRefinement Refinement) RefineAndRerun(
+        IReadOnlyList<CalibratedSweep> sweeps, UnfoldResult result, UnfoldOptions? unfoldOptions, FsrRefineOptions options, IProgress<string>? progress = null) =>
+        Polish(sweeps, new Dictionary<string, double>(), new Dictionary<string, string>(), sweeps, result, unfoldOptions ?? new UnfoldOptions(), options, progress, [], []);
+
+    private static (IReadOnlyList<CalibratedSweep> Sweeps, UnfoldResult Result, FsrRefinement Refinement) Polish(
+        IReadOnlyList<CalibratedSweep> sweeps, IReadOnlyDictionary<string, double> startScale, IReadOnlyDictionary<string, string> startBasis,
+        IReadOnlyList<CalibratedSweep> current, UnfoldResult result, UnfoldOptions unfoldOptions, FsrRefineOptions options, IProgress<string>? progress,
+        IEnumerable<string> startNotes, IEnumerable<string> startWarnings)
+    {
         var names = sweeps.Select(s => s.Instrument.Name).Distinct().ToList();
         var nominal = names.ToDictionary(n => n, n => sweeps.First(s => s.Instrument.Name == n).Instrument.FsrHz);
         var reference = options.ReferenceInstrument ?? names[0];
         if (!names.Contains(reference)) throw new InputException($"reference instrument '{reference}' has no sweeps (instruments: {string.Join(", ", names)})");
-        var warnings = new List<string>();
-        var notes = new List<string>();
-        var scale = names.ToDictionary(n => n, _ => 1.0);
-        var relSigma = names.ToDictionary(n => n, _ => 0.0);
-        var basis = names.ToDictionary(n => n, n => n == reference ? "reference (stated FSR)" : "stated FSR");
-        var current = sweeps;
+        var warnings = startWarnings.ToList();
+        var notes = startNotes.ToList();
+        var scale = names.ToDictionary(n => n, n => startScale.GetValueOrDefault(n, 1.0));
+        var relSigma = names.ToDictionary(n => n, _ => double.NaN);
+        var basis = names.ToDictionary(n => n, n => startBasis.GetValueOrDefault(n, n == reference ? "reference (stated FSR)" : "stated FSR"));
         var currentResult = result;
-        var before = result;
+        var first = result;
         var intervals = new List<IntervalMatch>();
         var rounds = 0;
         if (names.Count < 2 && options.KnownIntervalHz is null)
         {
             notes.Add("one instrument and no known interval: nothing to refine the FSR against");
-            return (sweeps, result, Finish());
+            return (current, result, Finish());
         }
 
         for (var round = 0; round < options.MaxRounds; round++)
@@ -139,7 +171,7 @@ public static class FsrRefiner
             }
 
             if (est.Intervals.Count > 0) intervals = est.Intervals;
-            if (biggest * farthest < 0.02 * narrow && round > 0) break;
+            if (biggest * farthest < 0.02 * narrow) break; // the correction moves no line noticeably: keep this unfold
             progress?.Report($"unfolding with refined FSRs (round {round + 1})");
             current = sweeps.Select(s => Rescale(s, scale[s.Instrument.Name])).ToList();
             currentResult = Unfolder.Run(current, unfoldOptions);
@@ -151,16 +183,243 @@ public static class FsrRefiner
         FsrRefinement Finish()
         {
             var scales = names.Select(n => new InstrumentScale(n, nominal[n], nominal[n] * scale[n], nominal[n] * scale[n] * relSigma[n], scale[n] - 1, basis[n])).ToList();
-            var shifts = currentResult.Lines.Select(l =>
-            {
-                var near = before.Lines.Count == 0 ? double.NaN : before.Lines.MinBy(b => Math.Abs(b.FrequencyHz - l.FrequencyHz))!.FrequencyHz;
-                return new LineShift(near, l.FrequencyHz);
-            }).Where(s => double.IsFinite(s.BeforeHz)).ToList();
+            // where each line would sit on the reference's stated FSR scale
+            var refScale = scale[reference];
+            var shifts = currentResult.Lines.Select(l => new LineShift(l.FrequencyHz / refScale, l.FrequencyHz)).ToList();
             var matched = MeasuredIntervals(intervals, currentResult);
             foreach (var s in scales.Where(s => Math.Abs(s.RelativeChange) > 0.003))
                 warnings.Add($"instrument '{s.Instrument}': the FSR refined from the data ({s.Basis}) is {Quantity.FormatFrequency(s.RefinedFsrHz, 7)}, {100 * s.RelativeChange:+0.000;-0.000} % from the stated {Quantity.FormatFrequency(s.NominalFsrHz, 7)}; update the setup");
-            return new FsrRefinement(scales, matched, rounds, before.ReducedChiSquare, currentResult.ReducedChiSquare, shifts, warnings, notes);
+            return new FsrRefinement(scales, matched, rounds, first.ReducedChiSquare, currentResult.ReducedChiSquare, shifts, warnings, notes);
         }
+    }
+
+    // ------------------------------------------------------------------ pre-scan of folded peaks
+
+    private sealed record Feature(double U, double Height, int Count);
+
+    private sealed record PrescanResult(Dictionary<string, double> Scales, Dictionary<string, string> Basis, List<string> Notes, List<string> Warnings);
+
+    /// <summary>
+    /// Coarse FSR corrections from the folded peak positions of each instrument (relative to its strongest
+    /// peak), before any unfold. With a known interval Δ, the partner of the strongest line at ±mΔ must sit at
+    /// the folded position (±mΔ/s) mod FSR for the instrument's scale correction s; the candidates that agree
+    /// give s. Without one, the ratio to the reference is scanned: at the right ratio every folded peak of
+    /// either instrument is explained by some order of a peak of the other.
+    /// </summary>
+    private static PrescanResult Prescan(IReadOnlyList<CalibratedSweep> sweeps, UnfoldOptions unfoldOptions, FsrRefineOptions options, bool ratio)
+    {
+        var names = sweeps.Select(s => s.Instrument.Name).Distinct().ToList();
+        var reference = options.ReferenceInstrument ?? names[0];
+        var scales = new Dictionary<string, double>();
+        var basis = new Dictionary<string, string>();
+        var notes = new List<string>();
+        var warnings = new List<string>();
+        var features = names.ToDictionary(n => n, n => Folded(sweeps.Where(s => s.Instrument.Name == n).ToList()));
+        var inst = names.ToDictionary(n => n, n => sweeps.First(s => s.Instrument.Name == n).Instrument);
+
+        if (options.KnownIntervalHz is double known)
+        {
+            foreach (var n in names)
+            {
+                var s = IntervalScale(features[n], inst[n], known, options);
+                if (s is double v)
+                {
+                    scales[n] = v;
+                    basis[n] = "known interval (folded peaks)";
+                    notes.Add($"pre-scan: '{n}' sees the known interval {Quantity.FormatFrequency(known)} at a scale {(v - 1) * 100:+0.000;-0.000} % from its stated FSR");
+                }
+            }
+        }
+
+        if (ratio)
+        {
+            var window = Math.Max(Math.Abs(unfoldOptions.WindowStartHz ?? 0), Math.Abs(unfoldOptions.WindowEndHz ?? 0));
+            if (!(window > 0)) window = DefaultReach(inst.Values.ToList());
+            foreach (var n in names.Where(n => n != reference && !scales.ContainsKey(n)))
+            {
+                var refScale = scales.GetValueOrDefault(reference, 1.0);
+                var eps = RatioScan(features[reference], inst[reference].FsrHz * refScale, features[n], inst[n], window, options.MaxScaleError, out var ambiguous);
+                if (ambiguous)
+                {
+                    warnings.Add($"the FSR ratio of '{n}' to '{reference}' could not be pinned by the folded peaks alone (several ratios explain them); the stated FSRs were kept for the first unfold");
+                    continue;
+                }
+
+                if (eps is double e && e != 0)
+                {
+                    scales[n] = refScale * (1 + e);
+                    basis[n] = $"Vernier ratio to '{reference}' (folded peaks)";
+                    notes.Add($"pre-scan: the folded peaks of '{n}' and '{reference}' agree best with '{n}' scaled by {e * 100:+0.000;-0.000} %");
+                }
+            }
+        }
+
+        return new PrescanResult(scales, basis, notes, warnings);
+    }
+
+    /// <summary>Peaks of an instrument's sweeps folded into one FSR, relative to the strongest, merged over repeats and sweeps.</summary>
+    private static List<Feature> Folded(List<CalibratedSweep> group)
+    {
+        var inst = group[0].Instrument;
+        var fsr = inst.FsrHz;
+        var tol = 0.5 * inst.LinewidthHz;
+        var raw = new List<(double U, double H)>();
+        foreach (var s in group)
+        {
+            var idx = Enumerable.Range(0, s.Signal.Length).Select(i => (double)i).ToArray();
+            var peaks = ResolvedPeaks.Find(idx, s.Signal, 0.03, 6);
+            if (peaks.Count == 0) continue;
+            var top = peaks.Max(p => p.Height);
+            foreach (var p in peaks)
+                raw.Add((SweepOperator.PositiveMod(PeakFinder.Interpolate(s.ScanHz, p.Position), fsr), p.Height / top));
+        }
+
+        if (raw.Count == 0) return [];
+        raw.Sort((a, b) => a.U.CompareTo(b.U));
+        var clusters = new List<List<(double U, double H)>>();
+        foreach (var r in raw)
+        {
+            if (clusters.Count > 0 && r.U - clusters[^1][^1].U < tol) clusters[^1].Add(r);
+            else clusters.Add([r]);
+        }
+
+        if (clusters.Count > 1 && clusters[0][0].U + fsr - clusters[^1][^1].U < tol)
+        {
+            clusters[0].AddRange(clusters[^1].Select(c => (c.U - fsr, c.H)));
+            clusters.RemoveAt(clusters.Count - 1);
+        }
+
+        var list = clusters.Select(c => new Feature(c.Average(v => v.U), c.Average(v => v.H), c.Count)).ToList();
+        var anchor = list.Where(f => f.Count >= 2).DefaultIfEmpty(list[0]).MaxBy(f => f.Height)!;
+        return list.Select(f => f with { U = Wrap(f.U - anchor.U, fsr) }).OrderByDescending(f => f.Height).ToList();
+    }
+
+    /// <summary>Scale correction s of one instrument from where the partners of the strongest line fold to.</summary>
+    private static double? IntervalScale(List<Feature> features, Instrument inst, double known, FsrRefineOptions options)
+    {
+        var fsr = inst.FsrHz;
+        var tol = 0.5 * inst.LinewidthHz;
+        var cands = new List<(double S, double W, int Key)>();
+        for (var m = 1; m <= options.MaxIntervalMultiple; m++)
+            foreach (var sign in new[] { -1, 1 })
+            {
+                var nu = sign * m * known;
+                var reach = options.MaxScaleError * Math.Abs(nu) + 2 * tol;
+                if (reach >= fsr / 2) continue; // the partner could fold anywhere: no information
+                var predicted = Wrap(nu, fsr);
+                foreach (var f in features)
+                {
+                    if (Math.Abs(f.U) < tol) continue; // the anchor itself
+                    if (Math.Abs(Wrap(f.U - predicted, fsr)) > reach) continue;
+                    var order = Math.Round((nu - f.U) / fsr);
+                    var s = nu / (order * fsr + f.U);
+                    cands.Add((s, f.Height * f.Count * nu * nu, sign * m));
+                }
+            }
+
+        if (cands.Count == 0) return null;
+        // the group of candidates that agree within the position tolerance, supported by the most distinct partners
+        List<(double S, double W, int Key)> best = [];
+        var bestScore = 0.0;
+        foreach (var c in cands)
+        {
+            var group = cands.Where(o => Math.Abs(o.S - c.S) <= 2 * tol / known).ToList();
+            var score = group.Select(g => g.Key).Distinct().Count() + 1e-3 * group.Sum(g => g.W) / cands.Sum(g => g.W);
+            if (score > bestScore)
+            {
+                bestScore = score;
+                best = group;
+            }
+        }
+
+        if (best.Select(g => g.Key).Distinct().Count() < Math.Min(2, cands.Select(c => c.Key).Distinct().Count())) return null;
+        return best.Sum(g => g.S * g.W) / best.Sum(g => g.W);
+    }
+
+    /// <summary>
+    /// Scans the scale ε of instrument b against the reference a: at the right ε every folded peak of either is
+    /// explained by some order (within the window) of a folded peak of the other. Returns the centre of the best
+    /// plateau; <paramref name="ambiguous"/> when another plateau scores as well.
+    /// </summary>
+    private static double? RatioScan(List<Feature> a, double fsrA, List<Feature> b, Instrument instB, double window, double maxError, out bool ambiguous)
+    {
+        ambiguous = false;
+        if (a.Count < 2 || b.Count < 2) return null;
+        var tol = 0.5 * instB.LinewidthHz;
+        var step = Math.Max(1e-6, 0.5 * tol / window);
+        var count = (int)Math.Ceiling(maxError / step);
+        var scores = new double[2 * count + 1];
+        for (var k = -count; k <= count; k++)
+        {
+            var e = k * step;
+            var fsrB = instB.FsrHz * (1 + e);
+            scores[k + count] = Explained(a, fsrA, b.Select(f => f with { U = f.U * (1 + e) }).ToList(), fsrB, window, tol)
+                                + Explained(b.Select(f => f with { U = f.U * (1 + e) }).ToList(), fsrB, a, fsrA, window, tol);
+        }
+
+        var max = scores.Max();
+        // plateaus of the maximum score
+        var plateaus = new List<(int Start, int End)>();
+        for (var i = 0; i < scores.Length; i++)
+        {
+            if (scores[i] < max - 1e-9) continue;
+            if (plateaus.Count > 0 && plateaus[^1].End == i - 1) plateaus[^1] = (plateaus[^1].Start, i);
+            else plateaus.Add((i, i));
+        }
+
+        var zero = scores[count];
+        if (zero >= max - 1e-9) return 0; // the stated ratio explains the peaks as well as any
+        if (plateaus.Count > 1)
+        {
+            ambiguous = true;
+            return null;
+        }
+
+        var p = plateaus[0];
+        return (0.5 * (p.Start + p.End) - count) * step;
+    }
+
+    /// <summary>Weight of the features of x (heights) that some order of them, within the window, puts on a feature of y.</summary>
+    private static double Explained(List<Feature> x, double fsrX, List<Feature> y, double fsrY, double window, double tol)
+    {
+        var total = 0.0;
+        foreach (var f in x)
+        {
+            if (Math.Abs(f.U) < tol) continue; // the anchor is explained by construction
+            var nMax = (int)Math.Ceiling(window / fsrX) + 1;
+            var hit = false;
+            for (var n = -nMax; n <= nMax && !hit; n++)
+            {
+                var nu = f.U + n * fsrX;
+                if (Math.Abs(nu) > window) continue;
+                var u = Wrap(nu, fsrY);
+                foreach (var g in y)
+                    if (Math.Abs(Wrap(g.U - u, fsrY)) <= tol)
+                    {
+                        hit = true;
+                        break;
+                    }
+            }
+
+            if (hit) total += Math.Sqrt(f.Height);
+        }
+
+        return total;
+    }
+
+    /// <summary>Half the beat range of the instruments, a default reach when no window is given.</summary>
+    private static double DefaultReach(List<Instrument> instruments)
+    {
+        var f = instruments.Select(i => i.FsrHz).OrderBy(v => v).ToList();
+        var reach = f[^1] * 4;
+        for (var i = 1; i < f.Count; i++) reach = Math.Max(reach, Math.Min(0.5 * f[i] * f[i - 1] / Math.Max(1, f[i] - f[i - 1]), 50 * f[i]));
+        return reach;
+    }
+
+    private static double Wrap(double v, double period)
+    {
+        var w = SweepOperator.PositiveMod(v, period);
+        return w >= period / 2 ? w - period : w;
     }
 
     /// <summary>A sweep with its FSR and axis scaled by the same factor.</summary>

@@ -92,6 +92,7 @@ public static class SelfCalibrator
     /// <summary>Fewest FSRs (as estimated from the peak widths and the stated finesse) a sweep must span.</summary>
     public const double MinSpanFsr = 1.15;
 
+
     /// <summary>Self-calibrates one sweep segment (x relative to the segment start for time scans).</summary>
     /// <exception cref="InputException">The sweep is too short, has no repeats, or the constraints cannot support the axis.</exception>
     public static SelfCalibrationResult Calibrate(Sweep sweep, Instrument instrument, SelfCalibrationOptions? options = null)
@@ -158,7 +159,7 @@ public static class SelfCalibrator
             }
         }
 
-        if (runs.Count == 0) throw firstError ?? NoRepeats(sweep, instrument, period, estimatedSpan, peaks.Count);
+        if (runs.All(r => r.Fit is null)) throw firstError ?? NoRepeats(sweep, instrument, period, estimatedSpan, peaks.Count);
         var chosen = Choose(runs, peaks, delta, xLo, xHi);
         if (chosen.Fit is null || chosen.Pairs.Count == 0) throw NoRepeats(sweep, instrument, period, estimatedSpan, peaks.Count);
         var pairs = chosen.Pairs;
@@ -249,8 +250,17 @@ public static class SelfCalibrator
         {
             iterations = round + 1;
             var widthFactor = round == 0 ? 1.2 : round == 1 ? 0.7 : options.PairWindowWidths;
-            var matched = Match(peaks, axis, delta, widthFactor, rmsHz, options.ShapeRatioTolerance, xLo, xHi);
-            if (matched.Count < 2) break;
+            // after the first round, repeats must keep the height ratio the earlier pairs show; with too few pairs
+            // to say, they must agree in height and width within 25 %
+            var model = round == 0 ? null : HeightModel.From(pairs);
+            var shape = round > 0 && model is null ? Math.Min(1.25, options.ShapeRatioTolerance) : options.ShapeRatioTolerance;
+            var matched = Match(peaks, axis, delta, widthFactor, rmsHz, shape, xLo, xHi, model);
+            if (matched.Count < 1)
+            {
+                if (round > 0) (fit, pairs) = (null, []); // what the first round paired does not hold up
+                break;
+            }
+
             pairs = matched;
             var all = pairs.Concat(companionPairs).ToList();
             (fit, scores) = FitWithRejection(all, sweep, options, xLo, xHi);
@@ -298,27 +308,31 @@ public static class SelfCalibrator
     }
 
     /// <summary>
-    /// Picks the period among the runs: the true period gives every feature a repeat of the same height, so it has
-    /// the highest share of paired peaks and height ratios closest to one; of runs that do about equally well
-    /// (whole multiples of the period), the shortest period is the period.
+    /// Picks the period among the runs: the true period pairs every feature with a repeat of the same height, so
+    /// its height ratios are closest to one and it pairs nearly every peak that can have a repeat; of the runs that
+    /// do about equally well (whole multiples of the period), the shortest period is the period.
     /// </summary>
     private static Run Choose(List<Run> runs, List<P> peaks, double delta, double xLo, double xHi)
     {
-        var valid = runs.Where(r => r.Fit is not null && r.Pairs.Count(c => c.Used) >= 2).ToList();
+        var valid = runs.Where(r => r.Fit is not null && r.Pairs.Count(c => c.Used) >= 1).ToList();
         if (valid.Count <= 1) return valid.Count == 1 ? valid[0] : runs[0];
-        var bestCoverage = valid.Max(r => r.Coverage);
-        var bestMismatch = valid.Where(r => r.Coverage >= 0.85 * bestCoverage).Min(r => r.HeightMismatch);
-        var viable = valid.Where(r => r.Coverage >= 0.85 * bestCoverage && r.HeightMismatch <= 1.5 * bestMismatch + 0.02).ToList();
-        if (viable.Count == 0) viable = valid;
+        // the same feature one period later has the same height: runs at a wrong period pair look-alikes whose
+        // heights differ; of the runs with consistent heights, those with about the best coverage are whole
+        // multiples of the period, and the shortest is the period
+        var bestMismatch = valid.Min(r => r.HeightMismatch);
+        var consistent = valid.Where(r => r.HeightMismatch <= 1.5 * bestMismatch + 0.02).ToList();
+        var bestCoverage = consistent.Max(r => r.Coverage);
+        var viable = consistent.Where(r => r.Coverage >= 0.85 * bestCoverage).ToList();
         return viable.MinBy(r => r.PeriodSamples)!;
     }
 
     // ------------------------------------------------------------------ starting axis
 
     /// <summary>
-    /// Local autocorrelation: windows of about a twelfth of the sweep are correlated with the sweep at every lag in
-    /// a range set by the peak widths and the stated finesse; each window's best lag (the shortest of its near-equal
-    /// multiples) says where its content repeats. Those repeat positions are fitted like pairs.
+    /// Local autocorrelation: windows of a twelfth of the sweep (at least 0.4 of the period the stated finesse
+    /// suggests) are compared with the sweep at every lag in a range set by the peak widths and the stated finesse,
+    /// by the similarity 2⟨u,v⟩/(|u|²+|v|²), which is 1 only for an exact repeat; each window's best lag (the shortest
+    /// of its near-equal multiples) says where its content repeats. Those repeat positions are fitted like pairs.
     /// </summary>
     private static (AxisPolynomial Axis, double RmsHz, double PeriodSamples) StartFromCorrelation(Sweep sweep, Instrument instrument, double period,
         double delta, double medianWidth, double estimatedSpan)
@@ -335,7 +349,7 @@ public static class SelfCalibrator
         for (var i = 0; i < n; i++) cum[i + 1] = cum[i] + z[i] * z[i];
 
         var prior = n / estimatedSpan; // samples per period from the stated finesse
-        var window = Math.Clamp(n / 12, Math.Max(16, (int)(4 * medianWidth)), Math.Max(16, (int)(0.6 * prior)));
+        var window = Math.Clamp(Math.Max(n / 12, (int)(0.4 * prior)), Math.Max(16, (int)(4 * medianWidth)), Math.Max(16, (int)(0.6 * prior)));
         var lagMin = Math.Max((int)(3 * medianWidth), (int)(0.3 * prior));
         var lagMax = (int)Math.Min(n - window - 1, 3.5 * prior);
         if (lagMax <= lagMin + 2) lagMax = Math.Min(n - window - 1, lagMin + (int)prior);
@@ -357,7 +371,8 @@ public static class SelfCalibrator
                 var s = 0.0;
                 for (var i = a; i < a + window; i++) s += z[i] * z[i + lag];
                 var e2 = cum[a + lag + window] - cum[a + lag];
-                c[lag] = e2 > 0 ? s / Math.Sqrt(energy * e2) : 0;
+                // 2⟨u,v⟩/(|u|²+|v|²): 1 only for equal content, lower for look-alikes of another height
+                c[lag] = e2 > 0 ? 2 * s / (energy + e2) : 0;
             }
 
             var best = lagMin;
@@ -456,8 +471,31 @@ public static class SelfCalibrator
         public bool Used { get; set; } = true;
     }
 
+    /// <summary>How the height ratio of true repeats runs along the sweep: ln(h_b/h_a) ≈ Intercept + Slope·x within Tolerance
+    /// (a drifting laser power tilts it; noise spreads it).</summary>
+    private sealed record HeightModel(double Intercept, double Slope, double Tolerance)
+    {
+        public bool Accepts(double x, double ratio) => Math.Abs(Math.Log(ratio) - (Intercept + Slope * x)) <= Tolerance;
+
+        public static HeightModel? From(List<Cand> pairs)
+        {
+            var used = pairs.Where(c => c.Used && c.A >= 0).ToList();
+            if (used.Count < 4) return null;
+            var xs = used.Select(c => c.XA).ToArray();
+            var ys = used.Select(c => Math.Log(c.HB / c.HA)).ToArray();
+            var mx = xs.Average();
+            var my = ys.Average();
+            var sxx = xs.Sum(x => (x - mx) * (x - mx));
+            var slope = sxx > 0 ? xs.Zip(ys, (x, y) => (x - mx) * (y - my)).Sum() / sxx : 0;
+            var intercept = my - slope * mx;
+            var dev = xs.Zip(ys, (x, y) => Math.Abs(y - intercept - slope * x)).OrderBy(v => v).ToArray();
+            var sigma = 1.4826 * dev[dev.Length / 2];
+            return new HeightModel(intercept, slope, Math.Max(5 * sigma, 0.03));
+        }
+    }
+
     private static List<Cand> Match(List<P> peaks, AxisPolynomial axis, double delta, double widthFactor, double axisRmsHz, double shapeTolerance,
-        double xLo, double xHi)
+        double xLo, double xHi, HeightModel? heights = null)
     {
         var xsSorted = peaks.Select(p => p.X).ToArray();
         var byB = new Dictionary<int, (Cand Pair, double Distance)>();
@@ -482,6 +520,7 @@ public static class SelfCalibrator
                 var hr = pb.Height / pa.Height;
                 var wr = pb.WidthX / pa.WidthX;
                 if (hr > shapeTolerance || hr < 1 / shapeTolerance || wr > shapeTolerance || wr < 1 / shapeTolerance) continue;
+                if (heights is not null && !heights.Accepts(pa.X, hr)) continue;
                 var d = Math.Abs(pb.X - x);
                 if (d < bestD)
                 {
@@ -526,7 +565,7 @@ public static class SelfCalibrator
 
     // ------------------------------------------------------------------ fitting
 
-    private sealed record Fit(AxisPolynomial Axis, double ChiSquare, double AxisSigmaHz);
+    private sealed record Fit(AxisPolynomial Axis, double ChiSquare, double AxisSigmaHz, double[] Leverage);
 
     private static (Fit Fit, List<DegreeScore> Scores) FitWithRejection(List<Cand> all, Sweep sweep, SelfCalibrationOptions options, double xLo, double xHi)
     {
@@ -538,14 +577,18 @@ public static class SelfCalibrator
             var used = all.Where(c => c.Used).ToList();
             (fit, scores) = ChooseDegree(used, sweep, options, xLo, xHi);
             foreach (var c in all) c.Residual = c.Delta - (fit.Axis.Evaluate(c.XB) - fit.Axis.Evaluate(c.XA));
-            var normalised = used.Select(c => Math.Abs(c.Residual) / c.Sigma).OrderBy(v => v).ToList();
+            // deleted (leave-one-out) residuals: r / (1 − h) for the constraints in the fit, r for those left out
+            var lev = new Dictionary<Cand, double>(ReferenceEqualityComparer.Instance);
+            for (var k = 0; k < used.Count && k < fit.Leverage.Length; k++) lev[used[k]] = fit.Leverage[k];
+            double Deleted(Cand c) => Math.Abs(c.Residual) / c.Sigma / (1 - lev.GetValueOrDefault(c, 0));
+            var normalised = used.Select(Deleted).OrderBy(v => v).ToList();
             var scale = 1.4826 * normalised[normalised.Count / 2];
             if (!(scale > 0)) break;
             var limit = options.RejectSigma * scale;
             var changed = false;
             foreach (var c in all)
             {
-                var keep = Math.Abs(c.Residual) / c.Sigma <= limit;
+                var keep = Deleted(c) <= limit;
                 if (keep != c.Used)
                 {
                     c.Used = keep;
@@ -645,7 +688,7 @@ public static class SelfCalibrator
             b[k] = w * c.Delta;
         }
 
-        var qr = a.QR();
+        var qr = a.QR(MathNet.Numerics.LinearAlgebra.Factorization.QRMethod.Thin);
         var r = qr.R;
         for (var i = 0; i < degree; i++)
             if (Math.Abs(r[i, i]) < 1e-10 * Math.Abs(r[0, 0])) return null;
@@ -695,45 +738,59 @@ public static class SelfCalibrator
             sigma = double.NaN;
         }
 
-        return new Fit(axis, chi, sigma);
+        // leverage of each constraint (diagonal of the hat matrix): an edge pair can bend the polynomial to itself
+        var q = qr.Q;
+        var leverage = new double[n];
+        for (var k = 0; k < n; k++)
+        {
+            var h = 0.0;
+            for (var j = 0; j < degree; j++) h += q[k, j] * q[k, j];
+            leverage[k] = Math.Min(h, 0.99);
+        }
+
+        return new Fit(axis, chi, sigma, leverage);
     }
 
     // ------------------------------------------------------------------ diagnostics
 
-    /// <summary>Stretches of about one period where most peaks have no repeat: the source changed during the sweep.</summary>
+    /// <summary>
+    /// Stretches of about one period where most clear peaks have no repeat one period later (or earlier) although
+    /// the repeat would lie inside the sweep: the source changed there (a mode hop) or the peaks are not source lines.
+    /// </summary>
     private static IEnumerable<string> UnrepeatedStretches(Sweep sweep, List<P> peaks, List<Cand> pairs, AxisPolynomial axis, double delta, double xLo, double xHi)
     {
-        var matched = new bool[peaks.Count];
-        foreach (var c in pairs.Where(c => c.Used))
+        if (peaks.Count < 6) yield break;
+        var forward = new bool[peaks.Count];
+        var backward = new bool[peaks.Count];
+        foreach (var c in pairs.Where(c => c.Used && c.A >= 0))
         {
-            if (c.A >= 0) matched[c.A] = true;
-            if (c.B >= 0) matched[c.B] = true;
+            forward[c.A] = true;
+            backward[c.B] = true;
         }
 
-        // a peak could have had a partner when its position ± one period lies inside the calibrated range
-        var fLo = axis.Evaluate(axis.XMin);
-        var fHi = axis.Evaluate(axis.XMax);
-        var (fMin, fMax) = (Math.Min(fLo, fHi), Math.Max(fLo, fHi));
+        var fA = axis.Evaluate(xLo);
+        var fB = axis.Evaluate(xHi);
+        var (fMin, fMax) = (Math.Min(fA, fB), Math.Max(fA, fB));
         var period = Math.Abs(delta);
-        var eligible = new List<(double X, bool Matched)>();
+        var tallest = peaks.Max(p => p.Height);
+        var misses = new List<(double X, double F, bool Missing)>();
         for (var i = 0; i < peaks.Count; i++)
         {
+            if (peaks[i].Height < 0.1 * tallest) continue; // a weak peak's repeat may hide in the noise
             var f = axis.Evaluate(peaks[i].X);
-            if (f + period <= fMax || f - period >= fMin) eligible.Add((peaks[i].X, matched[i]));
+            // the partner in the direction of increasing x: f + Δ (Δ carries the sweep's sign)
+            if (f + delta > fMin + 0.02 * period && f + delta < fMax - 0.02 * period) misses.Add((peaks[i].X, f, !forward[i]));
         }
 
-        if (eligible.Count < 6) yield break;
-        var total = eligible.Count(e => !e.Matched);
-        if (total <= 0.2 * eligible.Count) yield break;
-        // blocks of one period
-        var f0 = fMin;
-        var blocks = eligible.GroupBy(e => (int)Math.Floor((axis.Evaluate(e.X) - f0) / period)).OrderBy(g => g.Key);
+        if (misses.Count < 4) yield break;
+        var blocks = misses.GroupBy(m => (int)Math.Floor((m.F - fMin) / period)).OrderBy(g => g.Min(m => m.X));
         foreach (var g in blocks)
         {
             var n = g.Count();
-            var bad = g.Count(e => !e.Matched);
+            var bad = g.Count(m => m.Missing);
             if (n >= 3 && bad > 0.5 * n)
-                yield return $"{sweep.Name}: between x = {g.Min(e => e.X):G5} and {g.Max(e => e.X):G5} only {n - bad} of {n} peaks repeat one FSR away: the source changed during the sweep (a mode hop?) or these peaks are not source lines";
+                yield return $"{sweep.Name}: between x = {g.Min(m => m.X):G5} and {g.Max(m => m.X):G5} only {n - bad} of {n} clear peaks repeat one FSR later: " +
+                             "the source changed during the sweep (a mode hop?) or these peaks are not source lines; the axis rests on the other repeats";
         }
     }
 

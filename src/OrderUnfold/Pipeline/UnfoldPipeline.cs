@@ -67,20 +67,24 @@ public static class UnfoldPipeline
             Smoothness = solve.Smoothness,
             MinSnr = solve.MinSnr,
         };
-        var result = Unfolder.Run(calibrated, options, progress);
-
         // ---- FSR refinement (issue 3): Vernier ratio and/or a known interval; see Calibration/FsrRefiner.cs ----
+        UnfoldResult result;
         FsrRefinement? fsrRefinement = null;
         if (solve.RefineFsr || solve.KnownIntervalHz is not null)
         {
             progress?.Report("refining the FSRs from the lines");
             IReadOnlyList<CalibratedSweep> refined;
-            (refined, result, fsrRefinement) = FsrRefiner.RefineAndRerun(calibrated, result, options,
+            (refined, result, fsrRefinement) = FsrRefiner.UnfoldWithRefinement(calibrated, options,
                 new FsrRefineOptions { RefineRatio = solve.RefineFsr, KnownIntervalHz = solve.KnownIntervalHz }, progress);
             calibrated = refined.ToList();
             CalibrationSteps.ApplyFsrRefinement(fsrRefinement, instruments, calibrations);
             warnings.AddRange(fsrRefinement.Warnings);
         }
+        else
+        {
+            result = Unfolder.Run(calibrated, options, progress);
+        }
+
         // ---- end of FSR refinement ----
         Analysis.RefinementDiagnostics? refinement = null;
         if (solve.Refine && result.Lines.Count > 0)
