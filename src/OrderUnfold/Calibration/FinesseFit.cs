@@ -131,7 +131,7 @@ public static class FinesseFit
     /// <param name="maxPeaks">Most peaks fitted (the tallest isolated ones).</param>
     public static FinesseEstimate? FromSweep(Sweep sweep, AxisPolynomial axis, double periodHz, double finesseGuess, IReadOnlyList<Peak>? peaks = null, int maxPeaks = 24)
     {
-        peaks ??= PeakFinder.Find(sweep.X, sweep.Y, 0.05, 8);
+        peaks ??= ResolvedPeaks.Find(sweep.X, sweep.Y, 0.05, 8);
         if (peaks.Count == 0) return null;
         var noise = PeakFinder.NoiseSigma(sweep.Y);
         if (!(noise > 0)) return null;
@@ -151,7 +151,9 @@ public static class FinesseFit
         }).Where(q => q.Fwhm > 0 && q.Peak.X >= lo && q.Peak.X <= hi).ToList();
 
         var fits = new List<PeakProfileFit>();
+        var poor = new List<PeakProfileFit>();
         var samplesPerFwhm = new List<double>();
+        var poorSamples = new List<double>();
         foreach (var q in info.OrderByDescending(q => q.Peak.Height))
         {
             if (fits.Count >= maxPeaks) break;
@@ -161,20 +163,36 @@ public static class FinesseFit
             // stay inside the record: the whole window must be sampled
             if (Math.Abs(q.F - freq.Min()) < HalfWindowFwhm * q.Fwhm || Math.Abs(freq.Max() - q.F) < HalfWindowFwhm * q.Fwhm) continue;
             var fit = FitPeak(freq, sig, q.F, q.Fwhm, periodHz, noise, q.Peak.X);
-            if (fit is null || fit.ReducedChiSquare > 25) continue;
+            if (fit is null) continue;
+            // a fit far outside the noise is not an Airy peak (a blend of lines, a shoulder): kept aside
+            if (fit.ReducedChiSquare > 25)
+            {
+                poor.Add(fit);
+                poorSamples.Add(q.Peak.WidthSamples);
+                continue;
+            }
+
             fits.Add(fit);
             samplesPerFwhm.Add(q.Peak.WidthSamples);
         }
 
-        if (fits.Count == 0) return null;
         var warnings = new List<string>();
+        if (fits.Count == 0 && poor.Count > 0)
+        {
+            fits = poor;
+            samplesPerFwhm = poorSamples;
+            warnings.Add($"no peak fits the Airy profile within its noise (reduced χ² {poor.Min(p => p.ReducedChiSquare):F0} at best): the finesse below is only an effective width");
+        }
+
+        if (fits.Count == 0) return null;
         var weights = fits.Select(p => 1 / (p.FinesseSigma * p.FinesseSigma)).ToArray();
         var sw = weights.Sum();
         var mean = fits.Select((p, i) => weights[i] * p.Finesse).Sum() / sw;
         var scatter = fits.Count > 1 ? fits.Select((p, i) => weights[i] * (p.Finesse - mean) * (p.Finesse - mean)).Sum() / (fits.Count - 1) : 1.0;
         var sigma = Math.Sqrt(1 / sw) * Math.Sqrt(Math.Max(1, scatter));
-        var consistent = fits.Count < 3 || scatter <= 6;
-        if (!consistent)
+        var scattered = fits.Count >= 3 && scatter > 6;
+        var consistent = !scattered && !ReferenceEquals(fits, poor);
+        if (scattered)
         {
             var sorted = fits.Select(p => p.Finesse).OrderBy(v => v).ToArray();
             warnings.Add($"the widths of the {fits.Count} fitted peaks differ more than their noise allows (finesse {sorted[0]:F0} to {sorted[^1]:F0}, scatter χ² {scatter:F1}): " +

@@ -41,7 +41,7 @@ public static class TransverseModes
         var warnings = new List<string>();
         var lo = axis.XMin - 0.02 * (axis.XMax - axis.XMin);
         var hi = axis.XMax + 0.02 * (axis.XMax - axis.XMin);
-        var peaks = PeakFinder.Find(sweep.X, sweep.Y, 0.03, 6).Where(p => p.X >= lo && p.X <= hi).ToList();
+        var peaks = ResolvedPeaks.Find(sweep.X, sweep.Y, 0.03, 6).Where(p => p.X >= lo && p.X <= hi).ToList();
         if (peaks.Count < 2) return new TransverseModeReport([], peaks.Count, null, warnings);
         var strongest = peaks.MaxBy(p => p.Height)!;
         var f0 = axis.Evaluate(strongest.X);
