@@ -163,15 +163,16 @@ public static class FsrRefiner
             var farthest = currentResult.Lines.Count == 0 ? 0 : currentResult.Lines.Max(l => Math.Abs(l.FrequencyHz));
             var narrow = current.Min(s => s.Instrument.LinewidthHz);
             var biggest = est.Scales.Values.Max(v => Math.Abs(v.Scale - 1));
+            var negligible = biggest * farthest < 0.02 * narrow; // moves no line noticeably: keep this unfold and its scales
             foreach (var (n, v) in est.Scales)
             {
-                scale[n] *= v.Scale;
+                if (!negligible) scale[n] *= v.Scale;
                 relSigma[n] = v.RelativeSigma;
-                basis[n] = v.Basis;
+                if (!negligible || basis[n] == "stated FSR") basis[n] = v.Basis;
             }
 
             if (est.Intervals.Count > 0) intervals = est.Intervals;
-            if (biggest * farthest < 0.02 * narrow) break; // the correction moves no line noticeably: keep this unfold
+            if (negligible) break;
             progress?.Report($"unfolding with refined FSRs (round {round + 1})");
             current = sweeps.Select(s => Rescale(s, scale[s.Instrument.Name])).ToList();
             currentResult = Unfolder.Run(current, unfoldOptions);
@@ -197,7 +198,7 @@ public static class FsrRefiner
 
     private sealed record Feature(double U, double Height, int Count);
 
-    private sealed record PrescanResult(Dictionary<string, double> Scales, Dictionary<string, string> Basis, List<string> Notes, List<string> Warnings);
+    internal sealed record PrescanResult(Dictionary<string, double> Scales, Dictionary<string, string> Basis, List<string> Notes, List<string> Warnings);
 
     /// <summary>
     /// Coarse FSR corrections from the folded peak positions of each instrument (relative to its strongest
@@ -206,7 +207,7 @@ public static class FsrRefiner
     /// give s. Without one, the ratio to the reference is scanned: at the right ratio every folded peak of
     /// either instrument is explained by some order of a peak of the other.
     /// </summary>
-    private static PrescanResult Prescan(IReadOnlyList<CalibratedSweep> sweeps, UnfoldOptions unfoldOptions, FsrRefineOptions options, bool ratio)
+    internal static PrescanResult Prescan(IReadOnlyList<CalibratedSweep> sweeps, UnfoldOptions unfoldOptions, FsrRefineOptions options, bool ratio)
     {
         var names = sweeps.Select(s => s.Instrument.Name).Distinct().ToList();
         var reference = options.ReferenceInstrument ?? names[0];

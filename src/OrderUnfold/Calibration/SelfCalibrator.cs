@@ -8,7 +8,7 @@ namespace OrderUnfold.Calibration;
 /// <summary>Options of <see cref="SelfCalibrator"/>.</summary>
 public sealed record SelfCalibrationOptions
 {
-    /// <summary>Polynomial degree of the axis; null chooses it by the Bayesian information criterion.</summary>
+    /// <summary>Polynomial degree of the axis; null chooses it by leave-one-out cross-validation over the pairs.</summary>
     public int? Degree { get; init; }
 
     /// <summary>Largest degree tried when the degree is chosen from the data.</summary>
@@ -63,9 +63,10 @@ public sealed record RepeatPair(double XA, double XB, double HeightA, double Hei
 /// <summary>How one polynomial degree scored.</summary>
 /// <param name="Degree">Degree.</param>
 /// <param name="ChiSquare">Weighted residual sum of squares.</param>
-/// <param name="Bic">Bayesian information criterion n·ln(χ²/n) + d·ln n (lower is better).</param>
+/// <param name="Bic">Bayesian information criterion n·ln(χ²/n) + d·ln n (lower is better), for reference.</param>
+/// <param name="LeaveOneOut">Leave-one-out prediction error Σ (rᵢ/(1 − hᵢᵢ))² of the whitened constraints (PRESS), which chooses the degree.</param>
 /// <param name="Monotone">Whether the axis is monotone over the calibrated range.</param>
-public sealed record DegreeScore(int Degree, double ChiSquare, double Bic, bool Monotone);
+public sealed record DegreeScore(int Degree, double ChiSquare, double Bic, double LeaveOneOut, bool Monotone);
 
 /// <summary>What <see cref="SelfCalibrator.Calibrate"/> found.</summary>
 /// <param name="Calibration">The axis, ready for the pipeline (method, residuals, finesse, warnings).</param>
@@ -84,8 +85,8 @@ public sealed record SelfCalibrationResult(AxisCalibration Calibration, IReadOnl
 /// polynomial's coefficients. A starting axis comes from the local autocorrelation of the sweep (or from
 /// a calibration sweep); each peak's repeat is then looked for in a tight window around the position the
 /// current axis predicts, with a consistent height and width; all pairs are fitted jointly, outliers are
-/// rejected by their residuals, and the rounds repeat with a narrowing window. The degree is chosen by BIC
-/// among monotone fits; the axis residual and its uncertainty are reported.
+/// rejected by their leave-one-out residuals, and the rounds repeat with a narrowing window. The degree is
+/// chosen by leave-one-out cross-validation among monotone fits; the axis residual and its uncertainty are reported.
 /// </summary>
 public static class SelfCalibrator
 {
@@ -120,29 +121,35 @@ public static class SelfCalibrator
 
         // starting axis, and the candidate periods it allows
         var companionPairs = CompanionPairs(options.Companion, instrument);
-        List<(AxisPolynomial Axis, double RmsHz)> starts;
-        double initialPeriodSamples;
+        var starts = new List<(AxisPolynomial Axis, double RmsHz)>();
+        var initialPeriodSamples = double.NaN;
         if (options.InitialAxis is not null || options.Companion is not null)
         {
+            // a given axis is one start; it may be good only near the calibration peaks, so the sweep's own
+            // autocorrelation gives further starts when it can
             var axis0 = options.InitialAxis ?? options.Companion!.Axis;
             var rms0 = Math.Max(options.Companion?.ResidualRmsHz is double r && double.IsFinite(r) ? r : 0, 0.02 * period);
-            starts = [(axis0, rms0)];
+            starts.Add((axis0, rms0));
             initialPeriodSamples = SamplesPerPeriod(sweep, axis0, period);
         }
-        else
+
+        try
         {
             var (axis0, rms0, lag) = StartFromCorrelation(sweep, instrument, period, delta, medianWidthSamples, estimatedSpan);
-            initialPeriodSamples = lag;
+            if (double.IsNaN(initialPeriodSamples)) initialPeriodSamples = lag;
             // A source whose folded pattern nearly repeats within one FSR correlates almost as well at a fraction of
             // the period, and every pattern repeats at multiples of it: try the multiples that fit in the sweep and
             // let the pairs decide (see Choose).
-            starts = [];
             foreach (var k in new[] { 1.0, 2, 3, 4, 0.5 })
             {
                 var lagK = k * lag;
                 if (lagK > sweep.Count / MinSpanFsr || lagK < 3 * medianWidthSamples) continue;
                 starts.Add((axis0.Scaled(1 / k), rms0 / k));
             }
+        }
+        catch (InputException) when (starts.Count > 0)
+        {
+            // no repeat period in the sweep's own autocorrelation: the given axis remains the only start
         }
 
         var runs = new List<Run>();
@@ -193,7 +200,7 @@ public static class SelfCalibrator
             warnings.Add($"{sweep.Name}: only {usedPairs.Count} repeat pairs support a degree-{final.Degree} axis; the non-linearity of the piezo is poorly pinned");
         var atMax = scores.FirstOrDefault(d => d.Degree == final.Degree);
         var below = scores.FirstOrDefault(d => d.Degree == final.Degree - 1);
-        if (options.Degree is null && final.Degree == options.MaxDegree && atMax is not null && below is not null && below.Bic - atMax.Bic > 10)
+        if (options.Degree is null && final.Degree == options.MaxDegree && atMax is not null && below is not null && below.LeaveOneOut > 2 * atMax.LeaveOneOut)
             warnings.Add($"{sweep.Name}: the axis needed degree {final.Degree}, the largest tried; the ramp may be more non-linear than a polynomial describes");
         warnings.AddRange(UnrepeatedStretches(sweep, peaks, pairs, final, delta, xLo, xHi));
 
@@ -565,7 +572,7 @@ public static class SelfCalibrator
 
     // ------------------------------------------------------------------ fitting
 
-    private sealed record Fit(AxisPolynomial Axis, double ChiSquare, double AxisSigmaHz, double[] Leverage);
+    private sealed record Fit(AxisPolynomial Axis, double ChiSquare, double AxisSigmaHz, double[] Leverage, double Press);
 
     private static (Fit Fit, List<DegreeScore> Scores) FitWithRejection(List<Cand> all, Sweep sweep, SelfCalibrationOptions options, double xLo, double xHi)
     {
@@ -621,27 +628,30 @@ public static class SelfCalibrator
             var f = Solve(used, d, sweep.X[0], xLo, xHi)
                     ?? throw new InputException($"{sweep.Name}: the repeat pairs cannot determine a degree-{d} axis (they cover too little of the sweep)", sweep.Source);
             var mono = f.Axis.IsMonotone(f.Axis.XMin, f.Axis.XMax, 801);
-            scores.Add(new DegreeScore(d, f.ChiSquare, Bic(f.ChiSquare, n, d, period), mono));
+            scores.Add(new DegreeScore(d, f.ChiSquare, Bic(f.ChiSquare, n, d, period), f.Press, mono));
             if (!mono)
                 throw new InputException($"{sweep.Name}: the fitted degree-{d} axis is not monotone over the sweep; lower the degree", sweep.Source);
             return (f, scores);
         }
 
-        Fit? best = null;
-        var bestBic = double.PositiveInfinity;
+        // degree by leave-one-out cross-validation over the constraints (PRESS); of degrees that predict about
+        // as well (within 5 %), the lowest: a high degree on few pairs bends at the ends, which PRESS sees
+        var fits = new List<Fit>();
         var maxDegree = Math.Max(1, Math.Min(options.MaxDegree, n - 2));
         for (var deg = 1; deg <= maxDegree; deg++)
         {
             var f = Solve(used, deg, sweep.X[0], xLo, xHi);
             if (f is null) break;
             var mono = f.Axis.IsMonotone(f.Axis.XMin, f.Axis.XMax, 801);
-            var bic = Bic(f.ChiSquare, n, deg, period);
-            scores.Add(new DegreeScore(deg, f.ChiSquare, bic, mono));
-            if (mono && bic < bestBic - 1e-9)
-            {
-                bestBic = bic;
-                best = f;
-            }
+            scores.Add(new DegreeScore(deg, f.ChiSquare, Bic(f.ChiSquare, n, deg, period), f.Press, mono));
+            if (mono && double.IsFinite(f.Press)) fits.Add(f);
+        }
+
+        Fit? best = null;
+        if (fits.Count > 0)
+        {
+            var minPress = fits.Min(f => f.Press);
+            best = fits.First(f => f.Press <= 1.05 * minPress + 1e-12);
         }
 
         if (best is null)
@@ -748,7 +758,10 @@ public static class SelfCalibrator
             leverage[k] = Math.Min(h, 0.99);
         }
 
-        return new Fit(axis, chi, sigma, leverage);
+        // leave-one-out prediction error (PRESS): each constraint predicted by the fit to all the others
+        var press = 0.0;
+        for (var k = 0; k < n; k++) press += Math.Pow(resid[k] / (1 - leverage[k]), 2);
+        return new Fit(axis, chi, sigma, leverage, press);
     }
 
     // ------------------------------------------------------------------ diagnostics

@@ -85,7 +85,9 @@ public sealed class SelfCalibratorTests(ITestOutputHelper output)
         var dCal = srcSweep.X.Select((x, i) => fromCal.Axis.Evaluate(x) - src.TrueScanHz[i]).ToArray();
         var calOnly = Math.Sqrt(dCal.Average(v => (v - dCal.Average()) * (v - dCal.Average())));
 
-        var joint = SelfCalibrator.Calibrate(srcSweep, inst, new SelfCalibrationOptions { Companion = fromCal }).Calibration;
+        var jr = SelfCalibrator.Calibrate(srcSweep, inst, new SelfCalibrationOptions { Companion = fromCal });
+        var joint = jr.Calibration;
+        foreach (var d in jr.Degrees) output.WriteLine($"degree {d.Degree}: χ² {d.ChiSquare:G4}, PRESS {d.LeaveOneOut:G4}, monotone {d.Monotone}");
         var jointRms = AxisRmsHz(joint.Axis, srcSweep, src.TrueScanHz);
         output.WriteLine($"calibration sweep alone: {calOnly / 1e6:F1} MHz RMS over the source sweep; jointly: {jointRms / 1e3:F1} kHz ({joint.Method})");
         Assert.Contains("jointly", joint.Method);
