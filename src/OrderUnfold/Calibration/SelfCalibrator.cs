@@ -76,8 +76,17 @@ public sealed record DegreeScore(int Degree, double ChiSquare, double Bic, doubl
 /// <param name="AxisSigmaHz">RMS standard uncertainty of the axis over the calibrated range (constant removed), Hz.</param>
 /// <param name="Iterations">Pairing rounds used.</param>
 /// <param name="InitialPeriodSamples">Samples per period at the sweep centre according to the starting axis.</param>
+/// <param name="Candidates">Every starting period tried and how its pairs scored.</param>
 public sealed record SelfCalibrationResult(AxisCalibration Calibration, IReadOnlyList<RepeatPair> Pairs, IReadOnlyList<Peak> Peaks,
-    IReadOnlyList<DegreeScore> Degrees, double AxisSigmaHz, int Iterations, double InitialPeriodSamples);
+    IReadOnlyList<DegreeScore> Degrees, double AxisSigmaHz, int Iterations, double InitialPeriodSamples, IReadOnlyList<PeriodCandidate> Candidates);
+
+/// <summary>One starting period tried by the self-calibration.</summary>
+/// <param name="PeriodSamples">Samples per period at the sweep centre on the axis this start converged to (NaN when it found no pairs).</param>
+/// <param name="Pairs">Repeat pairs used.</param>
+/// <param name="Coverage">Height-weighted share of the peaks that could have a repeat inside the sweep and have one.</param>
+/// <param name="HeightMismatch">Median of |ln(h_b/h_a)| about its trend along the sweep, in units of its noise (about 0.7 for true repeats).</param>
+/// <param name="Chosen">Whether this start gave the axis.</param>
+public sealed record PeriodCandidate(double PeriodSamples, int Pairs, double Coverage, double HeightMismatch, bool Chosen);
 
 /// <summary>
 /// Calibrates a sweep axis from the sweep itself: every feature of the source repeats exactly one FSR later,
@@ -158,7 +167,7 @@ public static class SelfCalibrator
         {
             try
             {
-                runs.Add(Rounds(peaks, companionPairs, axis0, rms0, delta, sweep, options, xLo, xHi));
+                runs.Add(Rounds(peaks, companionPairs, axis0, rms0, delta, sweep, options, xLo, xHi, noise));
             }
             catch (InputException e)
             {
@@ -233,7 +242,8 @@ public static class SelfCalibrator
             FinesseDetail = finesse,
         };
         var reportPairs = allPairs.Select(c => new RepeatPair(c.XA, c.XB, c.HA, c.HB, c.Delta, c.Sigma, c.Origin, c.Residual, c.Used)).ToList();
-        return new SelfCalibrationResult(calibration, reportPairs, found, scores, fit.AxisSigmaHz, iterations, initialPeriodSamples);
+        var candidates = runs.Select(r => new PeriodCandidate(r.PeriodSamples, r.Pairs.Count(c => c.Used), r.Coverage, r.HeightMismatch, ReferenceEquals(r, chosen))).ToList();
+        return new SelfCalibrationResult(calibration, reportPairs, found, scores, fit.AxisSigmaHz, iterations, initialPeriodSamples, candidates);
     }
 
     // ------------------------------------------------------------------ rounds
@@ -246,7 +256,7 @@ public static class SelfCalibrator
 
     /// <summary>Rounds of pairing and fitting from one starting axis, with a window that narrows as the axis improves.</summary>
     private static Run Rounds(List<P> peaks, List<Cand> companionPairs, AxisPolynomial axis, double rmsHz, double delta, Sweep sweep,
-        SelfCalibrationOptions options, double xLo, double xHi)
+        SelfCalibrationOptions options, double xLo, double xHi, double noise)
     {
         List<Cand> pairs = [];
         List<DegreeScore> scores = [];
@@ -294,19 +304,31 @@ public static class SelfCalibrator
                 paired.Add(c.B);
             }
 
-            var eligible = 0;
-            var hit = 0;
+            // weighted by height: a weak peak's repeat may sink into the noise
+            double eligible = 0, hit = 0;
             for (var i = 0; i < peaks.Count; i++)
             {
                 var f = fit.Axis.Evaluate(peaks[i].X);
                 if (!(f + period <= fMax - 0.01 * period || f - period >= fMin + 0.01 * period)) continue;
-                eligible++;
-                if (paired.Contains(i)) hit++;
+                eligible += peaks[i].Height;
+                if (paired.Contains(i)) hit += peaks[i].Height;
             }
 
-            coverage = eligible > 0 ? hit / (double)eligible : 0;
-            var logs = pairs.Where(c => c.Used).Select(c => Math.Abs(Math.Log(c.HB / c.HA))).OrderBy(v => v).ToList();
-            mismatch = logs.Count > 0 ? logs[logs.Count / 2] : double.PositiveInfinity;
+            coverage = eligible > 0 ? hit / eligible : 0;
+            // height mismatch in units of its noise, about a linear trend along the sweep (laser power drift):
+            // about 0.7 for true repeats, many times that for look-alikes of other heights
+            var used = pairs.Where(c => c.Used && c.A >= 0).ToList();
+            if (used.Count > 0)
+            {
+                var model = used.Count >= 4 ? HeightModel.From(used) : null;
+                var z = used.Select(c =>
+                {
+                    var trend = model is null ? 0 : model.Intercept + model.Slope * c.XA;
+                    var sigma = Math.Sqrt(Sq(noise / c.HA) + Sq(noise / c.HB)) + 1e-4;
+                    return Math.Abs(Math.Log(c.HB / c.HA) - trend) / sigma;
+                }).OrderBy(v => v).ToList();
+                mismatch = z[z.Count / 2];
+            }
         }
 
         var periodSamples = fit is null ? double.NaN : SamplesPerPeriod(sweep, fit.Axis, Math.Abs(delta));
@@ -327,7 +349,7 @@ public static class SelfCalibrator
         // heights differ; of the runs with consistent heights, those with about the best coverage are whole
         // multiples of the period, and the shortest is the period
         var bestMismatch = valid.Min(r => r.HeightMismatch);
-        var consistent = valid.Where(r => r.HeightMismatch <= 1.5 * bestMismatch + 0.02).ToList();
+        var consistent = valid.Where(r => r.HeightMismatch <= Math.Max(2 * bestMismatch, bestMismatch + 1.5)).ToList();
         var bestCoverage = consistent.Max(r => r.Coverage);
         var viable = consistent.Where(r => r.Coverage >= 0.85 * bestCoverage).ToList();
         return viable.MinBy(r => r.PeriodSamples)!;
