@@ -22,10 +22,63 @@ public static class CalibrationSteps
     {
         var period = instrument.FsrHz * wavelengthRatio;
         var warnings = axis.Warnings.ToList();
+        var transverse = TransverseModes.Detect(sweep, axis.Axis, instrument, period, axis.Finesse);
+
+        // Numbering every peak as the next FSR fails when a transverse family adds peaks: with a strong half-FSR
+        // family the peaks alternate in height and the axis comes out at twice its scale without any irregular spacing.
+        // Then fit the axis to repeats one FSR apart, which pairs only peaks of the same family.
+        var suspicious = transverse.AlternationRatio is < 0.75 || axis.Warnings.Any(w => w.Contains("typical spacings apart", StringComparison.Ordinal));
+        if (suspicious && axis.PointCount >= 3)
+        {
+            try
+            {
+                var repeats = SelfCalibrator.Calibrate(sweep, instrument, new SelfCalibrationOptions { PeriodHz = period, FitFinesse = false }).Calibration;
+                var mid = 0.5 * (repeats.Axis.XMin + repeats.Axis.XMax);
+                var scale = repeats.Axis.Derivative(mid) / axis.Axis.Derivative(mid);
+                var useRepeats = repeats.ResidualRmsHz < 0.5 * axis.ResidualRmsHz;
+                if (Math.Abs(scale - 1) > 0.05)
+                {
+                    // two readings of the same peaks: every peak is one FSR (a confocal cavity showing both transverse
+                    // families, FSR = c/4L), or every second one is (an extra family). The finesse on each axis decides:
+                    // the wrong one scales the peak widths by the same factor.
+                    var fNumbered = FinesseFit.FromSweep(sweep, axis.Axis, period, instrument.Finesse)?.Finesse;
+                    var fRepeats = FinesseFit.FromSweep(sweep, repeats.Axis, period, instrument.Finesse)?.Finesse;
+                    double Off(double? f) => f is double v && v > 0 ? Math.Abs(Math.Log(v / instrument.Finesse)) : double.PositiveInfinity;
+                    useRepeats = Off(fRepeats) < Off(fNumbered);
+                    warnings.Add(useRepeats
+                        ? $"{sweep.Name}: not every calibration peak is the next FSR (extra peaks of another transverse family): fitted to repeats one FSR apart instead, which changes the axis scale by {100 * (scale - 1):+0.0;-0.0} % and gives finesse {fRepeats:F0} against the stated {instrument.Finesse:F0} (numbering every peak gives {fNumbered:F0})"
+                        : $"{sweep.Name}: the calibration peaks alternate in height; every peak was taken as the next FSR because that gives finesse {fNumbered:F0}, close to the stated {instrument.Finesse:F0} (taking every second peak would give {fRepeats:F0})");
+                }
+
+                if (useRepeats)
+                {
+                    warnings.AddRange(repeats.Warnings);
+                    axis = axis with
+                    {
+                        Method = "calibration sweep (repeats one FSR apart; extra peaks left out)",
+                        Axis = repeats.Axis,
+                        PointX = repeats.PointX,
+                        PointHz = repeats.PointHz,
+                        ResidualHz = repeats.ResidualHz,
+                        ResidualRmsHz = repeats.ResidualRmsHz,
+                        PairsUsed = repeats.PairsUsed,
+                        PairsRejected = repeats.PairsRejected,
+                        AxisSigmaHz = repeats.AxisSigmaHz,
+                        Finesse = null,
+                        FinesseSigma = null,
+                    };
+                }
+            }
+            catch (InputException e)
+            {
+                warnings.Add($"{sweep.Name}: the calibration peaks look like two transverse families, but fitting repeats one FSR apart failed too: {e.Message}");
+            }
+        }
+
         var finesse = FinesseFit.FromSweep(sweep, axis.Axis, period, instrument.Finesse);
         if (finesse is not null) warnings.AddRange(finesse.Warnings.Select(w => $"{sweep.Name}: {w}"));
         var measured = finesse is { Consistent: true } ? finesse.Finesse : axis.Finesse;
-        var transverse = TransverseModes.Detect(sweep, axis.Axis, instrument, period, measured);
+        transverse = TransverseModes.Detect(sweep, axis.Axis, instrument, period, measured);
         warnings.AddRange(transverse.Warnings);
         return axis with
         {
@@ -33,7 +86,7 @@ public static class CalibrationSteps
             FinesseSigma = finesse is { Consistent: true } ? finesse.Sigma : axis.FinesseSigma,
             FinesseDetail = finesse,
             TransverseModes = transverse,
-            Warnings = warnings,
+            Warnings = warnings.Distinct().ToList(),
         };
     }
 

@@ -163,16 +163,21 @@ public static class FsrRefiner
             var farthest = currentResult.Lines.Count == 0 ? 0 : currentResult.Lines.Max(l => Math.Abs(l.FrequencyHz));
             var narrow = current.Min(s => s.Instrument.LinewidthHz);
             var biggest = est.Scales.Values.Max(v => Math.Abs(v.Scale - 1));
-            var negligible = biggest * farthest < 0.02 * narrow; // moves no line noticeably: keep this unfold and its scales
             foreach (var (n, v) in est.Scales)
             {
-                if (!negligible) scale[n] *= v.Scale;
+                scale[n] *= v.Scale;
                 relSigma[n] = v.RelativeSigma;
-                if (!negligible || basis[n] == "stated FSR") basis[n] = v.Basis;
+                basis[n] = v.Basis;
             }
 
             if (est.Intervals.Count > 0) intervals = est.Intervals;
-            if (negligible) break;
+            if (biggest * farthest < 0.02 * narrow)
+            {
+                // the correction moves no line by a fiftieth of a linewidth: keep this unfold, carry the scales
+                current = sweeps.Select(s => Rescale(s, scale[s.Instrument.Name])).ToList();
+                break;
+            }
+
             progress?.Report($"unfolding with refined FSRs (round {round + 1})");
             current = sweeps.Select(s => Rescale(s, scale[s.Instrument.Name])).ToList();
             currentResult = Unfolder.Run(current, unfoldOptions);

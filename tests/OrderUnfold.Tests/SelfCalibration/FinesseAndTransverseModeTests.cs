@@ -140,6 +140,14 @@ public sealed class FinesseAndTransverseModeTests(ITestOutputHelper output)
         Assert.NotNull(report.AlternationRatio);
         Assert.InRange(report.AlternationRatio!.Value, 0.35, 0.45);
         Assert.Contains(report.Warnings, w => w.Contains("alternate in height"));
+
+        // here every peak is one FSR: the check keeps the numbering (the finesse on it matches the stated one)
+        var numbered = AxisCalibrator.FromCalibrationSweep(sweep, inst);
+        var checkedAxis = OrderUnfold.Calibration.CalibrationSteps.DescribeCalibrationSweep(numbered, sweep, inst);
+        foreach (var w in checkedAxis.Warnings) output.WriteLine(w);
+        var mid = 0.5 * (axis.XMin + axis.XMax);
+        Assert.InRange(checkedAxis.Axis.Derivative(mid) / axis.Derivative(mid), 0.999, 1.001);
+        Assert.Equal("calibration sweep", checkedAxis.Method);
     }
 
     [Fact]
@@ -150,5 +158,26 @@ public sealed class FinesseAndTransverseModeTests(ITestOutputHelper output)
         var report = TransverseModes.Detect(sweep, axis, inst, Fsr, 155.5);
         Assert.Empty(report.Families);
         Assert.Empty(report.Warnings);
+    }
+
+    [Fact]
+    public void A_strong_half_FSR_family_does_not_double_the_calibration_axis()
+    {
+        // misaligned planar cavity: a transverse family half an FSR from the main peaks at 45 % height. Numbering
+        // every peak as the next FSR gives an axis at twice the scale without any irregular spacing; the check refits the
+        // axis to repeats one FSR apart and reports the family.
+        var inst = new Instrument("P", Fsr, 155.5);
+        var (sweep, truth) = Sweep(nu => AiryR(nu, 0.98) + 0.45 * AiryR(nu - Fsr / 2, 0.98), spanFsr: 6, samples: 9000, seed: 7, name: "misaligned.csv");
+        var numbered = AxisCalibrator.FromCalibrationSweep(sweep, inst);
+        var mid = 0.5 * (numbered.Axis.XMin + numbered.Axis.XMax);
+        output.WriteLine($"numbering every peak: slope {numbered.Axis.Derivative(mid) / truth.Derivative(mid):F3} of the truth");
+        Assert.InRange(numbered.Axis.Derivative(mid) / truth.Derivative(mid), 1.95, 2.05);
+        var checkedAxis = OrderUnfold.Calibration.CalibrationSteps.DescribeCalibrationSweep(numbered, sweep, inst);
+        foreach (var w in checkedAxis.Warnings) output.WriteLine(w);
+        Assert.InRange(checkedAxis.Axis.Derivative(mid) / truth.Derivative(mid), 0.999, 1.001);
+        Assert.Contains("extra peaks left out", checkedAxis.Method);
+        var family = Assert.Single(checkedAxis.TransverseModes!.Families);
+        Assert.True(family.HalfPeriod);
+        Assert.InRange(checkedAxis.Finesse!.Value, 150, 161);
     }
 }
