@@ -11,6 +11,7 @@ public static class CommandList
     [
         new DemoCommand(),
         new UnfoldCommand(),
+        new CalibrateCommand(),
         new InitCommand(),
         new SimulateCommand(),
         new PlanCommand(),

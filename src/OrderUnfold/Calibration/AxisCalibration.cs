@@ -34,6 +34,24 @@ public sealed record AxisCalibration(
     IReadOnlyList<string> Warnings)
 {
     public int PointCount => PointX.Length;
+
+    /// <summary>True when the axis was fitted to repeats of the source one FSR apart (self-calibration).</summary>
+    public bool FromRepeats { get; init; }
+
+    /// <summary>Constraints (repeat pairs and calibration intervals) used by a self-calibration.</summary>
+    public int PairsUsed { get; init; }
+
+    /// <summary>Constraints rejected as outliers by a self-calibration.</summary>
+    public int PairsRejected { get; init; }
+
+    /// <summary>RMS standard uncertainty of the axis shape over the calibrated range (additive constant removed), Hz, when estimated.</summary>
+    public double? AxisSigmaHz { get; init; }
+
+    /// <summary>The Airy fits behind <see cref="Finesse"/> when the finesse was fitted to isolated peaks.</summary>
+    public FinesseEstimate? FinesseDetail { get; init; }
+
+    /// <summary>Transverse-mode families seen in a calibration sweep, when checked.</summary>
+    public TransverseModeReport? TransverseModes { get; init; }
 }
 
 /// <summary>Builds sweep axes from calibration sweeps (a single-frequency laser through the same cavity and ramp).</summary>

@@ -100,6 +100,30 @@ public sealed record SolveOptions
 
     /// <summary>Δχ² to the best alternative placement below which a line's order is doubtful. Default 25.</summary>
     public double DoubtfulDeltaChiSquare { get; init; } = 25;
+
+    /// <summary>When to calibrate sweep axes from the source's own repeats one FSR apart. Default auto.</summary>
+    public SelfCalibrationMode SelfCalibrate { get; init; } = SelfCalibrationMode.Auto;
+
+    /// <summary>A frequency interval known to separate lines (RF sidebands of a phase modulator at this frequency,
+    /// a known splitting), Hz; it calibrates the absolute FSR. Null: none.</summary>
+    public double? KnownIntervalHz { get; init; }
+
+    /// <summary>Refine the FSR ratios between instruments from the Vernier pattern of the lines. Default false.</summary>
+    public bool RefineFsr { get; init; }
+}
+
+/// <summary>When sweep axes are calibrated from the source sweeps themselves (repeats one FSR apart).</summary>
+public enum SelfCalibrationMode
+{
+    /// <summary>When an instrument and ramp direction has no calibration sweep, or one with three peaks or fewer
+    /// (then jointly with those peaks).</summary>
+    Auto,
+
+    /// <summary>Every source sweep, jointly with the calibration sweep's peaks where there are any.</summary>
+    Always,
+
+    /// <summary>Never: every instrument and direction needs a calibration sweep.</summary>
+    Never,
 }
 
 /// <summary>Everything a setup file says. Paths inside are already resolved relative to the setup file.</summary>

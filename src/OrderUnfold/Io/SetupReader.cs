@@ -47,6 +47,13 @@ public static class SetupReader
         ["false"] = false,
     };
 
+    private static readonly Dictionary<string, SelfCalibrationMode> SelfCalibrationModes = new(StringComparer.OrdinalIgnoreCase)
+    {
+        ["auto"] = SelfCalibrationMode.Auto,
+        ["always"] = SelfCalibrationMode.Always,
+        ["never"] = SelfCalibrationMode.Never,
+    };
+
     private static readonly Dictionary<string, DirectionChoice> Directions = new(StringComparer.OrdinalIgnoreCase)
     {
         ["both"] = DirectionChoice.Both,
@@ -393,8 +400,14 @@ public static class SetupReader
             var doubtful = t.OptionalNumber("doubtful_delta_chi2") ?? 25.0;
             if (doubtful <= 0) throw t.AtValue("doubtful_delta_chi2", $"doubtful_delta_chi2 must be positive but got {t.ValueText("doubtful_delta_chi2")}");
 
+            var knownInterval = t.OptionalQuantity("known_interval", Dimension.Frequency);
+            if (knownInterval is <= 0) throw t.AtValue("known_interval", $"known_interval must be a positive frequency but got {t.ValueText("known_interval")}");
+
             return new SolveOptions
             {
+                SelfCalibrate = t.Choice("self_calibrate", SelfCalibrationModes, SelfCalibrationMode.Auto),
+                KnownIntervalHz = knownInterval,
+                RefineFsr = t.OptionalBool("refine_fsr") ?? false,
                 Refine = refine,
                 FitWidths = fitWidths,
                 Bootstrap = (int)bootstrap,

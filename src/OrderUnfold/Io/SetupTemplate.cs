@@ -102,6 +102,9 @@ internal static class SetupTemplate
         fit_widths = false                # also fit an intrinsic (Lorentzian) width per line
         bootstrap = 0                     # residual-bootstrap replicates for frequency errors (0: none)
         doubtful_delta_chi2 = 25.0        # a line whose best alias fits within this Δχ² is called doubtful
+        self_calibrate = "auto"           # axes from the source's own repeats one FSR apart: "auto", "always" or "never"
+        # known_interval = "2.5 GHz"      # lines this far apart (e.g. phase-modulator sidebands) fix the absolute FSR
+        refine_fsr = false                # refine the FSR ratio of the cavities from the lines' Vernier pattern
 
         """;
 }

@@ -141,6 +141,14 @@ public static class SetupWriter
         Key(w, "fit_widths", s.FitWidths ? "true" : "false");
         Key(w, "bootstrap", s.Bootstrap.ToString(System.Globalization.CultureInfo.InvariantCulture));
         Key(w, "doubtful_delta_chi2", Number(s.DoubtfulDeltaChiSquare, "doubtful_delta_chi2"));
+        Key(w, "self_calibrate", Str(s.SelfCalibrate switch
+        {
+            SelfCalibrationMode.Always => "always",
+            SelfCalibrationMode.Never => "never",
+            _ => "auto",
+        }));
+        if (s.KnownIntervalHz is double interval) Key(w, "known_interval", Quantity(interval, FrequencyUnits, "known_interval"));
+        Key(w, "refine_fsr", s.RefineFsr ? "true" : "false");
     }
 
     private static void Key(StringBuilder w, string key, string value) => w.Append(key).Append(" = ").Append(value).Append('\n');

@@ -38,7 +38,7 @@ public static class UnfoldPipeline
                 var seg = segment;
                 var axis = FindAxis(calibrations, spec.Instrument, seg, warnings);
                 if (axis is null)
-                    throw new InputException($"no calibration for instrument '{spec.Instrument}' ({Direction(seg.Direction)} ramp): add a [[calibration]] table with a calibration-laser sweep for it", setup.Path);
+                    throw new InputException($"no calibration for instrument '{spec.Instrument}' ({Direction(seg.Direction)} ramp): add a [[calibration]] table with a calibration-laser sweep for it, or set self_calibrate = \"auto\" in [solve]", setup.Path);
                 // keep only samples inside the calibrated range (plus a small margin): a polynomial axis is not
                 // trusted where it is extrapolated, and a misplaced peak there would be fitted with spurious lines
                 var range = axis.Axis.XMax - axis.Axis.XMin;
@@ -70,7 +70,25 @@ public static class UnfoldPipeline
             Smoothness = solve.Smoothness,
             MinSnr = solve.MinSnr,
         };
-        var result = Unfolder.Run(calibrated, options, progress);
+        // ---- FSR refinement (issue 3): Vernier ratio and/or a known interval; see Calibration/FsrRefiner.cs ----
+        UnfoldResult result;
+        FsrRefinement? fsrRefinement = null;
+        if (solve.RefineFsr || solve.KnownIntervalHz is not null)
+        {
+            progress?.Report("refining the FSRs from the lines");
+            IReadOnlyList<CalibratedSweep> refined;
+            (refined, result, fsrRefinement) = FsrRefiner.UnfoldWithRefinement(calibrated, options,
+                new FsrRefineOptions { RefineRatio = solve.RefineFsr, KnownIntervalHz = solve.KnownIntervalHz }, progress);
+            calibrated = refined.ToList();
+            CalibrationSteps.ApplyFsrRefinement(fsrRefinement, instruments, calibrations);
+            warnings.AddRange(fsrRefinement.Warnings);
+        }
+        else
+        {
+            result = Unfolder.Run(calibrated, options, progress);
+        }
+
+        // ---- end of FSR refinement ----
         Analysis.RefinementDiagnostics? refinement = null;
         if (solve.Refine && result.Lines.Count > 0)
         {
@@ -95,6 +113,7 @@ public static class UnfoldPipeline
             RawSweeps = raw,
             Result = result,
             Refinement = refinement,
+            FsrRefinement = fsrRefinement,
             Warnings = warnings,
         };
     }
@@ -139,6 +158,7 @@ public static class UnfoldPipeline
                 try
                 {
                     axis = AxisCalibrator.FromCalibrationSweep(seg, inst, cal.AxisDegree, ratio);
+                    axis = CalibrationSteps.DescribeCalibrationSweep(axis, seg, inst, ratio); // Airy finesse fit, transverse modes (issue 3)
                 }
                 catch (InputException e) when (segments.Count > 1)
                 {
@@ -158,10 +178,16 @@ public static class UnfoldPipeline
             }
         }
 
-        // effective finesse from the calibration peaks unless fixed
+        // ---- self-calibration from the source sweeps (issue 3); see Calibration/CalibrationSteps.cs ----
+        if (reuse is null) CalibrationSteps.AddFromSources(setup, instruments, calibrations, warnings, progress, ReadSegments);
+        // ---- end of self-calibration ----
+
+        // effective finesse from the calibration peaks unless fixed (calibration sweeps first, then the source's own peaks)
         foreach (var (name, inst) in instruments.ToList())
         {
-            var measured = calibrations.Where(c => c.Instrument == name && c.Finesse is not null).Select(c => c.Finesse!.Value).ToList();
+            var withFinesse = calibrations.Where(c => c.Instrument == name && c.Finesse is not null).ToList();
+            if (withFinesse.Any(c => !c.FromRepeats)) withFinesse = withFinesse.Where(c => !c.FromRepeats).ToList();
+            var measured = withFinesse.Select(c => c.Finesse!.Value).ToList();
             if (measured.Count == 0 || specs[name].FixFinesse || reuse is not null) continue;
             var f = measured.OrderBy(v => v).ElementAt(measured.Count / 2);
             if (Math.Abs(f / inst.Finesse - 1) > 0.2)
@@ -185,7 +211,8 @@ public static class UnfoldPipeline
     {
         var mine = calibrations.Where(c => c.Instrument == instrument).ToList();
         if (mine.Count == 0) return null;
-        var exact = mine.FirstOrDefault(c => c.Direction == seg.Direction);
+        var exact = mine.FirstOrDefault(c => c.Direction == seg.Direction && c.Source == seg.Name) // self-calibrated from this segment
+                    ?? mine.FirstOrDefault(c => c.Direction == seg.Direction);
         if (exact is not null) return exact;
         // a single-direction calibration is usable for a single-direction sweep and vice versa when the ramp is the same kind
         var single = mine.FirstOrDefault(c => c.Direction == RampDirection.Single || seg.Direction == RampDirection.Single);

@@ -28,6 +28,9 @@ public sealed record UnfoldRun
     /// <summary>Diagnostics of the off-grid line refinement, when it ran.</summary>
     public Analysis.RefinementDiagnostics? Refinement { get; init; }
 
+    /// <summary>FSR refinement (Vernier ratio, known interval), when it ran.</summary>
+    public FsrRefinement? FsrRefinement { get; init; }
+
     /// <summary>Warnings from reading and calibrating (the result's own warnings are in <see cref="Result"/>).</summary>
     public IReadOnlyList<string> Warnings { get; init; } = [];
 
