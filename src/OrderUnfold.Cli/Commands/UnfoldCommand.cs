@@ -9,7 +9,7 @@ public sealed class UnfoldCommand : ICommand
     public string Summary => "solve for the spectrum from the sweeps a setup file names";
 
     public string Usage => """
-        orderunfold unfold SETUP [--out DIR] [--no-plots] [--quiet]
+        orderunfold unfold SETUP [--out DIR] [--calibration FILE] [--no-plots] [--quiet]
 
         Reads SETUP (TOML; see docs/setup.md), calibrates each sweep axis, solves for the spectrum on one
         frequency grid from all sweeps, and writes into DIR (default: unfold-out next to the setup):
@@ -17,16 +17,18 @@ public sealed class UnfoldCommand : ICommand
           lines.csv     one row per line: frequency_hz (relative to the strongest line), intensity, ...
           spectrum.csv  the frequency grid and recovered intensity
           *.png         each sweep with the model and residuals, the spectrum, the axis calibrations
-        Exit code 0 on success, 2 on bad input.
+        --calibration FILE reuses a calibration written by 'orderunfold calibrate' (the setup's calibration
+        sweeps are then not read). Exit code 0 on success, 2 on bad input.
         """;
 
     public int Run(string[] args, TextWriter stdout, TextWriter stderr)
     {
-        var a = new Args(Name, args, ["out"], ["no-plots", "quiet"]);
+        var a = new Args(Name, args, ["out", "calibration"], ["no-plots", "quiet"]);
         var setup = a.Positional(0, "SETUP (a setup .toml file)");
         a.NoMorePositionals(1);
         var outDir = a.Value("out") ?? Path.Combine(Path.GetDirectoryName(Path.GetFullPath(setup)) ?? ".", "unfold-out");
-        var run = UnfoldPipeline.Run(setup, new StderrProgress(stderr, a.Flag("quiet")));
+        var reuse = a.Value("calibration") is string cal ? Calibration.CalibrationFile.Read(cal) : null;
+        var run = UnfoldPipeline.Run(setup, new StderrProgress(stderr, a.Flag("quiet")), reuse);
         UnfoldOutputs.Write(run, outDir, plots: !a.Flag("no-plots"), toolVersion: Cli.Version);
         Commands.Summary.Unfold(run, stdout);
         stdout.WriteLine($"outputs: {Path.GetFullPath(outDir)}");

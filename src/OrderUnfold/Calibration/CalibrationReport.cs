@@ -117,7 +117,7 @@ public static class CalibrationReport
         };
     }
 
-    private static JsonObject Fsr(FsrRefinement r) => new()
+    internal static JsonObject Fsr(FsrRefinement r) => new()
     {
         ["rounds"] = r.Rounds,
         ["reduced_chi_square_before"] = N(r.ReducedChiSquareBefore),

@@ -153,6 +153,7 @@ public static class UnfoldOutputs
                 ["linewidth_hz"] = N(i.LinewidthHz),
             }).ToArray()),
             ["calibrations"] = new JsonArray(run.Calibrations.Select(CalibrationNode).ToArray()),
+            ["fsr_refinement"] = run.FsrRefinement is { } fr ? CalibrationReport.Fsr(fr) : null,
             ["solve"] = new JsonObject
             {
                 ["grid_start_hz"] = N(r.Grid.StartHz),
@@ -195,6 +196,8 @@ public static class UnfoldOutputs
                 ["reduced_chi_square"] = N(rd.ReducedChiSquare),
                 ["detection_threshold_delta_chi2"] = N(rd.DetectionThresholdDeltaChiSquare),
                 ["clusters_dropped_as_insignificant"] = rd.Dropped,
+                ["unambiguous_range_hz"] = N(rd.UnambiguousRangeHz),
+                ["unambiguous_statement"] = rd.UnambiguousStatement,
                 ["uncertainties"] = "standard errors from the fit covariance scaled by the reduced chi-square; frequency_crb_hz is the unscaled covariance (Cramér–Rao bound at the fit); the axis-calibration uncertainty is not included",
             } : null,
             ["unambiguous_range_statement"] = r.OrdersResolved

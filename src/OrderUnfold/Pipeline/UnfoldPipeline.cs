@@ -90,7 +90,7 @@ public static class UnfoldPipeline
 
         // ---- end of FSR refinement ----
         Analysis.RefinementDiagnostics? refinement = null;
-        if (solve.Refine && result.Lines.Count > 0)
+        if (solve.Refine)
         {
             progress?.Report("refining lines against the raw sweeps");
             var refineOptions = new Analysis.RefineOptions
