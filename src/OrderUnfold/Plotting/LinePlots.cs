@@ -99,7 +99,7 @@ public static class LinePlots
         if (limit is not null) subtitle += " · dashed: smallest intensity that would have been detected (SNR ≥ threshold)";
         if (!string.IsNullOrWhiteSpace(statement)) subtitle += "\n" + Wrap(statement, 150);
 
-        var model = NewModel("Line spectrum (dB relative to the strongest line)", subtitle);
+        var model = Plots.NewModel("Line spectrum (dB relative to the strongest line)", subtitle);
         model.Axes.Add(new LinearAxis
         {
             Position = AxisPosition.Bottom,
@@ -267,7 +267,7 @@ public static class LinePlots
         var title = group.Count == 1
             ? $"{index}: line at {Quantity.FormatFrequency(origin, 6)}"
             : $"{index}: {group.Count} lines from {Quantity.FormatFrequency(origin, 6)}";
-        var model = NewModel(title, null);
+        var model = Plots.NewModel(title, null);
         model.TitleFontSize = 13;
         model.DefaultFontSize = 11;
         model.IsLegendVisible = false; // the legend is in the header of the composed image
@@ -429,32 +429,5 @@ public static class LinePlots
 
         if (current.Length > 0) lines.Add(current);
         return lines;
-    }
-
-    private static PlotModel NewModel(string title, string? subtitle)
-    {
-        var model = new PlotModel
-        {
-            Title = title,
-            Subtitle = subtitle,
-            DefaultFont = Plots.FontFamily,
-            DefaultFontSize = 12,
-            TitleFontSize = 16,
-            SubtitleFontSize = 12,
-            Background = OxyColors.White,
-            PlotAreaBorderThickness = new OxyThickness(0),
-            Padding = new OxyThickness(8, 8, 16, 8),
-        };
-        model.Legends.Add(new Legend
-        {
-            LegendPlacement = LegendPlacement.Outside,
-            LegendPosition = LegendPosition.TopRight,
-            LegendOrientation = LegendOrientation.Horizontal,
-            LegendBorderThickness = 0,
-            LegendFontSize = 12,
-            LegendSymbolLength = 24,
-            LegendItemSpacing = 16,
-        });
-        return model;
     }
 }

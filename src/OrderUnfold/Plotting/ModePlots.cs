@@ -62,28 +62,7 @@ public static class ModePlots
         var floor = Math.Floor((lowest - 6) / 10) * 10;
         const double Top = 8;
 
-        var model = new PlotModel
-        {
-            Title = title,
-            Subtitle = Subtitle(a),
-            DefaultFont = Plots.FontFamily,
-            DefaultFontSize = 12,
-            TitleFontSize = 16,
-            SubtitleFontSize = 12,
-            Background = OxyColors.White,
-            PlotAreaBorderThickness = new OxyThickness(0),
-            Padding = new OxyThickness(8, 8, 16, 8),
-        };
-        model.Legends.Add(new Legend
-        {
-            LegendPlacement = LegendPlacement.Outside,
-            LegendPosition = LegendPosition.TopRight,
-            LegendOrientation = LegendOrientation.Horizontal,
-            LegendBorderThickness = 0,
-            LegendFontSize = 12,
-            LegendSymbolLength = 24,
-            LegendItemSpacing = 16,
-        });
+        var model = Plots.NewModel(title, Subtitle(a));
 
         var xs = plotted.Select(X).ToList();
         var xMin = xs.Count > 0 ? xs.Min() : -1;

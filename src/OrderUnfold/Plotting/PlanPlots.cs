@@ -86,14 +86,14 @@ public static class PlanPlots
     /// when it lies in range. Δ is shown in GHz for spans of 2 GHz and more, MHz otherwise.
     /// </summary>
     public static void SaveMarginCurve(string path, MarginCurveInput input) =>
-        Save(path, BuildMarginCurve(input), MarginCurveSize);
+        Plots.Save(path, BuildMarginCurve(input), MarginCurveSize);
 
     /// <summary>
     /// Worst alias margin against candidate length (mm): the margin within tolerance as the main curve, the nominal
     /// margin in grey behind it, the required margin dashed and the recommended length marked.
     /// </summary>
     public static void SaveCandidateMap(string path, CandidateMapInput input) =>
-        Save(path, BuildCandidateMap(input), CandidateMapSize);
+        Plots.Save(path, BuildCandidateMap(input), CandidateMapSize);
 
     internal static PlotModel BuildMarginCurve(MarginCurveInput input)
     {
@@ -102,7 +102,7 @@ public static class PlanPlots
         var lo = input.Curve[0].DeltaHz;
         var hi = input.Curve[^1].DeltaHz;
         var scale = FrequencyAxisScale.For(hi - lo);
-        var model = NewModel(input.Title, input.Subtitle);
+        var model = Plots.NewModel(input.Title, input.Subtitle);
 
         // Two panels over one Δ axis: the whole curve on top (its peaks reach 𝓕/2 linewidths), and beneath it the
         // same curve with the margin axis cut at five thresholds or 2.5 × the worst alias, where the aliases are.
@@ -273,7 +273,7 @@ public static class PlanPlots
             throw new ArgumentException($"{input.LengthM.Length} lengths but {rm.Length} margins within tolerance", nameof(input));
 
         var order = Enumerable.Range(0, input.LengthM.Length).OrderBy(i => input.LengthM[i]).ToArray();
-        var model = NewModel(input.Title, input.Subtitle);
+        var model = Plots.NewModel(input.Title, input.Subtitle);
         var all = input.NominalMargin.Concat(input.RobustMargin ?? []).Where(double.IsFinite).DefaultIfEmpty(0).Max();
         var yMax = Math.Max(all, input.ThresholdLinewidths) * 1.15;
         var lmin = input.LengthM.Min() * 1e3;
@@ -369,38 +369,5 @@ public static class PlanPlots
         }
 
         return model;
-    }
-
-    private static PlotModel NewModel(string title, string? subtitle)
-    {
-        var model = new PlotModel
-        {
-            Title = title,
-            Subtitle = subtitle,
-            DefaultFont = Plots.FontFamily,
-            DefaultFontSize = 12,
-            TitleFontSize = 16,
-            SubtitleFontSize = 12,
-            Background = OxyColors.White,
-            PlotAreaBorderThickness = new OxyThickness(0),
-            Padding = new OxyThickness(8, 8, 16, 8),
-        };
-        model.Legends.Add(new Legend
-        {
-            LegendPlacement = LegendPlacement.Outside,
-            LegendPosition = LegendPosition.TopRight,
-            LegendOrientation = LegendOrientation.Horizontal,
-            LegendBorderThickness = 0,
-            LegendFontSize = 12,
-            LegendSymbolLength = 24,
-            LegendItemSpacing = 16,
-        });
-        return model;
-    }
-
-    private static void Save(string path, PlotModel model, (int Width, int Height) size)
-    {
-        ArgumentException.ThrowIfNullOrWhiteSpace(path);
-        AtomicFile.WriteAllBytes(path, Plots.RenderPng(model, size.Width, size.Height));
     }
 }

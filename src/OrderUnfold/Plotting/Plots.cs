@@ -342,7 +342,8 @@ public static class Plots
         return stream.ToArray();
     }
 
-    private static void Save(string path, PlotModel model, (int Width, int Height) size)
+    /// <summary>Renders a model to PNG and writes it atomically (shared by all plot classes).</summary>
+    internal static void Save(string path, PlotModel model, (int Width, int Height) size)
     {
         ArgumentException.ThrowIfNullOrWhiteSpace(path);
         AtomicFile.WriteAllBytes(path, RenderPng(model, size.Width, size.Height));
@@ -350,7 +351,9 @@ public static class Plots
 
     // ---------------------------------------------------------------- building blocks
 
-    private static PlotModel NewModel(string title, string? subtitle)
+    /// <summary>A model in the project's style: DejaVu Sans, white background, legend in one row above the plot
+    /// (shared by all plot classes).</summary>
+    internal static PlotModel NewModel(string title, string? subtitle)
     {
         var model = new PlotModel
         {

@@ -54,7 +54,7 @@ public static class TrackPlots
         ArgumentNullException.ThrowIfNull(input);
         if (input.TimeS.Length != input.FrequencyHz.Length || input.TimeS.Length != input.IntensityDb.Length)
             throw new ArgumentException($"time ({input.TimeS.Length}), frequency ({input.FrequencyHz.Length}) and intensity ({input.IntensityDb.Length}) need the same length", nameof(input));
-        var model = NewModel(input.Title, input.Subtitle);
+        var model = Plots.NewModel(input.Title, input.Subtitle);
         var scale = FrequencyAxisScale.ForValues(input.FrequencyHz.Where(double.IsFinite).DefaultIfEmpty(0));
         var span = FrequencyAxisScale.SpanHz(input.FrequencyHz.Where(double.IsFinite).DefaultIfEmpty(0));
         model.Axes.Add(TimeAxis(input.Origin, input.TimeS));
@@ -110,7 +110,7 @@ public static class TrackPlots
         ArgumentNullException.ThrowIfNull(input);
         if (input.TimeS.Length != input.Values.Length)
             throw new ArgumentException($"time ({input.TimeS.Length}) and values ({input.Values.Length}) need the same length", nameof(input));
-        var model = NewModel(input.Title, input.Subtitle);
+        var model = Plots.NewModel(input.Title, input.Subtitle);
         model.Axes.Add(TimeAxis(input.Origin, input.TimeS));
         model.Axes.Add(new LinearAxis
         {
@@ -134,31 +134,6 @@ public static class TrackPlots
             line.Points.Add(double.IsFinite(input.Values[i]) ? new DataPoint(X(input.Origin, input.TimeS[i]), input.Values[i]) : DataPoint.Undefined);
         model.Series.Add(line);
         AddHops(model, input.Origin, input.HopTimesS);
-        return model;
-    }
-
-    private static PlotModel NewModel(string title, string subtitle)
-    {
-        var model = new PlotModel
-        {
-            Title = title,
-            Subtitle = subtitle,
-            DefaultFont = Plots.FontFamily,
-            DefaultFontSize = 12,
-            TitleFontSize = 16,
-            SubtitleFontSize = 12,
-            Background = OxyColors.White,
-            PlotAreaBorderThickness = new OxyThickness(1, 0, 0, 1),
-            Padding = new OxyThickness(8, 8, 16, 8),
-        };
-        model.Legends.Add(new Legend
-        {
-            LegendPlacement = LegendPlacement.Outside,
-            LegendPosition = LegendPosition.TopRight,
-            LegendOrientation = LegendOrientation.Horizontal,
-            LegendBorderThickness = 0,
-            LegendFontSize = 12,
-        });
         return model;
     }
 
