@@ -131,10 +131,19 @@ public static class Unfolder
                 return (ChiSquare(pr, r.Solution, pair), r.Solution, pr);
             }
 
+            // every candidate gets one solve; only those within a factor of the best χ² get a Gauss–Newton step and
+            // a second solve (a wrong pairing is off by far more than that)
+            var firsts = candidates.Select(c => (phi: c, r: Eval(c, null))).ToList();
+            var bestFirst = firsts.Min(f => f.r.Chi);
             var results = new List<(double phi, double chi, double[] x)>();
-            foreach (var c in candidates)
+            foreach (var (c, first) in firsts)
             {
-                var first = Eval(c, null);
+                if (first.Chi > 4 * bestFirst)
+                {
+                    results.Add((c, first.Chi, first.X));
+                    continue;
+                }
+
                 var phi2 = c + Math.Clamp(first.P.OffsetStep(1, first.X), -lw, lw);
                 var second = Eval(phi2, first.X);
                 results.Add(second.Chi < first.Chi ? (phi2, second.Chi, second.X) : (c, first.Chi, first.X));
@@ -145,7 +154,7 @@ public static class Unfolder
             var chiBest = best.chi;
             warm = best.x;
             var h = lw / 4;
-            for (var it = 0; it < 4 && h > lw / 200; it++)
+            for (var it = 0; it < 3 && h > lw / 200; it++)
             {
                 var minus = Eval(phiBest - h, warm);
                 var plus = Eval(phiBest + h, warm);
