@@ -783,21 +783,6 @@ public static class FsrRefiner
         return new InstrumentLineFit(inst.Name, freq, cov, reduced);
     }
 
-    private static (double Gain, double Background) Regress(double[] a, double[] y)
-    {
-        var n = a.Length;
-        double sa = 0, sy = 0, saa = 0, say = 0;
-        for (var i = 0; i < n; i++)
-        {
-            sa += a[i];
-            sy += y[i];
-            saa += a[i] * a[i];
-            say += a[i] * y[i];
-        }
-
-        var det = n * saa - sa * sa;
-        if (!(det > 0)) return (1, sy / Math.Max(1, n));
-        var g = (n * say - sa * sy) / det;
-        return (g, (sy - g * sa) / n);
-    }
+    private static (double Gain, double Background) Regress(double[] a, double[] y) =>
+        GainFit.TryFit(a, y, out var g, out var b) ? (g, b) : (1, b);
 }

@@ -29,7 +29,6 @@ public sealed class UnfoldProblem : INormalEquations
     private readonly double[][] _work1;
     private readonly double[][] _work2;
     private readonly double[][] _colCache;
-    private int _colCacheBin = -1;
 
     public UnfoldProblem(IReadOnlyList<CalibratedSweep> sweeps, FrequencyGrid grid, IReadOnlyList<double> offsetsHz,
         IReadOnlyList<double> gains, double l1Weight, double smoothness, double periodicStepHz)
@@ -74,6 +73,29 @@ public sealed class UnfoldProblem : INormalEquations
         }
 
         for (var j = 0; j < grid.Count; j++) _rhs[j] -= _lambda;
+    }
+
+    /// <summary>The same problem with other L1 and smoothness weights. The sweep operators and the data terms are
+    /// shared (only the right-hand side changes), so measuring column norms on an unweighted problem and then
+    /// weighting it costs one set-up, not two.</summary>
+    public UnfoldProblem WithPenalties(double l1Weight, double smoothness) => new(this, l1Weight, smoothness);
+
+    private UnfoldProblem(UnfoldProblem source, double l1Weight, double smoothness)
+    {
+        _sweeps = source._sweeps;
+        Grid = source.Grid;
+        _gains = source._gains;
+        _ops = source._ops;
+        _kSty = source._kSty;
+        _kSt1 = source._kSt1;
+        _lambda = l1Weight;
+        _mu = smoothness;
+        Count = source.Count;
+        _rhs = (double[])source._rhs.Clone();
+        for (var j = 0; j < Grid.Count; j++) _rhs[j] += source._lambda - _lambda;
+        _work1 = source._work1.Select(w => new double[w.Length]).ToArray();
+        _work2 = source._work2.Select(w => new double[w.Length]).ToArray();
+        _colCache = source._colCache.Select(w => new double[w.Length]).ToArray();
     }
 
     public FrequencyGrid Grid { get; }
@@ -158,7 +180,6 @@ public sealed class UnfoldProblem : INormalEquations
             op.Convolve(_work1[k], _colCache[k]);
         }
 
-        _colCacheBin = j;
         diagonal = 0;
         for (var k = 0; k < _sweeps.Length; k++)
         {

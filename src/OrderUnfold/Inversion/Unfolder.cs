@@ -340,7 +340,7 @@ public static class Unfolder
         var median = norms[norms.Count / 2];
         var lambda = options.Sparsity * Math.Sqrt(median);
         var mu = options.Smoothness * median;
-        return new UnfoldProblem(sweeps, grid, offsets, gains, lambda, mu, periodicStep);
+        return probe.WithPenalties(lambda, mu);
     }
 
     private static ActiveSetNnls.Options SolverOptions(UnfoldProblem problem)
@@ -369,24 +369,8 @@ public static class Unfolder
         return chi;
     }
 
-    private static double RegressGain(double[] a, double[] y, double fallback)
-    {
-        // least squares y ≈ g a + b
-        var n = a.Length;
-        double sa = 0, sy = 0, saa = 0, say = 0;
-        for (var i = 0; i < n; i++)
-        {
-            sa += a[i];
-            sy += y[i];
-            saa += a[i] * a[i];
-            say += a[i] * y[i];
-        }
-
-        var det = n * saa - sa * sa;
-        if (!(det > 0)) return fallback;
-        var g = (n * say - sa * sy) / det;
-        return g > 0 && double.IsFinite(g) ? g : fallback;
-    }
+    private static double RegressGain(double[] a, double[] y, double fallback) =>
+        GainFit.TryFit(a, y, out var g, out _) && g > 0 && double.IsFinite(g) ? g : fallback;
 
     private static List<UnfoldedLine> ExtractLines(UnfoldProblem problem, double[] s, double minSnr)
     {
