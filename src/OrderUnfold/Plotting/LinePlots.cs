@@ -38,12 +38,12 @@ public static class LinePlots
     /// <summary>Most zoom panels drawn (the strongest groups); more would not be readable.</summary>
     public const int MaxPanels = 12;
 
-    private static readonly OxyColor SecureColor = OxyColor.FromRgb(0xB0, 0x1E, 0x3A);
-    private static readonly OxyColor DoubtfulColor = OxyColor.FromRgb(0x8A, 0x6D, 0x00);
-    private static readonly OxyColor UnknownColor = OxyColor.FromRgb(0x4A, 0x4A, 0x4A);
-    private static readonly OxyColor GridSpectrumColor = OxyColor.FromRgb(0x2B, 0x5C, 0x8A);
+    private static readonly OxyColor SecureColor = Palette.Crimson;
+    private static readonly OxyColor DoubtfulColor = Palette.Ochre;
+    private static readonly OxyColor UnknownColor = Palette.Charcoal;
+    private static readonly OxyColor GridSpectrumColor = Palette.Blue;
     private static readonly OxyColor LimitColor = OxyColor.FromRgb(0x30, 0x30, 0x30);
-    private static readonly OxyColor GridLineColor = OxyColor.FromRgb(0xE6, 0xE6, 0xE6);
+    private static readonly OxyColor GridLineColor = Palette.GridGrey;
 
     /// <summary>
     /// Writes <see cref="SpectrumDbFile"/> and <see cref="LineGroupsFile"/> (the latter only when there is at least one

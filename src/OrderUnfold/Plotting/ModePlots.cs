@@ -20,13 +20,13 @@ public static class ModePlots
     /// <summary>Pixel size of the mode image.</summary>
     public static readonly (int Width, int Height) Size = (1200, 650);
 
-    private static readonly OxyColor MainColor = OxyColor.FromRgb(0x2B, 0x5C, 0x8A);
+    private static readonly OxyColor MainColor = Palette.Blue;
     private static readonly OxyColor SecondColor = OxyColor.FromRgb(0xD0, 0x7A, 0x12);
     private static readonly OxyColor OffColor = OxyColor.FromRgb(0x8C, 0x8C, 0x8C);
-    private static readonly OxyColor EnvelopeColor = OxyColor.FromRgb(0xB0, 0x1E, 0x3A);
+    private static readonly OxyColor EnvelopeColor = Palette.Crimson;
     private static readonly OxyColor SmsrColor = OxyColor.FromRgb(0x20, 0x20, 0x20);
-    private static readonly OxyColor LimitColor = OxyColor.FromRgb(0x70, 0x70, 0x70);
-    private static readonly OxyColor GridColor = OxyColor.FromRgb(0xE6, 0xE6, 0xE6);
+    private static readonly OxyColor LimitColor = Palette.MidGrey;
+    private static readonly OxyColor GridColor = Palette.GridGrey;
 
     /// <summary>dB per neper of power: 10 / ln 10.</summary>
     private const double DbPerNeper = 10 / 2.302585092994046;

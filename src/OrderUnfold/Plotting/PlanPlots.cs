@@ -65,7 +65,7 @@ public static class PlanPlots
     /// <summary>Pixel size of the candidate-map image.</summary>
     public static readonly (int Width, int Height) CandidateMapSize = (1200, 650);
 
-    private static readonly OxyColor CurveColor = OxyColor.FromRgb(0x2B, 0x5C, 0x8A);
+    private static readonly OxyColor CurveColor = Palette.Blue;
     private static readonly OxyColor AliasColor = OxyColor.FromRgb(0xC0, 0x1E, 0x2E);
     private static readonly OxyColor WorstColor = OxyColor.FromRgb(0xD0, 0x7A, 0x00);
     private static readonly OxyColor NominalColor = OxyColor.FromRgb(0x9A, 0x9A, 0x9A);
@@ -73,7 +73,7 @@ public static class PlanPlots
     private static readonly OxyColor BelowFill = OxyColor.FromAColor(0x22, OxyColor.FromRgb(0xC0, 0x1E, 0x2E));
     private static readonly OxyColor SelfFill = OxyColor.FromAColor(0x30, OxyColor.FromRgb(0x80, 0x80, 0x80));
     private static readonly OxyColor RepeatColor = OxyColor.FromRgb(0x6A, 0x3D, 0x9A);
-    private static readonly OxyColor GridColor = OxyColor.FromRgb(0xE6, 0xE6, 0xE6);
+    private static readonly OxyColor GridColor = Palette.GridGrey;
 
     private const string FullKey = "full";
     private const string ZoomKey = "zoom";

@@ -37,15 +37,15 @@ public static class Plots
     private const int MaxFsrMarks = 40;
 
     // Palette: a dark neutral for measured data, saturated colours for fitted/derived quantities.
-    private static readonly OxyColor MeasuredColor = OxyColor.FromRgb(0x4A, 0x4A, 0x4A);
+    private static readonly OxyColor MeasuredColor = Palette.Charcoal;
     private static readonly OxyColor ModelColor = OxyColor.FromRgb(0xD0, 0x4A, 0x12);
-    private static readonly OxyColor ResidualColor = OxyColor.FromRgb(0x2B, 0x5C, 0x8A);
-    private static readonly OxyColor SpectrumColor = OxyColor.FromRgb(0x2B, 0x5C, 0x8A);
-    private static readonly OxyColor LineMarkColor = OxyColor.FromRgb(0xB0, 0x1E, 0x3A);
-    private static readonly OxyColor DoubtfulColor = OxyColor.FromRgb(0x8A, 0x6D, 0x00);
-    private static readonly OxyColor LimitColor = OxyColor.FromRgb(0x70, 0x70, 0x70);
+    private static readonly OxyColor ResidualColor = Palette.Blue;
+    private static readonly OxyColor SpectrumColor = Palette.Blue;
+    private static readonly OxyColor LineMarkColor = Palette.Crimson;
+    private static readonly OxyColor DoubtfulColor = Palette.Ochre;
+    private static readonly OxyColor LimitColor = Palette.MidGrey;
     private static readonly OxyColor GuideColor = OxyColor.FromAColor(0x50, OxyColor.FromRgb(0x60, 0x60, 0x60));
-    private static readonly OxyColor GridColor = OxyColor.FromRgb(0xE6, 0xE6, 0xE6);
+    private static readonly OxyColor GridColor = Palette.GridGrey;
 
     private const string TopKey = "top";
     private const string BottomKey = "bottom";

@@ -34,9 +34,9 @@ public static class TrackPlots
     /// <summary>Weakest intensity the colour scale shows, dB; weaker points take its colour.</summary>
     public const double FloorDb = -40;
 
-    private static readonly OxyColor HopColor = OxyColor.FromRgb(0xB0, 0x1E, 0x3A);
-    private static readonly OxyColor SeriesColor = OxyColor.FromRgb(0x2B, 0x5C, 0x8A);
-    private static readonly OxyColor GridColor = OxyColor.FromRgb(0xE6, 0xE6, 0xE6);
+    private static readonly OxyColor HopColor = Palette.Crimson;
+    private static readonly OxyColor SeriesColor = Palette.Blue;
+    private static readonly OxyColor GridColor = Palette.GridGrey;
 
     /// <summary>
     /// Frequency against time, one dot per line per item, coloured by intensity (dB relative to the item's strongest
