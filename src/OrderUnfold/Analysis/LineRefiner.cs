@@ -1,5 +1,4 @@
 using MathNet.Numerics.LinearAlgebra;
-using MathNet.Numerics.Optimization;
 using OrderUnfold.Instruments;
 using OrderUnfold.Inversion;
 using OrderUnfold.Units;
@@ -53,7 +52,7 @@ public enum OrderVerdict
 
 /// <summary>Diagnostics of one refinement.</summary>
 /// <param name="Converged">True when Levenberg–Marquardt stopped on a convergence criterion.</param>
-/// <param name="ExitReason">MathNet's exit reason, as text.</param>
+/// <param name="ExitReason">Why Levenberg–Marquardt stopped, as text.</param>
 /// <param name="Iterations">Iterations used (last fit).</param>
 /// <param name="ChiSquare">χ² at the solution.</param>
 /// <param name="ReducedChiSquare">χ² per degree of freedom.</param>
@@ -92,7 +91,7 @@ public sealed record RefinementDiagnostics(bool Converged, string ExitReason, in
 /// <summary>
 /// Off-grid refinement of the lines of an NNLS grid solution against the raw sweeps: positions, intensities
 /// (optionally intrinsic widths), per-sweep offsets, gains and backgrounds fitted jointly by Levenberg–Marquardt
-/// (MathNet.Numerics). Gives standard errors (covariance scaled by the reduced χ²), the Cramér–Rao bound
+/// (<see cref="LevenbergMarquardt"/>, on the normal equations). Gives standard errors (covariance scaled by the reduced χ²), the Cramér–Rao bound
 /// (the unscaled covariance at the solution), optional residual-bootstrap errors, significance-based pruning,
 /// a detection-limit curve, and for each line Δχ² to its best alternative placement (order confidence).
 /// </summary>
@@ -213,7 +212,7 @@ public static class LineRefiner
 
             if (!fit.Converged)
             {
-                if (!retried && fit.Reason == nameof(ExitCondition.ExceedIterations))
+                if (!retried && fit.Reason == IterationLimitReason)
                 {
                     retried = true;
                     fit = null;
@@ -566,33 +565,23 @@ public static class LineRefiner
         /// A Lorentzian convolved with the (near-Lorentzian) Airy peak is modelled as an Airy of linewidth (instrument + intrinsic)
         /// scaled to keep the area: exact for Lorentzians in the high-finesse limit.
         /// </summary>
-        public static (double T, double dT) Profile(Instrument inst, double delta, double width)
-        {
-            var lw = inst.LinewidthHz;
-            var finesse = width > 0 ? inst.FsrHz / (lw + width) : inst.Finesse;
-            var area = width > 0 ? lw / (lw + width) : 1.0;
-            var fc = Airy.CoefficientOfFinesse(finesse);
-            var arg = Math.PI * delta / inst.FsrHz;
-            var s = Math.Sin(arg);
-            var t = 1 / (1 + fc * s * s);
-            var dt = -fc * Math.Sin(2 * arg) * (Math.PI / inst.FsrHz) * t * t;
-            return (area * t, area * dt);
-        }
+        public static (double T, double dT) Profile(Instrument inst, double delta, double width) => LineShape.For(inst, width).Evaluate(delta);
 
         public double[] Model(Layout layout, IReadOnlyList<double> p, double[]? into = null)
         {
             var y = into ?? new double[M];
+            var q = p as double[] ?? p.ToArray();
             for (var k = 0; k < Sweeps.Count; k++)
             {
-                var inst = Sweeps[k].Instrument;
-                var phi = k == 0 ? 0 : p[layout.Phi(k)];
-                var g = k == 0 ? 1 : p[layout.G(k)];
-                var b = p[layout.B(k)];
+                var phi = k == 0 ? 0 : q[layout.Phi(k)];
+                var g = k == 0 ? 1 : q[layout.G(k)];
+                var b = q[layout.B(k)];
+                var shapes = LineShapes(Sweeps[k].Instrument, layout, q);
                 for (var i = Start[k]; i < Start[k + 1]; i++)
                 {
                     var v = 0.0;
                     for (var j = 0; j < layout.Lines; j++)
-                        v += p[layout.A(j)] * Profile(inst, p[layout.Nu(j)] - phi - F[i], layout.Widths ? Math.Abs(p[layout.W(j)]) : 0).T;
+                        v += q[layout.A(j)] * shapes[j].Evaluate(q[layout.Nu(j)] - phi - F[i]).T;
                     y[i] = g * v + b;
                 }
             }
@@ -609,47 +598,137 @@ public static class LineRefiner
             return chi;
         }
 
-        public Matrix<double> Jacobian(Layout layout, IReadOnlyList<double> p)
+        /// <summary>
+        /// Normal equations of the weighted fit at <paramref name="p"/> against observations <paramref name="y"/>: fills
+        /// <paramref name="jtj"/> = JᵀWJ (row-major, both triangles) and <paramref name="jtr"/> = JᵀW(y − model), returns χ².
+        /// One pass over the samples; each sample's Jacobian row has non-zeros only for the lines and its own sweep's
+        /// offset, gain and background, so the cost is samples × (those parameters)², with no samples × parameters matrix.
+        /// </summary>
+        public double Normal(Layout layout, double[] p, double[] y, double[] jtj, double[] jtr)
         {
-            var jac = Matrix<double>.Build.Dense(M, layout.Count);
+            var n = layout.Count;
+            Array.Clear(jtj);
+            Array.Clear(jtr);
+            var lines = layout.Lines;
+            var perLine = layout.Widths ? 3 : 2;
+            var index = new int[perLine * lines + 3];
+            var row = new double[index.Length];
+            var t = new double[lines];
+            var dt = new double[lines];
+            var tw = layout.Widths ? new double[lines] : null;
+            double chi = 0;
             for (var k = 0; k < Sweeps.Count; k++)
             {
                 var inst = Sweeps[k].Instrument;
                 var phi = k == 0 ? 0 : p[layout.Phi(k)];
                 var g = k == 0 ? 1 : p[layout.G(k)];
+                var b = p[layout.B(k)];
+                // the non-zero columns of this sweep's rows
+                var used = 0;
+                for (var j = 0; j < lines; j++)
+                {
+                    index[used++] = layout.Nu(j);
+                    index[used++] = layout.A(j);
+                    if (layout.Widths) index[used++] = layout.W(j);
+                }
+
+                if (k > 0)
+                {
+                    index[used++] = layout.Phi(k);
+                    index[used++] = layout.G(k);
+                }
+
+                index[used++] = layout.B(k);
+                var shapes = LineShapes(inst, layout, p);
+                var wideShapes = layout.Widths ? LineShapes(inst, layout, p, inst.LinewidthHz * 1e-3) : null;
                 for (var i = Start[k]; i < Start[k + 1]; i++)
                 {
                     double sumT = 0, sumDT = 0;
-                    for (var j = 0; j < layout.Lines; j++)
+                    for (var j = 0; j < lines; j++)
                     {
-                        var w = layout.Widths ? Math.Abs(p[layout.W(j)]) : 0;
+                        var (tj, dtj) = shapes[j].Evaluate(p[layout.Nu(j)] - phi - F[i]);
+                        t[j] = tj;
+                        dt[j] = dtj;
                         var a = p[layout.A(j)];
-                        var (t, dt) = Profile(inst, p[layout.Nu(j)] - phi - F[i], w);
-                        jac[i, layout.Nu(j)] = g * a * dt;
-                        jac[i, layout.A(j)] = g * t;
-                        if (layout.Widths)
+                        sumT += a * tj;
+                        sumDT += a * dtj;
+                        if (tw is not null) tw[j] = wideShapes![j].Evaluate(p[layout.Nu(j)] - phi - F[i]).T;
+                    }
+
+                    var sw = Math.Sqrt(W[i]);
+                    var r = (y[i] - (g * sumT + b)) * sw;
+                    chi += r * r;
+                    var c = 0;
+                    for (var j = 0; j < lines; j++)
+                    {
+                        var a = p[layout.A(j)];
+                        row[c++] = sw * g * a * dt[j];
+                        row[c++] = sw * g * t[j];
+                        if (tw is not null)
                         {
                             // the model uses |w|; forward difference in |w|, signed by w
                             var h = inst.LinewidthHz * 1e-3;
-                            var tp = Profile(inst, p[layout.Nu(j)] - phi - F[i], w + h).T;
-                            jac[i, layout.W(j)] = (p[layout.W(j)] < 0 ? -1 : 1) * g * a * (tp - t) / h;
+                            row[c++] = sw * (p[layout.W(j)] < 0 ? -1 : 1) * g * a * (tw[j] - t[j]) / h;
                         }
-
-                        sumT += a * t;
-                        sumDT += a * dt;
                     }
 
                     if (k > 0)
                     {
-                        jac[i, layout.Phi(k)] = -g * sumDT;
-                        jac[i, layout.G(k)] = sumT;
+                        row[c++] = -sw * g * sumDT;
+                        row[c++] = sw * sumT;
                     }
 
-                    jac[i, layout.B(k)] = 1;
+                    row[c++] = sw;
+                    for (var u = 0; u < used; u++)
+                    {
+                        var ru = row[u];
+                        if (ru == 0) continue;
+                        var iu = index[u] * n;
+                        jtr[index[u]] += ru * r;
+                        for (var v = u; v < used; v++) jtj[iu + index[v]] += ru * row[v];
+                    }
                 }
             }
 
-            return jac;
+            // each pair of parameters was accumulated in one cell only, (index[u], index[v]) with u ≤ v in the list order,
+            // which is not the numerical order (ν₀, a₀, ν₁, … vs the layout ν₀, ν₁, …, a₀, …): the other cell is zero, so the
+            // sum of the two is the element
+            for (var u = 0; u < n; u++)
+            for (var v = u + 1; v < n; v++)
+            {
+                var sum = jtj[u * n + v] + jtj[v * n + u];
+                jtj[u * n + v] = sum;
+                jtj[v * n + u] = sum;
+            }
+
+            return chi;
+        }
+
+        /// <summary>Per-line profile constants for one instrument (<paramref name="extraWidth"/> is added to each line's |w|).</summary>
+        private static LineShape[] LineShapes(Instrument inst, Layout layout, double[] p, double extraWidth = 0)
+        {
+            var shapes = new LineShape[layout.Lines];
+            for (var j = 0; j < layout.Lines; j++)
+                shapes[j] = LineShape.For(inst, (layout.Widths ? Math.Abs(p[layout.W(j)]) : 0) + extraWidth);
+            return shapes;
+        }
+    }
+
+    /// <summary><see cref="Data.Profile"/> with the constants of one instrument and width precomputed.</summary>
+    internal readonly record struct LineShape(double Area, double Fc, double PiOverFsr)
+    {
+        public static LineShape For(Instrument inst, double width)
+        {
+            var lw = inst.LinewidthHz;
+            var finesse = width > 0 ? inst.FsrHz / (lw + width) : inst.Finesse;
+            return new LineShape(width > 0 ? lw / (lw + width) : 1.0, Airy.CoefficientOfFinesse(finesse), Math.PI / inst.FsrHz);
+        }
+
+        public (double T, double dT) Evaluate(double delta)
+        {
+            var (s, c) = Math.SinCos(PiOverFsr * delta);
+            var t = 1 / (1 + Fc * s * s);
+            return (Area * t, -Area * Fc * 2 * s * c * PiOverFsr * t * t);
         }
     }
 
@@ -731,29 +810,7 @@ public static class LineRefiner
     internal static FitResult Fit(Data data, Layout layout, double[] p0, RefineOptions options, bool[]? isFixed = null, double[]? y = null)
     {
         isFixed ??= new bool[layout.Count];
-        // The problem is whitened here (rows scaled by 1/σ) rather than handing MathNet a weight vector: MathNet 5.0
-        // stores the weights as a dense m×m matrix (128 MB for 4 000 samples, gigabytes for long sweeps).
-        var sw = data.W.Select(Math.Sqrt).ToArray();
-        var obs = y ?? data.Y;
-        var observedY = Vector<double>.Build.Dense(data.M, i => obs[i] * sw[i]);
-        var x = Vector<double>.Build.Dense(data.M, i => i);
-        var model = ObjectiveFunction.NonlinearModel(
-            (p, _) =>
-            {
-                var m = data.Model(layout, p.ToArray());
-                for (var i = 0; i < m.Length; i++) m[i] *= sw[i];
-                return Vector<double>.Build.DenseOfArray(m);
-            },
-            (p, _) =>
-            {
-                var jac = data.Jacobian(layout, p.ToArray());
-                var raw = jac.AsColumnMajorArray() ?? throw new InvalidOperationException("a dense Jacobian was expected");
-                for (var c = 0; c < layout.Count; c++)
-                for (var i = 0; i < data.M; i++)
-                    raw[c * data.M + i] *= sw[i];
-                return jac;
-            },
-            x, observedY);
+        // scales: positions and widths in linewidths, intensities and gains relative to their start values
         var scales = new double[layout.Count];
         for (var i = 0; i < layout.Count; i++) scales[i] = 1;
         var lw = data.Sweeps.Min(s => s.Instrument.LinewidthHz);
@@ -770,55 +827,62 @@ public static class LineRefiner
             scales[layout.G(k)] = Math.Max(Math.Abs(p0[layout.G(k)]), 1e-12);
         }
 
-        NonlinearMinimizationResult r;
-        bool converged;
-        string reason;
-        try
+        for (var k = 0; k < layout.SweepCount; k++)
         {
-            // step tolerance: MathNet stops when ‖ΔP‖ ≤ tol·(tol + ‖P‖²) in scaled units (positions in linewidths), i.e. far
-            // below any uncertainty; its default (1e-15) only stops after dozens of rejected steps at machine precision
-            var lm = new LevenbergMarquardtMinimizer(stepTolerance: 1e-10, maximumIterations: options.MaxIterations);
-            r = lm.FindMinimum(model, Vector<double>.Build.DenseOfArray(p0), null, null, Vector<double>.Build.DenseOfArray(scales),
-                isFixed.Any(f => f) ? isFixed.ToList() : null);
-            reason = r.ReasonForExit.ToString();
-            converged = r.ReasonForExit is not (ExitCondition.ExceedIterations or ExitCondition.InvalidValues or ExitCondition.None or ExitCondition.ManuallyStopped);
-        }
-        catch (Exception e) when (e is MaximumIterationsException or ArithmeticException or ArgumentException or InvalidOperationException)
-        {
-            return Summarise(data, layout, p0, false, e.GetType().Name, options.MaxIterations, isFixed, y);
+            var (start, count) = data.Range(k);
+            var spread = 0.0;
+            for (var i = start; i < start + count; i++) spread = Math.Max(spread, Math.Abs(data.Y[i]));
+            scales[layout.B(k)] = Math.Max(spread, 1e-12);
         }
 
-        return Summarise(data, layout, r.MinimizingPoint.ToArray(), converged, reason, r.Iterations, isFixed, y);
+        // step tolerance 1e-9 scaled units (positions: 1e-9 linewidth), far below any uncertainty; χ² tolerance 1e-9,
+        // far below the Δχ² of 1 that one standard error costs
+        var outcome = LevenbergMarquardt.Minimise(new Problem(data, layout, y ?? data.Y), p0, scales, isFixed, options.MaxIterations);
+        return Summarise(data, layout, outcome, isFixed);
     }
 
-    private static FitResult Summarise(Data data, Layout layout, double[] p, bool converged, string reason, int iterations, bool[] isFixed, double[]? yObs)
+    /// <summary>The refinement as a least-squares problem for <see cref="LevenbergMarquardt"/>.</summary>
+    private sealed class Problem(Data data, Layout layout, double[] y) : ILeastSquaresProblem
     {
-        var chi = p.All(double.IsFinite) ? data.ChiSquare(layout, p, yObs) : double.NaN;
+        public int Count => layout.Count;
+
+        public double Normal(double[] p, double[] jtj, double[] jtr) => data.Normal(layout, p, y, jtj, jtr);
+    }
+
+    private static string Describe(LmExit exit) => exit switch
+    {
+        LmExit.SmallStep => "converged: step below tolerance",
+        LmExit.SmallDecrease => "converged: χ² decrease below tolerance",
+        LmExit.NoFurtherDecrease => "converged: no step lowers χ² further",
+        LmExit.IterationLimit => IterationLimitReason,
+        _ => "non-finite model values",
+    };
+
+    private const string IterationLimitReason = "iteration limit reached";
+
+    private static FitResult Summarise(Data data, Layout layout, LmOutcome outcome, bool[] isFixed)
+    {
+        var p = outcome.P;
+        var chi = outcome.ChiSquare;
         var n = layout.Count;
         var free = Enumerable.Range(0, n).Where(i => !isFixed[i]).ToArray();
         var unscaled = Matrix<double>.Build.Dense(n, n);
-        if (double.IsFinite(chi))
+        if (double.IsFinite(chi) && p.All(double.IsFinite))
         {
-            var jac = data.Jacobian(layout, p);
-            var jw = Matrix<double>.Build.Dense(data.M, free.Length);
-            for (var i = 0; i < data.M; i++)
-            {
-                var sw = Math.Sqrt(data.W[i]);
-                for (var c = 0; c < free.Length; c++) jw[i, c] = jac[i, free[c]] * sw;
-            }
-
-            var cov = PseudoInverse(jw.TransposeThisAndMultiply(jw));
+            var fisher = Matrix<double>.Build.Dense(free.Length, free.Length, (a, b) => outcome.Fisher[free[a] * n + free[b]]);
+            var cov = PseudoInverse(fisher);
             for (var a = 0; a < free.Length; a++)
             for (var b = 0; b < free.Length; b++)
                 unscaled[free[a], free[b]] = cov[a, b];
         }
         else
         {
+            chi = double.NaN;
             unscaled = Matrix<double>.Build.Dense(n, n, double.NaN);
         }
 
         var red = chi / Math.Max(1, data.M - free.Length);
-        return new FitResult(p, unscaled, unscaled * red, chi, converged, reason, iterations);
+        return new FitResult(p, unscaled, unscaled * red, chi, outcome.Converged, Describe(outcome.Exit), outcome.Iterations);
     }
 
     /// <summary>
