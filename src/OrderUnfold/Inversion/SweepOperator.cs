@@ -20,6 +20,7 @@ public sealed class SweepOperator
     private readonly int[] _sampleBin;
     private readonly double[] _sampleFrac;
     private readonly CircularConvolver _conv;
+    private readonly double[] _kernel;
     private int[] _foldBin = [];
     private double[] _foldFrac = [];
 
@@ -39,6 +40,7 @@ public sealed class SweepOperator
         var kernel = new double[m];
         for (var i = 0; i < m; i++) kernel[i] = Airy.Transmission(i * StepHz, fsr, instrument.Finesse);
         _conv = new CircularConvolver(kernel);
+        _kernel = kernel;
         SampleCount = scanHz.Count;
         _sampleBin = new int[SampleCount];
         _sampleFrac = new double[SampleCount];
@@ -140,6 +142,40 @@ public sealed class SweepOperator
         var t = _foldFrac[j];
         periodic[a] += 1 - t;
         periodic[a + 1 == M ? 0 : a + 1] += t;
+    }
+
+    /// <summary>K·fold(e_j) — the Airy profile of a unit bin j on the periodic grid — written directly from the kernel
+    /// (the unit bin's two fold weights times the kernel shifted to its two periodic points), without a convolution.</summary>
+    public void ConvolvedUnit(int j, double[] periodic)
+    {
+        var a = _foldBin[j];
+        var t = _foldFrac[j];
+        var m = M;
+        var kernel = _kernel;
+        // periodic[p] = (1 − t)·k[(p − a) mod M] + t·k[(p − a − 1) mod M]
+        for (var p = 0; p < m; p++)
+        {
+            var d = p - a;
+            if (d < 0) d += m;
+            var d1 = d == 0 ? m - 1 : d - 1;
+            periodic[p] = (1 - t) * kernel[d] + t * kernel[d1];
+        }
+    }
+
+    /// <summary>‖S K fold(e_j)‖² — the squared norm of a unit bin's model (no gain) — in O(M), without a convolution:
+    /// v = K fold(e_j) from the kernel, then vᵀ(SᵀS)v with the cyclic tridiagonal SᵀS.</summary>
+    public double UnitNormSquared(int j, double[] work)
+    {
+        ConvolvedUnit(j, work);
+        var m = M;
+        double sum = 0;
+        for (var p = 0; p < m; p++)
+        {
+            var next = p + 1 == m ? 0 : p + 1;
+            sum += work[p] * (Diagonal[p] * work[p] + 2 * Upper[p] * work[next]);
+        }
+
+        return sum;
     }
 
     /// <summary>Circular convolution with the Airy profile (self-adjoint).</summary>

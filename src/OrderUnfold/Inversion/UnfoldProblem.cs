@@ -174,8 +174,7 @@ public sealed class UnfoldProblem : INormalEquations
         for (var k = 0; k < _sweeps.Length; k++)
         {
             var op = _ops[k];
-            op.FoldUnit(j, _work1[k]);
-            op.Convolve(_work1[k], _work2[k]);
+            op.ConvolvedUnit(j, _work2[k]);
             op.SampleNormal(_work2[k], _work1[k]);
             op.Convolve(_work1[k], _colCache[k]);
         }
@@ -215,9 +214,13 @@ public sealed class UnfoldProblem : INormalEquations
     /// <summary>Diagonal entry G[j, j] of a grid column without the penalty (its squared column norm).</summary>
     public double ColumnNormSquared(int j)
     {
-        Span<double> none = stackalloc double[0];
-        Column(j, Array.Empty<int>(), none, out var d);
-        if (_mu > 0) d -= _mu * ((j > 0 ? 1 : 0) + (j < Grid.Count - 1 ? 1 : 0));
+        double d = 0;
+        for (var k = 0; k < _sweeps.Length; k++)
+        {
+            var c = Scale(k);
+            d += c * c * _ops[k].UnitNormSquared(j, _work1[k]);
+        }
+
         return d;
     }
 

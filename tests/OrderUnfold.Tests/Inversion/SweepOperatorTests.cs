@@ -35,6 +35,31 @@ public class SweepOperatorTests
     private static double[] Gaussian(Random rng, int n) => Enumerable.Range(0, n).Select(_ => OrderUnfold.Simulation.Simulator.Gaussian(rng)).ToArray();
 
     [Fact]
+    public void UnitColumnNormWithoutConvolutionMatchesTheForwardModel()
+    {
+        // UnitNormSquared builds K·fold(e_j) from the kernel and applies the tridiagonal SᵀS; it must equal ‖A e_j‖²
+        // from the operator's own forward model (fold, FFT convolution, sampling) to rounding, for random scans and bins.
+        var gen = Gen.Select(Gen.Int[0, int.MaxValue], Gen.Int[20, 3000], Gen.Int[1, 400]);
+        gen.Sample((seed, samples, bins) =>
+        {
+            var rng = new Random(seed);
+            var fsr = Cavity.FsrHz;
+            var lw = Cavity.LinewidthHz;
+            var grid = new FrequencyGrid((rng.NextDouble() - 0.5) * 20 * fsr, lw / 4, bins);
+            var scan = RandomScan(rng, samples, fsr, 0.5 + 5 * rng.NextDouble());
+            var op = new SweepOperator(Cavity, scan, grid, (rng.NextDouble() - 0.5) * 4 * fsr, lw / (5 + 30 * rng.NextDouble()));
+            var j = rng.Next(bins);
+            var unit = new double[bins];
+            unit[j] = 1;
+            var a = op.Forward(unit);
+            var expected = Dot(a, a);
+            var work = new double[op.M];
+            var got = op.UnitNormSquared(j, work);
+            Assert.True(Math.Abs(got - expected) <= 1e-10 * expected, $"bin {j}: {got} vs {expected}");
+        }, iter: 40, threads: 1);
+    }
+
+    [Fact]
     public void AdjointPassesTheDotProductTest()
     {
         // Property: <A s, r> = <s, Aᵀ r> to 1e-10 relative (of |A s|·|r|) for random spectra, residuals, scans,
