@@ -52,8 +52,133 @@ internal static class DelimitedText
         "nan", "nan(ind)", "inf", "infinity", "∞", "1.#inf", "1.#qnan", "1.#snan", "1.#ind",
     };
 
-    /// <summary>Splits text into rows with CsvHelper: one record per line, RFC 4180 quotes, whitespace trimmed.</summary>
-    public static IEnumerable<TextRow> Rows(string text, char delimiter)
+    private static readonly HashSet<string>.AlternateLookup<ReadOnlySpan<char>> NonFiniteLookup = NonFiniteWords.GetAlternateLookup<ReadOnlySpan<char>>();
+
+    /// <summary>Splits text into rows: one record per line, RFC 4180 quotes, whitespace trimmed. Text without quotes and
+    /// without a lone carriage return is split directly (same rows as CsvHelper gives it, several times faster);
+    /// anything else goes through CsvHelper.</summary>
+    public static IEnumerable<TextRow> Rows(string text, char delimiter) =>
+        IsPlain(text) ? PlainRows(text, delimiter) : CsvRows(text, delimiter);
+
+    private static bool HasLoneCarriageReturn(string text)
+    {
+        for (var i = text.IndexOf('\r'); i >= 0; i = text.IndexOf('\r', i + 1))
+            if (i + 1 >= text.Length || text[i + 1] != '\n') return true;
+        return false;
+    }
+
+    /// <summary>Rows of text without quotes: lines end at '\n' (a preceding '\r' is dropped), fields at the delimiter.</summary>
+    internal static IEnumerable<TextRow> PlainRows(string text, char delimiter)
+    {
+        var line = 0;
+        var pos = 0;
+        var fields = new List<string>();
+        while (pos < text.Length)
+        {
+            line++;
+            var end = text.IndexOf('\n', pos);
+            var next = end < 0 ? text.Length : end + 1;
+            if (end < 0) end = text.Length;
+            if (end > pos && text[end - 1] == '\r') end--;
+            fields.Clear();
+            var span = text.AsSpan(pos, end - pos);
+            while (true)
+            {
+                var cut = span.IndexOf(delimiter);
+                var field = cut < 0 ? span : span[..cut];
+                fields.Add(field.Trim().ToString());
+                if (cut < 0) break;
+                span = span[(cut + 1)..];
+            }
+
+            var count = fields.Count;
+            while (count > 0 && fields[count - 1].Length == 0) count--;
+            yield return new TextRow(line, count == 0 ? [] : fields.GetRange(0, count).ToArray());
+            pos = next;
+        }
+    }
+
+    /// <summary>
+    /// The rows of <see cref="Rows"/> as cells to read numbers from, without a string per cell for quote-free text: the one
+    /// <see cref="CellRow"/> returned is reused for every row (read it before moving on).
+    /// </summary>
+    internal static IEnumerable<CellRow> CellRows(string text, char delimiter)
+    {
+        var row = new CellRow(text);
+        if (!IsPlain(text))
+        {
+            foreach (var r in CsvRows(text, delimiter))
+            {
+                row.Set(r);
+                yield return row;
+            }
+
+            yield break;
+        }
+
+        var line = 0;
+        var pos = 0;
+        while (pos < text.Length)
+        {
+            line++;
+            var end = text.IndexOf('\n', pos);
+            var next = end < 0 ? text.Length : end + 1;
+            if (end < 0) end = text.Length;
+            if (end > pos && text[end - 1] == '\r') end--;
+            row.Split(line, pos, end, delimiter);
+            yield return row;
+            pos = next;
+        }
+    }
+
+    /// <summary>One row's cells (trimmed), trailing empty cells dropped, as spans of the text or of a split row.</summary>
+    internal sealed class CellRow(string text)
+    {
+        private readonly List<(int Start, int Length)> _cells = [];
+        private string[]? _fields;
+
+        public int Line { get; private set; }
+
+        /// <summary>Cells without the trailing empty ones (0: a blank row).</summary>
+        public int Count { get; private set; }
+
+        public bool IsBlank => Count == 0;
+
+        public ReadOnlySpan<char> Cell(int i) => _fields is not null ? _fields[i] : text.AsSpan(_cells[i].Start, _cells[i].Length);
+
+        public string CellText(int i) => Cell(i).ToString();
+
+        internal void Set(TextRow row)
+        {
+            _fields = row.Fields;
+            Line = row.Line;
+            Count = row.Fields.Length;
+        }
+
+        internal void Split(int line, int start, int end, char delimiter)
+        {
+            _fields = null;
+            _cells.Clear();
+            Line = line;
+            Count = 0;
+            var pos = start;
+            while (true)
+            {
+                var cut = text.IndexOf(delimiter, pos, end - pos);
+                var stop = cut < 0 ? end : cut;
+                var cell = text.AsSpan(pos, stop - pos);
+                var lead = cell.Length - cell.TrimStart().Length;
+                var trimmed = cell.Trim();
+                _cells.Add((pos + lead, trimmed.Length));
+                if (trimmed.Length > 0) Count = _cells.Count;
+                if (cut < 0) break;
+                pos = cut + 1;
+            }
+        }
+    }
+
+    /// <summary>Rows by CsvHelper (quoted fields, odd line ends).</summary>
+    internal static IEnumerable<TextRow> CsvRows(string text, char delimiter)
     {
         var options = CsvReaderOptions.Default with
         {
@@ -83,33 +208,82 @@ internal static class DelimitedText
     /// Classifies one cell and parses it. With <paramref name="decimalComma"/> the decimal mark is ',' and a '.'
     /// makes the cell text; without it a ',' makes the cell text (no thousands separators either way).
     /// </summary>
-    public static CellKind Classify(string cell, bool decimalComma, out double value)
+    public static CellKind Classify(string cell, bool decimalComma, out double value) => Classify(cell.AsSpan(), decimalComma, out value);
+
+    /// <inheritdoc cref="Classify(string, bool, out double)"/>
+    public static CellKind Classify(ReadOnlySpan<char> cell, bool decimalComma, out double value)
     {
         value = double.NaN;
-        var s = cell.AsSpan().Trim();
+        var s = cell.Trim();
         if (s.IsEmpty) return CellKind.Empty;
 
         var word = s.Length > 1 && (s[0] == '+' || s[0] == '-') ? s[1..] : s;
-        if (NonFiniteWords.Contains(word.ToString()))
+        // every non-finite word starts with n, i, ∞ or "1.#": numbers skip the look-up
+        var c0 = word[0];
+        var maybeWord = c0 is 'n' or 'N' or 'i' or 'I' or '∞' || (c0 == '1' && word.Length > 2 && word[1] == '.' && word[2] == '#');
+        if (maybeWord && NonFiniteLookup.Contains(word))
         {
             value = word[0] is 'n' or 'N' ? double.NaN : s[0] == '-' ? double.NegativeInfinity : double.PositiveInfinity;
             return CellKind.NonFinite;
         }
 
-        string text;
+        bool parsed;
         if (decimalComma)
         {
             if (s.Contains('.')) return CellKind.Text;
-            text = s.ToString().Replace(',', '.');
+            Span<char> buffer = s.Length <= 128 ? stackalloc char[s.Length] : new char[s.Length];
+            s.CopyTo(buffer);
+            buffer.Replace(',', '.');
+            parsed = double.TryParse(buffer, NumberStyles.Float, CultureInfo.InvariantCulture, out value);
         }
         else
         {
             if (s.Contains(',')) return CellKind.Text;
-            text = s.ToString();
+            parsed = double.TryParse(s, NumberStyles.Float, CultureInfo.InvariantCulture, out value);
         }
 
-        if (!double.TryParse(text, NumberStyles.Float, CultureInfo.InvariantCulture, out value)) return CellKind.Text;
+        if (!parsed) return CellKind.Text;
         return double.IsFinite(value) ? CellKind.Finite : CellKind.NonFinite;
+    }
+
+    /// <summary>
+    /// True when <see cref="Classify(ReadOnlySpan{char}, bool, out double)"/> would say Finite or NonFinite: the same
+    /// decision without computing the value. Numbers follow the grammar double.TryParse accepts with
+    /// NumberStyles.Float (sign, digits with at most one decimal mark, at least one digit, optional exponent).
+    /// </summary>
+    public static bool IsNumberCell(ReadOnlySpan<char> cell, bool decimalComma)
+    {
+        var s = cell.Trim();
+        if (s.IsEmpty) return false;
+        var word = s.Length > 1 && (s[0] == '+' || s[0] == '-') ? s[1..] : s;
+        var c0 = word[0];
+        if ((c0 is 'n' or 'N' or 'i' or 'I' or '∞' || (c0 == '1' && word.Length > 2 && word[1] == '.' && word[2] == '#')) && NonFiniteLookup.Contains(word))
+            return true;
+        var mark = decimalComma ? ',' : '.';
+        var i = 0;
+        if (s[i] is '+' or '-') i++;
+        var digits = 0;
+        while (i < s.Length && char.IsAsciiDigit(s[i])) { i++; digits++; }
+        if (i < s.Length && s[i] == mark)
+        {
+            i++;
+            while (i < s.Length && char.IsAsciiDigit(s[i])) { i++; digits++; }
+        }
+
+        if (digits == 0) return false;
+        if (i < s.Length && s[i] is 'e' or 'E')
+        {
+            i++;
+            if (i < s.Length && s[i] is '+' or '-') i++;
+            var exponent = 0;
+            while (i < s.Length && char.IsAsciiDigit(s[i])) { i++; exponent++; }
+            if (exponent == 0) return false;
+        }
+
+        // .NET's parser allows trailing white space (space, tab to carriage return) and then trailing NUL characters
+        while (i < s.Length && (s[i] == ' ' || (s[i] >= '\t' && s[i] <= '\r'))) i++;
+        while (i < s.Length && s[i] == '\0') i++;
+        return i == s.Length;
     }
 
     /// <summary>The first <paramref name="lines"/> lines of the text (all of it when shorter).</summary>
@@ -137,13 +311,20 @@ internal static class DelimitedText
     /// header when it has the data's field count and no number in it (or always, with <paramref name="hasHeader"/>).
     /// </para>
     /// </summary>
-    public static DataLayout Detect(string head, char? delimiter, bool? decimalComma, bool? hasHeader, string file)
+    public static DataLayout Detect(string head, char? delimiter, bool? decimalComma, bool? hasHeader, string file) =>
+        Detect(head, delimiter, decimalComma, hasHeader, file, alwaysCsvHelper: false);
+
+    /// <summary><see cref="Detect(string, char?, bool?, bool?, string)"/>; with <paramref name="alwaysCsvHelper"/> quote-free
+    /// text is split by CsvHelper too (for tests that both ways agree).</summary>
+    internal static DataLayout Detect(string head, char? delimiter, bool? decimalComma, bool? hasHeader, string file, bool alwaysCsvHelper)
     {
         Candidate? best = null;
         var delimiters = delimiter is char d0 ? [d0] : Delimiters;
+        // quote-free text is looked at line by line without splitting it into strings; other text goes through CsvHelper
+        var plain = !alwaysCsvHelper && IsPlain(head) ? PlainLines.Of(head) : null;
         foreach (var d in delimiters)
         {
-            var rows = Rows(head, d).ToList();
+            RowSource rows = plain is not null ? new PlainSource(plain, d) : new ListSource(CsvRows(head, d).ToList());
             bool[] marks = decimalComma is bool dc0 ? [dc0] : [false, true];
             foreach (var dc in marks)
             {
@@ -158,6 +339,123 @@ internal static class DelimitedText
         return new DataLayout(best.Delimiter, best.DecimalComma, best.FieldCount, firstLine, header, headerLine);
     }
 
+    private static bool IsPlain(string text) => !text.Contains('"') && !HasLoneCarriageReturn(text);
+
+    /// <summary>Start and end (without the line break) of each line of a text.</summary>
+    private sealed class PlainLines
+    {
+        private PlainLines(string text, List<int> starts, List<int> ends)
+        {
+            Text = text;
+            Starts = starts.ToArray();
+            Ends = ends.ToArray();
+        }
+
+        public string Text { get; }
+        public int[] Starts { get; }
+        public int[] Ends { get; }
+
+        public ReadOnlySpan<char> this[int i] => Text.AsSpan(Starts[i], Ends[i] - Starts[i]);
+
+        public static PlainLines Of(string text)
+        {
+            var starts = new List<int>();
+            var ends = new List<int>();
+            var pos = 0;
+            while (pos < text.Length)
+            {
+                var end = text.IndexOf('\n', pos);
+                var next = end < 0 ? text.Length : end + 1;
+                if (end < 0) end = text.Length;
+                if (end > pos && text[end - 1] == '\r') end--;
+                starts.Add(pos);
+                ends.Add(end);
+                pos = next;
+            }
+
+            return new PlainLines(text, starts, ends);
+        }
+    }
+
+    /// <summary>Rows as layout detection needs them: field counts and number-row tests, and whole rows on demand.</summary>
+    private abstract class RowSource
+    {
+        public abstract int Count { get; }
+
+        /// <summary>Fields without the trailing empty ones (0: a blank row).</summary>
+        public abstract int FieldCount(int i);
+
+        public abstract bool IsNumberRow(int i, bool decimalComma);
+
+        public abstract TextRow Row(int i);
+    }
+
+    private sealed class ListSource(List<TextRow> rows) : RowSource
+    {
+        public override int Count => rows.Count;
+        public override int FieldCount(int i) => rows[i].Fields.Length;
+        public override bool IsNumberRow(int i, bool decimalComma) => DelimitedText.IsNumberRow(rows[i], decimalComma);
+        public override TextRow Row(int i) => rows[i];
+    }
+
+    /// <summary>Quote-free lines split at the delimiter on demand (the same fields as <see cref="PlainRows"/>).</summary>
+    private sealed class PlainSource : RowSource
+    {
+        private readonly PlainLines _lines;
+        private readonly char _delimiter;
+        private readonly int[] _fieldCounts;
+
+        public PlainSource(PlainLines lines, char delimiter)
+        {
+            _lines = lines;
+            _delimiter = delimiter;
+            _fieldCounts = new int[lines.Starts.Length];
+            Array.Fill(_fieldCounts, -1);
+        }
+
+        public override int Count => _fieldCounts.Length;
+
+        public override int FieldCount(int i)
+        {
+            if (_fieldCounts[i] >= 0) return _fieldCounts[i];
+            var span = _lines[i];
+            int index = 0, count = 0;
+            while (true)
+            {
+                var cut = span.IndexOf(_delimiter);
+                var field = cut < 0 ? span : span[..cut];
+                index++;
+                if (!field.Trim().IsEmpty) count = index;
+                if (cut < 0) break;
+                span = span[(cut + 1)..];
+            }
+
+            return _fieldCounts[i] = count;
+        }
+
+        public override bool IsNumberRow(int i, bool decimalComma)
+        {
+            var span = _lines[i];
+            var any = false;
+            while (true)
+            {
+                var cut = span.IndexOf(_delimiter);
+                var field = cut < 0 ? span : span[..cut];
+                if (IsNumberCell(field, decimalComma)) any = true;
+                else if (!field.Trim().IsEmpty) return false;
+
+                if (cut < 0) break;
+                span = span[(cut + 1)..];
+            }
+
+            return any;
+        }
+
+        public override TextRow Row(int i) => PlainRows(_lines.Text[_lines.Starts[i].._lines.Ends[i]], _delimiter).FirstOrDefault() is { Fields: not null } row
+            ? row with { Line = i + 1 }
+            : new TextRow(i + 1, []);
+    }
+
     private sealed class Run(int start, int fieldCount)
     {
         public int Start { get; } = start;
@@ -165,7 +463,7 @@ internal static class DelimitedText
         public int Length { get; set; } = 1;
     }
 
-    private sealed record Candidate(char Delimiter, bool DecimalComma, List<TextRow> Rows, int FieldCount, int StartIndex, int Score);
+    private sealed record Candidate(char Delimiter, bool DecimalComma, RowSource Rows, int FieldCount, int StartIndex, int Score);
 
     private static bool Better(Candidate a, Candidate b)
     {
@@ -175,21 +473,21 @@ internal static class DelimitedText
         return Array.IndexOf(Delimiters, a.Delimiter) < Array.IndexOf(Delimiters, b.Delimiter);
     }
 
-    private static Candidate? Evaluate(List<TextRow> rows, char delimiter, bool decimalComma)
+    private static Candidate? Evaluate(RowSource rows, char delimiter, bool decimalComma)
     {
         var runs = new List<Run>();
         Run? current = null;
         for (int i = 0; i < rows.Count; i++)
         {
-            var row = rows[i];
-            if (row.IsBlank) continue;
-            if (!IsNumberRow(row, decimalComma))
+            var fields = rows.FieldCount(i);
+            if (fields == 0) continue;
+            if (!rows.IsNumberRow(i, decimalComma))
             {
                 current = null;
                 continue;
             }
-            if (current is not null && current.FieldCount == row.Fields.Length) current.Length++;
-            else runs.Add(current = new Run(i, row.Fields.Length));
+            if (current is not null && current.FieldCount == fields) current.Length++;
+            else runs.Add(current = new Run(i, fields));
         }
         if (runs.Count == 0) return null;
 
@@ -213,12 +511,8 @@ internal static class DelimitedText
         bool any = false;
         foreach (var f in row.Fields)
         {
-            switch (Classify(f, decimalComma, out _))
-            {
-                case CellKind.Text: return false;
-                case CellKind.Finite:
-                case CellKind.NonFinite: any = true; break;
-            }
+            if (IsNumberCell(f, decimalComma)) any = true;
+            else if (f.Length > 0) return false; // fields are trimmed
         }
         return any;
     }
@@ -228,13 +522,13 @@ internal static class DelimitedText
 
     private static (string[]? Header, int? HeaderLine, int FirstDataLine) FindHeader(Candidate c, bool? hasHeader)
     {
-        var start = c.Rows[c.StartIndex];
+        var start = c.Rows.Row(c.StartIndex);
         if (hasHeader == false) return (null, null, start.Line);
 
         // Nearest row above the data that holds text; rows of numbers, NaN or blanks in between are skipped.
         for (int i = c.StartIndex - 1; i >= 0; i--)
         {
-            var row = c.Rows[i];
+            var row = c.Rows.Row(i);
             if (row.IsBlank || !HasText(row, c.DecimalComma)) continue;
             bool looksLikeHeader = row.Fields.Length == c.FieldCount &&
                                    row.Fields.All(f => Classify(f, c.DecimalComma, out _) is CellKind.Text or CellKind.Empty);

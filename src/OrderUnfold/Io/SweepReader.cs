@@ -23,7 +23,7 @@ public static class SweepReader
         var path = options.Path;
         CheckOptions(options);
         var text = ReadText(path);
-        if (text.Trim().Length == 0) throw new InputException("the file is empty", path);
+        if (string.IsNullOrWhiteSpace(text)) throw new InputException("the file is empty", path);
 
         DataLayout layout;
         try
@@ -312,7 +312,7 @@ public static class SweepReader
 
         try
         {
-            foreach (var row in DelimitedText.Rows(text, layout.Delimiter))
+            foreach (var row in DelimitedText.CellRows(text, layout.Delimiter))
             {
                 if (row.Line < layout.FirstDataLine) continue;
                 if (row.IsBlank)
@@ -328,16 +328,16 @@ public static class SweepReader
                         path, bl);
                 blankLine = null;
 
-                if (row.Fields.Length > n)
+                if (row.Count > n)
                     throw new InputException(
-                        $"expected {n} field{(n == 1 ? "" : "s")} as in the rows above but got {row.Fields.Length}: " +
-                        $"\"{row.Fields[n]}\" in column {n + 1}", path, row.Line, n + 1);
+                        $"expected {n} field{(n == 1 ? "" : "s")} as in the rows above but got {row.Count}: " +
+                        $"\"{row.CellText(n)}\" in column {n + 1}", path, row.Line, n + 1);
 
                 bool skip = false;
                 for (int k = 0; k < used.Count; k++)
                 {
                     int c = used[k];
-                    var cell = c < row.Fields.Length ? row.Fields[c] : "";
+                    var cell = c < row.Count ? row.Cell(c) : ReadOnlySpan<char>.Empty;
                     var kind = DelimitedText.Classify(cell, layout.DecimalComma, out values[k]);
                     if (kind == CellKind.Finite) continue;
                     if (!started && kind is CellKind.Empty or CellKind.NonFinite)
@@ -352,7 +352,7 @@ public static class SweepReader
                         _ => "",
                     };
                     throw new InputException(
-                        $"expected a number in {Describe(c, layout)} but got \"{cell}\"{why}", path, row.Line, c + 1);
+                        $"expected a number in {Describe(c, layout)} but got \"{cell.ToString()}\"{why}", path, row.Line, c + 1);
                 }
                 if (skip) continue;
 
