@@ -19,6 +19,19 @@ public static class AtomicFile
 
     public static void WriteAllBytes(string path, byte[] content) => Write(path, s => s.Write(content, 0, content.Length));
 
+    /// <summary>
+    /// Writes a file in a staging folder that is published as a whole (renamed into place once complete): no temporary
+    /// file and no flush here; whoever publishes the folder calls <see cref="FlushToDisk"/> on its files first.
+    /// </summary>
+    public static void WriteStaged(string path, string content) => File.WriteAllText(path, content, Utf8NoBom);
+
+    /// <summary>Forces a written file's data to disk (fsync).</summary>
+    public static void FlushToDisk(string path)
+    {
+        using var handle = File.OpenHandle(path, FileMode.Open, FileAccess.ReadWrite);
+        RandomAccess.FlushToDisk(handle);
+    }
+
     /// <summary>Writes through a callback that receives the temporary stream.</summary>
     public static void Write(string path, Action<Stream> write)
     {

@@ -24,15 +24,17 @@ public static class UnfoldOutputs
     private static readonly CultureInfo C = CultureInfo.InvariantCulture;
 
     /// <summary>Writes report.json, lines.csv, spectrum.csv and (unless <paramref name="plots"/> is false) the PNGs.
-    /// Returns the paths written.</summary>
-    public static IReadOnlyList<string> Write(UnfoldRun run, string directory, bool plots = true, string? toolVersion = null)
+    /// Returns the paths written. With <paramref name="staged"/> the directory is a staging folder that is published as a
+    /// whole (the batch): the text files are written directly, and flushing them to disk is left to the publisher.</summary>
+    public static IReadOnlyList<string> Write(UnfoldRun run, string directory, bool plots = true, string? toolVersion = null, bool staged = false)
     {
         Directory.CreateDirectory(directory);
         var written = new List<string>();
         void Text(string name, string content)
         {
             var p = Path.Combine(directory, name);
-            AtomicFile.WriteAllText(p, content);
+            if (staged) AtomicFile.WriteStaged(p, content);
+            else AtomicFile.WriteAllText(p, content);
             written.Add(p);
         }
 

@@ -184,6 +184,20 @@ public class BatchTests(BatchArchiveFixture fx, ITestOutputHelper output) : ICla
     }
 
     [Fact]
+    public void AnItemThatCannotBePublishedStopsTheBatchWithTheError()
+    {
+        // items are published (flushed and renamed into items/) on a thread of their own; when that fails — here a file
+        // stands where an item's folder must go — the batch stops and reports the error instead of hanging or losing it
+        var dir = fx.NewDir("publish-fails");
+        Directory.CreateDirectory(BatchLayout.Items(dir));
+        File.WriteAllText(BatchLayout.Item(dir, "sweep-0005"), "in the way");
+        var e = Assert.ThrowsAny<IOException>(() => BatchRunner.Run(fx.Archive.ManifestPath, dir, new BatchOptions { Jobs = 2 }));
+        output.WriteLine(e.Message);
+        Assert.Equal("in the way", File.ReadAllText(BatchLayout.Item(dir, "sweep-0005")));
+        Assert.True(File.Exists(Path.Combine(BatchLayout.Item(dir, "sweep-0001"), BatchLayout.DoneFile)));
+    }
+
+    [Fact]
     public void ChangedInputRunsTheItemAgain()
     {
         var dir = fx.NewDir("changed");

@@ -128,14 +128,16 @@ public static class BatchRunner
         }
 
         var complete = true;
+        using var stop = CancellationTokenSource.CreateLinkedTokenSource(cancel);
+        var publisher = new Publisher(staging, 4 * options.Jobs + 4, stop);
         try
         {
             Parallel.ForEach(
                 System.Collections.Concurrent.Partitioner.Create(Rows(), EnumerablePartitionerOptions.NoBuffering),
-                new ParallelOptions { MaxDegreeOfParallelism = options.Jobs, CancellationToken = cancel },
+                new ParallelOptions { MaxDegreeOfParallelism = options.Jobs, CancellationToken = stop.Token },
                 row =>
                 {
-                    var (record, wasSkipped) = Process(row, context, manifest);
+                    var (record, wasSkipped) = Process(row, context, manifest, publisher);
                     BatchProgress report;
                     lock (finished)
                     {
@@ -155,10 +157,17 @@ public static class BatchRunner
             // the output folder itself failed (disk full, permissions): nothing more can be written
             System.Runtime.ExceptionServices.ExceptionDispatchInfo.Capture(e.InnerException!).Throw();
         }
-        catch (OperationCanceledException) when (cancel.IsCancellationRequested)
+        catch (OperationCanceledException) when (stop.IsCancellationRequested)
         {
             complete = false;
         }
+        finally
+        {
+            publisher.Finish(); // items handed over are published before the summary is written
+        }
+
+        // the output folder itself failed while publishing (disk full, permissions): nothing more can be written
+        if (publisher.Failure is not null) System.Runtime.ExceptionServices.ExceptionDispatchInfo.Capture(publisher.Failure).Throw();
 
         finished.Sort(ItemId.Order);
         var summary = BatchLayout.Summary(outDir, shard);
@@ -186,8 +195,61 @@ public static class BatchRunner
         public ConcurrentDictionary<string, Lazy<(CalibrationSet Set, string Sha)>> Calibrations { get; } = new(StringComparer.Ordinal);
     }
 
-    /// <summary>Runs (or skips) one row; never throws for a problem of the item itself.</summary>
-    private static (ItemRecord Record, bool Skipped) Process(ManifestRow row, Context ctx, string manifest)
+    /// <summary>
+    /// Publishes finished items on a thread of its own: flushes the files of a staged item folder to disk and renames
+    /// the folder into place. Workers hand a folder over and go on with their next item instead of waiting for the
+    /// disk; a full queue makes them wait (bounded memory). The first failure (disk full, permissions) stops the
+    /// batch through <paramref name="stop"/> and is rethrown by the caller after <see cref="Finish"/>.
+    /// </summary>
+    private sealed class Publisher
+    {
+        private readonly BlockingCollection<(string Stage, string Target)> _queue;
+        private readonly Thread _thread;
+        private readonly string _stagingRoot;
+        private readonly CancellationTokenSource _stop;
+
+        public Publisher(string stagingRoot, int capacity, CancellationTokenSource stop)
+        {
+            _stagingRoot = stagingRoot;
+            _stop = stop;
+            _queue = new BlockingCollection<(string, string)>(capacity);
+            _thread = new Thread(Loop) { IsBackground = true, Name = "orderunfold batch publisher" };
+            _thread.Start();
+        }
+
+        public Exception? Failure { get; private set; }
+
+        public void Add(string stage, string target) => _queue.Add((stage, target));
+
+        /// <summary>No more items: publishes what is queued and waits for it.</summary>
+        public void Finish()
+        {
+            _queue.CompleteAdding();
+            _thread.Join();
+        }
+
+        private void Loop()
+        {
+            foreach (var (stage, target) in _queue.GetConsumingEnumerable())
+            {
+                if (Failure is not null) continue; // keep taking items so no worker blocks on a full queue
+                try
+                {
+                    foreach (var file in Directory.EnumerateFiles(stage, "*", SearchOption.AllDirectories)) AtomicFile.FlushToDisk(file);
+                    Publish(stage, target, _stagingRoot);
+                }
+                catch (Exception e) when (e is IOException or UnauthorizedAccessException)
+                {
+                    Failure = e;
+                    _stop.Cancel();
+                }
+            }
+        }
+    }
+
+    /// <summary>Runs (or skips) one row; never throws for a problem of the item itself. A run item is handed to
+    /// <paramref name="publisher"/>.</summary>
+    private static (ItemRecord Record, bool Skipped) Process(ManifestRow row, Context ctx, string manifest, Publisher publisher)
     {
         var clock = Stopwatch.StartNew();
         var folder = row.Folder;
@@ -220,7 +282,7 @@ public static class BatchRunner
             try
             {
                 var run = UnfoldPipeline.Run(plan.Setup!, null, plan.Calibration);
-                UnfoldOutputs.Write(run, stage, ctx.Options.Plots, ctx.Options.ToolVersion);
+                UnfoldOutputs.Write(run, stage, ctx.Options.Plots, ctx.Options.ToolVersion, staged: true);
                 var analysis = ctx.Analysis.Analyse(run);
                 var first = run.Result.Sweeps.Count > 0 ? run.Result.Sweeps[0] : null;
                 var fsr = run.Sweeps.Count > 0 ? run.Sweeps[0].Instrument.FsrHz : (double?)null;
@@ -246,8 +308,8 @@ public static class BatchRunner
         }
 
         record = record with { Seconds = clock.Elapsed.TotalSeconds };
-        record.Write(Path.Combine(stage, BatchLayout.DoneFile));
-        Publish(stage, target, ctx.Staging);
+        record.Write(Path.Combine(stage, BatchLayout.DoneFile), staged: true);
+        publisher.Add(stage, target);
         return (record, false);
     }
 

@@ -91,8 +91,12 @@ public sealed record ItemRecord
         return o.ToJsonString(new JsonSerializerOptions { WriteIndented = true }) + "\n";
     }
 
-    /// <summary>Writes the record atomically.</summary>
-    public void Write(string path) => AtomicFile.WriteAllText(path, ToJson());
+    /// <summary>Writes the record atomically (or, with <paramref name="staged"/>, into a staging folder published as a whole).</summary>
+    public void Write(string path, bool staged = false)
+    {
+        if (staged) AtomicFile.WriteStaged(path, ToJson());
+        else AtomicFile.WriteAllText(path, ToJson());
+    }
 
     /// <summary>Reads a record; null when the file is missing or is not a readable record (the item then counts as not done).</summary>
     public static ItemRecord? TryRead(string path)
