@@ -1,4 +1,6 @@
 using BenchmarkDotNet.Attributes;
+using BenchmarkDotNet.Configs;
+using BenchmarkDotNet.Jobs;
 using OrderUnfold.Pipeline.Batch;
 using OrderUnfold.Simulation;
 
@@ -6,11 +8,12 @@ namespace OrderUnfold.Benchmarks;
 
 /// <summary>
 /// Items per second of <c>orderunfold batch</c> on the simulated demo archive (single-sweep items of 2 500
-/// samples, one reused calibration file, plots off), with 1 and 2 jobs. Items/s = <see cref="Items"/> ÷ mean time.
-/// Each iteration starts from an empty output folder, so every item is run (none is skipped).
+/// samples, one reused calibration file, plots off, the laser-mode columns filled as the command line does), with
+/// 1 and 2 jobs. Items/s = <see cref="Items"/> ÷ mean time. Each iteration starts from an empty output folder, so
+/// every item is run (none is skipped). Dynamic PGO is off, as in the command line's runtime configuration.
 /// </summary>
 [MemoryDiagnoser]
-[SimpleJob(launchCount: 1, warmupCount: 1, iterationCount: 5)]
+[Config(typeof(Settings))]
 public class BatchBenchmark
 {
     /// <summary>Items in the archive (the defects of the demo archive are kept: five of them fail fast).</summary>
@@ -38,7 +41,7 @@ public class BatchBenchmark
     }
 
     [Benchmark]
-    public BatchResult Batch() => BatchRunner.Run(_manifest, _out, new BatchOptions { Jobs = Jobs });
+    public BatchResult Batch() => BatchRunner.Run(_manifest, _out, new BatchOptions { Jobs = Jobs, Analysis = ModeItemAnalysis.Instance });
 
     [IterationCleanup]
     public void RemoveOutput()
@@ -51,4 +54,16 @@ public class BatchBenchmark
     {
         if (Directory.Exists(_root)) Directory.Delete(_root, recursive: true);
     }
+}
+
+/// <summary>One launch, one warm-up and five measured iterations; DOTNET_TieredPGO=0 as the command line runs.</summary>
+public sealed class Settings : ManualConfig
+{
+    public Settings() =>
+        AddJob(Job.Default
+            .WithLaunchCount(1)
+            .WithWarmupCount(1)
+            .WithIterationCount(5)
+            .WithEnvironmentVariables(new EnvironmentVariable("DOTNET_TieredPGO", "0"))
+            .WithId("pgo-off"));
 }
