@@ -55,6 +55,17 @@ public static class CpuTimeProbe
         Measure(o, "NNLS solve only, 10 000 bins", 10, () => s.NnlsSolveOnly());
         Measure(o, "Unfolder.Run, 2 × 20 000 samples, 10 000 bins", 3, () => s.UnfolderRun());
 
+        // the batch (as BatchBenchmark, one job): per item, after one warm-up batch
+        var batch = new BatchBenchmark { Jobs = 1 };
+        batch.Setup();
+        Measure(o, $"batch of {BatchBenchmark.Items} archive items, 1 job (whole batch)", 3, () =>
+        {
+            batch.FreshOutput();
+            batch.Batch();
+            batch.RemoveOutput();
+        });
+        batch.Cleanup();
+
         // where the unfolder's time goes: CPU time at each progress report
         var c2 = SimulatedCase.TwoCavities(20_000);
         var grid = c2.Grid(10_000);

@@ -33,8 +33,8 @@ public sealed class BatchCommand : ICommand
           --setup FILE     setup for rows without a setup value
           --calibration F  calibration file for rows without a calibration value
           --plots          also write each item's PNG plots (slower)
-          --no-refine      skip the off-grid line refinement whatever the setups say: about half the
-                           time per single-sweep item, but no refined uncertainties or order checks
+          --no-refine      skip the off-grid line refinement whatever the setups say: about a fifth
+                           less time per single-sweep item, but no refined uncertainties or order checks
           --retry-failed   run failed items again even if their inputs did not change
           --quiet          no progress display
         Ctrl-C (or SIGTERM) lets the items in flight finish, writes the summary of what finished and exits

@@ -26,7 +26,7 @@ public sealed record BatchOptions
     public bool Plots { get; init; }
 
     /// <summary>
-    /// Skip the off-grid line refinement for every item, whatever the setups say (about half the time per item for
+    /// Skip the off-grid line refinement for every item, whatever the setups say (about a fifth of the time per item for
     /// single-sweep items; no refined uncertainties or order checks). False: as each setup says.
     /// </summary>
     public bool NoRefine { get; init; }
