@@ -70,9 +70,20 @@ internal static class DelimitedText
     /// <summary>Rows of text without quotes: lines end at '\n' (a preceding '\r' is dropped), fields at the delimiter.</summary>
     internal static IEnumerable<TextRow> PlainRows(string text, char delimiter)
     {
+        var row = new CellRow(text);
+        foreach (var (line, start, end) in LineBounds(text))
+        {
+            row.Split(line, start, end, delimiter);
+            yield return row.ToTextRow();
+        }
+    }
+
+    /// <summary>Line number (from 1), start and end (without the line break) of each line: lines end at '\n', and a
+    /// '\r' before it is dropped.</summary>
+    private static IEnumerable<(int Line, int Start, int End)> LineBounds(string text)
+    {
         var line = 0;
         var pos = 0;
-        var fields = new List<string>();
         while (pos < text.Length)
         {
             line++;
@@ -80,20 +91,7 @@ internal static class DelimitedText
             var next = end < 0 ? text.Length : end + 1;
             if (end < 0) end = text.Length;
             if (end > pos && text[end - 1] == '\r') end--;
-            fields.Clear();
-            var span = text.AsSpan(pos, end - pos);
-            while (true)
-            {
-                var cut = span.IndexOf(delimiter);
-                var field = cut < 0 ? span : span[..cut];
-                fields.Add(field.Trim().ToString());
-                if (cut < 0) break;
-                span = span[(cut + 1)..];
-            }
-
-            var count = fields.Count;
-            while (count > 0 && fields[count - 1].Length == 0) count--;
-            yield return new TextRow(line, count == 0 ? [] : fields.GetRange(0, count).ToArray());
+            yield return (line, pos, end);
             pos = next;
         }
     }
@@ -116,18 +114,10 @@ internal static class DelimitedText
             yield break;
         }
 
-        var line = 0;
-        var pos = 0;
-        while (pos < text.Length)
+        foreach (var (line, start, end) in LineBounds(text))
         {
-            line++;
-            var end = text.IndexOf('\n', pos);
-            var next = end < 0 ? text.Length : end + 1;
-            if (end < 0) end = text.Length;
-            if (end > pos && text[end - 1] == '\r') end--;
-            row.Split(line, pos, end, delimiter);
+            row.Split(line, start, end, delimiter);
             yield return row;
-            pos = next;
         }
     }
 
@@ -147,6 +137,14 @@ internal static class DelimitedText
         public ReadOnlySpan<char> Cell(int i) => _fields is not null ? _fields[i] : text.AsSpan(_cells[i].Start, _cells[i].Length);
 
         public string CellText(int i) => Cell(i).ToString();
+
+        /// <summary>The row with its cells as strings.</summary>
+        public TextRow ToTextRow()
+        {
+            var fields = new string[Count];
+            for (var i = 0; i < fields.Length; i++) fields[i] = CellText(i);
+            return new TextRow(Line, fields);
+        }
 
         internal void Set(TextRow row)
         {
@@ -355,22 +353,14 @@ internal static class DelimitedText
         public int[] Starts { get; }
         public int[] Ends { get; }
 
-        public ReadOnlySpan<char> this[int i] => Text.AsSpan(Starts[i], Ends[i] - Starts[i]);
-
         public static PlainLines Of(string text)
         {
             var starts = new List<int>();
             var ends = new List<int>();
-            var pos = 0;
-            while (pos < text.Length)
+            foreach (var (_, start, end) in LineBounds(text))
             {
-                var end = text.IndexOf('\n', pos);
-                var next = end < 0 ? text.Length : end + 1;
-                if (end < 0) end = text.Length;
-                if (end > pos && text[end - 1] == '\r') end--;
-                starts.Add(pos);
+                starts.Add(start);
                 ends.Add(end);
-                pos = next;
             }
 
             return new PlainLines(text, starts, ends);
@@ -404,6 +394,7 @@ internal static class DelimitedText
         private readonly PlainLines _lines;
         private readonly char _delimiter;
         private readonly int[] _fieldCounts;
+        private readonly CellRow _row;
 
         public PlainSource(PlainLines lines, char delimiter)
         {
@@ -411,49 +402,35 @@ internal static class DelimitedText
             _delimiter = delimiter;
             _fieldCounts = new int[lines.Starts.Length];
             Array.Fill(_fieldCounts, -1);
+            _row = new CellRow(lines.Text);
         }
 
         public override int Count => _fieldCounts.Length;
 
-        public override int FieldCount(int i)
+        private CellRow Split(int i)
         {
-            if (_fieldCounts[i] >= 0) return _fieldCounts[i];
-            var span = _lines[i];
-            int index = 0, count = 0;
-            while (true)
-            {
-                var cut = span.IndexOf(_delimiter);
-                var field = cut < 0 ? span : span[..cut];
-                index++;
-                if (!field.Trim().IsEmpty) count = index;
-                if (cut < 0) break;
-                span = span[(cut + 1)..];
-            }
-
-            return _fieldCounts[i] = count;
+            _row.Split(i + 1, _lines.Starts[i], _lines.Ends[i], _delimiter);
+            _fieldCounts[i] = _row.Count;
+            return _row;
         }
+
+        public override int FieldCount(int i) => _fieldCounts[i] >= 0 ? _fieldCounts[i] : Split(i).Count;
 
         public override bool IsNumberRow(int i, bool decimalComma)
         {
-            var span = _lines[i];
+            var row = Split(i);
             var any = false;
-            while (true)
+            for (var c = 0; c < row.Count; c++)
             {
-                var cut = span.IndexOf(_delimiter);
-                var field = cut < 0 ? span : span[..cut];
-                if (IsNumberCell(field, decimalComma)) any = true;
-                else if (!field.Trim().IsEmpty) return false;
-
-                if (cut < 0) break;
-                span = span[(cut + 1)..];
+                var cell = row.Cell(c);
+                if (IsNumberCell(cell, decimalComma)) any = true;
+                else if (!cell.IsEmpty) return false;
             }
 
             return any;
         }
 
-        public override TextRow Row(int i) => PlainRows(_lines.Text[_lines.Starts[i].._lines.Ends[i]], _delimiter).FirstOrDefault() is { Fields: not null } row
-            ? row with { Line = i + 1 }
-            : new TextRow(i + 1, []);
+        public override TextRow Row(int i) => Split(i).ToTextRow();
     }
 
     private sealed class Run(int start, int fieldCount)
