@@ -226,6 +226,7 @@ public static class BatchRunner
         {
             _queue.CompleteAdding();
             _thread.Join();
+            _queue.Dispose();
         }
 
         private void Loop()
