@@ -361,6 +361,7 @@ public static class LineRefiner
         var ordersResolved = grid.OrdersResolved;
         var cs = fit.Scaled;
         var cu = fit.Unscaled;
+        var axisCov = AxisCovariance(data, layout, fit);
         for (var j = 0; j < layout.Lines; j++)
         {
             var t = tracked[j];
@@ -387,6 +388,10 @@ public static class LineRefiner
                 note.Add($"covariance and bootstrap errors disagree ({Quantity.FormatFrequency(sc, 2)} vs {Quantity.FormatFrequency(bs, 2)}): bootstrap used");
             }
 
+            // the calibrated axes' own uncertainty, combined with the statistical one
+            double? axisSigma = axisCov is null || t.Pinned ? null : j == anchor ? 0 : Finite(Math.Sqrt(Math.Max(0, VarDiff(axisCov, nj, na))));
+            if (reportedSigma is double rs && axisSigma is double ax) reportedSigma = Math.Sqrt(rs * rs + ax * ax);
+
             // a neighbour closer than a linewidth (but not merged): strongly correlated parameters
             for (var i = 0; i < layout.Lines; i++)
             {
@@ -404,6 +409,7 @@ public static class LineRefiner
             refined.Add(new UnfoldedLine(nu, rel, a, snr ?? t.Grid.Snr, t.FirstBin, t.LastBin)
             {
                 FrequencySigmaHz = reportedSigma,
+                FrequencyAxisSigmaHz = axisSigma,
                 FrequencyCrbHz = crbNu,
                 IntensitySigma2 = Finite(Math.Sqrt(varRel)),
                 BootstrapSigmaHz = bootSigma,
@@ -518,6 +524,53 @@ public static class LineRefiner
 
     private static double? Finite(double v) => double.IsFinite(v) ? v : null;
 
+    /// <summary>
+    /// Covariance of the fitted parameters that the uncertainty of the calibrated scan axes causes, by linear
+    /// propagation: an axis whose shape coefficients are off by δc shifts the fit by δp = F⁻¹ B δc (F the Fisher matrix,
+    /// B from <see cref="Data.AxisSensitivity"/>), so Cov = F⁻¹ (Σ B C Bᵀ) F⁻¹, the sum over the distinct axes (sweeps
+    /// sharing an axis add their B first, since they share its error). Null when no sweep carries an axis uncertainty.
+    /// Parameters undetermined in F⁻¹ (NaN) stay NaN.
+    /// </summary>
+    internal static Matrix<double>? AxisCovariance(Data data, Layout layout, FitResult fit)
+    {
+        var groups = new List<(object Group, double[,] B, double[] C)>();
+        for (var k = 0; k < data.Sweeps.Count; k++)
+        {
+            if (data.Sweeps[k].AxisUncertainty is not { } axis) continue;
+            var b = data.AxisSensitivity(layout, fit.P, k, axis);
+            var at = groups.FindIndex(g => ReferenceEquals(g.Group, axis.Group) && g.B.GetLength(1) == b.GetLength(1));
+            if (at < 0)
+            {
+                groups.Add((axis.Group, b, axis.ShapeCovariance));
+                continue;
+            }
+
+            var sum = groups[at].B;
+            for (var u = 0; u < b.GetLength(0); u++)
+            for (var m = 0; m < b.GetLength(1); m++)
+                sum[u, m] += b[u, m];
+        }
+
+        if (groups.Count == 0) return null;
+        var n = layout.Count;
+        var middle = Matrix<double>.Build.Dense(n, n);
+        foreach (var (_, b, c) in groups)
+        {
+            var d = b.GetLength(1);
+            var bm = Matrix<double>.Build.Dense(n, d, (u, m) => b[u, m]);
+            var cm = Matrix<double>.Build.Dense(d, d, (i, j) => c[i * d + j]);
+            middle += bm * cm * bm.Transpose();
+        }
+
+        var bad = Enumerable.Range(0, n).Select(i => !double.IsFinite(fit.Unscaled[i, i])).ToArray();
+        var inverse = fit.Unscaled.Map(v => double.IsFinite(v) ? v : 0);
+        var cov = inverse * middle * inverse;
+        for (var i = 0; i < n; i++)
+        for (var j = 0; j < n; j++)
+            if (bad[i] || bad[j]) cov[i, j] = double.NaN;
+        return cov;
+    }
+
     // ---------------------------------------------------------------- model
 
     /// <summary>All samples of all sweeps, concatenated, with their weights 1/σ².</summary>
@@ -609,83 +662,26 @@ public static class LineRefiner
             var n = layout.Count;
             Array.Clear(jtj);
             Array.Clear(jtr);
-            var lines = layout.Lines;
-            var perLine = layout.Widths ? 3 : 2;
-            var index = new int[perLine * lines + 3];
-            var row = new double[index.Length];
-            var t = new double[lines];
-            var dt = new double[lines];
-            var tw = layout.Widths ? new double[lines] : null;
             double chi = 0;
             for (var k = 0; k < Sweeps.Count; k++)
             {
-                var inst = Sweeps[k].Instrument;
-                var phi = k == 0 ? 0 : p[layout.Phi(k)];
-                var g = k == 0 ? 1 : p[layout.G(k)];
-                var b = p[layout.B(k)];
-                // the non-zero columns of this sweep's rows
-                var used = 0;
-                for (var j = 0; j < lines; j++)
-                {
-                    index[used++] = layout.Nu(j);
-                    index[used++] = layout.A(j);
-                    if (layout.Widths) index[used++] = layout.W(j);
-                }
-
-                if (k > 0)
-                {
-                    index[used++] = layout.Phi(k);
-                    index[used++] = layout.G(k);
-                }
-
-                index[used++] = layout.B(k);
-                var shapes = LineShapes(inst, layout, p);
-                var wideShapes = layout.Widths ? LineShapes(inst, layout, p, inst.LinewidthHz * 1e-3) : null;
+                var rows = new SweepRows(this, layout, p, k);
+                var index = rows.Index;
+                var row = rows.Row;
+                var used = rows.Used;
                 for (var i = Start[k]; i < Start[k + 1]; i++)
                 {
-                    double sumT = 0, sumDT = 0;
-                    for (var j = 0; j < lines; j++)
-                    {
-                        var (tj, dtj) = shapes[j].Evaluate(p[layout.Nu(j)] - phi - F[i]);
-                        t[j] = tj;
-                        dt[j] = dtj;
-                        var a = p[layout.A(j)];
-                        sumT += a * tj;
-                        sumDT += a * dtj;
-                        if (tw is not null) tw[j] = wideShapes![j].Evaluate(p[layout.Nu(j)] - phi - F[i]).T;
-                    }
-
+                    var model = rows.Fill(i, out _);
                     var sw = Math.Sqrt(W[i]);
-                    var r = (y[i] - (g * sumT + b)) * sw;
+                    var r = (y[i] - model) * sw;
                     chi += r * r;
-                    var c = 0;
-                    for (var j = 0; j < lines; j++)
-                    {
-                        var a = p[layout.A(j)];
-                        row[c++] = sw * g * a * dt[j];
-                        row[c++] = sw * g * t[j];
-                        if (tw is not null)
-                        {
-                            // the model uses |w|; forward difference in |w|, signed by w
-                            var h = inst.LinewidthHz * 1e-3;
-                            row[c++] = sw * (p[layout.W(j)] < 0 ? -1 : 1) * g * a * (tw[j] - t[j]) / h;
-                        }
-                    }
-
-                    if (k > 0)
-                    {
-                        row[c++] = -sw * g * sumDT;
-                        row[c++] = sw * sumT;
-                    }
-
-                    row[c++] = sw;
                     for (var u = 0; u < used; u++)
                     {
-                        var ru = row[u];
+                        var ru = sw * row[u];
                         if (ru == 0) continue;
                         var iu = index[u] * n;
                         jtr[index[u]] += ru * r;
-                        for (var v = u; v < used; v++) jtj[iu + index[v]] += ru * row[v];
+                        for (var v = u; v < used; v++) jtj[iu + index[v]] += ru * sw * row[v];
                     }
                 }
             }
@@ -704,13 +700,136 @@ public static class LineRefiner
             return chi;
         }
 
+        /// <summary>
+        /// B = JᵀW·∂model/∂c (parameters × d) for sweep k's axis shape coefficients c₁…c_d: a sample's model moves by
+        /// (∂model/∂f)·δf(x) when its scan frequency f(x) is off by δf(x) = Σ δcₘ tᵐ, t the axis's normalised x.
+        /// </summary>
+        public double[,] AxisSensitivity(Layout layout, double[] p, int k, AxisUncertainty axis)
+        {
+            var d = axis.Polynomial.Degree;
+            var b = new double[layout.Count, d];
+            var rows = new SweepRows(this, layout, p, k);
+            var powers = new double[d];
+            for (var i = Start[k]; i < Start[k + 1]; i++)
+            {
+                rows.Fill(i, out var slope);
+                var t = (axis.X[i - Start[k]] - axis.Polynomial.Center) / axis.Polynomial.HalfRange;
+                var pm = t;
+                for (var m = 0; m < d; m++)
+                {
+                    powers[m] = W[i] * slope * pm;
+                    pm *= t;
+                }
+
+                for (var u = 0; u < rows.Used; u++)
+                {
+                    var ru = rows.Row[u];
+                    if (ru == 0) continue;
+                    for (var m = 0; m < d; m++) b[rows.Index[u], m] += ru * powers[m];
+                }
+            }
+
+            return b;
+        }
+
         /// <summary>Per-line profile constants for one instrument (<paramref name="extraWidth"/> is added to each line's |w|).</summary>
-        private static LineShape[] LineShapes(Instrument inst, Layout layout, double[] p, double extraWidth = 0)
+        internal static LineShape[] LineShapes(Instrument inst, Layout layout, double[] p, double extraWidth = 0)
         {
             var shapes = new LineShape[layout.Lines];
             for (var j = 0; j < layout.Lines; j++)
                 shapes[j] = LineShape.For(inst, (layout.Widths ? Math.Abs(p[layout.W(j)]) : 0) + extraWidth);
             return shapes;
+        }
+    }
+
+    /// <summary>
+    /// The Jacobian rows of one sweep's samples: which parameters a row can depend on (<see cref="Index"/>, the first
+    /// <see cref="Used"/>: the lines and the sweep's own offset, gain and background) and, after <see cref="Fill"/>, the
+    /// derivatives of the model in that order (not whitened).
+    /// </summary>
+    internal sealed class SweepRows
+    {
+        private readonly Data _data;
+        private readonly Layout _layout;
+        private readonly double[] _p;
+        private readonly int _k;
+        private readonly double _phi, _g, _b;
+        private readonly LineShape[] _shapes;
+        private readonly LineShape[]? _wide;
+
+        public SweepRows(Data data, Layout layout, double[] p, int k)
+        {
+            _data = data;
+            _layout = layout;
+            _p = p;
+            _k = k;
+            var inst = data.Sweeps[k].Instrument;
+            _phi = k == 0 ? 0 : p[layout.Phi(k)];
+            _g = k == 0 ? 1 : p[layout.G(k)];
+            _b = p[layout.B(k)];
+            _shapes = Data.LineShapes(inst, layout, p);
+            _wide = layout.Widths ? Data.LineShapes(inst, layout, p, WidthStep(inst)) : null;
+            Index = new int[(layout.Widths ? 3 : 2) * layout.Lines + 3];
+            Row = new double[Index.Length];
+            var used = 0;
+            for (var j = 0; j < layout.Lines; j++)
+            {
+                Index[used++] = layout.Nu(j);
+                Index[used++] = layout.A(j);
+                if (layout.Widths) Index[used++] = layout.W(j);
+            }
+
+            if (k > 0)
+            {
+                Index[used++] = layout.Phi(k);
+                Index[used++] = layout.G(k);
+            }
+
+            Index[used++] = layout.B(k);
+            Used = used;
+        }
+
+        public int[] Index { get; }
+        public double[] Row { get; }
+        public int Used { get; }
+
+        private static double WidthStep(Instrument inst) => inst.LinewidthHz * 1e-3;
+
+        /// <summary>Fills <see cref="Row"/> for sample i and returns the model there; <paramref name="slope"/> is
+        /// ∂model/∂f, the model's change per Hz of the sample's scan frequency f(xᵢ).</summary>
+        public double Fill(int i, out double slope)
+        {
+            var layout = _layout;
+            var p = _p;
+            var f = _data.F[i];
+            double sumT = 0, sumDT = 0;
+            var c = 0;
+            for (var j = 0; j < layout.Lines; j++)
+            {
+                var delta = p[layout.Nu(j)] - _phi - f;
+                var (t, dt) = _shapes[j].Evaluate(delta);
+                var a = p[layout.A(j)];
+                sumT += a * t;
+                sumDT += a * dt;
+                Row[c++] = _g * a * dt;
+                Row[c++] = _g * t;
+                if (_wide is not null)
+                {
+                    // the model uses |w|; forward difference in |w|, signed by w
+                    var h = WidthStep(_data.Sweeps[_k].Instrument);
+                    Row[c++] = (p[layout.W(j)] < 0 ? -1 : 1) * _g * a * (_wide[j].Evaluate(delta).T - t) / h;
+                }
+            }
+
+            if (_k > 0)
+            {
+                Row[c++] = -_g * sumDT;
+                Row[c++] = sumT;
+            }
+
+            Row[c] = 1;
+            slope = -_g * sumDT;
+            return _g * sumT + _b;
         }
     }
 

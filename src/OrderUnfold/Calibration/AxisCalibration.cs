@@ -47,6 +47,13 @@ public sealed record AxisCalibration(
     /// <summary>RMS standard uncertainty of the axis shape over the calibrated range (additive constant removed), Hz, when estimated.</summary>
     public double? AxisSigmaHz { get; init; }
 
+    /// <summary>
+    /// Covariance (row-major d × d, Hz²) of the shape coefficients c₁…c_d of <see cref="Axis"/> (its constant left out,
+    /// which the sweep origin absorbs), from the scatter of the calibration points about the fit; null when unknown.
+    /// The line refinement propagates it into the line frequencies.
+    /// </summary>
+    public double[]? ShapeCovariance { get; init; }
+
     /// <summary>The Airy fits behind <see cref="Finesse"/> when the finesse was fitted to isolated peaks.</summary>
     public FinesseEstimate? FinesseDetail { get; init; }
 
@@ -166,6 +173,9 @@ public static class AxisCalibrator
         }
 
         return new AxisCalibration(instrument.Name, sweep.Direction, sweep.Name, "calibration sweep", best, px, pf, residuals, rms,
-            finesse, finesseSigma, warnings);
+            finesse, finesseSigma, warnings)
+        {
+            ShapeCovariance = best.ShapeCovariance(px, pf),
+        };
     }
 }

@@ -81,6 +81,67 @@ public sealed record AxisPolynomial
     }
 
     /// <summary>
+    /// Covariance of the shape coefficients c₁…c_d (row-major d × d, Hz²) of this polynomial as an unweighted
+    /// least-squares fit to the points (x, f): s²(AᵀA)⁻¹ restricted to c₁…c_d, with A the normalised Vandermonde
+    /// matrix and s² = Σ residual² / (n − d − 1). The constant c₀ is left out: a common shift of the whole axis is
+    /// absorbed by the sweep's frequency origin. Null without a degree of freedom or when AᵀA is singular.
+    /// </summary>
+    public double[]? ShapeCovariance(IReadOnlyList<double> x, IReadOnlyList<double> f)
+    {
+        var n = x.Count;
+        var p = Coefficients.Length;
+        if (n != f.Count || n <= p || Degree < 1) return null;
+        var a = Matrix<double>.Build.Dense(n, p);
+        var rss = 0.0;
+        for (var i = 0; i < n; i++)
+        {
+            var t = (x[i] - Center) / HalfRange;
+            var v = 1.0;
+            for (var j = 0; j < p; j++)
+            {
+                a[i, j] = v;
+                v *= t;
+            }
+
+            var r = f[i] - Evaluate(x[i]);
+            rss += r * r;
+        }
+
+        var normal = a.TransposeThisAndMultiply(a);
+        if (normal.Determinant() is var det && !(Math.Abs(det) > 0) || !double.IsFinite(det)) return null;
+        var cov = normal.Inverse() * (rss / (n - p));
+        var d = Degree;
+        var result = new double[d * d];
+        for (var i = 0; i < d; i++)
+        for (var j = 0; j < d; j++)
+            result[i * d + j] = cov[i + 1, j + 1];
+        return result.All(double.IsFinite) ? result : null;
+    }
+
+    /// <summary>
+    /// Standard uncertainty (Hz) of f(x) − f(x') from the shape covariance <paramref name="shapeCovariance"/>
+    /// (see <see cref="ShapeCovariance"/>): what the axis error does to a frequency difference.
+    /// </summary>
+    public double DifferenceSigma(double x, double xPrime, IReadOnlyList<double> shapeCovariance)
+    {
+        var d = Degree;
+        var g = new double[d];
+        double t = (x - Center) / HalfRange, u = (xPrime - Center) / HalfRange, pt = t, pu = u;
+        for (var i = 0; i < d; i++)
+        {
+            g[i] = pt - pu;
+            pt *= t;
+            pu *= u;
+        }
+
+        var v = 0.0;
+        for (var i = 0; i < d; i++)
+        for (var j = 0; j < d; j++)
+            v += g[i] * shapeCovariance[i * d + j] * g[j];
+        return Math.Sqrt(Math.Max(0, v));
+    }
+
+    /// <summary>
     /// Weighted least-squares fit of a degree-d polynomial to points (x, f), by QR on the normalised Vandermonde matrix.
     /// </summary>
     public static AxisPolynomial Fit(IReadOnlyList<double> x, IReadOnlyList<double> f, int degree, IReadOnlyList<double>? weights = null)

@@ -48,6 +48,7 @@ public static class CalibrationFile
                 ["x_min"] = a.Axis.XMin,
                 ["x_max"] = a.Axis.XMax,
                 ["residual_rms_hz"] = Finite(a.ResidualRmsHz),
+                ["shape_covariance_hz2"] = a.ShapeCovariance is { } cov ? new JsonArray(cov.Select(c => (JsonNode)JsonValue.Create(c)).ToArray()) : null,
                 ["points"] = a.PointCount,
                 ["finesse"] = Finite(a.Finesse),
                 ["finesse_sigma"] = Finite(a.FinesseSigma),
@@ -89,9 +90,15 @@ public static class CalibrationFile
             {
                 var poly = new AxisPolynomial(n!["coefficients_hz"]!.AsArray().Select(c => (double)c!).ToArray(),
                     (double)n["center"]!, (double)n["half_range"]!, (double)n["x_min"]!, (double)n["x_max"]!);
+                var cov = n["shape_covariance_hz2"]?.AsArray().Select(c => (double)c!).ToArray();
+                if (cov is not null && cov.Length != poly.Degree * poly.Degree)
+                    throw new FormatException($"shape_covariance_hz2 has {cov.Length} values; a degree-{poly.Degree} axis needs {poly.Degree * poly.Degree}");
                 return new AxisCalibration((string)n["instrument"]!, Enum.Parse<RampDirection>((string)n["direction"]!, ignoreCase: true),
                     (string?)n["source"] ?? path, ((string?)n["method"] ?? "calibration file") + " (reused)", poly, [], [], [],
-                    (double?)n["residual_rms_hz"] ?? double.NaN, (double?)n["finesse"], (double?)n["finesse_sigma"], []);
+                    (double?)n["residual_rms_hz"] ?? double.NaN, (double?)n["finesse"], (double?)n["finesse_sigma"], [])
+                {
+                    ShapeCovariance = cov,
+                };
             }).ToList();
             return new CalibrationSet(instruments, axes, path);
         }

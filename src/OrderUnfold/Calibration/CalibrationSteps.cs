@@ -64,6 +64,7 @@ public static class CalibrationSteps
                         PairsUsed = repeats.PairsUsed,
                         PairsRejected = repeats.PairsRejected,
                         AxisSigmaHz = repeats.AxisSigmaHz,
+                        ShapeCovariance = repeats.ShapeCovariance,
                         Finesse = null,
                         FinesseSigma = null,
                     };
@@ -159,6 +160,7 @@ public static class CalibrationSteps
                     ResidualHz = c.ResidualHz.Select(v => v * factor).ToArray(),
                     ResidualRmsHz = c.ResidualRmsHz * factor,
                     AxisSigmaHz = c.AxisSigmaHz * factor,
+                    ShapeCovariance = c.ShapeCovariance?.Select(v => v * factor * factor).ToArray(),
                     Method = c.Method + $"; FSR refined by {100 * (factor - 1):+0.000;-0.000} % ({s.Basis})",
                 };
             }

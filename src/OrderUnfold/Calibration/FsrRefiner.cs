@@ -430,7 +430,12 @@ public static class FsrRefiner
 
     /// <summary>A sweep with its FSR and axis scaled by the same factor.</summary>
     public static CalibratedSweep Rescale(CalibratedSweep s, double factor) =>
-        factor == 1 ? s : s with { Instrument = s.Instrument with { FsrHz = s.Instrument.FsrHz * factor }, ScanHz = s.ScanHz.Select(v => v * factor).ToArray() };
+        factor == 1 ? s : s with
+        {
+            Instrument = s.Instrument with { FsrHz = s.Instrument.FsrHz * factor },
+            ScanHz = s.ScanHz.Select(v => v * factor).ToArray(),
+            AxisUncertainty = s.AxisUncertainty?.Scaled(factor),
+        };
 
     /// <summary>One round: per-instrument line fits, Vernier ratios and the known interval.</summary>
     internal sealed record Estimation(Dictionary<string, (double Scale, double RelativeSigma, string Basis)> Scales, List<IntervalMatch> Intervals,

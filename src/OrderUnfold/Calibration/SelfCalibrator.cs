@@ -239,6 +239,7 @@ public static class SelfCalibrator
             PairsUsed = usedPairs.Count,
             PairsRejected = rejected,
             AxisSigmaHz = fit.AxisSigmaHz,
+            ShapeCovariance = fit.ShapeCovariance,
             FinesseDetail = finesse,
         };
         var reportPairs = allPairs.Select(c => new RepeatPair(c.XA, c.XB, c.HA, c.HB, c.Delta, c.Sigma, c.Origin, c.Residual, c.Used)).ToList();
@@ -594,7 +595,11 @@ public static class SelfCalibrator
 
     // ------------------------------------------------------------------ fitting
 
-    private sealed record Fit(AxisPolynomial Axis, double ChiSquare, double AxisSigmaHz, double[] Leverage, double Press);
+    private sealed record Fit(AxisPolynomial Axis, double ChiSquare, double AxisSigmaHz, double[] Leverage, double Press)
+    {
+        /// <summary>Covariance of c₁…c_d (row-major, Hz²), scaled by χ² per degree of freedom; null when not computable.</summary>
+        public double[]? ShapeCovariance { get; init; }
+    }
 
     private static (Fit Fit, List<DegreeScore> Scores) FitWithRejection(List<Cand> all, Sweep sweep, SelfCalibrationOptions options, double xLo, double xHi)
     {
@@ -737,9 +742,18 @@ public static class SelfCalibrator
 
         // uncertainty of the axis shape (constant removed), averaged over the calibrated range
         double sigma = double.NaN;
+        double[]? shapeCovariance = null;
         try
         {
             var cov = (a.TransposeThisAndMultiply(a)).Inverse() * (n > degree ? chi / (n - degree) : 1.0);
+            if (n > degree && cov.Enumerate().All(double.IsFinite))
+            {
+                shapeCovariance = new double[degree * degree];
+                for (var i = 0; i < degree; i++)
+                for (var j = 0; j < degree; j++)
+                    shapeCovariance[i * degree + j] = cov[i, j];
+            }
+
             const int m = 64;
             var vs = new double[m, degree];
             var mean = new double[degree];
@@ -783,7 +797,7 @@ public static class SelfCalibrator
         // leave-one-out prediction error (PRESS): each constraint predicted by the fit to all the others
         var press = 0.0;
         for (var k = 0; k < n; k++) press += Math.Pow(resid[k] / (1 - leverage[k]), 2);
-        return new Fit(axis, chi, sigma, leverage, press);
+        return new Fit(axis, chi, sigma, leverage, press) { ShapeCovariance = shapeCovariance };
     }
 
     // ------------------------------------------------------------------ diagnostics

@@ -8,7 +8,23 @@ namespace OrderUnfold.Inversion;
 /// <param name="ScanHz">Calibrated scan frequency shift f(xᵢ) of each sample.</param>
 /// <param name="Signal">Detector signal yᵢ.</param>
 /// <param name="NoiseSigma">Noise σ of the signal (same units).</param>
-public sealed record CalibratedSweep(string Name, Instrument Instrument, double[] ScanHz, double[] Signal, double NoiseSigma);
+public sealed record CalibratedSweep(string Name, Instrument Instrument, double[] ScanHz, double[] Signal, double NoiseSigma)
+{
+    /// <summary>How uncertain the scan axis is (null: taken as exact).</summary>
+    public AxisUncertainty? AxisUncertainty { get; init; }
+}
+
+/// <summary>
+/// The uncertainty of a sweep's calibrated scan axis: the axis polynomial, the covariance of its shape coefficients
+/// (row-major d × d, Hz², see <see cref="Calibration.AxisPolynomial.ShapeCovariance"/>) and each sample's scan
+/// coordinate x. Sweeps calibrated by one axis share its errors: they have the same <paramref name="Group"/>.
+/// </summary>
+public sealed record AxisUncertainty(object Group, Calibration.AxisPolynomial Polynomial, double[] ShapeCovariance, double[] X)
+{
+    /// <summary>The same for an axis scaled by <paramref name="factor"/> (an FSR refinement).</summary>
+    public AxisUncertainty Scaled(double factor) =>
+        this with { Polynomial = Polynomial.Scaled(factor), ShapeCovariance = ShapeCovariance.Select(v => v * factor * factor).ToArray() };
+}
 
 /// <summary>
 /// The joint linear problem for all sweeps at fixed offsets and gains: unknowns are the grid spectrum

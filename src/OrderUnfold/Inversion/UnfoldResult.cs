@@ -44,8 +44,13 @@ public sealed record UnfoldedLine(double FrequencyHz, double Intensity, double R
     /// <summary>Uncertainty of the relative intensity (from the SNR).</summary>
     public double IntensitySigma => Snr > 0 ? Intensity / Snr : double.NaN;
 
-    /// <summary>Standard uncertainty of the frequency, Hz, when it has been estimated.</summary>
+    /// <summary>Standard uncertainty of the frequency, Hz, when it has been estimated: the statistical part combined with
+    /// <see cref="FrequencyAxisSigmaHz"/> when the axis calibration's uncertainty is known.</summary>
     public double? FrequencySigmaHz { get; init; }
+
+    /// <summary>The part of <see cref="FrequencySigmaHz"/> that comes from the uncertainty of the calibrated scan axes, Hz
+    /// (null when no axis uncertainty was known).</summary>
+    public double? FrequencyAxisSigmaHz { get; init; }
 
     /// <summary>True when the order of this line is not securely pinned (a near-alias fits almost as well).</summary>
     public bool Doubtful { get; init; }

@@ -56,7 +56,7 @@ public static class UnfoldOutputs
         var anchor = run.Setup.Solve.AnchorFrequencyHz;
         var widths = run.Result.Lines.Any(l => l.WidthHz is not null);
         var sb = new StringBuilder();
-        sb.Append("frequency_hz,frequency_sigma_hz,frequency_crb_hz,intensity,intensity_sigma,snr");
+        sb.Append("frequency_hz,frequency_sigma_hz,frequency_crb_hz,frequency_axis_sigma_hz,intensity,intensity_sigma,snr");
         if (widths) sb.Append(",fwhm_hz,fwhm_sigma_hz");
         sb.Append(",order,alias_shift_hz,alias_delta_chi2");
         if (anchor is not null) sb.Append(",absolute_frequency_hz");
@@ -66,6 +66,7 @@ public static class UnfoldOutputs
             sb.Append(F(l.FrequencyHz)).Append(',')
               .Append(F(l.FrequencySigmaHz)).Append(',')
               .Append(F(l.FrequencyCrbHz)).Append(',')
+              .Append(F(l.FrequencyAxisSigmaHz)).Append(',')
               .Append(F(l.Intensity)).Append(',')
               .Append(F(l.IntensityError)).Append(',')
               .Append(F(l.Snr));
@@ -200,7 +201,7 @@ public static class UnfoldOutputs
                 ["clusters_dropped_as_insignificant"] = rd.Dropped,
                 ["unambiguous_range_hz"] = N(rd.UnambiguousRangeHz),
                 ["unambiguous_statement"] = rd.UnambiguousStatement,
-                ["uncertainties"] = "standard errors from the fit covariance scaled by the reduced chi-square; frequency_crb_hz is the unscaled covariance (Cramér–Rao bound at the fit); the axis-calibration uncertainty is not included",
+                ["uncertainties"] = "standard errors from the fit covariance scaled by the reduced chi-square; frequency_crb_hz is the unscaled covariance (Cramér–Rao bound at the fit); frequency_sigma_hz includes the axis-calibration uncertainty, propagated from each axis fit's coefficient covariance, when it is known (its part: frequency_axis_sigma_hz)",
             } : null,
             ["unambiguous_range_statement"] = r.OrdersResolved
                 ? $"lines closer than {Units.Quantity.FormatFrequency(r.UnambiguousRangeHz)} apart cannot be an exact alias of one another for these instruments (alias margin ≥ 3 linewidths); each line's alias_delta_chi2 says how securely its order is pinned at this noise level"
@@ -210,6 +211,7 @@ public static class UnfoldOutputs
                 ["frequency_hz"] = N(l.FrequencyHz),
                 ["frequency_sigma_hz"] = N(l.FrequencySigmaHz),
                 ["frequency_crb_hz"] = N(l.FrequencyCrbHz),
+                ["frequency_axis_sigma_hz"] = N(l.FrequencyAxisSigmaHz),
                 ["frequency_bootstrap_sigma_hz"] = N(l.BootstrapSigmaHz),
                 ["absolute_frequency_hz"] = anchor is double a ? N(a + l.FrequencyHz) : null,
                 ["intensity"] = N(l.Intensity),
