@@ -108,7 +108,8 @@ public sealed record AxisPolynomial
         }
 
         var normal = a.TransposeThisAndMultiply(a);
-        if (normal.Determinant() is var det && !(Math.Abs(det) > 0) || !double.IsFinite(det)) return null;
+        var det = normal.Determinant();
+        if (det == 0 || !double.IsFinite(det)) return null;
         var cov = normal.Inverse() * (rss / (n - p));
         var d = Degree;
         var result = new double[d * d];
@@ -116,29 +117,6 @@ public sealed record AxisPolynomial
         for (var j = 0; j < d; j++)
             result[i * d + j] = cov[i + 1, j + 1];
         return result.All(double.IsFinite) ? result : null;
-    }
-
-    /// <summary>
-    /// Standard uncertainty (Hz) of f(x) − f(x') from the shape covariance <paramref name="shapeCovariance"/>
-    /// (see <see cref="ShapeCovariance"/>): what the axis error does to a frequency difference.
-    /// </summary>
-    public double DifferenceSigma(double x, double xPrime, IReadOnlyList<double> shapeCovariance)
-    {
-        var d = Degree;
-        var g = new double[d];
-        double t = (x - Center) / HalfRange, u = (xPrime - Center) / HalfRange, pt = t, pu = u;
-        for (var i = 0; i < d; i++)
-        {
-            g[i] = pt - pu;
-            pt *= t;
-            pu *= u;
-        }
-
-        var v = 0.0;
-        for (var i = 0; i < d; i++)
-        for (var j = 0; j < d; j++)
-            v += g[i] * shapeCovariance[i * d + j] * g[j];
-        return Math.Sqrt(Math.Max(0, v));
     }
 
     /// <summary>
