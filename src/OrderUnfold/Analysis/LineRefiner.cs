@@ -254,6 +254,16 @@ public static class LineRefiner
         return weakest >= 0 && (zMin <= 0 || zMin * zMin < threshold) ? weakest : -1;
     }
 
+    /// <summary>
+    /// The grid-stage SNR down to which clusters should be handed to the refinement when it decides with
+    /// <paramref name="minSnr"/>: MinSnr − sparsity, at least 1. The L1 weight λ = sparsity·σ·‖c‖ shrinks a cluster's
+    /// amplitude by about λ/‖c‖², i.e. its grid SNR (amplitude × ‖c‖/σ) by about the sparsity, so a line of SNR 7 shows
+    /// about 4 on the grid; the refinement refits it without the penalty and keeps it only if it passes its own test.
+    /// Measured (simulated, one cavity, 20 seeds): a line of refined SNR ≈ 7 reached the refinement 3 times in 20 with
+    /// the grid threshold at MinSnr = 5, 20 in 20 with this one, and no extra line appeared.
+    /// </summary>
+    public static double CandidateMinSnr(double minSnr, double sparsity) => Math.Max(1, minSnr - Math.Max(0, sparsity));
+
     /// <summary>Δχ² a line must add: the larger of MinSnr² and the BIC penalty for two parameters, 2·ln(m).</summary>
     public static double Threshold(RefineOptions options, int samples) => Math.Max(options.MinSnr * options.MinSnr, 2 * Math.Log(Math.Max(2, samples)));
 

@@ -72,7 +72,9 @@ public static class UnfoldPipeline
             GridStepHz = solve.GridStepHz,
             Sparsity = solve.Sparsity,
             Smoothness = solve.Smoothness,
-            MinSnr = solve.MinSnr,
+            // with the refinement on, the grid stage only proposes candidates and the refinement's significance test
+            // decides (see LineRefiner.CandidateMinSnr); without it the grid is the answer
+            MinSnr = solve.Refine ? Analysis.LineRefiner.CandidateMinSnr(solve.MinSnr, solve.Sparsity) : solve.MinSnr,
         };
         // ---- FSR refinement (issue 3): Vernier ratio and/or a known interval; see Calibration/FsrRefiner.cs ----
         UnfoldResult result;
