@@ -216,10 +216,7 @@ internal static class DelimitedText
         if (s.IsEmpty) return CellKind.Empty;
 
         var word = s.Length > 1 && (s[0] == '+' || s[0] == '-') ? s[1..] : s;
-        // every non-finite word starts with n, i, ∞ or "1.#": numbers skip the look-up
-        var c0 = word[0];
-        var maybeWord = c0 is 'n' or 'N' or 'i' or 'I' or '∞' || (c0 == '1' && word.Length > 2 && word[1] == '.' && word[2] == '#');
-        if (maybeWord && NonFiniteLookup.Contains(word))
+        if (IsNonFiniteWord(word))
         {
             value = word[0] is 'n' or 'N' ? double.NaN : s[0] == '-' ? double.NegativeInfinity : double.PositiveInfinity;
             return CellKind.NonFinite;
@@ -244,6 +241,15 @@ internal static class DelimitedText
         return double.IsFinite(value) ? CellKind.Finite : CellKind.NonFinite;
     }
 
+    /// <summary>A not-a-number or infinity word (sign removed). Every such word starts with n, i, ∞ or "1.#", so numbers
+    /// skip the look-up.</summary>
+    private static bool IsNonFiniteWord(ReadOnlySpan<char> word)
+    {
+        var c0 = word[0];
+        var maybe = c0 is 'n' or 'N' or 'i' or 'I' or '∞' || (c0 == '1' && word.Length > 2 && word[1] == '.' && word[2] == '#');
+        return maybe && NonFiniteLookup.Contains(word);
+    }
+
     /// <summary>
     /// True when <see cref="Classify(ReadOnlySpan{char}, bool, out double)"/> would say Finite or NonFinite: the same
     /// decision without computing the value. Numbers follow the grammar double.TryParse accepts with
@@ -254,9 +260,7 @@ internal static class DelimitedText
         var s = cell.Trim();
         if (s.IsEmpty) return false;
         var word = s.Length > 1 && (s[0] == '+' || s[0] == '-') ? s[1..] : s;
-        var c0 = word[0];
-        if ((c0 is 'n' or 'N' or 'i' or 'I' or '∞' || (c0 == '1' && word.Length > 2 && word[1] == '.' && word[2] == '#')) && NonFiniteLookup.Contains(word))
-            return true;
+        if (IsNonFiniteWord(word)) return true;
         var mark = decimalComma ? ',' : '.';
         var i = 0;
         if (s[i] is '+' or '-') i++;
