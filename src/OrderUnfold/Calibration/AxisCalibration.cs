@@ -172,10 +172,12 @@ public static class AxisCalibrator
                 warnings.Add($"{sweep.Name}: calibration peaks are only {samplesPerFwhm:F1} samples wide; the measured finesse is unreliable (sample faster or sweep fewer FSRs)");
         }
 
+        var shapeCovariance = best.ShapeCovariance(px, pf);
         return new AxisCalibration(instrument.Name, sweep.Direction, sweep.Name, "calibration sweep", best, px, pf, residuals, rms,
             finesse, finesseSigma, warnings)
         {
-            ShapeCovariance = best.ShapeCovariance(px, pf),
+            ShapeCovariance = shapeCovariance,
+            AxisSigmaHz = shapeCovariance is null ? null : AxisPolynomial.ShapeSigmaRms(shapeCovariance, best.Degree),
         };
     }
 }

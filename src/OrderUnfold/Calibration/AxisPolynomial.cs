@@ -120,6 +120,41 @@ public sealed record AxisPolynomial
     }
 
     /// <summary>
+    /// RMS standard uncertainty of the axis shape over the calibrated range, Hz, from a shape covariance (row-major d × d
+    /// of c₁…c_d, see <see cref="ShapeCovariance"/>): √(gᵀCg) averaged (in quadrature) over 64 points t ∈ [−1, 1], with
+    /// g = (tᵐ − mean tᵐ) so that a common shift, which the sweep origin absorbs, does not count.
+    /// </summary>
+    public static double ShapeSigmaRms(IReadOnlyList<double> shapeCovariance, int degree)
+    {
+        const int m = 64;
+        var vs = new double[m, degree];
+        var mean = new double[degree];
+        for (var j = 0; j < m; j++)
+        {
+            var t = -1 + 2.0 * j / (m - 1);
+            var p = t;
+            for (var i = 0; i < degree; i++)
+            {
+                vs[j, i] = p;
+                mean[i] += p / m;
+                p *= t;
+            }
+        }
+
+        var total = 0.0;
+        var v = new double[degree];
+        for (var j = 0; j < m; j++)
+        {
+            for (var i = 0; i < degree; i++) v[i] = vs[j, i] - mean[i];
+            for (var a = 0; a < degree; a++)
+            for (var b = 0; b < degree; b++)
+                total += v[a] * shapeCovariance[a * degree + b] * v[b];
+        }
+
+        return Math.Sqrt(Math.Max(0, total / m));
+    }
+
+    /// <summary>
     /// Weighted least-squares fit of a degree-d polynomial to points (x, f), by QR on the normalised Vandermonde matrix.
     /// </summary>
     public static AxisPolynomial Fit(IReadOnlyList<double> x, IReadOnlyList<double> f, int degree, IReadOnlyList<double>? weights = null)

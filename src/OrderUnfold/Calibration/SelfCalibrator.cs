@@ -746,38 +746,15 @@ public static class SelfCalibrator
         try
         {
             var cov = (a.TransposeThisAndMultiply(a)).Inverse() * (n > degree ? chi / (n - degree) : 1.0);
-            if (n > degree && cov.Enumerate().All(double.IsFinite))
+            if (cov.Enumerate().All(double.IsFinite))
             {
-                shapeCovariance = new double[degree * degree];
+                var flat = new double[degree * degree];
                 for (var i = 0; i < degree; i++)
                 for (var j = 0; j < degree; j++)
-                    shapeCovariance[i * degree + j] = cov[i, j];
+                    flat[i * degree + j] = cov[i, j];
+                sigma = AxisPolynomial.ShapeSigmaRms(flat, degree);
+                if (n > degree) shapeCovariance = flat;
             }
-
-            const int m = 64;
-            var vs = new double[m, degree];
-            var mean = new double[degree];
-            for (var j = 0; j < m; j++)
-            {
-                var t = -1 + 2.0 * j / (m - 1);
-                var p = t;
-                for (var i = 0; i < degree; i++)
-                {
-                    vs[j, i] = p;
-                    mean[i] += p / m;
-                    p *= t;
-                }
-            }
-
-            var total = 0.0;
-            var v = Vector<double>.Build.Dense(degree);
-            for (var j = 0; j < m; j++)
-            {
-                for (var i = 0; i < degree; i++) v[i] = vs[j, i] - mean[i];
-                total += v.DotProduct(cov * v);
-            }
-
-            sigma = Math.Sqrt(Math.Max(0, total / m));
         }
         catch (Exception e) when (e is ArgumentException or InvalidOperationException)
         {
