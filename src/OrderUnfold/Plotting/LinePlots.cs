@@ -43,7 +43,6 @@ public static class LinePlots
     private static readonly OxyColor UnknownColor = Palette.Charcoal;
     private static readonly OxyColor GridSpectrumColor = Palette.Blue;
     private static readonly OxyColor LimitColor = OxyColor.FromRgb(0x30, 0x30, 0x30);
-    private static readonly OxyColor GridLineColor = Palette.GridGrey;
 
     /// <summary>
     /// Writes <see cref="SpectrumDbFile"/> and <see cref="LineGroupsFile"/> (the latter only when there is at least one
@@ -100,28 +99,24 @@ public static class LinePlots
         if (!string.IsNullOrWhiteSpace(statement)) subtitle += "\n" + Wrap(statement, 150);
 
         var model = Plots.NewModel("Line spectrum (dB relative to the strongest line)", subtitle);
-        model.Axes.Add(new LinearAxis
+        model.Axes.Add(Palette.Gridded(new LinearAxis
         {
             Position = AxisPosition.Bottom,
             Title = scale.Title("frequency relative to anchor"),
             StringFormat = scale.TickFormat(span),
-            MajorGridlineStyle = LineStyle.Solid,
-            MajorGridlineColor = GridLineColor,
             Minimum = scale.FromHertz(grid.StartHz),
             Maximum = scale.FromHertz(grid.EndHz),
             MinimumPadding = 0.02,
             MaximumPadding = 0.02,
-        });
-        model.Axes.Add(new LinearAxis
+        }, axisLine: false));
+        model.Axes.Add(Palette.Gridded(new LinearAxis
         {
             Position = AxisPosition.Left,
             Title = "intensity relative to strongest line (dB)",
             Minimum = floor,
             Maximum = 5,
             MajorStep = floor < -60 ? 20 : 10,
-            MajorGridlineStyle = LineStyle.Solid,
-            MajorGridlineColor = GridLineColor,
-        });
+        }, axisLine: false));
 
         if (limit is not null)
         {
@@ -272,17 +267,15 @@ public static class LinePlots
         model.DefaultFontSize = 11;
         model.IsLegendVisible = false; // the legend is in the header of the composed image
         model.Padding = new OxyThickness(6, 4, 12, 4);
-        model.Axes.Add(new LinearAxis
+        model.Axes.Add(Palette.Gridded(new LinearAxis
         {
             Position = AxisPosition.Bottom,
             Title = $"offset from {Quantity.FormatFrequency(origin, 6)} (MHz)",
             Minimum = X(lo),
             Maximum = X(hi),
-            MajorGridlineStyle = LineStyle.Solid,
-            MajorGridlineColor = GridLineColor,
             MaximumPadding = 0,
             MinimumPadding = 0,
-        });
+        }, axisLine: false));
 
         var stems = new StemSeries { Title = "grid spectrum", Color = GridSpectrumColor, StrokeThickness = 1.6, Base = 0 };
         var yMax = 0.0;
@@ -354,15 +347,13 @@ public static class LinePlots
         model.Subtitle = Wrap(list, 80);
         model.SubtitleFontSize = 10.5;
 
-        model.Axes.Add(new LinearAxis
+        model.Axes.Add(Palette.Gridded(new LinearAxis
         {
             Position = AxisPosition.Left,
             Title = "intensity (rel. to strongest)",
             Minimum = 0,
             Maximum = (yMax > 0 ? yMax : 1) * 1.35,
-            MajorGridlineStyle = LineStyle.Solid,
-            MajorGridlineColor = GridLineColor,
-        });
+        }, axisLine: false));
         return model;
     }
 

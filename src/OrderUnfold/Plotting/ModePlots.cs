@@ -26,7 +26,6 @@ public static class ModePlots
     private static readonly OxyColor EnvelopeColor = Palette.Crimson;
     private static readonly OxyColor SmsrColor = OxyColor.FromRgb(0x20, 0x20, 0x20);
     private static readonly OxyColor LimitColor = Palette.MidGrey;
-    private static readonly OxyColor GridColor = Palette.GridGrey;
 
     /// <summary>dB per neper of power: 10 / ln 10.</summary>
     private const double DbPerNeper = 10 / 2.302585092994046;
@@ -75,7 +74,7 @@ public static class ModePlots
 
         var pad = Math.Max((xMax - xMin) * 0.08, byFrequency ? scale.FromHertz(a.Spacing?.SpacingHz ?? 0) * 0.6 : 0.6);
         if (pad <= 0) pad = 1;
-        model.Axes.Add(new LinearAxis
+        model.Axes.Add(Palette.Gridded(new LinearAxis
         {
             Position = AxisPosition.Bottom,
             Title = byFrequency ? scale.Title("frequency relative to the strongest mode") : "mode index k (spacing ambiguous: see modes.json)",
@@ -83,11 +82,8 @@ public static class ModePlots
             MajorStep = byFrequency ? double.NaN : Math.Max(1, Math.Ceiling((xMax - xMin + 2 * pad) / 12)),
             Minimum = xMin - pad,
             Maximum = xMax + pad,
-            MajorGridlineStyle = LineStyle.Solid,
-            MajorGridlineColor = GridColor,
-            AxislineStyle = LineStyle.Solid,
-        });
-        model.Axes.Add(new LinearAxis
+        }));
+        model.Axes.Add(Palette.Gridded(new LinearAxis
         {
             Position = AxisPosition.Left,
             Title = "power relative to the strongest mode (dB)",
@@ -96,10 +92,7 @@ public static class ModePlots
             MajorStep = (Top - floor) > 60 ? 20 : 10,
             MinorStep = 5,
             StringFormat = "0",
-            MajorGridlineStyle = LineStyle.Solid,
-            MajorGridlineColor = GridColor,
-            AxislineStyle = LineStyle.Solid,
-        });
+        }));
 
         var others = plotted.Any(l => l.Role != LineRole.MainComb);
         AddStems(model, plotted.Where(l => l.Role == LineRole.MainComb), X, floor, others ? "mode (main comb)" : "mode", MainColor, MarkerType.Circle);

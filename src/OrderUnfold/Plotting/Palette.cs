@@ -1,4 +1,5 @@
 using OxyPlot;
+using OxyPlot.Axes;
 
 namespace OrderUnfold.Plotting;
 
@@ -23,4 +24,14 @@ internal static class Palette
 
     /// <summary>Grid lines.</summary>
     public static readonly OxyColor GridGrey = OxyColor.FromRgb(0xE6, 0xE6, 0xE6);
+
+    /// <summary>The axis style every plot uses: solid light-grey major grid lines and, unless <paramref name="axisLine"/>
+    /// is false, a solid axis line. Returns the axis, for use inside <c>model.Axes.Add(...)</c>.</summary>
+    public static T Gridded<T>(T axis, bool axisLine = true) where T : Axis
+    {
+        axis.MajorGridlineStyle = LineStyle.Solid;
+        axis.MajorGridlineColor = GridGrey;
+        if (axisLine) axis.AxislineStyle = LineStyle.Solid;
+        return axis;
+    }
 }

@@ -73,7 +73,6 @@ public static class PlanPlots
     private static readonly OxyColor BelowFill = OxyColor.FromAColor(0x22, OxyColor.FromRgb(0xC0, 0x1E, 0x2E));
     private static readonly OxyColor SelfFill = OxyColor.FromAColor(0x30, OxyColor.FromRgb(0x80, 0x80, 0x80));
     private static readonly OxyColor RepeatColor = OxyColor.FromRgb(0x6A, 0x3D, 0x9A);
-    private static readonly OxyColor GridColor = Palette.GridGrey;
 
     private const string FullKey = "full";
     private const string ZoomKey = "zoom";
@@ -111,18 +110,15 @@ public static class PlanPlots
         var cut = Math.Min(peak, Math.Max(5 * input.ThresholdLinewidths, 2.5 * worstValue)) * 1.08;
         var fullMax = peak * 1.08;
 
-        model.Axes.Add(new LinearAxis
+        model.Axes.Add(Palette.Gridded(new LinearAxis
         {
             Position = AxisPosition.Bottom,
             Title = scale.Title("frequency shift Δ between two lines"),
             StringFormat = scale.TickFormat(hi - lo),
             Minimum = scale.FromHertz(lo),
             Maximum = scale.FromHertz(hi),
-            MajorGridlineStyle = LineStyle.Solid,
-            MajorGridlineColor = GridColor,
-            AxislineStyle = LineStyle.Solid,
-        });
-        model.Axes.Add(new LinearAxis
+        }));
+        model.Axes.Add(Palette.Gridded(new LinearAxis
         {
             Key = FullKey,
             Position = AxisPosition.Left,
@@ -131,11 +127,8 @@ public static class PlanPlots
             Title = "alias margin (linewidths)",
             Minimum = 0,
             Maximum = fullMax,
-            MajorGridlineStyle = LineStyle.Solid,
-            MajorGridlineColor = GridColor,
-            AxislineStyle = LineStyle.Solid,
-        });
-        model.Axes.Add(new LinearAxis
+        }));
+        model.Axes.Add(Palette.Gridded(new LinearAxis
         {
             Key = ZoomKey,
             Position = AxisPosition.Left,
@@ -144,10 +137,7 @@ public static class PlanPlots
             Title = "zoom (linewidths)",
             Minimum = 0,
             Maximum = cut,
-            MajorGridlineStyle = LineStyle.Solid,
-            MajorGridlineColor = GridColor,
-            AxislineStyle = LineStyle.Solid,
-        });
+        }));
 
         foreach (var key in new[] { FullKey, ZoomKey })
         {
@@ -279,26 +269,20 @@ public static class PlanPlots
         var lmin = input.LengthM.Min() * 1e3;
         var lmax = input.LengthM.Max() * 1e3;
         var pad = lmax > lmin ? 0.01 * (lmax - lmin) : 1;
-        model.Axes.Add(new LinearAxis
+        model.Axes.Add(Palette.Gridded(new LinearAxis
         {
             Position = AxisPosition.Bottom,
             Title = "candidate cavity length (mm)",
             Minimum = lmin - pad,
             Maximum = lmax + pad,
-            MajorGridlineStyle = LineStyle.Solid,
-            MajorGridlineColor = GridColor,
-            AxislineStyle = LineStyle.Solid,
-        });
-        model.Axes.Add(new LinearAxis
+        }));
+        model.Axes.Add(Palette.Gridded(new LinearAxis
         {
             Position = AxisPosition.Left,
             Title = "worst alias margin over the span (linewidths)",
             Minimum = 0,
             Maximum = yMax,
-            MajorGridlineStyle = LineStyle.Solid,
-            MajorGridlineColor = GridColor,
-            AxislineStyle = LineStyle.Solid,
-        });
+        }));
 
         var band = new AreaSeries { Title = $"below required margin ({input.ThresholdLinewidths:G3} linewidths)", Color = OxyColors.Transparent, Fill = BelowFill, StrokeThickness = 0 };
         band.Points.Add(new DataPoint(lmin - pad, input.ThresholdLinewidths));

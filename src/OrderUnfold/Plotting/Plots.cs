@@ -45,7 +45,6 @@ public static class Plots
     private static readonly OxyColor DoubtfulColor = Palette.Ochre;
     private static readonly OxyColor LimitColor = Palette.MidGrey;
     private static readonly OxyColor GuideColor = OxyColor.FromAColor(0x50, OxyColor.FromRgb(0x60, 0x60, 0x60));
-    private static readonly OxyColor GridColor = Palette.GridGrey;
 
     private const string TopKey = "top";
     private const string BottomKey = "bottom";
@@ -169,15 +168,12 @@ public static class Plots
         double X(double hz) => scale.FromHertz(hz + shiftHz);
 
         var model = NewModel(input.Title, LineCountSubtitle(lines));
-        var xAxis = new LinearAxis
+        var xAxis = Palette.Gridded(new LinearAxis
         {
             Position = AxisPosition.Bottom,
             Title = xTitle,
             StringFormat = scale.TickFormat(span),
-            MajorGridlineStyle = LineStyle.Solid,
-            MajorGridlineColor = GridColor,
-            AxislineStyle = LineStyle.Solid,
-        };
+        });
         model.Axes.Add(xAxis);
 
         var stems = new StemSeries
@@ -237,17 +233,14 @@ public static class Plots
         if (yMax <= 0) yMax = 1;
         var xs = input.GridHz.Where(double.IsFinite).Select(X).Concat(labels.Select(l => l.X)).ToList();
         var labelTop = PlaceLineLabels(model, labels, scale.FromHertz(span), yMax, xs.Count > 0 ? xs.Min() : 0, xs.Count > 0 ? xs.Max() : 1);
-        model.Axes.Add(new LinearAxis
+        model.Axes.Add(Palette.Gridded(new LinearAxis
         {
             Position = AxisPosition.Left,
             Title = "intensity (relative to strongest line)",
             Minimum = yMin < 0 ? yMin * 1.1 : 0,
             // Headroom for the line labels above the tallest marker.
             Maximum = Math.Max(yMax, labelTop) * 1.18,
-            MajorGridlineStyle = LineStyle.Solid,
-            MajorGridlineColor = GridColor,
-            AxislineStyle = LineStyle.Solid,
-        });
+        }));
         return model;
     }
 
@@ -384,41 +377,32 @@ public static class Plots
     /// <summary>Shared bottom x axis with a tall top panel (data and model) and a short bottom panel (residuals).</summary>
     private static void AddTwoPanelAxes(PlotModel model, string xTitle, string? xFormat, string topTitle, string bottomTitle)
     {
-        model.Axes.Add(new LinearAxis
+        model.Axes.Add(Palette.Gridded(new LinearAxis
         {
             Position = AxisPosition.Bottom,
             Title = xTitle,
             StringFormat = xFormat,
-            MajorGridlineStyle = LineStyle.Solid,
-            MajorGridlineColor = GridColor,
-            AxislineStyle = LineStyle.Solid,
-        });
-        model.Axes.Add(new LinearAxis
+        }));
+        model.Axes.Add(Palette.Gridded(new LinearAxis
         {
             Key = TopKey,
             Position = AxisPosition.Left,
             Title = topTitle,
             StartPosition = 0.34,
             EndPosition = 1.0,
-            MajorGridlineStyle = LineStyle.Solid,
-            MajorGridlineColor = GridColor,
-            AxislineStyle = LineStyle.Solid,
             MaximumPadding = 0.04,
             MinimumPadding = 0.04,
-        });
-        model.Axes.Add(new LinearAxis
+        }));
+        model.Axes.Add(Palette.Gridded(new LinearAxis
         {
             Key = BottomKey,
             Position = AxisPosition.Left,
             Title = bottomTitle,
             StartPosition = 0.0,
             EndPosition = 0.27,
-            MajorGridlineStyle = LineStyle.Solid,
-            MajorGridlineColor = GridColor,
-            AxislineStyle = LineStyle.Solid,
             MaximumPadding = 0.08,
             MinimumPadding = 0.08,
-        });
+        }));
     }
 
     private static LineSeries Line(string title, OxyColor color, double thickness, string yKey) => new()

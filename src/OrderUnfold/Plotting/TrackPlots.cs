@@ -36,7 +36,6 @@ public static class TrackPlots
 
     private static readonly OxyColor HopColor = Palette.Crimson;
     private static readonly OxyColor SeriesColor = Palette.Blue;
-    private static readonly OxyColor GridColor = Palette.GridGrey;
 
     /// <summary>
     /// Frequency against time, one dot per line per item, coloured by intensity (dB relative to the item's strongest
@@ -58,16 +57,14 @@ public static class TrackPlots
         var scale = FrequencyAxisScale.ForValues(input.FrequencyHz.Where(double.IsFinite).DefaultIfEmpty(0));
         var span = FrequencyAxisScale.SpanHz(input.FrequencyHz.Where(double.IsFinite).DefaultIfEmpty(0));
         model.Axes.Add(TimeAxis(input.Origin, input.TimeS));
-        model.Axes.Add(new LinearAxis
+        model.Axes.Add(Palette.Gridded(new LinearAxis
         {
             Position = AxisPosition.Left,
             Title = scale.Title("frequency"),
             StringFormat = scale.TickFormat(span),
-            MajorGridlineStyle = LineStyle.Solid,
-            MajorGridlineColor = GridColor,
             MinimumPadding = 0.06,
             MaximumPadding = 0.06,
-        });
+        }, axisLine: false));
         var finite = input.IntensityDb.Where(double.IsFinite).ToArray();
         var low = finite.Length == 0 ? FloorDb : Math.Max(FloorDb, Math.Floor(finite.Min() / 5) * 5);
         if (low > -5) low = -5;
@@ -112,15 +109,13 @@ public static class TrackPlots
             throw new ArgumentException($"time ({input.TimeS.Length}) and values ({input.Values.Length}) need the same length", nameof(input));
         var model = Plots.NewModel(input.Title, input.Subtitle);
         model.Axes.Add(TimeAxis(input.Origin, input.TimeS));
-        model.Axes.Add(new LinearAxis
+        model.Axes.Add(Palette.Gridded(new LinearAxis
         {
             Position = AxisPosition.Left,
             Title = input.ValueTitle,
-            MajorGridlineStyle = LineStyle.Solid,
-            MajorGridlineColor = GridColor,
             MinimumPadding = 0.08,
             MaximumPadding = 0.08,
-        });
+        }, axisLine: false));
         var line = new LineSeries
         {
             Title = input.ValueTitle,
@@ -140,17 +135,15 @@ public static class TrackPlots
     private static Axis TimeAxis(DateTimeOffset? origin, double[] timeS)
     {
         if (origin is null)
-            return new LinearAxis { Position = AxisPosition.Bottom, Title = "item (no time stamps)", MajorGridlineStyle = LineStyle.Solid, MajorGridlineColor = GridColor };
+            return Palette.Gridded(new LinearAxis { Position = AxisPosition.Bottom, Title = "item (no time stamps)" }, axisLine: false);
         var span = timeS.Length > 1 ? timeS.Max() - timeS.Min() : 0;
         var format = span > 3 * 86400 ? "yyyy-MM-dd" : span > 86400 ? "MM-dd HH:mm" : span > 600 ? "HH:mm" : "HH:mm:ss";
-        return new DateTimeAxis
+        return Palette.Gridded(new DateTimeAxis
         {
             Position = AxisPosition.Bottom,
             Title = $"time (UTC, from {origin.Value.UtcDateTime:yyyy-MM-dd HH:mm:ss})",
             StringFormat = format,
-            MajorGridlineStyle = LineStyle.Solid,
-            MajorGridlineColor = GridColor,
-        };
+        }, axisLine: false);
     }
 
     private static double X(DateTimeOffset? origin, double t) =>
