@@ -602,17 +602,25 @@ public static class LineRefiner
             Y = new double[M];
             W = new double[M];
             F = new double[M];
+            SignalScale = new double[sweeps.Count];
             for (var k = 0; k < sweeps.Count; k++)
             {
                 var s = sweeps[k];
+                var largest = 0.0;
                 for (var i = 0; i < s.Signal.Length; i++)
                 {
                     Y[Start[k] + i] = s.Signal[i];
                     W[Start[k] + i] = 1 / (s.NoiseSigma * s.NoiseSigma);
                     F[Start[k] + i] = s.ScanHz[i];
+                    largest = Math.Max(largest, Math.Abs(s.Signal[i]));
                 }
+
+                SignalScale[k] = Math.Max(largest, 1e-12);
             }
         }
+
+        /// <summary>Largest |signal| of each sweep (at least 10⁻¹²): the scale of its background in the fit.</summary>
+        public double[] SignalScale { get; }
 
         public IReadOnlyList<CalibratedSweep> Sweeps { get; }
         public int[] Start { get; }
@@ -623,12 +631,6 @@ public static class LineRefiner
 
         public (int Start, int Count) Range(int k) => (Start[k], Start[k + 1] - Start[k]);
 
-        /// <summary>
-        /// Airy profile of a line with an optional intrinsic Lorentzian FWHM <paramref name="width"/>, and its derivative in δ.
-        /// A Lorentzian convolved with the (near-Lorentzian) Airy peak is modelled as an Airy of linewidth (instrument + intrinsic)
-        /// scaled to keep the area: exact for Lorentzians in the high-finesse limit.
-        /// </summary>
-        public static (double T, double dT) Profile(Instrument inst, double delta, double width) => LineShape.For(inst, width).Evaluate(delta);
 
         public double[] Model(Layout layout, IReadOnlyList<double> p, double[]? into = null)
         {
@@ -843,7 +845,12 @@ public static class LineRefiner
         }
     }
 
-    /// <summary><see cref="Data.Profile"/> with the constants of one instrument and width precomputed.</summary>
+    /// <summary>
+    /// Airy profile T(δ) of a line, and its derivative in δ, with an optional intrinsic Lorentzian FWHM: a Lorentzian
+    /// convolved with the (near-Lorentzian) Airy peak is modelled as an Airy of linewidth (instrument + intrinsic) scaled
+    /// to keep the area, exact for Lorentzians in the high-finesse limit. The constants of one instrument and width are
+    /// computed once.
+    /// </summary>
     internal readonly record struct LineShape(double Area, double Fc, double PiOverFsr)
     {
         public static LineShape For(Instrument inst, double width)
@@ -956,13 +963,7 @@ public static class LineRefiner
             scales[layout.G(k)] = Math.Max(Math.Abs(p0[layout.G(k)]), 1e-12);
         }
 
-        for (var k = 0; k < layout.SweepCount; k++)
-        {
-            var (start, count) = data.Range(k);
-            var spread = 0.0;
-            for (var i = start; i < start + count; i++) spread = Math.Max(spread, Math.Abs(data.Y[i]));
-            scales[layout.B(k)] = Math.Max(spread, 1e-12);
-        }
+        for (var k = 0; k < layout.SweepCount; k++) scales[layout.B(k)] = data.SignalScale[k];
 
         // step tolerance 1e-9 scaled units (positions: 1e-9 linewidth), far below any uncertainty; χ² tolerance 1e-9,
         // far below the Δχ² of 1 that one standard error costs
@@ -1174,18 +1175,18 @@ public static class LineRefiner
         var bg = new double[k];
         var width = layout.Widths ? Math.Abs(p[layout.W(j)]) : 0;
         var lw = data.Sweeps.Min(s => s.Instrument.LinewidthHz);
+        var shapes = data.Sweeps.Select(s => LineShape.For(s.Instrument, width)).ToArray(); // the moved line's profile per sweep
 
         double Chi(double nuT, double aT, double[] bgT)
         {
             double c = 0;
             for (var s = 0; s < k; s++)
             {
-                var inst = data.Sweeps[s].Instrument;
                 var phi = s == 0 ? 0 : p[layout.Phi(s)];
                 var g = s == 0 ? 1 : p[layout.G(s)];
                 for (var i = data.Start[s]; i < data.Start[s + 1]; i++)
                 {
-                    var r = data.Y[i] - (fixedModel[i] + g * aT * Data.Profile(inst, nuT - phi - data.F[i], width).T + bgT[s]);
+                    var r = data.Y[i] - (fixedModel[i] + g * aT * shapes[s].Evaluate(nuT - phi - data.F[i]).T + bgT[s]);
                     c += r * r * data.W[i];
                 }
             }
@@ -1203,12 +1204,11 @@ public static class LineRefiner
             var row = new double[n];
             for (var s = 0; s < k; s++)
             {
-                var inst = data.Sweeps[s].Instrument;
                 var phi = s == 0 ? 0 : p[layout.Phi(s)];
                 var g = s == 0 ? 1 : p[layout.G(s)];
                 for (var i = data.Start[s]; i < data.Start[s + 1]; i++)
                 {
-                    var (t, dt) = Data.Profile(inst, nu - phi - data.F[i], width);
+                    var (t, dt) = shapes[s].Evaluate(nu - phi - data.F[i]);
                     var r = data.Y[i] - (fixedModel[i] + g * a * t + bg[s]);
                     var wgt = data.W[i];
                     Array.Clear(row);
