@@ -143,18 +143,7 @@ public static class LinePlots
             var (color, title, marker, fill) = Style(verdict, r.Refined);
             var stems = new StemSeries { Color = color, StrokeThickness = 1.4, Base = floor, RenderInLegend = false };
             if (verdict == OrderVerdict.Doubtful) stems.LineStyle = LineStyle.Dot;
-            var marks = new ScatterErrorSeries
-            {
-                Title = title,
-                MarkerType = marker,
-                MarkerSize = 5.5,
-                MarkerFill = fill,
-                MarkerStroke = color,
-                MarkerStrokeThickness = 1.8,
-                ErrorBarColor = color,
-                ErrorBarStrokeThickness = 1.3,
-                ErrorBarStopWidth = 4,
-            };
+            var marks = LineMarks(title, marker, fill, color, 5.5, 1.8);
             foreach (var l in mine)
             {
                 var x = scale.FromHertz(l.FrequencyHz);
@@ -205,6 +194,20 @@ public static class LinePlots
     }
 
     private static double Err(UnfoldedLine l) => double.IsFinite(l.IntensityError) ? l.IntensityError : 0;
+
+    /// <summary>Markers with ±σ bars for refined lines, in one verdict's colour.</summary>
+    private static ScatterErrorSeries LineMarks(string title, MarkerType marker, OxyColor fill, OxyColor color, double size, double stroke) => new()
+    {
+        Title = title,
+        MarkerType = marker,
+        MarkerSize = size,
+        MarkerFill = fill,
+        MarkerStroke = color,
+        MarkerStrokeThickness = stroke,
+        ErrorBarColor = color,
+        ErrorBarStrokeThickness = 1.3,
+        ErrorBarStopWidth = 4,
+    };
 
     private static (OxyColor Color, string Title, MarkerType Marker, OxyColor Fill) Style(OrderVerdict v, bool refined) => v switch
     {
@@ -297,18 +300,7 @@ public static class LinePlots
             var mine = group.Where(l => l.Verdict == verdict).ToList();
             if (mine.Count == 0) continue;
             var (color, name, marker, fill) = Style(verdict, r.Refined);
-            var s = new ScatterErrorSeries
-            {
-                Title = r.Refined ? name.Replace("line,", "refined line ±σ,", StringComparison.Ordinal) : name,
-                MarkerType = marker,
-                MarkerSize = 5,
-                MarkerFill = fill,
-                MarkerStroke = color,
-                MarkerStrokeThickness = 1.6,
-                ErrorBarColor = color,
-                ErrorBarStrokeThickness = 1.3,
-                ErrorBarStopWidth = 4,
-            };
+            var s = LineMarks(r.Refined ? name.Replace("line,", "refined line ±σ,", StringComparison.Ordinal) : name, marker, fill, color, 5, 1.6);
             foreach (var l in mine)
             {
                 var ex = l.FrequencySigmaHz is double sx && double.IsFinite(sx) ? sx / 1e6 : 0;
