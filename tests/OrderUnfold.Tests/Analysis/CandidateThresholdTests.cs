@@ -1,7 +1,6 @@
 using OrderUnfold.Analysis;
 using OrderUnfold.Instruments;
 using OrderUnfold.Inversion;
-using OrderUnfold.Simulation;
 using Xunit;
 using Xunit.Abstractions;
 
@@ -16,20 +15,8 @@ public class CandidateThresholdTests(ITestOutputHelper output)
 {
     private static readonly Instrument Cavity = new("A", 1.0e9, 100);
 
-    private static CalibratedSweep Sweep(int seed, double weak)
-    {
-        var rng = new Random(seed);
-        const int n = 2000;
-        var scan = new double[n];
-        var y = new double[n];
-        for (var i = 0; i < n; i++)
-        {
-            scan[i] = 3e9 * i / n;
-            y[i] = 0.05 + Cavity.Transmission(0.2e9 - scan[i]) + weak * Cavity.Transmission(0.55e9 - scan[i]) + 0.01 * Simulator.Gaussian(rng);
-        }
-
-        return new CalibratedSweep("A", Cavity, scan, y, 0.01);
-    }
+    private static CalibratedSweep Sweep(int seed, double weak) =>
+        RefinerFixtures.Sweep("A", new RefinerFixtures.SweepSpec(Cavity, 2000, 3, 0), [new(0.2e9, 1.0), new(0.55e9, weak)], new Random(seed));
 
     private static (int WeakFound, int Extra) Run(double weak, double gridMinSnr, int seeds)
     {
