@@ -25,6 +25,13 @@ public static class AtomicFile
     /// </summary>
     public static void WriteStaged(string path, string content) => File.WriteAllText(path, content, Utf8NoBom);
 
+    /// <summary><see cref="WriteStaged"/> when <paramref name="staged"/>, else <see cref="WriteAllText(string, string)"/>.</summary>
+    public static void WriteAllText(string path, string content, bool staged)
+    {
+        if (staged) WriteStaged(path, content);
+        else WriteAllText(path, content);
+    }
+
     /// <summary>Forces a written file's data to disk (fsync).</summary>
     public static void FlushToDisk(string path)
     {

@@ -33,8 +33,7 @@ public static class UnfoldOutputs
         void Text(string name, string content)
         {
             var p = Path.Combine(directory, name);
-            if (staged) AtomicFile.WriteStaged(p, content);
-            else AtomicFile.WriteAllText(p, content);
+            AtomicFile.WriteAllText(p, content, staged);
             written.Add(p);
         }
 

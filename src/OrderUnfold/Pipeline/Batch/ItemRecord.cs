@@ -92,11 +92,7 @@ public sealed record ItemRecord
     }
 
     /// <summary>Writes the record atomically (or, with <paramref name="staged"/>, into a staging folder published as a whole).</summary>
-    public void Write(string path, bool staged = false)
-    {
-        if (staged) AtomicFile.WriteStaged(path, ToJson());
-        else AtomicFile.WriteAllText(path, ToJson());
-    }
+    public void Write(string path, bool staged = false) => AtomicFile.WriteAllText(path, ToJson(), staged);
 
     /// <summary>Reads a record; null when the file is missing or is not a readable record (the item then counts as not done).</summary>
     public static ItemRecord? TryRead(string path)
