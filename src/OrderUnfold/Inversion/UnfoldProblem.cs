@@ -12,6 +12,9 @@ public sealed record CalibratedSweep(string Name, Instrument Instrument, double[
 {
     /// <summary>How uncertain the scan axis is (null: taken as exact).</summary>
     public AxisUncertainty? AxisUncertainty { get; init; }
+
+    /// <summary>How <see cref="NoiseSigma"/> was estimated (null when it was given, e.g. by a simulation).</summary>
+    public Calibration.NoiseEstimate? Noise { get; init; }
 }
 
 /// <summary>

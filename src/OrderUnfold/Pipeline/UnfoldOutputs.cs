@@ -172,7 +172,7 @@ public static class UnfoldOutputs
                 ["nonzero_bins"] = r.Solver.ActiveCount - run.Sweeps.Count,
             },
             ["reduced_chi_square"] = N(r.ReducedChiSquare),
-            ["sweeps"] = new JsonArray(r.Sweeps.Select(s => (JsonNode)new JsonObject
+            ["sweeps"] = new JsonArray(r.Sweeps.Select((s, k) => (JsonNode)new JsonObject
             {
                 ["name"] = s.Name,
                 ["instrument"] = s.Instrument,
@@ -181,6 +181,13 @@ public static class UnfoldOutputs
                 ["gain"] = N(s.Gain),
                 ["background"] = N(s.Background),
                 ["noise_sigma"] = N(s.NoiseSigma),
+                ["noise"] = k < run.Sweeps.Count && run.Sweeps[k].Noise is { } ne ? new JsonObject
+                {
+                    ["sigma_dark"] = N(ne.SigmaBaseline),
+                    ["quantisation_step"] = N(ne.QuantisationStep),
+                    ["variance_slope"] = N(ne.VarianceSlope),
+                    ["method"] = ne.Method,
+                } : null,
                 ["chi_square"] = N(s.ChiSquare),
                 ["reduced_chi_square"] = N(s.ReducedChiSquare),
                 ["residual_rms"] = N(s.ResidualRms),

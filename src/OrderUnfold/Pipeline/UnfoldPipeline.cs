@@ -55,8 +55,10 @@ public static class UnfoldPipeline
                     throw new InputException($"{seg.Name}: only {keep.Length} samples lie within the calibrated range of the axis (x = {axis.Axis.XMin:G4} to {axis.Axis.XMax:G4}); expected the source and calibration records to share the same scan coordinate and ramp", spec.File.Path);
 
                 var scan = axis.Axis.Evaluate(seg.X);
-                calibrated.Add(new CalibratedSweep(seg.Name, inst, scan, seg.Y, PeakFinder.NoiseSigma(seg.Y))
+                var noise = NoiseEstimator.Estimate(seg.Y);
+                calibrated.Add(new CalibratedSweep(seg.Name, inst, scan, seg.Y, noise.Sigma)
                 {
+                    Noise = noise,
                     // sweeps calibrated by the same axis share its errors: the axis object is their group
                     AxisUncertainty = axis.ShapeCovariance is { } cov ? new AxisUncertainty(axis, axis.Axis, cov, seg.X) : null,
                 });
