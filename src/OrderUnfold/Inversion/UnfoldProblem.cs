@@ -15,6 +15,10 @@ public sealed record CalibratedSweep(string Name, Instrument Instrument, double[
 
     /// <summary>How <see cref="NoiseSigma"/> was estimated (null when it was given, e.g. by a simulation).</summary>
     public Calibration.NoiseEstimate? Noise { get; init; }
+
+    /// <summary>For each sample, the estimated axis uncertainty where the axis is extrapolated beyond its calibration
+    /// points (0 inside), Hz; null when no sample is extrapolated.</summary>
+    public double[]? ExtrapolationSigmaHz { get; init; }
 }
 
 /// <summary>

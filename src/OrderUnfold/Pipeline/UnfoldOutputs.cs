@@ -235,6 +235,7 @@ public static class UnfoldOutputs
                 ["sweep"] = t.Sweep, ["offset_hz"] = N(t.OffsetHz), ["chi_square"] = N(t.ChiSquare), ["chosen"] = t.Chosen,
             }).ToArray()),
             ["warnings"] = new JsonArray(run.AllWarnings.Select(w => (JsonNode)JsonValue.Create(w)!).ToArray()),
+            ["notes"] = new JsonArray(run.Notes.Select(w => (JsonNode)JsonValue.Create(w)!).ToArray()),
         };
         return o;
     }

@@ -10,9 +10,6 @@ namespace OrderUnfold.Pipeline;
 /// <summary>One unfold from a setup: read sweeps, calibrate the axes, solve, collect what happened.</summary>
 public static class UnfoldPipeline
 {
-    /// <summary>Samples this far (as a fraction of the calibrated x range) outside the calibration points are still used.</summary>
-    public const double TrimMargin = 0.02;
-
     /// <summary>Reads a setup file and runs it.</summary>
     public static UnfoldRun Run(string setupPath, IProgress<string>? progress = null, CalibrationSet? reuse = null) => Run(SetupReader.Read(setupPath), progress, reuse);
 
@@ -21,6 +18,7 @@ public static class UnfoldPipeline
     public static UnfoldRun Run(Setup setup, IProgress<string>? progress = null, CalibrationSet? reuse = null)
     {
         var warnings = new List<string>();
+        var notes = new List<string>();
         var inputs = new List<InputFile>();
         if (setup.Path is not null) inputs.Add(Describe("setup", setup.Path));
         var (instruments, calibrations) = CalibrateAll(setup, progress, reuse, warnings, inputs);
@@ -39,17 +37,20 @@ public static class UnfoldPipeline
                 var axis = FindAxis(calibrations, spec.Instrument, seg, warnings);
                 if (axis is null)
                     throw new InputException($"no calibration for instrument '{spec.Instrument}' ({Direction(seg.Direction)} ramp): add a [[calibration]] table with a calibration-laser sweep for it, or set self_calibrate = \"auto\" in [solve]", setup.Path);
-                // keep only samples inside the calibrated range (plus a small margin): a polynomial axis is not
-                // trusted where it is extrapolated, and a misplaced peak there would be fitted with spurious lines
-                var range = axis.Axis.XMax - axis.Axis.XMin;
-                var keepLo = axis.Axis.XMin - TrimMargin * range;
-                var keepHi = axis.Axis.XMax + TrimMargin * range;
-                var keep = Enumerable.Range(0, seg.Count).Where(i => seg.X[i] >= keepLo && seg.X[i] <= keepHi).ToArray();
-                if (keep.Length < seg.Count)
+                // the axis is trusted inside its calibration points and, with a stated uncertainty, a bounded margin beyond
+                // them; samples only go where that uncertainty exceeds a fraction of a linewidth (Calibration/AxisExtent.cs)
+                var extent = AxisExtent.Evaluate(axis, seg.X, inst.LinewidthHz, inst.FsrHz);
+                if (extent.Dropped > 0)
                 {
-                    warnings.Add($"{seg.Name}: {seg.Count - keep.Length} of {seg.Count} samples lie outside the calibrated range of the axis (calibration peaks from x = {axis.Axis.XMin:G4} to {axis.Axis.XMax:G4}) and were not used");
-                    seg = seg with { X = keep.Select(i => seg.X[i]).ToArray(), Y = keep.Select(i => seg.Y[i]).ToArray() };
+                    var text = $"{seg.Name}: {extent.Dropped} of {seg.Count} samples lie too far beyond the outermost calibration points (x = {axis.Axis.XMin:G4} to {axis.Axis.XMax:G4}) for the axis to be extrapolated there within {new AxisExtentOptions().MaxSigmaLinewidths:0.##} linewidth and were not used";
+                    if (extent.Dropped > 0.25 * seg.Count) warnings.Add(text);
+                    else notes.Add(text);
                 }
+
+                if (extent.Extrapolated > 0)
+                    notes.Add($"{seg.Name}: {extent.Extrapolated} samples beyond the outermost calibration points use the extrapolated axis (estimated axis uncertainty up to {Quantity.FormatFrequency(extent.MaxSigmaHz)}, included in the line sigmas)");
+                var keep = extent.Keep;
+                if (keep.Length < seg.Count) seg = seg with { X = keep.Select(i => seg.X[i]).ToArray(), Y = keep.Select(i => seg.Y[i]).ToArray() };
 
                 if (keep.Length < SweepReader.MinSamples)
                     throw new InputException($"{seg.Name}: only {keep.Length} samples lie within the calibrated range of the axis (x = {axis.Axis.XMin:G4} to {axis.Axis.XMax:G4}); expected the source and calibration records to share the same scan coordinate and ramp", spec.File.Path);
@@ -59,6 +60,7 @@ public static class UnfoldPipeline
                 calibrated.Add(new CalibratedSweep(seg.Name, inst, scan, seg.Y, noise.Sigma)
                 {
                     Noise = noise,
+                    ExtrapolationSigmaHz = extent.Extrapolated > 0 ? extent.ExtrapolationSigmaHz : null,
                     // sweeps calibrated by the same axis share its errors: the axis object is their group
                     AxisUncertainty = axis.ShapeCovariance is { } cov ? new AxisUncertainty(axis, axis.Axis, cov, seg.X) : null,
                 });
@@ -111,6 +113,8 @@ public static class UnfoldPipeline
             (result, refinement) = Analysis.LineRefiner.Refine(calibrated, result, refineOptions);
         }
 
+        result = ExtrapolationShare.Apply(result, calibrated);
+
         return new UnfoldRun
         {
             Setup = setup,
@@ -123,6 +127,7 @@ public static class UnfoldPipeline
             Refinement = refinement,
             FsrRefinement = fsrRefinement,
             Warnings = warnings,
+            Notes = notes,
         };
     }
 
