@@ -350,10 +350,17 @@ public static class SweepReader
         var matches = new List<int>();
         for (int i = 0; i < layout.Header.Length; i++)
             if (string.Equals(layout.Header[i].Trim(), s, StringComparison.OrdinalIgnoreCase)) matches.Add(i);
+        if (matches.Count == 0 && layout.NamesAbove is { } names)
+        {
+            // two header lines (names, then units): a name from the upper line
+            for (int i = 0; i < names.Length; i++)
+                if (string.Equals(names[i].Trim(), s, StringComparison.OrdinalIgnoreCase)) matches.Add(i);
+        }
 
         if (matches.Count == 0)
             throw new InputException(
-                $"no {role} column named \"{spec}\"; the header has {string.Join(", ", layout.Header.Select(h => $"\"{h}\""))}",
+                $"no {role} column named \"{spec}\"; the header has {string.Join(", ", layout.Header.Select(h => $"\"{h}\""))}" +
+                (layout.NamesAbove is { } above ? $" (and the line above it {string.Join(", ", above.Select(h => $"\"{h}\""))})" : ""),
                 path, layout.HeaderLine);
         if (matches.Count > 1)
             throw new InputException(

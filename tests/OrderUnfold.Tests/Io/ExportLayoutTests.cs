@@ -119,6 +119,10 @@ public sealed class ExportLayoutTests : IDisposable
         Assert.Equal(3, raw.Lines[0]);
         Assert.Equal(Math.Round(Signal(39), 5), raw.Y[^1], 12);
         Assert.Equal(40, SweepReader.Read(new SweepFileOptions { Path = path, XColumn = "second", YColumn = "Volt" }).Y.Length);
+        var byName = SweepReader.Read(new SweepFileOptions { Path = path, XColumn = "x-axis", YColumn = "Volt" }); // names from the upper line
+        Assert.Equal(raw.X, byName.X);
+        var e = Assert.Throws<InputException>(() => SweepReader.Read(new SweepFileOptions { Path = path, YColumn = "CH1" }));
+        Assert.Contains("\"x-axis\"", e.Message);
     }
 
     // ----- one channel per file -----------------------------------------------------------------------------

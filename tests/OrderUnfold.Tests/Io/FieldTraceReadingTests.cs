@@ -193,5 +193,8 @@ public sealed class FieldTraceReadingTests
         Assert.Equal(-1e-2, raw.X[0]);
         Assert.Equal(5e-7, raw.X[1] - raw.X[0], 12);
         CheckDigitiser(trace, name, SweepReader.Split(raw));
+        // columns named from either header line: "x-axis" (names) and "Volt" (units)
+        var named = SweepReader.Read(new SweepFileOptions { Path = FieldTraceFolder.File(trace, name), XColumn = "x-axis", YColumn = "Volt" });
+        Assert.Equal(raw.Y, named.Y);
     }
 }
