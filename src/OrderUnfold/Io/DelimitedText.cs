@@ -30,7 +30,10 @@ internal readonly record struct TextRow(int Line, string[] Fields)
 /// Where the numbers are in a delimited export: delimiter, decimal mark, field count of the data rows, the
 /// line the data block starts at, and the header row when there is one.
 /// </summary>
-internal sealed record DataLayout(char Delimiter, bool DecimalComma, int FieldCount, int FirstDataLine, string[]? Header, int? HeaderLine);
+/// <remarks><see cref="NamesAbove"/>: the line right above the header when it has the data's field count and some text
+/// (exports with two header lines, names then units); column names may come from either line.</remarks>
+internal sealed record DataLayout(char Delimiter, bool DecimalComma, int FieldCount, int FirstDataLine, string[]? Header, int? HeaderLine,
+    string[]? NamesAbove = null);
 
 /// <summary>
 /// Field splitting (CsvHelper), number recognition and layout detection for oscilloscope and DAQ exports:
@@ -338,7 +341,8 @@ internal static class DelimitedText
         if (best is null) throw NoData(head, file);
 
         var (header, headerLine, firstLine) = FindHeader(best, hasHeader);
-        return new DataLayout(best.Delimiter, best.DecimalComma, best.FieldCount, firstLine, header, headerLine);
+        return new DataLayout(best.Delimiter, best.DecimalComma, best.FieldCount, firstLine, header, headerLine,
+            headerLine is int hl ? NamesAbove(best, hl) : null);
     }
 
     private static bool IsPlain(string text) => !text.Contains('"') && !HasLoneCarriageReturn(text);
@@ -520,6 +524,16 @@ internal static class DelimitedText
         // Told there is a header but nothing above the numbers: the first number row is the header.
         if (hasHeader == true) return (start.Fields, start.Line, start.Line + 1);
         return (null, null, start.Line);
+    }
+
+    /// <summary>The row on the line right above the header line, when it has the data's field count and holds text.</summary>
+    private static string[]? NamesAbove(Candidate c, int headerLine)
+    {
+        var index = headerLine - 2; // rows are one per line: line k is row k - 1
+        if (index < 0 || index >= c.Rows.Count) return null;
+        var row = c.Rows.Row(index);
+        if (row.Line != headerLine - 1 || row.Fields.Length != c.FieldCount || !HasText(row, c.DecimalComma)) return null;
+        return row.Fields;
     }
 
     private static InputException NoData(string head, string file)

@@ -311,10 +311,11 @@ public static class SetupReader
             if (Directory.Exists(resolved)) throw t.AtValue("file", $"file names a folder, not a file: {resolved}");
             if (!File.Exists(resolved)) throw t.AtValue("file", $"file not found: {resolved}");
 
+            var rampFile = ReadRampFile(t);
             var scan = t.Choice("scan", Scans, ScanCoordinate.Time);
             var interval = t.OptionalQuantity("sample_interval", Dimension.Time);
             if (interval is <= 0) throw t.AtValue("sample_interval", $"sample_interval must be positive but got {t.ValueText("sample_interval")}");
-            if (interval is not null && scan == ScanCoordinate.Ramp)
+            if (interval is not null && scan == ScanCoordinate.Ramp && rampFile is null)
                 throw t.AtKey("sample_interval", "sample_interval rebuilds a time axis, which contradicts scan = \"ramp\"; remove one of the two");
 
             return new SweepFileOptions
@@ -329,7 +330,39 @@ public static class SetupReader
                 DecimalComma = t.Choice("decimal", Decimals, null),
                 HasHeader = ReadHeader(t),
                 Directions = t.Choice("directions", Directions, DirectionChoice.Both),
+                RampFile = rampFile,
+                RampTimeColumn = ReadColumn(t, "ramp_time_column"),
+                RampValueColumn = ReadColumn(t, "ramp_value_column"),
             };
+        }
+
+        /// <summary>The ramp_file key (one channel per file): its resolved path, or null; the ramp_*_column keys need it,
+        /// and ramp_column (a ramp in the signal's own file) contradicts it.</summary>
+        private string? ReadRampFile(SetupTomlTable t)
+        {
+            if (!t.Has("ramp_file"))
+            {
+                foreach (var key in new[] { "ramp_time_column", "ramp_value_column" })
+                    if (t.Has(key)) throw t.AtKey(key, $"{key} names a column of the ramp file, but no ramp_file is given");
+                return null;
+            }
+
+            if (t.Has("ramp_column"))
+                throw t.AtKey("ramp_file", "ramp_file and ramp_column both name the ramp; give ramp_column when the ramp is in the signal's file, ramp_file when it is in a file of its own");
+            var name = t.RequiredString("ramp_file", "the file holding the recorded ramp, relative to the setup file's folder");
+            string resolved;
+            try
+            {
+                resolved = Path.GetFullPath(Path.Combine(_directory, name.Trim()));
+            }
+            catch (Exception e) when (e is ArgumentException or NotSupportedException or PathTooLongException)
+            {
+                throw t.AtValue("ramp_file", $"ramp_file: expected a file name but got \"{name}\" ({e.Message})");
+            }
+
+            if (Directory.Exists(resolved)) throw t.AtValue("ramp_file", $"ramp_file names a folder, not a file: {resolved}");
+            if (!File.Exists(resolved)) throw t.AtValue("ramp_file", $"ramp_file not found: {resolved}");
+            return resolved;
         }
 
         private static string? ReadColumn(SetupTomlTable t, string key)

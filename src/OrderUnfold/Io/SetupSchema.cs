@@ -28,6 +28,7 @@ public static class SetupSchema
     public static IReadOnlyList<string> FileKeys { get; } =
     [
         "file", "x_column", "y_column", "ramp_column", "scan", "sample_interval", "delimiter", "decimal", "header", "directions",
+        "ramp_file", "ramp_time_column", "ramp_value_column",
     ];
 
     /// <summary>Keys of a [[sweep]] table.</summary>

@@ -64,6 +64,11 @@ internal static class SetupTemplate
         sample_interval = "5 us"   # time between samples; only with scan = "time"
         y_column = 3
         ramp_column = 2            # recorded ramp voltage, used to split up and down ramps when x is time
+        # Scopes that save each channel to its own file: name the ramp's file instead of ramp_column;
+        # its samples are matched to the signal's by time.
+        # ramp_file = "fine_ramp.csv"    # file holding the ramp monitor (time and voltage columns)
+        # ramp_time_column = 1           # its time column (default: first column)
+        # ramp_value_column = 2          # its ramp voltage column (default: last column)
         scan = "time"
         delimiter = ","
         decimal = "point"

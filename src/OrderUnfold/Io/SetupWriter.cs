@@ -100,6 +100,9 @@ public static class SetupWriter
         if (o.XColumn is not null) Key(w, "x_column", Str(o.XColumn));
         if (o.YColumn is not null) Key(w, "y_column", Str(o.YColumn));
         if (o.RampColumn is not null) Key(w, "ramp_column", Str(o.RampColumn));
+        if (o.RampFile is not null) Key(w, "ramp_file", Str(RelativeIfBelow(o.RampFile, dir)));
+        if (o.RampTimeColumn is not null) Key(w, "ramp_time_column", Str(o.RampTimeColumn));
+        if (o.RampValueColumn is not null) Key(w, "ramp_value_column", Str(o.RampValueColumn));
         Key(w, "scan", Str(o.Scan == ScanCoordinate.Ramp ? "ramp" : "time"));
         if (o.SampleIntervalS is double dt) Key(w, "sample_interval", Quantity(dt, TimeUnits, "sample_interval"));
         if (o.Delimiter is char d)

@@ -46,6 +46,20 @@ public sealed record SweepFileOptions
     /// <summary>Optional column with the recorded ramp voltage, used to split triangle ramps when x is time.</summary>
     public string? RampColumn { get; init; }
 
+    /// <summary>
+    /// A second file holding the recorded ramp (scopes that save one channel per file), or null. The signal file's x
+    /// column is then its time, and the ramp is matched to the signal samples by time (identical time stamps, or
+    /// linear interpolation of the ramp onto the signal's times). Not together with <see cref="RampColumn"/>.
+    /// </summary>
+    public string? RampFile { get; init; }
+
+    /// <summary>Time column of <see cref="RampFile"/>: header name or 1-based index. Null: the first column, unless the
+    /// signal's time is rebuilt from <see cref="SampleIntervalS"/>, in which case the ramp's time is rebuilt the same way.</summary>
+    public string? RampTimeColumn { get; init; }
+
+    /// <summary>Ramp voltage column of <see cref="RampFile"/>: header name or 1-based index. Null: the last column.</summary>
+    public string? RampValueColumn { get; init; }
+
     /// <summary>What x is: time or ramp voltage. Ramp implies the x column is also the ramp used for splitting.</summary>
     public ScanCoordinate Scan { get; init; } = ScanCoordinate.Time;
 
@@ -78,6 +92,9 @@ public sealed record RawTrace
     /// <summary>1-based line number in the file of each sample (for messages).</summary>
     public required int[] Lines { get; init; }
 
+    /// <summary>The file the ramp came from when it is not <see cref="Source"/> (one channel per file), else null.</summary>
+    public string? RampSource { get; init; }
+
     public ScanCoordinate Scan { get; init; }
 
     /// <summary>Human label of x, e.g. "time (s)" or "ramp (V)".</summary>
@@ -101,6 +118,21 @@ public sealed record Sweep
 
     /// <summary>Index of the first sample of this segment in the original trace.</summary>
     public int FirstSample { get; init; }
+
+    /// <summary>
+    /// The digitiser's quantisation step (LSB) of the signal, in signal units, when the values of the whole record sit
+    /// on an evenly spaced grid (e.g. an 8-bit scope: every value is an offset plus a whole number of steps); null when
+    /// they do not, or when there are too few distinct values to tell. A rounding error uniform over one step has
+    /// variance LSB²/12. Detected by <see cref="Digitiser.QuantisationStep"/>.
+    /// </summary>
+    public double? QuantisationStep { get; init; }
+
+    /// <summary>
+    /// Indices (into <see cref="X"/> and <see cref="Y"/>, ascending) of samples that sit in a run at the record's
+    /// full-scale value (its highest or lowest value) longer than noise or the peak's shape allows: the digitiser
+    /// clipped them, so they only bound the true signal. Empty when none. Detected by <see cref="Digitiser.ClippedSamples"/>.
+    /// </summary>
+    public int[] ClippedSamples { get; init; } = [];
 
     public int Count => X.Length;
 }

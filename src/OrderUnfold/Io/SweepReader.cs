@@ -20,8 +20,14 @@ public static class SweepReader
     public static RawTrace Read(SweepFileOptions options)
     {
         ArgumentNullException.ThrowIfNull(options);
-        var path = options.Path;
         CheckOptions(options);
+        return options.RampFile is null ? ReadOne(options, out _) : ReadWithRampFile(options);
+    }
+
+    /// <summary>Reads one file; <paramref name="xColumn"/> is the 1-based column x came from (null: rebuilt from the interval).</summary>
+    private static RawTrace ReadOne(SweepFileOptions options, out int? xColumn)
+    {
+        var path = options.Path;
         var text = ReadText(path);
         if (string.IsNullOrWhiteSpace(text)) throw new InputException("the file is empty", path);
 
@@ -37,6 +43,7 @@ public static class SweepReader
         }
 
         var columns = ResolveColumns(options, layout);
+        xColumn = columns.X + 1;
         var (xs, ys, rs, lines) = Extract(text, layout, columns, path);
 
         if (ys.Count == 0)
@@ -71,6 +78,60 @@ public static class SweepReader
     }
 
     /// <summary>
+    /// Reads a signal file and the ramp from a second file (one channel per file) and matches them by time: the ramp
+    /// is interpolated linearly onto the signal's time stamps (identical stamps give the recorded values unchanged).
+    /// Both time columns must increase strictly; the signal's record must lie within the ramp's (half a ramp sample
+    /// interval of slack at either end), else the reader refuses, naming the first signal line outside.
+    /// </summary>
+    private static RawTrace ReadWithRampFile(SweepFileOptions options)
+    {
+        if (options.RampColumn is not null)
+            throw new InputException(
+                "both a ramp column and a ramp file are named; the ramp comes from one of them, so give ramp_column or ramp_file",
+                options.Path);
+        var signal = ReadOne(options with { Scan = ScanCoordinate.Time, RampFile = null }, out var timeColumn);
+        var rampOptions = new SweepFileOptions
+        {
+            Path = options.RampFile!,
+            XColumn = options.RampTimeColumn,
+            YColumn = options.RampValueColumn,
+            SampleIntervalS = options.RampTimeColumn is null && options.XColumn is null ? options.SampleIntervalS : null,
+            Scan = ScanCoordinate.Time,
+        };
+        var ramp = ReadOne(rampOptions, out _);
+
+        var ts = signal.X;
+        var tr = ramp.X;
+        var step = (tr[^1] - tr[0]) / (tr.Length - 1);
+        var slack = 0.5 * step;
+        if (ts[^1] < tr[0] - slack || ts[0] > tr[^1] + slack)
+            throw new InputException(
+                $"the time bases do not overlap: the signal runs from {Fmt(ts[0])} to {Fmt(ts[^1])} s, the ramp in " +
+                $"{options.RampFile} from {Fmt(tr[0])} to {Fmt(tr[^1])} s; the two files must record the same sweep",
+                options.Path, signal.Lines[0], timeColumn);
+        for (int i = 0; i < ts.Length; i++)
+        {
+            if (ts[i] >= tr[0] - slack && ts[i] <= tr[^1] + slack) continue;
+            throw new InputException(
+                $"the signal sample at {Fmt(ts[i])} s lies outside the time range of the ramp in {options.RampFile} " +
+                $"({Fmt(tr[0])} to {Fmt(tr[^1])} s); the ramp must cover the whole signal record",
+                options.Path, signal.Lines[i], timeColumn);
+        }
+
+        var spline = MathNet.Numerics.Interpolation.LinearSpline.InterpolateSorted(tr, ramp.Y);
+        var matched = new double[ts.Length];
+        for (int i = 0; i < ts.Length; i++) matched[i] = spline.Interpolate(Math.Clamp(ts[i], tr[0], tr[^1]));
+
+        return signal with
+        {
+            X = options.Scan == ScanCoordinate.Ramp ? matched : signal.X,
+            Ramp = matched,
+            Scan = options.Scan,
+            RampSource = options.RampFile,
+        };
+    }
+
+    /// <summary>
     /// Splits a trace into single-direction sweeps (one sweep when there is no triangle ramp).
     /// <para>
     /// Without a ramp record the whole trace is one sweep with <see cref="RampDirection.Single"/> (x must be
@@ -92,6 +153,10 @@ public static class SweepReader
         var file = trace.Source;
         var name = Path.GetFileName(file);
         if (n < 2) throw new InputException($"needs at least {MinSamples} samples but got {n}", file);
+        var lsb = Digitiser.QuantisationStep(trace.Y);
+        var clipped = Digitiser.ClippedSamples(trace.Y, lsb);
+        int[] ClippedIn(int start, int count) =>
+            clipped.Where(i => i >= start && i < start + count).Select(i => i - start).ToArray();
 
         if (trace.Ramp is null)
         {
@@ -113,6 +178,8 @@ public static class SweepReader
                 Direction = RampDirection.Single,
                 Scan = trace.Scan,
                 FirstSample = 0,
+                QuantisationStep = lsb,
+                ClippedSamples = clipped,
             }];
         }
 
@@ -128,7 +195,8 @@ public static class SweepReader
             var detail = e.Noise > 0
                 ? $" (it moves by {Fmt(e.Span)} V, within its noise of {Fmt(e.Noise)} V)"
                 : $" (all samples are {Fmt(ramp[0])} V)";
-            throw new InputException("ramp is constant" + detail + "; a sweep needs a moving ramp", file);
+            var from = trace.RampSource is null ? "" : $" (read from {trace.RampSource})";
+            throw new InputException("ramp" + from + " is constant" + detail + "; a sweep needs a moving ramp", file);
         }
 
         var sweeps = new List<Sweep>();
@@ -164,6 +232,8 @@ public static class SweepReader
                 Direction = seg.Direction,
                 Scan = trace.Scan,
                 FirstSample = seg.Start,
+                QuantisationStep = lsb,
+                ClippedSamples = ClippedIn(seg.Start, seg.Count),
             });
         }
 
@@ -280,10 +350,17 @@ public static class SweepReader
         var matches = new List<int>();
         for (int i = 0; i < layout.Header.Length; i++)
             if (string.Equals(layout.Header[i].Trim(), s, StringComparison.OrdinalIgnoreCase)) matches.Add(i);
+        if (matches.Count == 0 && layout.NamesAbove is { } names)
+        {
+            // two header lines (names, then units): a name from the upper line
+            for (int i = 0; i < names.Length; i++)
+                if (string.Equals(names[i].Trim(), s, StringComparison.OrdinalIgnoreCase)) matches.Add(i);
+        }
 
         if (matches.Count == 0)
             throw new InputException(
-                $"no {role} column named \"{spec}\"; the header has {string.Join(", ", layout.Header.Select(h => $"\"{h}\""))}",
+                $"no {role} column named \"{spec}\"; the header has {string.Join(", ", layout.Header.Select(h => $"\"{h}\""))}" +
+                (layout.NamesAbove is { } above ? $" (and the line above it {string.Join(", ", above.Select(h => $"\"{h}\""))})" : ""),
                 path, layout.HeaderLine);
         if (matches.Count > 1)
             throw new InputException(
@@ -384,7 +461,9 @@ public static class SweepReader
             if (!(x[i] > x[i - 1]))
                 throw new InputException(
                     $"time in {column} is not strictly increasing at line {lines[i]}: {Fmt(x[i])} follows {Fmt(x[i - 1])} " +
-                    "(for a triangle ramp recorded against time, name the ramp column)", path, lines[i], col);
+                    (x[i] == x[i - 1]
+                        ? "(a repeated time stamp: if the column is rounded, leave out x_column and give sample_interval to rebuild time from the sample number)"
+                        : "(for a triangle ramp recorded against time, name the ramp column)"), path, lines[i], col);
         }
     }
 

@@ -11,6 +11,14 @@ namespace OrderUnfold.Simulation;
 /// <param name="WidthHz">Intrinsic Lorentzian FWHM, Hz (0 for a narrow line).</param>
 public sealed record SimulatedLine(double FrequencyHz, double Intensity, double WidthHz = 0);
 
+/// <summary>
+/// A transverse-mode family of a simulated cavity: its resonances lie <paramref name="OffsetFsr"/> of an FSR above the
+/// TEM00 resonance of the same order (for a two-mirror cavity N·arccos(±√(g₁g₂))/π mod 1, Siegman, <i>Lasers</i>,
+/// ch. 19), so along increasing scan a line shows this family (1 − OffsetFsr) of an FSR after each TEM00 peak, with
+/// <paramref name="RelativeHeight"/> times the TEM00 peak height.
+/// </summary>
+public sealed record TransverseFamily(double OffsetFsr, double RelativeHeight);
+
 /// <summary>How one cavity is swept in the simulation.</summary>
 public sealed record SimulatedCavity
 {
@@ -36,6 +44,9 @@ public sealed record SimulatedCavity
 
     /// <summary>Detector offset, V.</summary>
     public double DetectorOffset { get; init; } = 0.02;
+
+    /// <summary>Transverse families excited besides TEM00 (every line, calibration laser included, shows each). Default none.</summary>
+    public IReadOnlyList<TransverseFamily> Families { get; init; } = [];
 }
 
 /// <summary>What to simulate.</summary>
@@ -70,6 +81,31 @@ public sealed record SimulationSpec
 
     /// <summary>Text that says where the data came from; written into each file's preamble.</summary>
     public string Label { get; init; } = "SIMULATED DATA (OrderUnfold simulator)";
+
+    /// <summary>
+    /// Dynamic response of a swept cavity: instead of the static Airy transmission, the intracavity field of each
+    /// line (and family) is integrated on the sample grid, da/dt = (−1/τ + i·2π·Δ(t))·a + 1/τ, with τ = 1/(π·linewidth)
+    /// the field decay time and Δ(t) the line's detuning from the nearest resonance; the detector sees |a|² (1 on
+    /// resonance in the slow limit, a Lorentzian of the cavity linewidth). A sweep that crosses a resonance in less
+    /// than a few τ rings on its trailing side. Lines with an intrinsic width are refused in this mode.
+    /// </summary>
+    public bool RingDown { get; init; }
+
+    /// <summary>
+    /// Where the digitiser's range ends, as a multiple of the largest noiseless signal above the detector offset;
+    /// null: 1.15 (no clipping). Below 1 the highest peaks are clipped at full scale (also without quantisation).
+    /// </summary>
+    public double? FullScale { get; init; }
+
+    /// <summary>The FSR written into the setup is the simulated one times this (a datasheet error). Default 1.</summary>
+    public double StatedFsrFactor { get; init; } = 1.0;
+
+    /// <summary>The finesse written into the setup is the simulated one times this (a poor guess). Default 1.</summary>
+    public double StatedFinesseFactor { get; init; } = 1.0;
+
+    /// <summary>Write each channel to its own file (signal, ramp), each with a header block, as some scopes do; the
+    /// setup then names the ramp's file with ramp_file. Default false: one file with time, ramp and signal.</summary>
+    public bool SplitChannels { get; init; }
 }
 
 /// <summary>One simulated record: time, ramp voltage, detector signal, and the true scan shift for tests.</summary>
@@ -124,31 +160,119 @@ public static class Simulator
 
         var offset = rng.NextDouble() * inst.FsrHz;
         var lines = calibration ? [new SimulatedLine(0, 1.0)] : spec.Lines;
+        if (spec.RingDown && lines.Any(l => l.WidthHz > 0))
+            throw new ArgumentException("ring-down simulation takes lines without intrinsic width only", nameof(spec));
         var clean = new double[n];
         foreach (var line in lines)
         {
-            var gamma = inst.LinewidthHz;
-            var finesse = line.WidthHz > 0 ? inst.FsrHz / (gamma + line.WidthHz) : inst.Finesse;
-            var area = line.WidthHz > 0 ? gamma / (gamma + line.WidthHz) : 1.0;
-            for (var i = 0; i < n; i++)
-                clean[i] += line.Intensity * area * Airy.Transmission(line.FrequencyHz - offset - scan[i], inst.FsrHz, Math.Max(1, finesse));
+            // TEM00 (height 1) and each transverse family, whose resonances sit OffsetFsr of an FSR higher
+            AddResponse(clean, spec, inst, line, line.FrequencyHz - offset, 1.0, scan);
+            foreach (var family in cavity.Families)
+                AddResponse(clean, spec, inst, line, line.FrequencyHz - offset - family.OffsetFsr * inst.FsrHz, family.RelativeHeight, scan);
         }
 
         var peak = clean.Max();
         var sigma = spec.NoiseFraction * peak * cavity.Gain;
         var lo = cavity.DetectorOffset - 0.08 * peak * cavity.Gain;
-        var hi = cavity.DetectorOffset + 1.15 * peak * cavity.Gain;
+        var hi = cavity.DetectorOffset + (spec.FullScale ?? 1.15) * peak * cavity.Gain;
         var lsb = spec.Bits > 0 ? (hi - lo) / ((1 << spec.Bits) - 1) : 0;
         var signal = new double[n];
         for (var i = 0; i < n; i++)
         {
             var y = cavity.DetectorOffset + cavity.Gain * clean[i] + sigma * Gaussian(rng);
             if (lsb > 0) y = lo + Math.Clamp(Math.Round((y - lo) / lsb), 0, (1 << spec.Bits) - 1) * lsb;
+            else if (spec.FullScale is not null) y = Math.Clamp(y, lo, hi);
             signal[i] = y;
         }
 
         for (var i = 0; i < n; i++) ramp[i] += 0.002 * Gaussian(rng); // ramp monitor noise, V
         return new SimulatedTrace(t, ramp, signal, scan, offset);
+    }
+
+    /// <summary>
+    /// Adds one line's transmission through one mode family to <paramref name="clean"/>: <paramref name="height"/> ×
+    /// intensity × the response at detuning <paramref name="frequencyHz"/> − scan. Static: the Airy function, or for a
+    /// line of intrinsic Lorentzian width W the Airy function convolved with that Lorentzian (exact: the Airy function is
+    /// (1−R)/(1+R) times a Poisson kernel Σ R^|k| e^{ikφ}, and the convolution multiplies harmonic k by e^{−π W |k| / FSR},
+    /// i.e. replaces R by R·e^{−π W / FSR} in the kernel; the area over one FSR is unchanged). Dynamic
+    /// (<see cref="SimulationSpec.RingDown"/>): the swept-cavity field equation, see <see cref="RingDownResponse"/>.
+    /// </summary>
+    private static void AddResponse(double[] clean, SimulationSpec spec, Instrument inst, SimulatedLine line, double frequencyHz, double height, double[] scan)
+    {
+        var n = clean.Length;
+        var weight = line.Intensity * height;
+        if (spec.RingDown)
+        {
+            var response = RingDownResponse(frequencyHz, scan, spec.SampleIntervalS, inst);
+            for (var i = 0; i < n; i++) clean[i] += weight * response[i];
+            return;
+        }
+
+        for (var i = 0; i < n; i++)
+            clean[i] += weight * StaticResponse(frequencyHz - scan[i], inst, line.WidthHz);
+    }
+
+    /// <summary>
+    /// Static transmission at detuning <paramref name="detuningHz"/> of a line of intrinsic Lorentzian FWHM
+    /// <paramref name="widthHz"/>: the Airy function (peak 1) convolved with that Lorentzian (area-normalised), exactly:
+    /// (1−R)/(1+R) · (1−R′²)/(1 − 2R′cos φ + R′²) with φ = 2π·detuning/FSR and R′ = R·e^{−π·width/FSR}.
+    /// </summary>
+    internal static double StaticResponse(double detuningHz, Instrument inst, double widthHz)
+    {
+        if (!(widthHz > 0)) return Airy.Transmission(detuningHz, inst.FsrHz, inst.Finesse);
+        var r = ReflectanceOfFinesse(inst.Finesse);
+        var rw = r * Math.Exp(-Math.PI * widthHz / inst.FsrHz);
+        var phi = 2 * Math.PI * detuningHz / inst.FsrHz;
+        return (1 - r) / (1 + r) * (1 - rw * rw) / (1 - 2 * rw * Math.Cos(phi) + rw * rw);
+    }
+
+    /// <summary>The mirror reflectance R whose finesse π√R/(1−R) is <paramref name="finesse"/> (root of F·s² + π·s − F = 0, s = √R).</summary>
+    internal static double ReflectanceOfFinesse(double finesse)
+    {
+        var f = Math.Max(1, finesse);
+        var sqrtR = (-Math.PI + Math.Sqrt(Math.PI * Math.PI + 4 * f * f)) / (2 * f);
+        return sqrtR * sqrtR;
+    }
+
+    /// <summary>
+    /// |a|² of the swept-cavity field equation da/dt = (−1/τ + i·2π·Δ(t))·a + 1/τ on the sample grid, Δ(t) the detuning
+    /// of a line at <paramref name="frequencyHz"/> from the nearest resonance (wrapped to ±FSR/2: the field of the
+    /// previous order has long decayed half an FSR away unless the sweep is absurdly fast), τ = 1/(π·linewidth). Each
+    /// sample interval is cut into sub-steps short enough that Δ moves by less than 1/(20τ) and the phase by less than
+    /// 0.2 rad per sub-step (at most 256 of them); over a sub-step Δ is held at its midpoint value and the equation is
+    /// solved exactly, a ← a·e^{λh} + (e^{λh} − 1)/(λτ) with λ = −1/τ + i·2πΔ. It starts from the steady state of the
+    /// first sample. In the slow limit |a|² = 1/(1 + (2Δ/linewidth)²): the Lorentzian of the cavity linewidth.
+    /// </summary>
+    internal static double[] RingDownResponse(double frequencyHz, double[] scan, double intervalS, Instrument inst)
+    {
+        var n = scan.Length;
+        var tau = 1 / (Math.PI * inst.LinewidthHz);
+        var fsr = inst.FsrHz;
+        double Detuning(double f) => f - fsr * Math.Round(f / fsr);
+        var result = new double[n];
+        var d0 = Detuning(frequencyHz - scan[0]);
+        var a = 1 / (1 - new System.Numerics.Complex(0, 2 * Math.PI * d0 * tau));
+        result[0] = a.Real * a.Real + a.Imaginary * a.Imaginary;
+        for (var i = 1; i < n; i++)
+        {
+            var start = frequencyHz - scan[i - 1];
+            var end = frequencyHz - scan[i];
+            var change = Math.Abs(end - start);
+            var worst = Math.Max(Math.Abs(Detuning(start)), Math.Abs(Detuning(end)));
+            var steps = (int)Math.Clamp(Math.Ceiling(Math.Max(change * 20 * tau, 2 * Math.PI * worst * intervalS / 0.2)), 1, 256);
+            var h = intervalS / steps;
+            for (var k = 0; k < steps; k++)
+            {
+                var delta = Detuning(start + (end - start) * (k + 0.5) / steps);
+                var lambda = new System.Numerics.Complex(-1 / tau, 2 * Math.PI * delta);
+                var e = System.Numerics.Complex.Exp(lambda * h);
+                a = a * e + (e - 1) / (lambda * tau);
+            }
+
+            result[i] = a.Real * a.Real + a.Imaginary * a.Imaginary;
+        }
+
+        return result;
     }
 
     /// <summary>Writes each cavity's source record (and calibration record) as CSV plus a setup file.</summary>
@@ -163,23 +287,24 @@ public static class Simulator
         foreach (var cav in spec.Cavities)
         {
             var inst = cav.Instrument;
+            // A datasheet error states another FSR (then written as an FSR, not a length) or finesse than simulated.
+            var fsrError = spec.StatedFsrFactor != 1.0;
             instruments.Add(new InstrumentSpec
             {
-                Name = inst.Name, Geometry = inst.Geometry, LengthM = inst.LengthM, FsrHz = inst.LengthM is null ? inst.FsrHz : null,
-                RefractiveIndex = inst.RefractiveIndex, Finesse = inst.Finesse,
+                Name = inst.Name, Geometry = inst.Geometry,
+                LengthM = fsrError ? null : inst.LengthM,
+                FsrHz = fsrError ? inst.FsrHz * spec.StatedFsrFactor : inst.LengthM is null ? inst.FsrHz : null,
+                RefractiveIndex = inst.RefractiveIndex,
+                Finesse = spec.StatedFinesseFactor != 1.0 ? Math.Max(1, inst.Finesse * spec.StatedFinesseFactor) : inst.Finesse,
             });
             var src = Trace(spec, cav, false, rng);
-            var srcPath = Path.Combine(directory, $"{inst.Name}_source.csv");
-            WriteCsv(srcPath, spec, cav, src, "source");
-            files.Add(srcPath);
-            sweeps.Add(new SweepSpec { Instrument = inst.Name, File = Options(srcPath, spec) });
+            var srcOptions = WriteRecord(directory, $"{inst.Name}_source", spec, cav, src, "source", files);
+            sweeps.Add(new SweepSpec { Instrument = inst.Name, File = srcOptions });
             if (spec.CalibrationSweeps)
             {
                 var cal = Trace(spec, cav, true, rng);
-                var calPath = Path.Combine(directory, $"{inst.Name}_calibration.csv");
-                WriteCsv(calPath, spec, cav, cal, "calibration laser");
-                files.Add(calPath);
-                cals.Add(new CalibrationSpec { Instrument = inst.Name, File = Options(calPath, spec), WavelengthM = spec.CalibrationWavelengthM });
+                var calOptions = WriteRecord(directory, $"{inst.Name}_calibration", spec, cav, cal, "calibration laser", files);
+                cals.Add(new CalibrationSpec { Instrument = inst.Name, File = calOptions, WavelengthM = spec.CalibrationWavelengthM });
             }
         }
 
@@ -192,19 +317,72 @@ public static class Simulator
             Calibrations = cals,
             Solve = (solve ?? new SolveOptions()) with { SourceWavelengthM = spec.SourceWavelengthM ?? solve?.SourceWavelengthM },
         };
-        AtomicFile.WriteAllText(setupPath, "# " + spec.Label + "\n" + SetupWriter.Write(setup, directory));
+        var note = new StringBuilder("# " + spec.Label + "\n");
+        if (spec.StatedFsrFactor != 1.0 || spec.StatedFinesseFactor != 1.0)
+        {
+            var c = CultureInfo.InvariantCulture;
+            note.Append("# datasheet errors on purpose: the simulated cavities differ from what this setup states\n");
+            foreach (var cav in spec.Cavities)
+                note.Append($"#   {cav.Instrument.Name}: simulated FSR {cav.Instrument.FsrHz.ToString("R", c)} Hz, finesse {cav.Instrument.Finesse.ToString("R", c)}\n");
+        }
+
+        AtomicFile.WriteAllText(setupPath, note + SetupWriter.Write(setup, directory));
         files.Add(setupPath);
         return new SimulationOutput(setup, files, setupPath);
     }
 
-    private static SweepFileOptions Options(string path, SimulationSpec spec) => new()
+    /// <summary>Writes one record, as one file or (with <see cref="SimulationSpec.SplitChannels"/>) as a signal file and a
+    /// ramp file; adds the paths to <paramref name="files"/> and returns how the setup reads it.</summary>
+    private static SweepFileOptions WriteRecord(string directory, string stem, SimulationSpec spec, SimulatedCavity cav, SimulatedTrace trace, string what, List<string> files)
     {
-        Path = Path.GetFullPath(path),
-        XColumn = "time_s",
-        YColumn = "signal_V",
-        RampColumn = spec.Triangle ? "ramp_V" : null,
-        Scan = ScanCoordinate.Time,
-    };
+        if (!spec.SplitChannels)
+        {
+            var path = Path.Combine(directory, stem + ".csv");
+            WriteCsv(path, spec, cav, trace, what);
+            files.Add(path);
+            return new SweepFileOptions
+            {
+                Path = Path.GetFullPath(path),
+                XColumn = "time_s",
+                YColumn = "signal_V",
+                RampColumn = spec.Triangle ? "ramp_V" : null,
+                Scan = ScanCoordinate.Time,
+            };
+        }
+
+        var signalPath = Path.Combine(directory, stem + "_ch1.csv");
+        var rampPath = Path.Combine(directory, stem + "_ch2.csv");
+        WriteChannel(signalPath, spec, cav, trace.TimeS, trace.Signal, what, "CH1 detector", "signal_V", "G6");
+        WriteChannel(rampPath, spec, cav, trace.TimeS, trace.RampV, what, "CH2 ramp monitor", "ramp_V", "F4");
+        files.Add(signalPath);
+        files.Add(rampPath);
+        return new SweepFileOptions
+        {
+            Path = Path.GetFullPath(signalPath),
+            XColumn = "time_s",
+            YColumn = "signal_V",
+            RampFile = spec.Triangle ? Path.GetFullPath(rampPath) : null,
+            RampTimeColumn = spec.Triangle ? "time_s" : null,
+            RampValueColumn = spec.Triangle ? "ramp_V" : null,
+            Scan = ScanCoordinate.Time,
+        };
+    }
+
+    /// <summary>One channel in a file of its own: a header block (what, channel, record length, interval), then time and value.</summary>
+    private static void WriteChannel(string path, SimulationSpec spec, SimulatedCavity cav, double[] time, double[] values, string what, string channel, string column, string format)
+    {
+        var sb = new StringBuilder();
+        var c = CultureInfo.InvariantCulture;
+        sb.Append($"# {spec.Label}\r\n");
+        sb.Append($"# cavity {cav.Instrument.Name}: {what}; seed {spec.Seed}\r\n");
+        sb.Append($"Channel,{channel}\r\n");
+        sb.Append($"Record length,{values.Length}\r\n");
+        sb.Append($"Sample interval,{spec.SampleIntervalS.ToString("R", c)}\r\n");
+        sb.Append($"time_s,{column}\r\n");
+        for (var i = 0; i < values.Length; i++)
+            sb.Append(time[i].ToString("G9", c)).Append(',').Append(values[i].ToString(format, c)).Append("\r\n");
+        AtomicFile.WriteAllText(path, sb.ToString());
+    }
 
     private static void WriteCsv(string path, SimulationSpec spec, SimulatedCavity cav, SimulatedTrace trace, string what)
     {

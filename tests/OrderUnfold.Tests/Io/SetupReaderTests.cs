@@ -515,4 +515,50 @@ public sealed class SetupReaderTests : IDisposable
         Assert.Equal(3, e.Line);
         Assert.Equal(7, e.Column);
     }
+
+    private const string RampFileHead = """
+        [[instrument]]
+        name = "cav"
+        length = "55 mm"
+        finesse = 150
+        [[sweep]]
+        instrument = "cav"
+        file = "short_source.csv"
+
+        """;
+
+    [Fact]
+    public void Ramp_file_keys_are_read_resolved_and_written_back()
+    {
+        var path = WriteSetup(RampFileHead + """
+            ramp_file = "data/long_source.csv"
+            ramp_time_column = 1
+            ramp_value_column = "3"
+            scan = "ramp"
+            sample_interval = "2 us"
+            """);
+        var file = Assert.Single(SetupReader.Read(path).Sweeps).File;
+        Assert.Equal(Path.Combine(_dir, "data", "long_source.csv"), file.RampFile);
+        Assert.Equal("1", file.RampTimeColumn);
+        Assert.Equal("3", file.RampValueColumn);
+        Close(2e-6, file.SampleIntervalS); // allowed with scan = "ramp" when the ramp comes from its own file
+
+        var written = SetupWriter.Write(SetupReader.Read(path), _dir);
+        Assert.Contains("ramp_file = \"data/long_source.csv\"", written);
+        var back = Assert.Single(SetupReader.ReadText(written, Path.Combine(_dir, "again.toml")).Sweeps).File;
+        Assert.Equal(file, back);
+    }
+
+    [Theory]
+    [InlineData("ramp_time_column = 1", "ramp_time_column", "no ramp_file")]
+    [InlineData("ramp_value_column = \"Ampl\"", "ramp_value_column", "no ramp_file")]
+    [InlineData("ramp_file = \"short_source.csv\"\nramp_column = 2", "ramp_file", "ramp_column")]
+    [InlineData("ramp_file = \"missing.csv\"", "ramp_file", "not found")]
+    public void Ramp_file_mistakes_point_at_their_key(string keys, string key, string says)
+    {
+        var text = RampFileHead + keys + "\n";
+        var e = Assert.Throws<InputException>(() => SetupReader.Read(WriteSetup(text)));
+        Assert.Contains(says, e.Message);
+        Assert.Equal(LineOf(text, key + " ="), e.Line);
+    }
 }
