@@ -177,4 +177,180 @@ public class FieldTraceTests(ITestOutputHelper output)
         check.Within(run.Instruments[0].Finesse, 7.8, 0.15, "finesse");
         check.Done();
     }
+
+    /// <summary>Each true line (truth.json true.source_lines) matched to the nearest reported line: frequency within
+    /// max(3σ, 0.1 × effective FWHM) and the hard limit, σ ≤ 0.5 FWHM, intensity within its tolerance (README "common
+    /// rule" for line frequencies).</summary>
+    private static void CheckLines(Checks check, UnfoldRun run, JsonElement truth, double fwhmHz, double hardLimitHz, Func<int, double> intensityTol)
+    {
+        var lines = run.Result.Lines;
+        var truths = truth.GetProperty("true").GetProperty("source_lines").EnumerateArray().ToList();
+        check.That(lines.Count == truths.Count, $"exactly {truths.Count} lines (got {lines.Count})");
+        for (var j = 0; j < truths.Count; j++)
+        {
+            var t = truths[j];
+            var f = t.GetProperty("freq_rel_strongest_Hz").GetDouble();
+            var id = t.GetProperty("id").GetString();
+            var near = lines.MinBy(l => Math.Abs(l.FrequencyHz - f));
+            if (near is null) { check.That(false, $"{id}: no line"); continue; }
+            var err = near.FrequencyHz - f;
+            var sigma = near.FrequencySigmaHz ?? double.PositiveInfinity;
+            var allowed = Math.Min(Math.Max(3 * sigma, 0.1 * fwhmHz), hardLimitHz);
+            check.That(Math.Abs(err) <= allowed, $"{id}: frequency error {err / 1e6:F3} MHz (allowed {allowed / 1e6:F2} MHz, σ {sigma / 1e6:F3} MHz)");
+            check.That(sigma <= 0.5 * fwhmHz, $"{id}: σ {sigma / 1e6:F3} MHz ≤ 0.5 FWHM");
+            check.Within(near.Intensity, t.GetProperty("intensity_rel_strongest").GetDouble(), intensityTol(j), $"{id}: intensity");
+        }
+    }
+
+    [Fact]
+    public void T07_TwoCavityMultiline()
+    {
+        // README 07: two confocal interferometers, calibrated FSR 1.500 and 1.620 GHz, finesse about 200 and 220;
+        // a calibration sweep and a measurement per cavity; Time;CH1;CH2 with CH2 the ramp monitor
+        const string setup = """
+            [[instrument]]
+            name = "cavA"
+            fsr = "1.5 GHz"
+            finesse = 200
+            [[instrument]]
+            name = "cavB"
+            fsr = "1.62 GHz"
+            finesse = 220
+            [[sweep]]
+            instrument = "cavA"
+            file = "cavA_meas.csv"
+            x_column = 3
+            y_column = 2
+            scan = "ramp"
+            [[sweep]]
+            instrument = "cavB"
+            file = "cavB_meas.csv"
+            x_column = 3
+            y_column = 2
+            scan = "ramp"
+            [[calibration]]
+            instrument = "cavA"
+            file = "cavA_cal.csv"
+            x_column = 3
+            y_column = 2
+            scan = "ramp"
+            [[calibration]]
+            instrument = "cavB"
+            file = "cavB_cal.csv"
+            x_column = 3
+            y_column = 2
+            scan = "ramp"
+            """;
+        var truth = FieldTraceSet.Truth("07_two_cavity_multiline");
+        var (run, check) = Unfold("07_two_cavity_multiline", setup);
+        // truth.json tolerances: FWHM about 11.5 MHz, hard limit 5 MHz, intensities ±15 %
+        CheckLines(check, run, truth, 11.5e6, Get(truth, "tolerances", "line_frequency_hard_limit_Hz"), _ => 0.15);
+        // README 07: 2.848 V per FSR for both (1 %); cavity finesse 204 and 216 (15 %)
+        check.Within(FieldTraceSet.MeanPeriod(run, "cavA"), 2.8485, 0.01, "cavA FSR in ramp volts");
+        check.Within(FieldTraceSet.MeanPeriod(run, "cavB"), 2.8485, 0.01, "cavB FSR in ramp volts");
+        check.Within(run.Instruments.Single(i => i.Name == "cavA").Finesse, 204, 0.15, "cavA finesse");
+        check.Within(run.Instruments.Single(i => i.Name == "cavB").Finesse, 216, 0.15, "cavB finesse");
+        check.Done();
+    }
+
+    [Fact]
+    public void T08_DiodeCombTwoCavity()
+    {
+        // README 08: two planar cavities, calibrated FSR 10.0 and 7.3 GHz, finesse about 150 and 160; time axis only
+        const string setup = """
+            [[instrument]]
+            name = "cav10"
+            fsr = "10 GHz"
+            finesse = 150
+            [[instrument]]
+            name = "cav7p3"
+            fsr = "7.3 GHz"
+            finesse = 160
+            [[sweep]]
+            instrument = "cav10"
+            file = "cav10_meas.csv"
+            [[sweep]]
+            instrument = "cav7p3"
+            file = "cav7p3_meas.csv"
+            [[calibration]]
+            instrument = "cav10"
+            file = "cav10_cal.csv"
+            [[calibration]]
+            instrument = "cav7p3"
+            file = "cav7p3_cal.csv"
+            """;
+        var truth = FieldTraceSet.Truth("08_diode_comb_two_cavity");
+        var (run, check) = Unfold("08_diode_comb_two_cavity", setup);
+        // truth.json tolerances: 0.1 × FWHM of the cavity used (7.3 GHz / 122 ≈ 60 MHz → 6 MHz), hard limit 20 MHz;
+        // intensities ±20 %, ±35 % for the doublet members (modes ±2, ±3 fold onto each other in cav7p3)
+        CheckLines(check, run, truth, 60e6, Get(truth, "tolerances", "line_frequency_hard_limit_Hz"), j => j is 0 or 1 or 5 or 6 ? 0.35 : 0.20);
+        // no wrong order reported as secure: every line within the hard limit of the truth, or doubtful
+        foreach (var l in run.Result.Lines.Where(l => l.Verdict == OrderUnfold.Analysis.OrderVerdict.Secure))
+        {
+            var nearest = truth.GetProperty("true").GetProperty("source_lines").EnumerateArray().Min(t => Math.Abs(t.GetProperty("freq_rel_strongest_Hz").GetDouble() - l.FrequencyHz));
+            check.That(nearest <= 20e6, $"line at {l.FrequencyHz / 1e9:F4} GHz reported secure is a true line");
+        }
+
+        check.Within(FieldTraceSet.MeanPeriod(run, "cav10"), 8.6957e-3, 0.01, "cav10 FSR in seconds");
+        check.Within(FieldTraceSet.MeanPeriod(run, "cav7p3"), 8.6957e-3, 0.01, "cav7p3 FSR in seconds");
+        check.Within(run.Instruments.Single(i => i.Name == "cav10").Finesse, 147, 0.15, "cav10 finesse");
+        check.Within(run.Instruments.Single(i => i.Name == "cav7p3").Finesse, 163, 0.15, "cav7p3 finesse");
+        check.Done();
+    }
+
+    [Fact]
+    public void T05_TallHalfFamily()
+    {
+        // README 05: two concave mirrors R = 50 mm spaced 55 mm, finesse about 150; photodiode and ramp monitor in two files
+        const string setup = """
+            [[instrument]]
+            name = "cav55"
+            length = "55 mm"
+            finesse = 150
+            [[sweep]]
+            instrument = "cav55"
+            file = "ch1_pd.csv"
+            x_column = "Time"
+            y_column = "Ampl"
+            ramp_file = "ch2_ramp.csv"
+            ramp_time_column = "Time"
+            ramp_value_column = "Ampl"
+            scan = "ramp"
+            """;
+        var truth = FieldTraceSet.Truth("05_tall_half_family");
+        var (run, check) = Unfold("05_tall_half_family", setup);
+        // truth.json tolerances.lines: exactly one line; the tall family is not a line and not TEM00
+        check.That(run.Result.Lines.Count == 1, $"exactly one line (got {run.Result.Lines.Count})");
+        // truth.json true.mean_fsr_in_ramp_V 1.731, 1 %; finesse 142, 15 %
+        check.Within(FieldTraceSet.MeanPeriod(run, "cav55"), Get(truth, "true", "mean_fsr_in_ramp_V"), 0.01, "FSR in ramp volts");
+        check.Within(run.Instruments[0].Finesse, 142, 0.15, "finesse");
+        check.Done();
+    }
+
+    [Fact]
+    public void T01_RingdownConfocal()
+    {
+        // README 01: the user believes the cavity is confocal (50 mm, R = 50 mm: FSR c/4L = 1.5 GHz), finesse about 600;
+        // columns time, pd, ramp with 173 leading NaN rows; 20 kHz triangle
+        const string setup = """
+            [[instrument]]
+            name = "cav"
+            geometry = "confocal"
+            length = "50 mm"
+            finesse = 600
+            [[sweep]]
+            instrument = "cav"
+            file = "ringdown_780nm.csv"
+            x_column = "ramp"
+            y_column = "pd"
+            scan = "ramp"
+            """;
+        var truth = FieldTraceSet.Truth("01_ringdown_confocal");
+        var (run, check) = Unfold("01_ringdown_confocal", setup);
+        check.That(run.Result.Lines.Count == 1, $"exactly one line (got {run.Result.Lines.Count})");
+        // truth.json true.mean_fsr_in_ramp_V 4.000 (TEM00 to TEM00, c/2nL), 1 %; finesse 587, 15 %
+        check.Within(FieldTraceSet.MeanPeriod(run, "cav"), Get(truth, "true", "mean_fsr_in_ramp_V"), 0.01, "FSR in ramp volts");
+        check.Within(run.Instruments[0].Finesse, 587, 0.15, "finesse");
+        check.Done();
+    }
 }
