@@ -98,7 +98,19 @@ public static class SweepReader
             SampleIntervalS = options.RampTimeColumn is null && options.XColumn is null ? options.SampleIntervalS : null,
             Scan = ScanCoordinate.Time,
         };
-        var ramp = ReadOne(rampOptions, out _);
+        RawTrace ramp;
+        try
+        {
+            ramp = ReadOne(rampOptions, out _);
+        }
+        catch (InputException e) when (e.Message.StartsWith("time in ", StringComparison.Ordinal) && e.Message.Contains("not strictly increasing", StringComparison.Ordinal))
+        {
+            // the general hint (name a ramp column) does not apply to a ramp file
+            var cut = e.Message.LastIndexOf(" (", StringComparison.Ordinal);
+            throw new InputException(
+                (cut > 0 ? e.Message[..cut] : e.Message) + "; the ramp file's time must increase at every sample to be matched with the signal",
+                e.File, e.Line, e.Column, e);
+        }
 
         var ts = signal.X;
         var tr = ramp.X;

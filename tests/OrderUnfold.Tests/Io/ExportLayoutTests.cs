@@ -200,6 +200,8 @@ public sealed class ExportLayoutTests : IDisposable
         File.WriteAllText(ramp, string.Join("\r\n", lines) + "\r\n");
         var e = Assert.Throws<InputException>(() => SweepReader.Read(TwoFiles(signal, ramp)));
         Assert.Equal(ramp, e.File);
+        Assert.Contains("ramp file's time must increase", e.Message);
+        Assert.Contains("not strictly increasing at line 22", e.Message);
         Assert.Equal(22, e.Line);
         Assert.Equal(1, e.Column);
     }

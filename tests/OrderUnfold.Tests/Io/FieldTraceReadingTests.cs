@@ -148,6 +148,35 @@ public sealed class FieldTraceReadingTests
     }
 
     [Fact]
+    public void Trace05_setup_with_ramp_file_reads_as_a_user_would_write_it()
+    {
+        // the setup a user writes from the field-trace README (two concave mirrors R = 50 mm spaced 55 mm, finesse ~150)
+        var folder = Path.Combine(FieldTraceFolder.Path, "05_tall_half_family");
+        var toml = $$"""
+            [[instrument]]
+            name = "cav55"
+            length = "55 mm"
+            finesse = 150
+            [[sweep]]
+            instrument = "cav55"
+            file = "{{Path.Combine(folder, "ch1_pd.csv")}}"
+            x_column = "Time"
+            y_column = "Ampl"
+            ramp_file = "{{Path.Combine(folder, "ch2_ramp.csv")}}"
+            ramp_time_column = "Time"
+            ramp_value_column = "Ampl"
+            scan = "ramp"
+            """;
+        var setup = SetupReader.ReadText(toml, Path.Combine(Path.GetTempPath(), "t05-setup.toml"));
+        var sweeps = SweepReader.ReadSweeps(Assert.Single(setup.Sweeps).File);
+        Assert.Equal([RampDirection.Up, RampDirection.Down, RampDirection.Up], sweeps.Select(s => s.Direction));
+        Assert.All(sweeps, s => Assert.Equal(ScanCoordinate.Ramp, s.Scan));
+        // ramp_min_V 0.25 to ramp_max_V 4.75 (truth.json true.axis; the recorded ramp has noise and 8-bit steps)
+        Assert.InRange(sweeps[1].X.Max(), 4.6, 4.9);
+        Assert.InRange(sweeps[1].X.Min(), 0.1, 0.4);
+    }
+
+    [Fact]
     public void Trace06_comment_line_then_dac_codes()
     {
         const string trace = "06_plane_low_finesse", name = "stepscan.csv";
