@@ -120,11 +120,13 @@ public static class RingdownHandling
 {
     /// <summary>Checks a sweep for ring-down and, when found, corrects its signal for peak finding (see the class remarks).
     /// Without ring-down the sweep is returned unchanged (Method "none").</summary>
-    public static RingdownPreparation Prepare(Sweep sweep, RingdownOptions? options = null)
+    public static RingdownPreparation Prepare(Sweep sweep, RingdownOptions? options = null) => Prepare(sweep, options, null);
+
+    private static RingdownPreparation Prepare(Sweep sweep, RingdownOptions? options, RingdownEvidence? detected)
     {
         ArgumentNullException.ThrowIfNull(sweep);
         options ??= new RingdownOptions();
-        var evidence = Detect(sweep, options);
+        var evidence = detected ?? Detect(sweep, options);
         if (!evidence.Detected && options.Assume is { Detected: true } assumed)
             evidence = assumed with
             {
@@ -198,7 +200,7 @@ public static class RingdownHandling
         var judged = evidence.Count(e => e.Checks.Count > 0);
         var detected = evidence.Where(e => e.Detected).ToList();
         var shared = detected.Count > 0 && 2 * detected.Count >= judged ? detected.MinBy(e => e.TauSigmaSamples / e.TauSamples) : null;
-        return sweeps.Select(s => Prepare(s, shared is null ? options : options with { Assume = shared })).ToList();
+        return sweeps.Select((s, i) => Prepare(s, shared is null ? options : options with { Assume = shared }, evidence[i])).ToList();
     }
 
     /// <summary>The ring-down check alone (cost: a few fits of the tallest peaks).</summary>
