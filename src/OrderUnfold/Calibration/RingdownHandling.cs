@@ -229,7 +229,9 @@ public static class RingdownHandling
             var ringing = reversed ? l.Leading : l.Trailing;
             var other = reversed ? l.Trailing : l.Leading;
             var spacings = Spacings(top, ringing, reversed);
-            var chirped = spacings.Count >= 2 && Enumerable.Range(1, spacings.Count - 1).All(k => spacings[k] <= spacings[k - 1]);
+            // chirped: the spacings never grow and the last is clearly shorter than the first (equal spacings are a comb of lines)
+            var chirped = spacings.Count >= 2 && Enumerable.Range(1, spacings.Count - 1).All(k => spacings[k] <= spacings[k - 1])
+                          && spacings[^1] < 0.85 * spacings[0];
             var (start, end) = RingdownFit.Window(yy.Length, top, l.Top.Fwhm);
             var fit = RingdownFit.Fit(yy, start, end, top, l.Top.Fwhm, noise);
             var ok = fit is not null

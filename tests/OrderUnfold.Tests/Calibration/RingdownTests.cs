@@ -241,6 +241,7 @@ public class RingdownTests(ITestOutputHelper output)
     public static TheoryData<string, string?, string?, string?, double?> StaticTraces => new()
     {
         // folder/file, x column, y column, scan (null: time), sample interval — as a user would state them from the README
+        // (05 and 06 only their signal against the first column: the check needs no ramp)
         { "02_short_scope_two_modes/scope_ch1.csv", null, "2", null, 4e-6 },
         { "03_short_scope_single/scope_ch1.csv", null, "2", null, 4e-6 },
         { "07_two_cavity_multiline/cavA_cal.csv", "3", "2", "ramp", null },
@@ -249,13 +250,16 @@ public class RingdownTests(ITestOutputHelper output)
         { "08_diode_comb_two_cavity/cav10_cal.csv", null, null, null, null },
         { "08_diode_comb_two_cavity/cav7p3_cal.csv", null, null, null, null },
         { "08_diode_comb_two_cavity/cav10_meas.csv", null, null, null, null },
+        { "04_open_laser_four_modes/open_laser.csv", null, null, null, null },
+        { "05_tall_half_family/ch1_pd.csv", null, null, null, null },
+        { "06_plane_low_finesse/stepscan.csv", null, null, null, null },
     };
 
     [Theory]
     [MemberData(nameof(StaticTraces))]
     public void FieldTracesWithSlowSweepsShowNoRingdown(string file, string? x, string? y, string? scan, double? interval)
     {
-        // shared/field-traces/NN/truth.json: these traces are slow sweeps (finesse 30–220, µs sampling): no ring-down
+        // shared/field-traces/NN/truth.json: these traces are slow sweeps (finesse 8–220, µs sampling): no ring-down
         var options = new SweepFileOptions
         {
             Path = Path.Combine(FieldTraces(), file),
