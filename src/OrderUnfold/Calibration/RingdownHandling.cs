@@ -360,11 +360,13 @@ public static class RingdownHandling
             var (_, height, fwhm) = RingdownFit.Measure(residual, top, baseline);
             var (start, end) = RingdownFit.Window(n, top, fwhm);
             var fixedTau = height < options.FreeTauSnr * noise ? tau : (double?)null;
-            var fit = RingdownFit.Fit(residual, start, end, top, fwhm, noise, fixedTau);
             // a top inside the core of a fitted peak that is small against it is that peak's misfit, not a new peak
             var misfit = fits.Any(f => Math.Abs(top - f.Crossing) < 2 * f.MeasuredFwhm + f.Delay && height < 0.15 * f.Amplitude);
+            var fit = misfit ? null : RingdownFit.Fit(residual, start, end, top, fwhm, noise, fixedTau);
             var core = (int)Math.Ceiling(Math.Max(1.5 * fwhm, 3));
-            for (var i = Math.Max(0, top - core); i <= Math.Min(n - 1, top + core); i++) blocked[i] = true;
+            // a peak that cannot be fitted keeps its ringing: block its ringing side too, so its lobes are not taken for peaks
+            var blockEnd = misfit || (fit is not null && Acceptable(fit, top)) ? top + core : Math.Max(top + core, end - 1);
+            for (var i = Math.Max(0, top - core); i <= Math.Min(n - 1, blockEnd); i++) blocked[i] = true;
             if (misfit || fit is null || !Acceptable(fit, top))
             {
                 if (!misfit) failed++;

@@ -347,6 +347,10 @@ public class RingdownTests(ITestOutputHelper output)
                 matched++;
             }
 
+            // no ringing lobe was fitted as a peak: every fitted crossing is a true resonance (truth.json true.peaks[].t_s)
+            foreach (var c in prep.Crossings)
+                Assert.True(truePeaks.Any(p => Math.Abs(p.T - c.X) < 5e-9), $"{sweep.Name}: fitted crossing at {c.X:E6} s is no true resonance");
+
             // the ringing is gone: the corrected sweep has no more peaks than true resonances in it
             var raw = ResolvedPeaks.Find(sweep.X, sweep.Y, 0.04, 6);
             var corrected = ResolvedPeaks.Find(prep.Sweep.X, prep.Sweep.Y, 0.04, 6);
