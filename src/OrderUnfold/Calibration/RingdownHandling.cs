@@ -92,8 +92,10 @@ public sealed record RingdownPreparation(string Method, Sweep Sweep, RingdownEvi
 /// <param name="SampleIntervalS">Sample interval used (stated, or chirp rate over the axis slope).</param>
 /// <param name="SweepRateHzPerS">Median sweep rate at the peaks, Hz/s.</param>
 /// <param name="PeaksUsed">Peaks that entered the mean.</param>
+/// <param name="ChirpIntervalS">Sample interval implied by the fitted chirp rate over the axis slope (median over the peaks), s. When the
+/// interval is also stated, their ratio checks the axis scale: a wrong period (half or double the FSR) shows as a factor 2.</param>
 public sealed record RingdownFinesse(double Finesse, double Sigma, double TauFieldS, double TauFieldSigmaS, double LinewidthHz, double StaticWidthFinesse,
-    double SampleIntervalS, double SweepRateHzPerS, int PeaksUsed);
+    double SampleIntervalS, double SweepRateHzPerS, int PeaksUsed, double ChirpIntervalS);
 
 /// <summary>
 /// Cavity ring-down in fast sweeps: recognises it, fits it, and hands the peak finding a signal without the ringing.
@@ -288,7 +290,7 @@ public static class RingdownHandling
         ArgumentNullException.ThrowIfNull(axis);
         var x = preparation.Sweep.X;
         var stated = preparation.Evidence.SampleIntervalS;
-        var items = new List<(double F, double FSigma, double Tau, double TauSigma, double Static, double Dt, double Rate)>();
+        var items = new List<(double F, double FSigma, double Tau, double TauSigma, double Static, double Dt, double Rate, double ChirpDt)>();
         foreach (var p in preparation.Peaks.Where(p => !p.TauFixed && double.IsFinite(p.TauSigma) && p.TauSigma < 0.3 * p.Tau))
         {
             var i = (int)Math.Clamp(Math.Round(p.Crossing), 1, x.Length - 2);
@@ -299,14 +301,14 @@ public static class RingdownHandling
             // relative error: τ, plus the rate when the interval comes from it
             var rel = Math.Sqrt(Sq(p.TauSigma / p.Tau) + (stated is null ? Sq(p.RateSigma / p.Rate) : 0));
             var f = Math.PI * fsrHz * tauS;
-            items.Add((f, f * rel, tauS, tauS * rel, fsrHz / (p.MeasuredFwhm * hzPerSample), dt, p.Rate / (dt * dt)));
+            items.Add((f, f * rel, tauS, tauS * rel, fsrHz / (p.MeasuredFwhm * hzPerSample), dt, p.Rate / (dt * dt), p.Rate / hzPerSample));
         }
 
         if (items.Count == 0) return null;
         var (fMean, fSigma) = WeightedMean(items.Select(v => (v.F, v.FSigma)).ToList());
         var (tMean, tSigma) = WeightedMean(items.Select(v => (v.Tau, v.TauSigma)).ToList());
         return new RingdownFinesse(fMean, fSigma, tMean, tSigma, 1 / (Math.PI * tMean), Median(items.Select(v => v.Static)), Median(items.Select(v => v.Dt)),
-            Median(items.Select(v => v.Rate)), items.Count);
+            Median(items.Select(v => v.Rate)), items.Count, Median(items.Select(v => v.ChirpDt)));
     }
 
     /// <summary>
@@ -331,6 +333,9 @@ public static class RingdownHandling
         warnings.Add($"{name}: the sweep is fast enough to ring down (sweep rate / linewidth² = {preparation.Evidence.Dynamics:G3}); the peaks were fitted with the swept-cavity model " +
                      $"and the finesse {f.Finesse:F0} ± {f.Sigma:F0} comes from the decay time τ_field = {f.TauFieldS * 1e9:G4} ns (linewidth {f.LinewidthHz / 1e6:G4} MHz, {f.PeaksUsed} peaks), " +
                      $"not from the peak width: read statically, the ring-down broadened peaks would give only about {f.StaticWidthFinesse:F0}");
+        if (preparation.Evidence.SampleIntervalS is double stated && Math.Abs(f.ChirpIntervalS / stated - 1) > 0.1)
+            warnings.Add($"{name}: the axis scale disagrees with the sweep rate the ring-down measures: the chirp over the axis slope implies a sample interval of " +
+                         $"{f.ChirpIntervalS * 1e9:G3} ns against the recorded {stated * 1e9:G3} ns (×{f.ChirpIntervalS / stated:F2}); the axis may be fitted with a wrong period (half or double the FSR)");
         return calibration with
         {
             Finesse = f.Finesse,

@@ -405,11 +405,11 @@ public class RingdownTests(ITestOutputHelper output)
     [Fact]
     public void AnnotatePutsTheDecayTimeFinesseIntoTheCalibration()
     {
-        // SIMULATED ringing sweep (time scan, 2 ns) and a linear axis of 1 GHz per 1 000 samples
+        // SIMULATED ringing sweep (time scan, 2 ns) and its true axis: the sweep rate r/dt² Hz/s (x is time)
         const double tau = 25, rate = 1.2e-3, dt = 2e-9;
         var sweep = SimulatedSweep(3000, [(900.3, 0.8), (2100.6, 0.8)], tau, rate, 0.004, 13, dt);
         var prep = RingdownHandling.Prepare(sweep);
-        var axis = new AxisPolynomial([0, 1e9 / (1000 * dt)], 0, 1, 0, sweep.X[^1]);
+        var axis = new AxisPolynomial([0, rate / (dt * dt)], 0, 1, 0, sweep.X[^1]);
         var calibration = new AxisCalibration("cav", RampDirection.Single, sweep.Name, "self-calibration", axis, [], [], [], 0, 123, 5, []);
         var annotated = RingdownHandling.Annotate(calibration, prep, 1e9);
         var expected = Math.PI * 1e9 * tau * dt; // F = π·FSR·τ_field
@@ -418,6 +418,14 @@ public class RingdownTests(ITestOutputHelper output)
         var note = Assert.Single(annotated.Warnings, w => w.Contains("decay time", StringComparison.Ordinal));
         Assert.Contains("would give only about", note, StringComparison.Ordinal);
         Assert.Contains("ring-down corrected", annotated.Method, StringComparison.Ordinal);
+
+        Assert.DoesNotContain(annotated.Warnings, w => w.Contains("disagrees", StringComparison.Ordinal));
+
+        // an axis at twice its true scale (every peak taken for the next FSR when only every second one is): the chirp
+        // implies half the recorded sample interval, and the note says so
+        var doubled = calibration with { Axis = new AxisPolynomial([0, 2 * rate / (dt * dt)], 0, 1, 0, sweep.X[^1]) };
+        var wrong = RingdownHandling.Annotate(doubled, prep, 1e9);
+        Assert.Contains(wrong.Warnings, w => w.Contains("disagrees", StringComparison.Ordinal) && w.Contains("×0.50", StringComparison.Ordinal));
 
         // without ring-down the calibration is returned as it was
         var slow = SimulatedSweep(3000, [(900.3, 0.8)], 3, 1e-3, 0.004, 14, dt);
