@@ -113,8 +113,12 @@ public static class CalibrationSteps
         {
             if (!instruments.TryGetValue(spec.Instrument, out var inst)) continue; // the pipeline reports the unknown name
             var mine = fromSweeps.Where(c => c.Instrument == spec.Instrument).ToList();
-            foreach (var seg in readSegments(spec.File))
+            // ring-down (issue 14): fast-swept peaks that ring are fitted with the swept-cavity model and the peak finding
+            // below sees each one as its static response at the resonance crossing; other sweeps pass unchanged
+            var ringdown = RingdownHandling.PrepareAll(readSegments(spec.File));
+            foreach (var prepared in ringdown)
             {
+                var seg = prepared.Sweep;
                 var exact = mine.FirstOrDefault(c => c.Direction == seg.Direction);
                 AxisCalibration? companion = null;
                 if (exact is not null)
@@ -127,8 +131,9 @@ public static class CalibrationSteps
                 try
                 {
                     var result = SelfCalibrator.Calibrate(seg, inst, new SelfCalibrationOptions { Companion = companion });
-                    calibrations.Add(result.Calibration);
-                    warnings.AddRange(result.Calibration.Warnings);
+                    var calibration = RingdownHandling.Annotate(result.Calibration, prepared, inst.FsrHz); // finesse from the decay time when the peaks ring
+                    calibrations.Add(calibration);
+                    warnings.AddRange(calibration.Warnings);
                 }
                 catch (InputException e)
                 {
