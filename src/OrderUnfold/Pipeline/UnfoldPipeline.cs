@@ -31,9 +31,13 @@ public static class UnfoldPipeline
             progress?.Report($"reading {Path.GetFileName(spec.File.Path)}");
             inputs.Add(Describe("sweep", spec.File.Path));
             var inst = Lookup(instruments, spec.Instrument, spec.File.Path);
-            foreach (var segment in ReadSegments(spec.File))
+            if (spec.File.RampFile is { } rampFile) inputs.Add(Describe("ramp", rampFile));
+            // a fast sweep through a high-finesse cavity rings after each peak: the swept responses are replaced by their
+            // static profiles at the resonance crossings before anything is fitted (Calibration/RingdownHandling.cs)
+            foreach (var prepared in RingdownHandling.PrepareAll(ReadSegments(spec.File)))
             {
-                var seg = segment;
+                var seg = prepared.Sweep;
+                if (prepared.Corrected) notes.Add($"{seg.Name}: {prepared.Method}");
                 var axis = FindAxis(calibrations, spec.Instrument, seg, warnings);
                 if (axis is null)
                     throw new InputException($"no calibration for instrument '{spec.Instrument}' ({Direction(seg.Direction)} ramp): add a [[calibration]] table with a calibration-laser sweep for it, or set self_calibrate = \"auto\" in [solve]", setup.Path);
@@ -49,18 +53,23 @@ public static class UnfoldPipeline
 
                 if (extent.Extrapolated > 0)
                     notes.Add($"{seg.Name}: {extent.Extrapolated} samples beyond the outermost calibration points use the extrapolated axis (estimated axis uncertainty up to {Quantity.FormatFrequency(extent.MaxSigmaHz)}, included in the line sigmas)");
-                var keep = extent.Keep;
-                if (keep.Length < seg.Count) seg = seg with { X = keep.Select(i => seg.X[i]).ToArray(), Y = keep.Select(i => seg.Y[i]).ToArray() };
+                // samples the digitiser clipped only bound the signal: left out of every fit
+                var clipped = seg.ClippedSamples.ToHashSet();
+                var kept = Enumerable.Range(0, extent.Keep.Length).Where(j => !clipped.Contains(extent.Keep[j])).ToArray();
+                var keep = kept.Select(j => extent.Keep[j]).ToArray();
+                var extrapolationSigma = kept.Select(j => extent.ExtrapolationSigmaHz[j]).ToArray();
+                if (clipped.Count > 0) notes.Add($"{seg.Name}: {clipped.Count} samples at the digitiser's full scale (clipped) were left out");
+                if (keep.Length < seg.Count) seg = seg with { X = keep.Select(i => seg.X[i]).ToArray(), Y = keep.Select(i => seg.Y[i]).ToArray(), ClippedSamples = [] };
 
                 if (keep.Length < SweepReader.MinSamples)
                     throw new InputException($"{seg.Name}: only {keep.Length} samples lie within the calibrated range of the axis (x = {axis.Axis.XMin:G4} to {axis.Axis.XMax:G4}); expected the source and calibration records to share the same scan coordinate and ramp", spec.File.Path);
 
                 var scan = axis.Axis.Evaluate(seg.X);
-                var noise = NoiseEstimator.Estimate(seg.Y);
+                var noise = NoiseEstimator.Estimate(seg.Y, seg.QuantisationStep);
                 calibrated.Add(new CalibratedSweep(seg.Name, inst, scan, seg.Y, noise.Sigma)
                 {
                     Noise = noise,
-                    ExtrapolationSigmaHz = extent.Extrapolated > 0 ? extent.ExtrapolationSigmaHz : null,
+                    ExtrapolationSigmaHz = extent.Extrapolated > 0 ? extrapolationSigma : null,
                     // sweeps calibrated by the same axis share its errors: the axis object is their group
                     AxisUncertainty = axis.ShapeCovariance is { } cov ? new AxisUncertainty(axis, axis.Axis, cov, seg.X) : null,
                 });
