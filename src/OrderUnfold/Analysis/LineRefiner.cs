@@ -35,10 +35,10 @@ public sealed record RefineOptions
     /// as not made.</summary>
     public int IterationBudget { get; init; } = 3000;
 
-    /// <summary>CPU seconds (of the calling thread) allowed to the whole refinement, default 10 s; ≤ 0 or infinity: no
-    /// limit. Reached, it stops the refinement like <see cref="IterationBudget"/>. Results that hit it depend on the
+    /// <summary>CPU seconds (of the calling thread) allowed to the whole refinement; ≤ 0 or infinity: no
+    /// limit (default 8 s). Reached, it stops the refinement like <see cref="IterationBudget"/>. Results that hit it depend on the
     /// machine's speed, and the warning says so.</summary>
-    public double CpuBudgetSeconds { get; init; } = 10;
+    public double CpuBudgetSeconds { get; init; } = 8;
 
     /// <summary>Lines within this many linewidths (folded into each instrument's FSR) of a sample enter that sample's row of
     /// the Gauss–Newton matrix (default 6; the model and the gradient always use every line). Lines farther apart than

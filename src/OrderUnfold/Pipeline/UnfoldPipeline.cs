@@ -92,6 +92,7 @@ public static class UnfoldPipeline
         // slightly wrong place in one instrument: the grid then explains each line with a cloud of false ones. The folded
         // peaks show it before any unfold; the ratio is then refined from the data, not carried on silently.
         var refineRatio = solve.RefineFsr;
+        string? doubted = null; // set when a check found the stated model poor
         var maxScaleError = new FsrRefineOptions().MaxScaleError;
         if (!solve.RefineFsr && solve.KnownIntervalHz is null && calibrated.Select(s => s.Instrument.Name).Distinct().Count() > 1)
         {
@@ -127,9 +128,10 @@ public static class UnfoldPipeline
             var count = calibrated.Select(s => s.Instrument.Name).Distinct().Count();
             if (count > 1 && result.ReducedChiSquare > PoorFitReducedChiSquare)
             {
+                doubted = $"reduced χ² {result.ReducedChiSquare:F2} with the stated FSRs";
                 progress?.Report($"reduced χ² {result.ReducedChiSquare:F2} with the stated FSRs: trying the FSR ratio refined from the data");
-                var (tried, triedResult, triedRefinement) = FsrRefiner.UnfoldWithRefinement(calibrated, options,
-                    new FsrRefineOptions { RefineRatio = true, MaxScaleError = maxScaleError }, progress);
+                var (tried, triedResult, triedRefinement) = FsrRefiner.RefineAndRerun(calibrated, result, options,
+                    new FsrRefineOptions { RefineRatio = true, MaxScaleError = maxScaleError, MaxRounds = 1 }, progress);
                 var chiStated = result.Sweeps.Sum(s => s.ChiSquare);
                 var chiTried = triedResult.Sweeps.Sum(s => s.ChiSquare);
                 if (chiTried < chiStated - 25.0 * (count - 1) && triedResult.Lines.Count <= result.Lines.Count)
@@ -147,6 +149,27 @@ public static class UnfoldPipeline
         }
 
         // ---- end of FSR refinement ----
+        // a model that cannot explain a sweep at all is not reported as a result: name the sweep and the likely causes
+        void RefuseMismatch(UnfoldResult r, string stage)
+        {
+        var worst = Enumerable.Range(0, r.Sweeps.Count).MaxBy(k => r.Sweeps[k].ReducedChiSquare);
+        if (r.Sweeps.Count > 0 && r.Sweeps[worst].ReducedChiSquare > MismatchReducedChiSquare)
+        {
+            var fit = r.Sweeps[worst];
+            var sweep = calibrated[worst];
+            var others = r.Sweeps.Where(f => f.ReducedChiSquare > MismatchReducedChiSquare).Select(f => f.Name).Distinct().ToList();
+            throw new InputException(
+                $"reduced χ² {fit.ReducedChiSquare:F0} on sweep {fit.Name} (instrument '{fit.Instrument}')" +
+                (others.Count > 1 ? $" and {others.Count - 1} other sweep(s)" : "") +
+                $" after the {stage} fit ({r.Lines.Count} line(s)): the model cannot explain the data, so no line list is reported. " +
+                $"The stated FSR of '{fit.Instrument}' ({Quantity.FormatFrequency(sweep.Instrument.FsrHz, 6)}) or the sweep-to-instrument assignment (which file was taken with which cavity) is probably wrong" +
+                (fsrRefinement is null ? "" : ", even after the FSR ratio was refined from the data") +
+                $"; a noise σ far below the real noise would also do this (σ used: {sweep.NoiseSigma:G3})", setup.Path);
+        }
+        }
+
+        // a grid fit this poor cannot be polished into a right answer: refuse before spending the refinement's budget
+        RefuseMismatch(result, "grid");
         Analysis.RefinementDiagnostics? refinement = null;
         if (solve.Refine)
         {
@@ -161,21 +184,15 @@ public static class UnfoldPipeline
             (result, refinement) = Analysis.LineRefiner.Refine(calibrated, result, refineOptions, progress);
         }
 
-        // a model that cannot explain a sweep at all is not reported as a result: name the sweep and the likely causes
-        var worst = Enumerable.Range(0, result.Sweeps.Count).MaxBy(k => result.Sweeps[k].ReducedChiSquare);
-        if (result.Sweeps.Count > 0 && result.Sweeps[worst].ReducedChiSquare > MismatchReducedChiSquare)
-        {
-            var fit = result.Sweeps[worst];
-            var sweep = calibrated[worst];
-            var others = result.Sweeps.Where(f => f.ReducedChiSquare > MismatchReducedChiSquare).Select(f => f.Name).Distinct().ToList();
+        // a line fit that ran out of its budget on a grid that fits poorly: the grid's many lines are the model's way of
+        // absorbing a mismatch, not a measurement (the refinement's fallback is for a good grid that is slow to polish)
+        if (refinement is { FellBackToGrid: true, BudgetExhausted: not null } && (result.ReducedChiSquare > PoorFitReducedChiSquare || doubted is not null))
             throw new InputException(
-                $"reduced χ² {fit.ReducedChiSquare:F0} on sweep {fit.Name} (instrument '{fit.Instrument}')" +
-                (others.Count > 1 ? $" and {others.Count - 1} other sweep(s)" : "") +
-                $" after the {(refinement is null ? "grid" : "line")} fit ({result.Lines.Count} line(s)): the model cannot explain the data, so no line list is reported. " +
-                $"The stated FSR of '{fit.Instrument}' ({Quantity.FormatFrequency(sweep.Instrument.FsrHz, 6)}) or the sweep-to-instrument assignment (which file was taken with which cavity) is probably wrong" +
-                (fsrRefinement is null ? "" : ", even after the FSR ratio was refined from the data") +
-                $"; a noise σ far below the real noise would also do this (σ used: {sweep.NoiseSigma:G3})", setup.Path);
-        }
+                $"the line fit ran out of its budget ({refinement.BudgetExhausted}) on {result.Lines.Count} grid line(s), and the fit is poor (reduced χ² {result.ReducedChiSquare:F2}{(doubted is null ? "" : $"; {doubted}")}): " +
+                "a spectrum explained by that many lines with a poor fit is the mark of a model that does not match the data, so no line list is reported. " +
+                "Check the stated FSRs (refine_fsr = true, or a known_interval), the finesse, and which sweep file belongs to which instrument", setup.Path);
+
+        RefuseMismatch(result, refinement is null ? "grid" : "line");
 
         return new UnfoldRun
         {
