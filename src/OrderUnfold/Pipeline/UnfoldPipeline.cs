@@ -101,6 +101,7 @@ public static class UnfoldPipeline
             if (corrections.Count > 0)
             {
                 refineRatio = true;
+                doubted = "the stated FSRs disagree with the folded peaks";
                 maxScaleError = Math.Max(maxScaleError, 1.5 * corrections.Values.Max(Math.Abs));
                 var reference = calibrated[0].Instrument.Name;
                 warnings.Add("the stated FSRs disagree with the folded peaks: " + string.Join("; ", corrections.Select(c => $"'{c.Key}' fits best {100 * c.Value:+0.000;-0.000} % off its stated FSR against '{reference}'")) +
@@ -113,7 +114,12 @@ public static class UnfoldPipeline
             progress?.Report("refining the FSRs from the lines");
             IReadOnlyList<CalibratedSweep> refined;
             (refined, result, fsrRefinement) = FsrRefiner.UnfoldWithRefinement(calibrated, options,
-                new FsrRefineOptions { RefineRatio = refineRatio, KnownIntervalHz = solve.KnownIntervalHz, MaxScaleError = maxScaleError }, progress);
+                new FsrRefineOptions
+                {
+                    RefineRatio = refineRatio, KnownIntervalHz = solve.KnownIntervalHz, MaxScaleError = maxScaleError,
+                    // found by the check, not asked for: one polish round (each costs an unfold); asked for: the default
+                    MaxRounds = solve.RefineFsr || solve.KnownIntervalHz is not null ? new FsrRefineOptions().MaxRounds : 1,
+                }, progress);
             calibrated = refined.ToList();
             CalibrationSteps.ApplyFsrRefinement(fsrRefinement, instruments, calibrations);
             warnings.AddRange(fsrRefinement.Warnings);
@@ -170,6 +176,11 @@ public static class UnfoldPipeline
 
         // a grid fit this poor cannot be polished into a right answer: refuse before spending the refinement's budget
         RefuseMismatch(result, "grid");
+        // (only when the folded peaks — not χ², which rests on the noise estimate — found the stated FSRs wrong)
+        if (doubted is not null && doubted.StartsWith("the stated FSRs disagree", StringComparison.Ordinal) && result.ReducedChiSquare > PoorFitReducedChiSquare)
+            throw new InputException(
+                $"{doubted}, and the fit stays poor with the FSR ratio refined from the data (reduced χ² {result.ReducedChiSquare:F2}, {result.Lines.Count} grid line(s)): " +
+                "the grid absorbs the mismatch with false lines, so no line list is reported. Check the stated FSRs (state a known_interval if one is known), the finesse, and which sweep file belongs to which instrument", setup.Path);
         Analysis.RefinementDiagnostics? refinement = null;
         if (solve.Refine)
         {
