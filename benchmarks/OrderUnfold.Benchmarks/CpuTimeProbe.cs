@@ -24,6 +24,27 @@ public static class CpuTimeProbe
         o.WriteLine(string.Create(CultureInfo.InvariantCulture, $"| {what,-58} | {w,10:F3} | {c,10:F3} |"));
     }
 
+    /// <summary>CPU time of the line refinement on the nine-mode, two-cavity comb (2 × 40 000 samples), sparse and dense
+    /// Gauss–Newton matrix, pinned to one core.</summary>
+    public static void RunRefinement(TextWriter o)
+    {
+        try
+        {
+            Process.GetCurrentProcess().ProcessorAffinity = 1;
+        }
+        catch (PlatformNotSupportedException)
+        {
+            o.WriteLine("(could not pin to one core)");
+        }
+
+        var b = new RefineCombBenchmark();
+        b.Setup();
+        o.WriteLine("| operation                                                  |    wall ms |     CPU ms |");
+        o.WriteLine("|------------------------------------------------------------|-----------:|-----------:|");
+        Measure(o, "refinement, 9-mode comb, 2 × 40 000 samples (sparse)", 3, () => b.RefineNineModeComb());
+        Measure(o, "refinement, 9-mode comb, 2 × 40 000 samples (dense)", 3, () => b.RefineNineModeCombDense());
+    }
+
     public static void Run(TextWriter o)
     {
         try

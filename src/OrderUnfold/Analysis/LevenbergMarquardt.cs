@@ -9,6 +9,109 @@ internal interface ILeastSquaresProblem
     /// <summary>Fills the normal equations at <paramref name="p"/> — <paramref name="jtj"/> = JᵀWJ (row-major Count × Count,
     /// both triangles) and <paramref name="jtr"/> = JᵀW(y − m) with J = ∂m/∂p — and returns χ² there.</summary>
     double Normal(double[] p, double[] jtj, double[] jtr);
+
+    /// <summary>Optional block structure of JᵀWJ: a block number per parameter (≥ 0) or −1 for parameters that may couple
+    /// to every block (the border). Entries between two different blocks ≥ 0 are zero; the solver then factorises the
+    /// damped matrix block by block (an arrowhead Cholesky, no fill-in between blocks). Null: dense.</summary>
+    int[]? Blocks => null;
+}
+
+/// <summary>
+/// The work limits shared by every fit of one analysis stage: a count of iterations (each Levenberg–Marquardt solve,
+/// each Gauss–Newton step of a quick refit, each bootstrap replicate's iterations) and a limit on the CPU time of the
+/// calling thread. When either is used up, <see cref="Exhausted"/> says which and every fit that shares the budget
+/// stops at its next iteration. Progress messages are passed on at most about once per second of wall time.
+/// </summary>
+internal sealed class WorkBudget
+{
+    private readonly double _cpuStart;
+    private readonly System.Diagnostics.Stopwatch _clock = System.Diagnostics.Stopwatch.StartNew();
+    private readonly IProgress<string>? _progress;
+    private double _lastReport = double.NegativeInfinity;
+
+    /// <param name="iterations">Iterations allowed in all (≤ 0: none).</param>
+    /// <param name="cpuSeconds">CPU seconds of the calling thread allowed (not finite or ≤ 0: no limit).</param>
+    /// <param name="progress">Where progress lines go.</param>
+    public WorkBudget(int iterations, double cpuSeconds, IProgress<string>? progress = null)
+    {
+        IterationLimit = iterations;
+        CpuLimitSeconds = cpuSeconds;
+        _progress = progress;
+        _cpuStart = ThreadCpuSeconds();
+    }
+
+    /// <summary>An unlimited budget (for fits that must not be cut short, e.g. inside tests of the solver).</summary>
+    public static WorkBudget Unlimited() => new(int.MaxValue, double.PositiveInfinity);
+
+    public int IterationLimit { get; }
+    public double CpuLimitSeconds { get; }
+
+    /// <summary>Iterations spent so far.</summary>
+    public int Used { get; private set; }
+
+    /// <summary>Null while work may go on; otherwise which limit was reached, in words.</summary>
+    public string? Exhausted { get; private set; }
+
+    /// <summary>CPU seconds of the calling thread since the budget was made.</summary>
+    public double CpuSeconds => ThreadCpuSeconds() - _cpuStart;
+
+    /// <summary>Counts <paramref name="iterations"/>; false (and <see cref="Exhausted"/> set) when a limit is reached.</summary>
+    public bool Spend(int iterations = 1)
+    {
+        if (Exhausted is not null) return false;
+        Used += iterations;
+        if (Used > IterationLimit)
+        {
+            Exhausted = $"the iteration budget ({IterationLimit}) was used up";
+            return false;
+        }
+
+        if (double.IsFinite(CpuLimitSeconds) && CpuLimitSeconds > 0 && CpuSeconds > CpuLimitSeconds)
+        {
+            Exhausted = $"the CPU-time budget ({CpuLimitSeconds:G3} s) was used up";
+            return false;
+        }
+
+        return true;
+    }
+
+    /// <summary>Passes a progress line on (with the iterations spent), at most about once a second unless <paramref name="force"/>.</summary>
+    public void Report(string message, bool force = false)
+    {
+        if (_progress is null) return;
+        var now = _clock.Elapsed.TotalSeconds;
+        if (!force && now - _lastReport < 1) return;
+        _lastReport = now;
+        _progress.Report($"{message} ({Used} iterations)");
+    }
+
+    /// <summary>CPU time of the calling thread (Linux: clock_gettime(CLOCK_THREAD_CPUTIME_ID); elsewhere the process's).</summary>
+    internal static double ThreadCpuSeconds()
+    {
+        if (OperatingSystem.IsLinux())
+        {
+            try
+            {
+                if (clock_gettime(3, out var ts) == 0) return ts.Seconds + 1e-9 * ts.Nanoseconds;
+            }
+            catch (Exception e) when (e is DllNotFoundException or EntryPointNotFoundException)
+            {
+                // fall through
+            }
+        }
+
+        return System.Diagnostics.Process.GetCurrentProcess().TotalProcessorTime.TotalSeconds;
+    }
+
+    [System.Runtime.InteropServices.StructLayout(System.Runtime.InteropServices.LayoutKind.Sequential)]
+    private struct TimeSpec
+    {
+        public long Seconds;
+        public long Nanoseconds;
+    }
+
+    [System.Runtime.InteropServices.DllImport("libc", EntryPoint = "clock_gettime")]
+    private static extern int clock_gettime(int clock, out TimeSpec time);
 }
 
 /// <summary>Why <see cref="LevenbergMarquardt.Minimise"/> stopped.</summary>
@@ -25,6 +128,9 @@ internal enum LmExit
 
     /// <summary>The iteration limit was reached.</summary>
     IterationLimit,
+
+    /// <summary>The shared <see cref="WorkBudget"/> was used up.</summary>
+    Budget,
 
     /// <summary>The model or its derivatives gave a non-finite value at the start.</summary>
     NonFinite,
@@ -52,12 +158,24 @@ internal static class LevenbergMarquardt
     /// <param name="maxIterations">Iteration limit (an iteration is one solve of the damped normal equations).</param>
     /// <param name="stepTolerance">Stop when no parameter moves by more than this many of its scales (relative to its size when that is larger).</param>
     /// <param name="chiSquareTolerance">Stop when a full step would lower χ² by less than this (absolute; χ² differences below it carry no information).</param>
+    /// <param name="budget">Shared work limits (null: only <paramref name="maxIterations"/>); each iteration spends one.</param>
     public static LmOutcome Minimise(ILeastSquaresProblem problem, double[] p0, double[] scales, bool[]? isFixed, int maxIterations,
-        double stepTolerance = 1e-9, double chiSquareTolerance = 1e-9)
+        double stepTolerance = 1e-9, double chiSquareTolerance = 1e-9, WorkBudget? budget = null)
     {
         var n = problem.Count;
-        var free = Enumerable.Range(0, n).Where(i => isFixed is null || !isFixed[i]).ToArray();
+        // free parameters ordered block by block, the border last: the damped matrix is then block-arrowhead and its
+        // Cholesky factor stays within each row's envelope (first[u]: the first column that can be non-zero in row u)
+        var blocks = problem.Blocks;
+        var free = Enumerable.Range(0, n).Where(i => isFixed is null || !isFixed[i])
+            .OrderBy(i => blocks is null ? 0 : blocks[i] < 0 ? int.MaxValue : blocks[i]).ThenBy(i => i).ToArray();
         var f = free.Length;
+        var first = new int[f];
+        for (var u = 1; u < f; u++)
+        {
+            var bu = blocks is null ? -1 : blocks[free[u]];
+            first[u] = bu >= 0 && blocks![free[u - 1]] == bu ? first[u - 1] : bu >= 0 ? u : 0;
+        }
+
         var p = (double[])p0.Clone();
         var jtj = new double[n * n];
         var jtr = new double[n];
@@ -95,10 +213,11 @@ internal static class LevenbergMarquardt
         var nu = 2.0;
         for (var iteration = 1; iteration <= maxIterations; iteration++)
         {
+            if (budget is not null && !budget.Spend()) return new LmOutcome(p, chi, jtj, LmExit.Budget, iteration - 1);
             // solve (A + μD) h = g by Cholesky; a failed factorisation (A not positive definite) raises the damping
             for (var i = 0; i < f * f; i++) chol[i] = a[i];
             for (var u = 0; u < f; u++) chol[u * f + u] += mu * d[u];
-            if (!Cholesky(chol, f))
+            if (!Cholesky(chol, f, first))
             {
                 mu *= nu;
                 nu *= 2;
@@ -106,7 +225,7 @@ internal static class LevenbergMarquardt
                 continue;
             }
 
-            Solve(chol, f, g, h);
+            Solve(chol, f, g, h, first);
             double predicted = 0, stepMax = 0, sizeMax = 0;
             for (var u = 0; u < f; u++)
             {
@@ -149,20 +268,30 @@ internal static class LevenbergMarquardt
         return new LmOutcome(p, chi, jtj, LmExit.IterationLimit, maxIterations);
     }
 
-    /// <summary>In-place Cholesky factorisation (lower triangle) of a symmetric n×n row-major matrix; false when not positive definite.</summary>
-    internal static bool Cholesky(double[] m, int n)
+    /// <summary>In-place Cholesky factorisation (lower triangle) of a symmetric n×n row-major matrix; false when not positive
+    /// definite. With <paramref name="first"/> (envelope: row i is zero left of column first[i], and first is non-decreasing
+    /// within a block), only the envelope is computed — a block-arrowhead matrix costs Σ (block size)³ plus the border rows.</summary>
+    internal static bool Cholesky(double[] m, int n, int[]? first = null)
     {
         for (var j = 0; j < n; j++)
         {
+            var fj = first?[j] ?? 0;
             var s = m[j * n + j];
-            for (var k = 0; k < j; k++) s -= m[j * n + k] * m[j * n + k];
+            for (var k = fj; k < j; k++) s -= m[j * n + k] * m[j * n + k];
             if (!(s > 0)) return false;
             var l = Math.Sqrt(s);
             m[j * n + j] = l;
             for (var i = j + 1; i < n; i++)
             {
+                var fi = first?[i] ?? 0;
+                if (fi > j)
+                {
+                    m[i * n + j] = 0;
+                    continue;
+                }
+
                 var t = m[i * n + j];
-                for (var k = 0; k < j; k++) t -= m[i * n + k] * m[j * n + k];
+                for (var k = Math.Max(fi, fj); k < j; k++) t -= m[i * n + k] * m[j * n + k];
                 m[i * n + j] = t / l;
             }
         }
@@ -170,20 +299,25 @@ internal static class LevenbergMarquardt
         return true;
     }
 
-    /// <summary>Solves L Lᵀ x = b with the factor from <see cref="Cholesky"/>.</summary>
-    internal static void Solve(double[] l, int n, double[] b, double[] x)
+    /// <summary>Solves L Lᵀ x = b with the factor from <see cref="Cholesky"/> (the same envelope, if any).</summary>
+    internal static void Solve(double[] l, int n, double[] b, double[] x, int[]? first = null)
     {
         for (var i = 0; i < n; i++)
         {
             var t = b[i];
-            for (var k = 0; k < i; k++) t -= l[i * n + k] * x[k];
+            for (var k = first?[i] ?? 0; k < i; k++) t -= l[i * n + k] * x[k];
             x[i] = t / l[i * n + i];
         }
 
         for (var i = n - 1; i >= 0; i--)
         {
             var t = x[i];
-            for (var k = i + 1; k < n; k++) t -= l[k * n + i] * x[k];
+            for (var k = i + 1; k < n; k++)
+            {
+                if (first is not null && first[k] > i) continue;
+                t -= l[k * n + i] * x[k];
+            }
+
             x[i] = t / l[i * n + i];
         }
     }

@@ -26,8 +26,24 @@ public sealed record RefineOptions
     /// <summary>Alternative placements (near-aliases) tried per line.</summary>
     public int AliasCandidates { get; init; } = 4;
 
-    /// <summary>Maximum Levenberg–Marquardt iterations.</summary>
+    /// <summary>Maximum Levenberg–Marquardt iterations of one fit.</summary>
     public int MaxIterations { get; init; } = 200;
+
+    /// <summary>Iterations allowed to the whole refinement (every fit round, the order check's quick refits and full
+    /// refits, the bootstrap replicates, counted together; default 3000). When it is used up the refinement stops with a
+    /// warning: lines not yet refined keep their grid values with widened uncertainties, checks not yet made are marked
+    /// as not made.</summary>
+    public int IterationBudget { get; init; } = 3000;
+
+    /// <summary>CPU seconds (of the calling thread) allowed to the whole refinement; ≤ 0 or infinity: no
+    /// limit (default 8 s). Reached, it stops the refinement like <see cref="IterationBudget"/>. Results that hit it depend on the
+    /// machine's speed, and the warning says so.</summary>
+    public double CpuBudgetSeconds { get; init; } = 8;
+
+    /// <summary>Lines within this many linewidths (folded into each instrument's FSR) of a sample enter that sample's row of
+    /// the Gauss–Newton matrix (default 6; the model and the gradient always use every line). Lines farther apart than
+    /// twice this in every instrument fit as independent blocks. Infinity: the dense matrix.</summary>
+    public double JacobianCutoffLinewidths { get; init; } = 6;
 
     /// <summary>Two refined lines closer than this many linewidths (of the narrowest instrument) are merged into one.</summary>
     public double MergeLinewidths { get; init; } = 0.5;
@@ -70,6 +86,22 @@ public sealed record RefinementDiagnostics(bool Converged, string ExitReason, in
     /// <summary>True when the refinement failed as a whole and the grid result was kept.</summary>
     public bool FellBackToGrid { get; init; }
 
+    /// <summary>Iterations spent by the whole refinement (all fits, order check and bootstrap; see
+    /// <see cref="RefineOptions.IterationBudget"/>).</summary>
+    public int IterationsUsed { get; init; }
+
+    /// <summary>The iteration budget the refinement ran with.</summary>
+    public int IterationBudget { get; init; }
+
+    /// <summary>CPU seconds the refinement used (calling thread).</summary>
+    public double CpuSeconds { get; init; }
+
+    /// <summary>Null when the refinement finished within its budget; otherwise which budget ran out and in which stage.</summary>
+    public string? BudgetExhausted { get; init; }
+
+    /// <summary>Independent line groups of the last fit (lines sharing no sample within the Jacobian cutoff).</summary>
+    public int Groups { get; init; }
+
     /// <summary>
     /// Range over which the order of the weakest kept line is unambiguous for these instruments and this noise: the
     /// smallest shift Δ (beyond the line's own peak) at which a copy of that line moved by Δ would fit within the
@@ -104,8 +136,10 @@ public sealed record RefinementDiagnostics(bool Converged, string ExitReason, in
 public static class LineRefiner
 {
     /// <summary>Refines <paramref name="grid"/>'s lines against <paramref name="sweeps"/> (the same sweeps, in the same
-    /// order, that produced the grid result).</summary>
-    public static (UnfoldResult Result, RefinementDiagnostics Diagnostics) Refine(IReadOnlyList<CalibratedSweep> sweeps, UnfoldResult grid, RefineOptions? options = null)
+    /// order, that produced the grid result). Progress lines go to <paramref name="progress"/> at least about once a
+    /// second of wall time while fits run.</summary>
+    public static (UnfoldResult Result, RefinementDiagnostics Diagnostics) Refine(IReadOnlyList<CalibratedSweep> sweeps, UnfoldResult grid, RefineOptions? options = null,
+        IProgress<string>? progress = null)
     {
         ArgumentNullException.ThrowIfNull(sweeps);
         ArgumentNullException.ThrowIfNull(grid);
@@ -114,14 +148,15 @@ public static class LineRefiner
         if (sweeps.Count != grid.Sweeps.Count)
             throw new ArgumentException($"the grid result has {grid.Sweeps.Count} sweep fits but {sweeps.Count} sweeps were given", nameof(grid));
 
-        var data = new Data(sweeps);
+        var budget = new WorkBudget(options.IterationBudget, options.CpuBudgetSeconds, progress);
+        var data = new Data(sweeps) { CutoffLinewidths = options.JacobianCutoffLinewidths };
         var threshold = Threshold(options, data.M);
         var warnings = grid.Warnings.ToList();
         if (grid.Lines.Count == 0)
         {
             var chi0 = grid.Sweeps.Sum(s => s.ChiSquare);
             return (grid with { DetectionLimit = DetectionLimit(sweeps, grid, threshold, 1.0) },
-                new RefinementDiagnostics(true, "no lines", 0, chi0, grid.ReducedChiSquare, threshold, 0));
+                new RefinementDiagnostics(true, "no lines", 0, chi0, grid.ReducedChiSquare, threshold, 0) { IterationBudget = options.IterationBudget });
         }
 
         var lwNarrow = sweeps.Min(s => s.Instrument.LinewidthHz);
@@ -136,17 +171,26 @@ public static class LineRefiner
             tracked.Add(new Tracked(l, p[layout.Nu(j)], p[layout.A(j)], halfCluster + options.WanderLinewidths * lwWide));
         }
 
-        // fit, then pin wanderers, merge collapsed pairs and prune insignificant lines, one change per round
+        // fit, then pin wanderers, merge collapsed pairs and prune insignificant lines: one change per independent line
+        // group per round (groups share no sample within the Jacobian cutoff, so a change in one cannot alter the other's
+        // verdict beyond the shared sweep parameters)
         FitResult? fit = null;
         string? failure = null;
-        int dropped = 0, merged = 0, pinned = 0;
+        int dropped = 0, merged = 0, pinned = 0, rounds = 0;
         var maxRounds = 4 * grid.Lines.Count + 8;
-        var retried = false;
         for (var round = 0; round < maxRounds && layout.Lines > 0; round++)
         {
+            rounds = round + 1;
+            budget.Report($"refinement round {round + 1}: fitting {layout.Lines} line(s)", force: true);
             var mask = layout.FixedMask(tracked);
             var chiBefore = data.ChiSquare(layout, p);
-            fit = Fit(data, layout, p, retried ? options with { MaxIterations = 2 * options.MaxIterations } : options, mask);
+            fit = Fit(data, layout, p, options, mask, budget: budget, label: $"refinement round {round + 1}");
+            if (fit.Reason == BudgetReason)
+            {
+                failure = $"{budget.Exhausted} in fit round {round + 1} ({layout.Lines} line(s) still in the fit)";
+                break;
+            }
+
             if (!fit.P.All(double.IsFinite) || !double.IsFinite(fit.ChiSquare))
             {
                 failure = $"the fit produced non-finite values ({fit.Reason})";
@@ -160,27 +204,30 @@ public static class LineRefiner
             }
 
             // a fit stopped by its iteration limit still improved χ²: pinning, merging and pruning below often remove the
-            // cause (an undetermined line); otherwise it gets one longer try from where it stopped, then counts as failed
+            // cause (an undetermined line); when nothing is left to change, it counts as failed (no retries: the grid
+            // result is kept with widened uncertainties)
             p = fit.P;
+            var groups = data.Groups(layout, p);
+            var changed = new HashSet<int>();
+            var remove = new List<int>();
 
             // 1. a line that left its grid cluster: pin its position at the grid value
-            var wanderer = Enumerable.Range(0, layout.Lines)
-                .FirstOrDefault(j => !tracked[j].Pinned && Math.Abs(p[layout.Nu(j)] - tracked[j].GridNu) > tracked[j].Tolerance, -1);
-            if (wanderer >= 0)
+            for (var j = 0; j < layout.Lines; j++)
             {
-                var t = tracked[wanderer];
+                if (tracked[j].Pinned || changed.Contains(groups[j]) || Math.Abs(p[layout.Nu(j)] - tracked[j].GridNu) <= tracked[j].Tolerance) continue;
+                var t = tracked[j];
                 t.Pinned = true;
-                t.Notes.Add($"the refinement moved this line by {Quantity.FormatFrequency(p[layout.Nu(wanderer)] - t.GridNu, 3)}, out of its grid cluster: position kept at the grid value (no frequency uncertainty)");
-                p[layout.Nu(wanderer)] = t.GridNu;
-                p[layout.A(wanderer)] = t.GridA;
+                t.Notes.Add($"the refinement moved this line by {Quantity.FormatFrequency(p[layout.Nu(j)] - t.GridNu, 3)}, out of its grid cluster: position kept at the grid value (no frequency uncertainty)");
+                p[layout.Nu(j)] = t.GridNu;
+                p[layout.A(j)] = t.GridA;
                 pinned++;
-                continue;
+                changed.Add(groups[j]);
             }
 
-            // 2. two lines that collapsed onto each other: merge them
-            var pair = ClosestPair(layout, p);
-            if (pair is var (i1, i2, sep) && sep < options.MergeLinewidths * lwNarrow)
+            // 2. two lines that collapsed onto each other (always one group): merge them
+            foreach (var (i1, i2, sep) in ClosestPairs(layout, p, groups))
             {
+                if (changed.Contains(groups[i1]) || sep >= options.MergeLinewidths * lwNarrow) continue;
                 var (keep, lose) = p[layout.A(i1)] >= p[layout.A(i2)] ? (i1, i2) : (i2, i1);
                 double ak = p[layout.A(keep)], al = p[layout.A(lose)];
                 if (ak > 0 && al > 0) p[layout.Nu(keep)] = (ak * p[layout.Nu(keep)] + al * p[layout.Nu(lose)]) / (ak + al);
@@ -193,52 +240,78 @@ public static class LineRefiner
                 tk.FirstBin = Math.Min(tk.FirstBin, tl.FirstBin);
                 tk.LastBin = Math.Max(tk.LastBin, tl.LastBin);
                 tk.Pinned &= tl.Pinned;
-                (layout, p) = layout.Without(lose, p);
-                tracked.RemoveAt(lose);
+                remove.Add(lose);
                 merged++;
-                continue;
+                changed.Add(groups[i1]);
             }
 
-            // 3. the weakest line below the detection threshold (Wald test with the χ²-scaled covariance): drop it
-            var weakest = WeakestInsignificant(layout, fit, threshold);
-            if (weakest >= 0)
+            // 3. the weakest line of a group below the detection threshold (Wald test with the χ²-scaled covariance): drop it
+            foreach (var weakest in WeakestInsignificant(layout, fit, threshold, groups))
             {
-                (layout, p) = layout.Without(weakest, p);
-                tracked.RemoveAt(weakest);
+                if (changed.Contains(groups[weakest])) continue;
+                remove.Add(weakest);
                 dropped++;
+                changed.Add(groups[weakest]);
+            }
+
+            if (changed.Count > 0)
+            {
+                foreach (var j in remove.Distinct().OrderByDescending(j => j))
+                {
+                    (layout, p) = layout.Without(j, p);
+                    tracked.RemoveAt(j);
+                }
+
                 fit = null;
                 continue;
             }
 
-            if (!fit.Converged)
-            {
-                if (!retried && fit.Reason == IterationLimitReason)
-                {
-                    retried = true;
-                    fit = null;
-                    continue;
-                }
-
-                failure = $"Levenberg–Marquardt did not converge ({fit.Reason} after {fit.Iterations} iterations)";
-                break;
-            }
-
+            if (!fit.Converged) failure = $"Levenberg–Marquardt did not converge ({fit.Reason} after {fit.Iterations} iterations)";
             break;
         }
 
-        if (failure is null && fit is null && layout.Lines > 0) failure = "the refinement did not settle within its round limit";
-        if (failure is not null) return FallBack(sweeps, grid, threshold, warnings, failure, fit);
-        if (layout.Lines == 0) return NoLineLeft(data, sweeps, grid, threshold, warnings, dropped, merged);
-        return Finish(data, sweeps, grid, options, threshold, warnings, layout, fit!, tracked, dropped, merged, pinned);
+        if (failure is null && fit is null && layout.Lines > 0) failure = $"the refinement did not settle within its round limit ({maxRounds} rounds)";
+        if (failure is not null) return FallBack(sweeps, grid, threshold, warnings, failure, fit, budget, options);
+        if (layout.Lines == 0) return NoLineLeft(data, sweeps, grid, threshold, warnings, dropped, merged, budget, options);
+        return Finish(data, sweeps, grid, options, threshold, warnings, layout, fit!, tracked, dropped, merged, pinned, budget);
+    }
+
+    /// <summary>Per line group, the line with the smallest Wald statistic z = a/σ_a (χ²-scaled covariance) when z² is below
+    /// the threshold or a ≤ 0. Lines whose σ_a is undetermined are never chosen.</summary>
+    private static IEnumerable<int> WeakestInsignificant(Layout layout, FitResult fit, double threshold, int[] groups)
+    {
+        foreach (var members in Enumerable.Range(0, layout.Lines).GroupBy(j => groups[j]))
+        {
+            var weakest = WeakestInsignificant(layout, fit, threshold, members);
+            if (weakest >= 0) yield return weakest;
+        }
+    }
+
+    /// <summary>Pairs of lines of one group, each group's closest pair only, with their separation.</summary>
+    private static IEnumerable<(int, int, double)> ClosestPairs(Layout layout, double[] p, int[] groups)
+    {
+        foreach (var members in Enumerable.Range(0, layout.Lines).GroupBy(j => groups[j]))
+        {
+            var m = members.ToArray();
+            (int, int, double)? best = null;
+            for (var a = 0; a < m.Length; a++)
+            for (var b = a + 1; b < m.Length; b++)
+            {
+                var d = Math.Abs(p[layout.Nu(m[a])] - p[layout.Nu(m[b])]);
+                if (best is null || d < best.Value.Item3) best = (m[a], m[b], d);
+            }
+
+            if (best is not null) yield return best.Value;
+        }
     }
 
     /// <summary>The line with the smallest Wald statistic z = a/σ_a (χ²-scaled covariance) when z² is below the threshold
     /// or a ≤ 0; −1 when every line is significant. Lines whose σ_a is undetermined are never chosen.</summary>
-    private static int WeakestInsignificant(Layout layout, FitResult fit, double threshold)
+    private static int WeakestInsignificant(Layout layout, FitResult fit, double threshold, IEnumerable<int> members)
     {
         var weakest = -1;
         var zMin = double.PositiveInfinity;
-        for (var j = 0; j < layout.Lines; j++)
+        foreach (var j in members)
         {
             var a = fit.P[layout.A(j)];
             var va = fit.Scaled[layout.A(j), layout.A(j)];
@@ -281,28 +354,36 @@ public static class LineRefiner
         public List<string> Notes { get; } = [];
     }
 
-    private static (int, int, double)? ClosestPair(Layout layout, double[] p)
-    {
-        (int, int, double)? best = null;
-        for (var i = 0; i < layout.Lines; i++)
-        for (var j = i + 1; j < layout.Lines; j++)
-        {
-            var d = Math.Abs(p[layout.Nu(i)] - p[layout.Nu(j)]);
-            if (best is null || d < best.Value.Item3) best = (i, j, d);
-        }
-
-        return best;
-    }
-
+    /// <summary>
+    /// The grid result, kept when the refinement failed or ran out of budget: every line keeps its grid position and
+    /// intensity, its order is not judged, and it gets a frequency uncertainty that bounds the grid's own error rather
+    /// than a fitted one — the larger of half its grid cluster and half the widest linewidth, combined with the anchor's
+    /// (the grid cannot place a line better than its cluster, and a cluster narrower than a linewidth still leaves the
+    /// peak's position within the linewidth's core). The note on each line and a warning say so.
+    /// </summary>
     private static (UnfoldResult, RefinementDiagnostics) FallBack(IReadOnlyList<CalibratedSweep> sweeps, UnfoldResult grid, double threshold,
-        List<string> warnings, string failure, FitResult? fit)
+        List<string> warnings, string failure, FitResult? fit, WorkBudget budget, RefineOptions options)
     {
-        var note = $"refinement failed: {failure}; grid value kept (no refined uncertainty)";
-        warnings.Add($"line refinement failed ({failure}); the grid lines are reported unrefined");
+        var lwWide = sweeps.Max(s => s.Instrument.LinewidthHz);
+        double Bound(UnfoldedLine l) => Math.Max(0.5 * (l.LastBin - l.FirstBin) * grid.Grid.StepHz, 0.5 * lwWide);
+        var anchor = grid.Lines.MaxBy(l => l.RawIntensity)!;
+        var anchorBound = Bound(anchor);
+        warnings.Add($"line refinement stopped ({failure}); the {grid.Lines.Count} grid line(s) are reported unrefined, with frequency uncertainties widened to half their grid cluster or half a linewidth ({Quantity.FormatFrequency(0.5 * lwWide, 3)}), whichever is larger, and orders not judged"
+                     + (budget.Exhausted?.Contains("CPU") == true ? "; the CPU-time budget depends on the machine's speed: a faster or idle machine may finish" : ""));
         var scale = grid.Lines.Max(l => l.RawIntensity);
         var result = grid with
         {
-            Lines = grid.Lines.Select(l => l with { Note = note, Verdict = OrderVerdict.Unknown }).ToList(),
+            Lines = grid.Lines.Select(l =>
+            {
+                var own = Bound(l);
+                var sigma = ReferenceEquals(l, anchor) ? 0 : Math.Sqrt(own * own + anchorBound * anchorBound);
+                return l with
+                {
+                    Note = $"refinement failed: {failure}; grid value kept, frequency uncertainty ±{Quantity.FormatFrequency(sigma, 2)} is a bound from the grid cluster and the linewidth, not a fitted error",
+                    Verdict = OrderVerdict.Unknown,
+                    FrequencySigmaHz = sigma,
+                };
+            }).ToList(),
             DetectionLimit = DetectionLimit(sweeps, grid, threshold, scale),
             Warnings = warnings,
             Refined = false,
@@ -311,13 +392,17 @@ public static class LineRefiner
         var diag = new RefinementDiagnostics(false, fit?.Reason ?? "failed", fit?.Iterations ?? 0, chi, grid.ReducedChiSquare, threshold, 0)
         {
             FellBackToGrid = true,
+            IterationsUsed = budget.Used,
+            IterationBudget = options.IterationBudget,
+            CpuSeconds = budget.CpuSeconds,
+            BudgetExhausted = budget.Exhausted,
         };
         return (result, diag);
     }
 
     /// <summary>Every grid cluster was insignificant: no line, flat backgrounds, detection limit relative to the strongest grid cluster.</summary>
     private static (UnfoldResult, RefinementDiagnostics) NoLineLeft(Data data, IReadOnlyList<CalibratedSweep> sweeps, UnfoldResult grid, double threshold,
-        List<string> warnings, int dropped, int merged)
+        List<string> warnings, int dropped, int merged, WorkBudget budget, RefineOptions options)
     {
         warnings.Add($"no line is significant after refinement: all {grid.Lines.Count} grid cluster(s) fell below the detection threshold (Δχ² {threshold:G3}); intensities and the detection limit are relative to the strongest grid cluster");
         var fits = new List<SweepFit>();
@@ -355,20 +440,59 @@ public static class LineRefiner
             ReducedChiSquare = red,
             Refined = true,
         };
-        return (result, new RefinementDiagnostics(true, "no significant line", 0, chiTotal, red, threshold, dropped) { Merged = merged });
+        return (result, new RefinementDiagnostics(true, "no significant line", 0, chiTotal, red, threshold, dropped)
+        {
+            Merged = merged, IterationsUsed = budget.Used, IterationBudget = options.IterationBudget, CpuSeconds = budget.CpuSeconds,
+        });
     }
 
     private static (UnfoldResult, RefinementDiagnostics) Finish(Data data, IReadOnlyList<CalibratedSweep> sweeps, UnfoldResult grid, RefineOptions options,
-        double threshold, List<string> warnings, Layout layout, FitResult fit, List<Tracked> tracked, int dropped, int merged, int pinned)
+        double threshold, List<string> warnings, Layout layout, FitResult fit, List<Tracked> tracked, int dropped, int merged, int pinned, WorkBudget budget)
     {
         var lwWide = sweeps.Max(s => s.Instrument.LinewidthHz);
         var anchor = Enumerable.Range(0, layout.Lines).MaxBy(j => fit.P[layout.A(j)]);
         var anchorHz = fit.P[layout.Nu(anchor)];
         var aAnchor = fit.P[layout.A(anchor)];
-        var bootstrap = options.Bootstrap > 0 ? BootstrapSigmas(data, layout, fit, anchor, options, layout.FixedMask(tracked)) : null;
+        var ordersResolved = grid.OrdersResolved;
+
+        // order confidence first (it decides what is reported), then the bootstrap, both within the budget
+        var aliases = new (double Shift, double DeltaChi)?[layout.Lines];
+        string? orderStop = null;
+        if (ordersResolved)
+        {
+            var instruments = sweeps.Select(s => s.Instrument).DistinctBy(i => i.FsrHz).ToList();
+            var origin = grid.Sweeps[0].OffsetHz + anchorHz; // old relative frequency − origin = new relative frequency
+            var window = (grid.Grid.StartHz - origin, grid.Grid.EndHz - origin);
+            var mask = layout.FixedMask(tracked);
+            for (var j = 0; j < layout.Lines; j++)
+            {
+                budget.Report($"order check: line {j + 1} of {layout.Lines}");
+                if (budget.Exhausted is not null) break;
+                aliases[j] = BestAlias(data, layout, fit, j, instruments, window, anchorHz, options, mask, budget);
+                if (budget.Exhausted is not null) aliases[j] = null; // cut short: not a complete check
+            }
+
+            if (budget.Exhausted is not null)
+            {
+                orderStop = budget.Exhausted;
+                warnings.Add($"the order check stopped: {orderStop}; {aliases.Count(a => a is null)} of {layout.Lines} line(s) have no order verdict (marked unknown)");
+            }
+        }
+
+        double[]? bootstrap = null;
+        if (options.Bootstrap > 0)
+        {
+            budget.Report("bootstrap", force: true);
+            var (sigmas, done) = BootstrapSigmas(data, layout, fit, anchor, options, layout.FixedMask(tracked), budget);
+            bootstrap = sigmas;
+            if (done < options.Bootstrap)
+                warnings.Add(bootstrap is null
+                    ? $"the bootstrap stopped after {done} of {options.Bootstrap} replicates ({budget.Exhausted}); too few for an error estimate, none is reported"
+                    : $"the bootstrap stopped after {done} of {options.Bootstrap} replicates ({budget.Exhausted}); its errors rest on those");
+        }
+
         var red = fit.ChiSquare / Math.Max(1, data.M - layout.FreeCount(layout.FixedMask(tracked)));
         var refined = new List<UnfoldedLine>();
-        var ordersResolved = grid.OrdersResolved;
         var cs = fit.Scaled;
         var cu = fit.Unscaled;
         var axisCov = AxisCovariance(data, layout, fit);
@@ -433,13 +557,18 @@ public static class LineRefiner
         // order confidence: Δχ² of the best alternative placement of each line
         if (ordersResolved)
         {
-            var instruments = sweeps.Select(s => s.Instrument).DistinctBy(i => i.FsrHz).ToList();
-            var origin = grid.Sweeps[0].OffsetHz + anchorHz; // old relative frequency − origin = new relative frequency
-            var window = (grid.Grid.StartHz - origin, grid.Grid.EndHz - origin);
-            var mask = layout.FixedMask(tracked);
             for (var j = 0; j < refined.Count; j++)
             {
-                var (shift, dchi) = BestAlias(data, layout, fit, j, instruments, window, anchorHz, options, mask);
+                if (aliases[j] is not var (shift, dchi))
+                {
+                    refined[j] = refined[j] with
+                    {
+                        Verdict = OrderVerdict.Unknown,
+                        Note = string.Join("; ", new[] { refined[j].Note, $"order not checked: {orderStop}" }.Where(n => n is not null)),
+                    };
+                    continue;
+                }
+
                 var doubtful = dchi < options.DoubtfulDeltaChiSquare;
                 refined[j] = refined[j] with
                 {
@@ -524,6 +653,11 @@ public static class LineRefiner
         {
             Merged = merged,
             Pinned = pinned,
+            IterationsUsed = budget.Used,
+            IterationBudget = options.IterationBudget,
+            CpuSeconds = budget.CpuSeconds,
+            BudgetExhausted = budget.Exhausted is null ? null : $"{budget.Exhausted} (after the line fit: order check or bootstrap cut short)",
+            Groups = data.Groups(layout, fit.P).Distinct().Count(),
             UnambiguousRangeHz = range,
             UnambiguousRangeIsLowerBound = lowerBound,
             UnambiguousForIntensity = Finite(aWeak / aAnchor),
@@ -665,9 +799,14 @@ public static class LineRefiner
 
         /// <summary>
         /// Normal equations of the weighted fit at <paramref name="p"/> against observations <paramref name="y"/>: fills
-        /// <paramref name="jtj"/> = JᵀWJ (row-major, both triangles) and <paramref name="jtr"/> = JᵀW(y − model), returns χ².
-        /// One pass over the samples; each sample's Jacobian row has non-zeros only for the lines and its own sweep's
-        /// offset, gain and background, so the cost is samples × (those parameters)², with no samples × parameters matrix.
+        /// <paramref name="jtj"/> ≈ JᵀWJ (row-major, both triangles) and <paramref name="jtr"/> = JᵀW(y − model), returns χ².
+        /// One pass over the samples. The model, χ² and the gradient JᵀW(y − model) are exact: every line is evaluated at
+        /// every sample (one Airy evaluation each). The Gauss–Newton matrix keeps, for each sample, only the lines whose
+        /// folded distance from it is below <see cref="CutoffLinewidths"/> linewidths (plus the sweep's own offset, gain and
+        /// background), so its cost is Σ (parameters near a sample)² — linear in the samples the lines touch — and lines
+        /// that share no sample within the cutoff have no entry between them (separate blocks, see <see cref="Groups"/>).
+        /// The neglected entries are products of Airy tails (below ((1 + 4K²)⁻¹)² of the peak for cutoff K): they change
+        /// the steps a little, not the minimum, which is fixed by the exact gradient.
         /// </summary>
         public double Normal(Layout layout, double[] p, double[] y, double[] jtj, double[] jtr)
         {
@@ -675,25 +814,86 @@ public static class LineRefiner
             Array.Clear(jtj);
             Array.Clear(jtr);
             double chi = 0;
+            var lines = layout.Lines;
+            var t = new double[lines];
+            var dt = new double[lines];
+            var dw = layout.Widths ? new double[lines] : null;
+            var per = layout.Widths ? 3 : 2;
+            var index = new int[per * lines + 3];
+            var row = new double[index.Length];
             for (var k = 0; k < Sweeps.Count; k++)
             {
-                var rows = new SweepRows(this, layout, p, k);
-                var index = rows.Index;
-                var row = rows.Row;
-                var used = rows.Used;
+                var inst = Sweeps[k].Instrument;
+                var phi = k == 0 ? 0 : p[layout.Phi(k)];
+                var g = k == 0 ? 1 : p[layout.G(k)];
+                var b = p[layout.B(k)];
+                var shapes = LineShapes(inst, layout, p);
+                var wide = layout.Widths ? LineShapes(inst, layout, p, WidthStep(inst)) : null;
+                var h = WidthStep(inst);
+                var fsr = inst.FsrHz;
+                var reach = new double[lines];
+                for (var j = 0; j < lines; j++)
+                    reach[j] = CutoffLinewidths * (inst.LinewidthHz + (layout.Widths ? Math.Abs(p[layout.W(j)]) : 0));
                 for (var i = Start[k]; i < Start[k + 1]; i++)
                 {
-                    var model = rows.Fill(i, out _);
-                    var sw = Math.Sqrt(W[i]);
-                    var r = (y[i] - model) * sw;
-                    chi += r * r;
+                    var f = F[i];
+                    double sumT = 0, sumDT = 0;
+                    for (var j = 0; j < lines; j++)
+                    {
+                        var delta = p[layout.Nu(j)] - phi - f;
+                        (t[j], dt[j]) = shapes[j].Evaluate(delta);
+                        var a = p[layout.A(j)];
+                        sumT += a * t[j];
+                        sumDT += a * dt[j];
+                        if (dw is not null) dw[j] = (p[layout.W(j)] < 0 ? -1 : 1) * g * a * (wide![j].Evaluate(delta).T - t[j]) / h;
+                    }
+
+                    var w = W[i];
+                    var r = y[i] - (g * sumT + b);
+                    chi += r * r * w;
+                    var wr = w * r;
+                    // exact gradient for every line; the near ones also enter the Gauss–Newton matrix
+                    var used = 0;
+                    for (var j = 0; j < lines; j++)
+                    {
+                        var a = p[layout.A(j)];
+                        double rn = g * a * dt[j], ra = g * t[j];
+                        jtr[layout.Nu(j)] += wr * rn;
+                        jtr[layout.A(j)] += wr * ra;
+                        if (dw is not null) jtr[layout.W(j)] += wr * dw[j];
+                        var delta = p[layout.Nu(j)] - phi - f;
+                        var folded = delta - fsr * Math.Round(delta / fsr);
+                        if (Math.Abs(folded) >= reach[j]) continue;
+                        index[used] = layout.Nu(j);
+                        row[used++] = rn;
+                        index[used] = layout.A(j);
+                        row[used++] = ra;
+                        if (dw is not null)
+                        {
+                            index[used] = layout.W(j);
+                            row[used++] = dw[j];
+                        }
+                    }
+
+                    if (k > 0)
+                    {
+                        jtr[layout.Phi(k)] += wr * -g * sumDT;
+                        jtr[layout.G(k)] += wr * sumT;
+                        index[used] = layout.Phi(k);
+                        row[used++] = -g * sumDT;
+                        index[used] = layout.G(k);
+                        row[used++] = sumT;
+                    }
+
+                    jtr[layout.B(k)] += wr;
+                    index[used] = layout.B(k);
+                    row[used++] = 1;
                     for (var u = 0; u < used; u++)
                     {
-                        var ru = sw * row[u];
+                        var ru = w * row[u];
                         if (ru == 0) continue;
                         var iu = index[u] * n;
-                        jtr[index[u]] += ru * r;
-                        for (var v = u; v < used; v++) jtj[iu + index[v]] += ru * sw * row[v];
+                        for (var v = u; v < used; v++) jtj[iu + index[v]] += ru * row[v];
                     }
                 }
             }
@@ -710,6 +910,55 @@ public static class LineRefiner
             }
 
             return chi;
+        }
+
+        /// <summary>Lines within this many linewidths (folded, per instrument) of a sample enter its row of the Gauss–Newton
+        /// matrix (see <see cref="Normal"/>); infinity: every line (the dense matrix).</summary>
+        public double CutoffLinewidths { get; init; } = double.PositiveInfinity;
+
+        internal static double WidthStep(Instrument inst) => inst.LinewidthHz * 1e-3;
+
+        /// <summary>
+        /// Groups of lines that share samples: two lines are linked when, in some sweep's instrument, their folded distance
+        /// is below twice the cutoff reach (so a sample could lie within the reach of both); a group is a connected set.
+        /// Lines of different groups have no Gauss–Newton entry between them and fit independently but for the shared
+        /// sweep parameters. Returns a group number per line (0, 1, … in order of first appearance).
+        /// </summary>
+        public int[] Groups(Layout layout, double[] p)
+        {
+            var lines = layout.Lines;
+            var parent = Enumerable.Range(0, lines).ToArray();
+            int Root(int x)
+            {
+                while (parent[x] != x) x = parent[x] = parent[parent[x]];
+                return x;
+            }
+
+            foreach (var inst in Sweeps.Select(s => s.Instrument).DistinctBy(i => (i.FsrHz, i.LinewidthHz)))
+            {
+                for (var i = 0; i < lines; i++)
+                for (var j = i + 1; j < lines; j++)
+                {
+                    if (!double.IsFinite(CutoffLinewidths)) { parent[Root(i)] = Root(j); continue; }
+                    var wi = layout.Widths ? Math.Abs(p[layout.W(i)]) : 0;
+                    var wj = layout.Widths ? Math.Abs(p[layout.W(j)]) : 0;
+                    var reach = CutoffLinewidths * (2 * inst.LinewidthHz + wi + wj);
+                    var d = p[layout.Nu(i)] - p[layout.Nu(j)];
+                    var folded = d - inst.FsrHz * Math.Round(d / inst.FsrHz);
+                    if (Math.Abs(folded) < reach) parent[Root(i)] = Root(j);
+                }
+            }
+
+            var ids = new Dictionary<int, int>();
+            var group = new int[lines];
+            for (var j = 0; j < lines; j++)
+            {
+                var r = Root(j);
+                if (!ids.TryGetValue(r, out var id)) ids[r] = id = ids.Count;
+                group[j] = id;
+            }
+
+            return group;
         }
 
         /// <summary>
@@ -943,7 +1192,8 @@ public static class LineRefiner
     /// Fixed parameters have zero variance; undetermined ones (null space of a singular Fisher matrix) NaN.</summary>
     internal sealed record FitResult(double[] P, Matrix<double> Unscaled, Matrix<double> Scaled, double ChiSquare, bool Converged, string Reason, int Iterations);
 
-    internal static FitResult Fit(Data data, Layout layout, double[] p0, RefineOptions options, bool[]? isFixed = null, double[]? y = null)
+    internal static FitResult Fit(Data data, Layout layout, double[] p0, RefineOptions options, bool[]? isFixed = null, double[]? y = null,
+        WorkBudget? budget = null, string? label = null)
     {
         isFixed ??= new bool[layout.Count];
         // scales: positions and widths in linewidths, intensities and gains relative to their start values
@@ -965,18 +1215,37 @@ public static class LineRefiner
 
         for (var k = 0; k < layout.SweepCount; k++) scales[layout.B(k)] = data.SignalScale[k];
 
+        // block structure: the line groups (lines sharing no sample within the cutoff), the sweep parameters as the border
+        var groups = data.Groups(layout, p0);
+        var blocks = new int[layout.Count];
+        Array.Fill(blocks, -1);
+        for (var j = 0; j < layout.Lines; j++)
+        {
+            blocks[layout.Nu(j)] = groups[j];
+            blocks[layout.A(j)] = groups[j];
+            if (layout.Widths) blocks[layout.W(j)] = groups[j];
+        }
+
         // step tolerance 1e-9 scaled units (positions: 1e-9 linewidth), far below any uncertainty; χ² tolerance 1e-9,
         // far below the Δχ² of 1 that one standard error costs
-        var outcome = LevenbergMarquardt.Minimise(new Problem(data, layout, y ?? data.Y), p0, scales, isFixed, options.MaxIterations);
+        var problem = new Problem(data, layout, y ?? data.Y, blocks, budget, label);
+        var outcome = LevenbergMarquardt.Minimise(problem, p0, scales, isFixed, options.MaxIterations, budget: budget);
         return Summarise(data, layout, outcome, isFixed);
     }
 
     /// <summary>The refinement as a least-squares problem for <see cref="LevenbergMarquardt"/>.</summary>
-    private sealed class Problem(Data data, Layout layout, double[] y) : ILeastSquaresProblem
+    private sealed class Problem(Data data, Layout layout, double[] y, int[] blocks, WorkBudget? budget, string? label) : ILeastSquaresProblem
     {
         public int Count => layout.Count;
 
-        public double Normal(double[] p, double[] jtj, double[] jtr) => data.Normal(layout, p, y, jtj, jtr);
+        public int[]? Blocks => blocks;
+
+        public double Normal(double[] p, double[] jtj, double[] jtr)
+        {
+            var chi = data.Normal(layout, p, y, jtj, jtr);
+            if (label is not null) budget?.Report($"{label}: {layout.Lines} line(s), χ² {chi:G6}");
+            return chi;
+        }
     }
 
     private static string Describe(LmExit exit) => exit switch
@@ -985,10 +1254,12 @@ public static class LineRefiner
         LmExit.SmallDecrease => "converged: χ² decrease below tolerance",
         LmExit.NoFurtherDecrease => "converged: no step lowers χ² further",
         LmExit.IterationLimit => IterationLimitReason,
+        LmExit.Budget => BudgetReason,
         _ => "non-finite model values",
     };
 
     private const string IterationLimitReason = "iteration limit reached";
+    private const string BudgetReason = "work budget used up";
 
     private static FitResult Summarise(Data data, Layout layout, LmOutcome outcome, bool[] isFixed)
     {
@@ -1061,13 +1332,16 @@ public static class LineRefiner
 
     // ---------------------------------------------------------------- bootstrap
 
-    private static double[] BootstrapSigmas(Data data, Layout layout, FitResult fit, int anchor, RefineOptions options, bool[] mask)
+    /// <summary>Residual-bootstrap standard deviations of the line positions relative to the anchor, and how many replicates
+    /// were completed within the budget (fewer than 10: no estimate, null).</summary>
+    private static (double[]? Sigmas, int Done) BootstrapSigmas(Data data, Layout layout, FitResult fit, int anchor, RefineOptions options, bool[] mask, WorkBudget budget)
     {
         var rng = new Random(options.Seed);
         var model = data.Model(layout, fit.P);
         var resid = new double[data.M];
         for (var i = 0; i < data.M; i++) resid[i] = data.Y[i] - model[i];
         var samples = new List<double[]>();
+        var done = 0;
         for (var b = 0; b < options.Bootstrap; b++)
         {
             var y = new double[data.M];
@@ -1077,11 +1351,15 @@ public static class LineRefiner
                 for (var i = 0; i < c; i++) y[s + i] = model[s + i] + resid[s + rng.Next(c)];
             }
 
-            var f = Fit(data, layout, fit.P, options with { MaxIterations = 50 }, mask, y);
+            budget.Report($"bootstrap replicate {b + 1} of {options.Bootstrap}");
+            var f = Fit(data, layout, fit.P, options with { MaxIterations = 50 }, mask, y, budget);
+            if (f.Reason == BudgetReason) break;
+            done++;
             if (!f.P.All(double.IsFinite)) continue;
             samples.Add(Enumerable.Range(0, layout.Lines).Select(j => f.P[layout.Nu(j)] - f.P[layout.Nu(anchor)]).ToArray());
         }
 
+        if (done < options.Bootstrap && samples.Count < 10) return (null, done);
         var result = new double[layout.Lines];
         for (var j = 0; j < layout.Lines; j++)
         {
@@ -1096,7 +1374,7 @@ public static class LineRefiner
             result[j] = Math.Sqrt(v.Sum(t => (t - mean) * (t - mean)) / (v.Length - 1));
         }
 
-        return result;
+        return (result, done);
     }
 
     // ---------------------------------------------------------------- order confidence
@@ -1125,7 +1403,7 @@ public static class LineRefiner
     /// and intensity and the backgrounds (other lines fixed); the best one, when it is anywhere near the doubtful threshold,
     /// gets a full Levenberg–Marquardt refit of every parameter. Returns the shift and Δχ² against the solution.</summary>
     private static (double Shift, double DeltaChi) BestAlias(Data data, Layout layout, FitResult fit, int j, IReadOnlyList<Instrument> instruments,
-        (double Start, double End) window, double anchorHz, RefineOptions options, bool[] mask)
+        (double Start, double End) window, double anchorHz, RefineOptions options, bool[] mask, WorkBudget budget)
     {
         var nu = fit.P[layout.Nu(j)];
         var shifts = AliasShifts(instruments, nu - anchorHz, window, options.AliasCandidates);
@@ -1138,7 +1416,8 @@ public static class LineRefiner
         var fixedModel = data.Model(layout, others);
         foreach (var d in shifts)
         {
-            var (chi, nuMoved, aMoved) = RefitMoved(data, layout, fit.P, j, nu + d, fixedModel);
+            var (chi, nuMoved, aMoved) = RefitMoved(data, layout, fit.P, j, nu + d, fixedModel, budget);
+            if (budget.Exhausted is not null) return (double.NaN, double.NaN);
             var delta = chi - fit.ChiSquare;
             if (delta < bestDelta)
             {
@@ -1156,7 +1435,7 @@ public static class LineRefiner
             q[layout.A(j)] = Math.Max(bestA, 1e-6 * Math.Abs(fit.P[layout.A(j)]));
             var m = (bool[])mask.Clone();
             m[layout.Nu(j)] = false;
-            var alt = Fit(data, layout, q, options with { MaxIterations = Math.Min(options.MaxIterations, 100) }, m);
+            var alt = Fit(data, layout, q, options with { MaxIterations = Math.Min(options.MaxIterations, 100) }, m, budget: budget);
             var lw = data.Sweeps.Max(s => s.Instrument.LinewidthHz);
             if (double.IsFinite(alt.ChiSquare) && Math.Abs(alt.P[layout.Nu(j)] - bestNu) < 2 * lw && alt.ChiSquare - fit.ChiSquare < bestDelta)
                 bestDelta = alt.ChiSquare - fit.ChiSquare;
@@ -1167,7 +1446,7 @@ public static class LineRefiner
 
     /// <summary>χ² after moving line j to <paramref name="nuNew"/> and refitting its position, intensity and the backgrounds
     /// (Gauss–Newton, a few steps; the other lines stay as fitted). Also returns the moved line's final position and intensity.</summary>
-    private static (double Chi, double Nu, double A) RefitMoved(Data data, Layout layout, double[] p, int j, double nuNew, double[] fixedModel)
+    private static (double Chi, double Nu, double A) RefitMoved(Data data, Layout layout, double[] p, int j, double nuNew, double[] fixedModel, WorkBudget budget)
     {
         var nu = nuNew;
         var a = p[layout.A(j)];
@@ -1197,6 +1476,7 @@ public static class LineRefiner
         var chi = Chi(nu, a, bg);
         for (var it = 0; it < 10; it++)
         {
+            if (!budget.Spend()) break;
             // parameters: nu, a, bg_k (offsets to fixedModel's backgrounds)
             var n = 2 + k;
             var jtj = Matrix<double>.Build.Dense(n, n);

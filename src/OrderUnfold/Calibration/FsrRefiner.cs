@@ -114,7 +114,7 @@ public static class FsrRefiner
         var scan = Prescan(sweeps, unfoldOptions, options with { ReferenceInstrument = reference }, names.Count > 1 && options.RefineRatio);
         var current = sweeps.Select(s => Rescale(s, scan.Scales.GetValueOrDefault(s.Instrument.Name, 1.0))).ToList();
         progress?.Report("unfolding with the pre-scanned FSRs");
-        var first = Unfolder.Run(current, unfoldOptions);
+        var first = Unfolder.Run(current, unfoldOptions, progress);
         return Polish(sweeps, scan.Scales, scan.Basis, current, first, unfoldOptions, options, progress, scan.Notes, scan.Warnings);
     }
 
@@ -179,9 +179,23 @@ public static class FsrRefiner
             }
 
             progress?.Report($"unfolding with refined FSRs (round {round + 1})");
+            var previous = (current, currentResult, Scale: new Dictionary<string, double>(scale));
+            foreach (var (n, v) in est.Scales) previous.Scale[n] /= v.Scale;
             current = sweeps.Select(s => Rescale(s, scale[s.Instrument.Name])).ToList();
-            currentResult = Unfolder.Run(current, unfoldOptions);
-            if (biggest * farthest < 0.2 * narrow) break;
+            currentResult = Unfolder.Run(current, unfoldOptions, progress);
+            // each round costs an unfold: a round that does not lower χ² is undone and ends the rounds, one that lowers it
+            // by less than 2 % ends them (bounded cost; the next round would move the lines by less still)
+            var before = previous.currentResult.Sweeps.Sum(f => f.ChiSquare);
+            var after = currentResult.Sweeps.Sum(f => f.ChiSquare);
+            if (after > before)
+            {
+                (current, currentResult) = (previous.current, previous.currentResult);
+                foreach (var n in names) scale[n] = previous.Scale[n];
+                notes.Add($"round {round + 1} of the FSR refinement raised χ² ({after:G6} > {before:G6}); it was undone and the rounds stopped");
+                break;
+            }
+
+            if (after > 0.98 * before || biggest * farthest < 0.2 * narrow) break;
         }
 
         return (current, currentResult, Finish());
@@ -197,6 +211,31 @@ public static class FsrRefiner
                 warnings.Add($"instrument '{s.Instrument}': the FSR refined from the data ({s.Basis}) is {Quantity.FormatFrequency(s.RefinedFsrHz, 7)}, {100 * s.RelativeChange:+0.000;-0.000} % from the stated {Quantity.FormatFrequency(s.NominalFsrHz, 7)}; update the setup");
             return new FsrRefinement(scales, matched, rounds, first.ReducedChiSquare, currentResult.ReducedChiSquare, shifts, warnings, notes);
         }
+    }
+
+    /// <summary>
+    /// Checks the stated FSRs of two or more instruments against each other before any unfold, with the folded-peak
+    /// pre-scan over ±<paramref name="maxError"/> (default 12 %): returns the relative correction of each instrument's
+    /// FSR against the first one that the folded peaks agree on best, or an empty dictionary when the stated ratio
+    /// explains them as well as any (or nothing can be said). Cheap (no unfold); the pipeline uses it to decide that the
+    /// FSR ratio must be refined although the setup did not ask for it.
+    /// </summary>
+    public static (IReadOnlyDictionary<string, double> Corrections, IReadOnlyList<string> Warnings) CheckStatedRatio(
+        IReadOnlyList<CalibratedSweep> sweeps, UnfoldOptions? unfoldOptions, double maxError = 0.12)
+    {
+        var names = sweeps.Select(s => s.Instrument.Name).Distinct().ToList();
+        if (names.Count < 2) return (new Dictionary<string, double>(), []);
+        // the narrow range first (fewer chance coincidences, so a small error is found without ambiguity), then the wide one
+        var warnings = new List<string>();
+        foreach (var range in new[] { Math.Min(maxError, new FsrRefineOptions().MaxScaleError), maxError }.Distinct())
+        {
+            var scan = Prescan(sweeps, unfoldOptions ?? new UnfoldOptions(), new FsrRefineOptions { ReferenceInstrument = names[0], MaxScaleError = range }, true);
+            var found = scan.Scales.Where(kv => kv.Value != 1).ToDictionary(kv => kv.Key, kv => kv.Value - 1);
+            if (found.Count > 0) return (found, scan.Warnings);
+            warnings = scan.Warnings;
+        }
+
+        return (new Dictionary<string, double>(), warnings);
     }
 
     // ------------------------------------------------------------------ pre-scan of folded peaks

@@ -10,6 +10,15 @@ namespace OrderUnfold.Pipeline;
 /// <summary>One unfold from a setup: read sweeps, calibrate the axes, solve, collect what happened.</summary>
 public static class UnfoldPipeline
 {
+    /// <summary>Reduced χ² of the grid fit above which, with two or more instruments and no FSR refinement asked for, the
+    /// FSR ratio refined from the data is tried (and kept only if it fits clearly better).</summary>
+    public const double PoorFitReducedChiSquare = 1.5;
+
+    /// <summary>Reduced χ² of the final fit of any sweep above which the run is refused (the model cannot explain the data:
+    /// a wrong FSR, a sweep assigned to the wrong instrument, a wrong finesse held fixed). A correct model with an honest
+    /// noise estimate gives about 1; 20 leaves room for a noise estimate several times too small.</summary>
+    public const double MismatchReducedChiSquare = 20;
+
     /// <summary>Reads a setup file and runs it.</summary>
     public static UnfoldRun Run(string setupPath, IProgress<string>? progress = null, CalibrationSet? reuse = null) => Run(SetupReader.Read(setupPath), progress, reuse);
 
@@ -92,12 +101,38 @@ public static class UnfoldPipeline
         // ---- FSR refinement (issue 3): Vernier ratio and/or a known interval; see Calibration/FsrRefiner.cs ----
         UnfoldResult result;
         FsrRefinement? fsrRefinement = null;
-        if (solve.RefineFsr || solve.KnownIntervalHz is not null)
+        // stated FSRs that disagree with each other (a datasheet value, a length measured roughly) fold every line to a
+        // slightly wrong place in one instrument: the grid then explains each line with a cloud of false ones. The folded
+        // peaks show it before any unfold; the ratio is then refined from the data, not carried on silently.
+        var refineRatio = solve.RefineFsr;
+        string? doubted = null; // set when a check found the stated model poor
+        var maxScaleError = new FsrRefineOptions().MaxScaleError;
+        if (!solve.RefineFsr && solve.KnownIntervalHz is null && calibrated.Select(s => s.Instrument.Name).Distinct().Count() > 1)
+        {
+            progress?.Report("checking the stated FSR ratio against the folded peaks");
+            var (corrections, _) = FsrRefiner.CheckStatedRatio(calibrated, options); // "cannot tell" is no finding: nothing said
+            if (corrections.Count > 0)
+            {
+                refineRatio = true;
+                doubted = "the stated FSRs disagree with the folded peaks";
+                maxScaleError = Math.Max(maxScaleError, 1.5 * corrections.Values.Max(Math.Abs));
+                var reference = calibrated[0].Instrument.Name;
+                warnings.Add("the stated FSRs disagree with the folded peaks: " + string.Join("; ", corrections.Select(c => $"'{c.Key}' fits best {100 * c.Value:+0.000;-0.000} % off its stated FSR against '{reference}'")) +
+                             $"; the FSR ratio was refined from the data (as with refine_fsr = true), and the absolute frequency scale rests on the stated FSR of '{reference}': correct the setup or state a known_interval");
+            }
+        }
+
+        if (refineRatio || solve.KnownIntervalHz is not null)
         {
             progress?.Report("refining the FSRs from the lines");
             IReadOnlyList<CalibratedSweep> refined;
             (refined, result, fsrRefinement) = FsrRefiner.UnfoldWithRefinement(calibrated, options,
-                new FsrRefineOptions { RefineRatio = solve.RefineFsr, KnownIntervalHz = solve.KnownIntervalHz }, progress);
+                new FsrRefineOptions
+                {
+                    RefineRatio = refineRatio, KnownIntervalHz = solve.KnownIntervalHz, MaxScaleError = maxScaleError,
+                    // found by the check, not asked for: one polish round (each costs an unfold); asked for: the default
+                    MaxRounds = solve.RefineFsr || solve.KnownIntervalHz is not null ? new FsrRefineOptions().MaxRounds : 1,
+                }, progress);
             calibrated = refined.ToList();
             CalibrationSteps.ApplyFsrRefinement(fsrRefinement, instruments, calibrations);
             warnings.AddRange(fsrRefinement.Warnings);
@@ -105,9 +140,60 @@ public static class UnfoldPipeline
         else
         {
             result = Unfolder.Run(calibrated, options, progress);
+            // a ratio error too small for the folded peaks to show (a few tenths of a percent) still spoils the fit: the
+            // grid explains each line with a cloud of weak ones and χ² stays high. Then the ratio refined from the data is
+            // tried, and kept only when it fits clearly better (Δχ² above 25 per refined ratio, i.e. five standard errors,
+            // common practice for a nested model with one extra parameter) without adding lines.
+            var count = calibrated.Select(s => s.Instrument.Name).Distinct().Count();
+            if (count > 1 && result.ReducedChiSquare > PoorFitReducedChiSquare)
+            {
+                doubted = $"reduced χ² {result.ReducedChiSquare:F2} with the stated FSRs";
+                progress?.Report($"reduced χ² {result.ReducedChiSquare:F2} with the stated FSRs: trying the FSR ratio refined from the data");
+                var (tried, triedResult, triedRefinement) = FsrRefiner.RefineAndRerun(calibrated, result, options,
+                    new FsrRefineOptions { RefineRatio = true, MaxScaleError = maxScaleError, MaxRounds = 1 }, progress);
+                var chiStated = result.Sweeps.Sum(s => s.ChiSquare);
+                var chiTried = triedResult.Sweeps.Sum(s => s.ChiSquare);
+                if (chiTried < chiStated - 25.0 * (count - 1) && triedResult.Lines.Count <= result.Lines.Count)
+                {
+                    warnings.Add($"the fit with the stated FSRs was poor (reduced χ² {result.ReducedChiSquare:F2}, {result.Lines.Count} grid line(s)); with the FSR ratio refined from the data it is {triedResult.ReducedChiSquare:F2} with {triedResult.Lines.Count} line(s), so the refined ratio is used (as with refine_fsr = true): " +
+                                 string.Join("; ", triedRefinement.Instruments.Where(i => i.RelativeChange != 0).Select(i => $"'{i.Instrument}' {100 * i.RelativeChange:+0.000;-0.000} %")) +
+                                 $"; the absolute frequency scale rests on the stated FSR of '{calibrated[0].Instrument.Name}': correct the setup or state a known_interval");
+                    calibrated = tried.ToList();
+                    result = triedResult;
+                    fsrRefinement = triedRefinement;
+                    CalibrationSteps.ApplyFsrRefinement(fsrRefinement, instruments, calibrations);
+                    warnings.AddRange(fsrRefinement.Warnings);
+                }
+            }
         }
 
         // ---- end of FSR refinement ----
+        // a model that cannot explain a sweep at all is not reported as a result: name the sweep and the likely causes
+        void RefuseMismatch(UnfoldResult r, string stage)
+        {
+        var worst = Enumerable.Range(0, r.Sweeps.Count).MaxBy(k => r.Sweeps[k].ReducedChiSquare);
+        if (r.Sweeps.Count > 0 && r.Sweeps[worst].ReducedChiSquare > MismatchReducedChiSquare)
+        {
+            var fit = r.Sweeps[worst];
+            var sweep = calibrated[worst];
+            var others = r.Sweeps.Where(f => f.ReducedChiSquare > MismatchReducedChiSquare).Select(f => f.Name).Distinct().ToList();
+            throw new InputException(
+                $"reduced χ² {fit.ReducedChiSquare:F0} on sweep {fit.Name} (instrument '{fit.Instrument}')" +
+                (others.Count > 1 ? $" and {others.Count - 1} other sweep(s)" : "") +
+                $" after the {stage} fit ({r.Lines.Count} line(s)): the model cannot explain the data, so no line list is reported. " +
+                $"The stated FSR of '{fit.Instrument}' ({Quantity.FormatFrequency(sweep.Instrument.FsrHz, 6)}) or the sweep-to-instrument assignment (which file was taken with which cavity) is probably wrong" +
+                (fsrRefinement is null ? "" : ", even after the FSR ratio was refined from the data") +
+                $"; a noise σ far below the real noise would also do this (σ used: {sweep.NoiseSigma:G3})", setup.Path);
+        }
+        }
+
+        // a grid fit this poor cannot be polished into a right answer: refuse before spending the refinement's budget
+        RefuseMismatch(result, "grid");
+        // (only when the folded peaks — not χ², which rests on the noise estimate — found the stated FSRs wrong)
+        if (doubted is not null && doubted.StartsWith("the stated FSRs disagree", StringComparison.Ordinal) && result.ReducedChiSquare > PoorFitReducedChiSquare)
+            throw new InputException(
+                $"{doubted}, and the fit stays poor with the FSR ratio refined from the data (reduced χ² {result.ReducedChiSquare:F2}, {result.Lines.Count} grid line(s)): " +
+                "the grid absorbs the mismatch with false lines, so no line list is reported. Check the stated FSRs (state a known_interval if one is known), the finesse, and which sweep file belongs to which instrument", setup.Path);
         Analysis.RefinementDiagnostics? refinement = null;
         if (solve.Refine)
         {
@@ -119,9 +205,18 @@ public static class UnfoldPipeline
                 MinSnr = solve.MinSnr,
                 DoubtfulDeltaChiSquare = solve.DoubtfulDeltaChiSquare,
             };
-            (result, refinement) = Analysis.LineRefiner.Refine(calibrated, result, refineOptions);
+            (result, refinement) = Analysis.LineRefiner.Refine(calibrated, result, refineOptions, progress);
         }
 
+        // a line fit that ran out of its budget on a grid that fits poorly: the grid's many lines are the model's way of
+        // absorbing a mismatch, not a measurement (the refinement's fallback is for a good grid that is slow to polish)
+        if (refinement is { FellBackToGrid: true, BudgetExhausted: not null } && (result.ReducedChiSquare > PoorFitReducedChiSquare || doubted is not null))
+            throw new InputException(
+                $"the line fit ran out of its budget ({refinement.BudgetExhausted}) on {result.Lines.Count} grid line(s), and the fit is poor (reduced χ² {result.ReducedChiSquare:F2}{(doubted is null ? "" : $"; {doubted}")}): " +
+                "a spectrum explained by that many lines with a poor fit is the mark of a model that does not match the data, so no line list is reported. " +
+                "Check the stated FSRs (refine_fsr = true, or a known_interval), the finesse, and which sweep file belongs to which instrument", setup.Path);
+
+        RefuseMismatch(result, refinement is null ? "grid" : "line");
         result = ExtrapolationShare.Apply(result, calibrated);
 
         return new UnfoldRun
@@ -210,8 +305,20 @@ public static class UnfoldPipeline
             var withFinesse = calibrations.Where(c => c.Instrument == name && c.Finesse is not null).ToList();
             if (withFinesse.Any(c => !c.FromRepeats)) withFinesse = withFinesse.Where(c => !c.FromRepeats).ToList();
             var measured = withFinesse.Select(c => c.Finesse!.Value).ToList();
-            if (measured.Count == 0 || specs[name].FixFinesse || reuse is not null) continue;
+            if (measured.Count == 0 || reuse is not null) continue;
             var f = measured.OrderBy(v => v).ElementAt(measured.Count / 2);
+            if (specs[name].FixFinesse)
+            {
+                // the stated value is kept, as asked; but a fit with a linewidth the peaks contradict explains every line
+                // with a cloud of false ones (too narrow) or merges neighbours (too wide): that is refused, not reported
+                var factor = Math.Max(f / inst.Finesse, inst.Finesse / f);
+                if (factor > 1.5)
+                    throw new InputException($"instrument '{name}': fix_finesse = true keeps the stated finesse {inst.Finesse:G4}, but the calibration peaks measure {f:G4} ({factor:F1}× {(f < inst.Finesse ? "lower" : "higher")}); a fit with the stated linewidth would report false or merged lines. Correct the finesse or set fix_finesse = false to use the measured value", setup.Path);
+                if (factor > 1.2)
+                    warnings.Add($"instrument '{name}': the calibration peaks measure finesse {f:F0}, {factor:F2}× the stated (fixed) {inst.Finesse:F0}; the stated value is used as fix_finesse = true asks, and line widths and intensities carry that error");
+                continue;
+            }
+
             if (Math.Abs(f / inst.Finesse - 1) > 0.2)
                 warnings.Add($"instrument '{name}': measured finesse {f:F0} differs from the stated {inst.Finesse:F0} by more than 20 %; using the measured value (set fix_finesse = true to keep the stated one)");
             instruments[name] = inst with { Finesse = Math.Max(1, f) };
@@ -226,7 +333,30 @@ public static class UnfoldPipeline
     {
         var segments = SweepReader.ReadSweeps(file);
         if (segments.Count == 0) throw new InputException("no sweep segment of the requested ramp direction was found", file.Path);
+        foreach (var seg in segments)
+            if (InvertedSignal(seg.Y) is { } why)
+                throw new InputException($"{seg.Name}: the signal's peaks point down ({why}): a transmission sweep has a low baseline and peaks upward, so this signal looks inverted (a negated channel, an inverting amplifier, or a reflection signal); negate the column before the analysis", file.Path);
         return segments.Select(s => s.Scan == ScanCoordinate.Time ? s with { X = s.X.Select(v => v - s.X[0]).ToArray() } : s).ToList();
+    }
+
+    /// <summary>
+    /// Null for a signal whose peaks point up; otherwise what shows that they point down. A transmission sweep spends most
+    /// of its samples near its baseline, between the peaks, so the median sits near the minimum: the distance from the
+    /// median to the maximum exceeds that to the minimum. The test asks for the reverse by a factor of 4, with the dips
+    /// at least 20 noise σ deep (the median absolute difference of neighbouring samples) so that noise alone never trips it.
+    /// </summary>
+    internal static string? InvertedSignal(IReadOnlyList<double> y)
+    {
+        if (y.Count < 16) return null;
+        var sorted = y.Where(double.IsFinite).OrderBy(v => v).ToArray();
+        if (sorted.Length < 16) return null;
+        double min = sorted[0], max = sorted[^1], median = sorted[sorted.Length / 2];
+        var sigma = PeakFinder.NoiseSigma(y.ToArray());
+        var down = median - min;
+        var up = max - median;
+        if (down > 4 * up && down > 20 * sigma)
+            return $"baseline (median) {median:G4}, maximum {max:G4} only {up:G3} above it, minimum {min:G4} {down:G3} below it";
+        return null;
     }
 
     private static AxisCalibration? FindAxis(List<AxisCalibration> calibrations, string instrument, Sweep seg, List<string> warnings)
