@@ -64,10 +64,19 @@ public sealed class SimulateCommand : ICommand
             CalibrationSweeps = !a.Flag("no-calibration") && spec.CalibrationSweeps,
         };
         if (spec.NoiseFraction < 0) throw new UsageException("simulate: --noise must not be negative");
-        var output = Scenarios.Write(spec, outDir);
-        stdout.WriteLine($"wrote {output.Files.Count} files (simulated data) to {Path.GetFullPath(outDir)}:");
-        foreach (var f in output.Files) stdout.WriteLine($"  {Path.GetFileName(f)}");
-        stdout.WriteLine($"next: orderunfold unfold {output.SetupPath}");
+        string setupPath;
+        IReadOnlyList<string> files;
+        using (var staged = Io.StagedFolder.Create(outDir)) // complete or absent (Io/StagedFolder.cs)
+        {
+            var output = Scenarios.Write(spec, staged.Path);
+            setupPath = staged.Final(output.SetupPath);
+            files = output.Files;
+            staged.Publish(Path.GetFileName(output.SetupPath));
+        }
+
+        stdout.WriteLine($"wrote {files.Count} files (simulated data) to {Path.GetFullPath(outDir)}:");
+        foreach (var f in files) stdout.WriteLine($"  {Path.GetFileName(f)}");
+        stdout.WriteLine($"next: {Hint.Command("unfold " + Hint.Quote(setupPath))}");
         return ExitCodes.Ok;
     }
 

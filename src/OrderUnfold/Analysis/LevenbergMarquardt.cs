@@ -95,6 +95,7 @@ internal static class LevenbergMarquardt
         var nu = 2.0;
         for (var iteration = 1; iteration <= maxIterations; iteration++)
         {
+            Cancellation.ThrowIfRequested(); // Ctrl-C / SIGTERM (Cancellation.cs)
             // solve (A + μD) h = g by Cholesky; a failed factorisation (A not positive definite) raises the damping
             for (var i = 0; i < f * f; i++) chol[i] = a[i];
             for (var u = 0; u < f; u++) chol[u * f + u] += mu * d[u];
