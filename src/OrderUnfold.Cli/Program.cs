@@ -44,7 +44,7 @@ namespace OrderUnfold.Cli
         public static IReadOnlyList<ICommand> Commands { get; } = CommandList.All();
 
         /// <summary>How long a cancelled run may take to stop before the process is made to exit.</summary>
-        public static readonly TimeSpan ForcedExitAfter = TimeSpan.FromSeconds(4);
+        public static readonly TimeSpan ForcedExitAfter = TimeSpan.FromSeconds(3);
 
         /// <summary>Options every command accepts (input limits and path confinement; see Io/InputLimits.cs).</summary>
         public static readonly string[] GlobalValueOptions = ["max-file-size", "max-line-length"];
@@ -165,6 +165,11 @@ namespace OrderUnfold.Cli
             try
             {
                 return command.Run(rest, stdout, stderr);
+            }
+            catch (Exception e) when (e is IOException or UnauthorizedAccessException or InputException && Cancellation.Token.IsCancellationRequested)
+            {
+                // a file vanished under a stopping run (its staging folder is being removed): that is the stop, not bad input
+                throw new OperationCanceledException("stopped", e, Cancellation.Token);
             }
             catch (UsageException e)
             {

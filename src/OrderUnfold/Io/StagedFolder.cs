@@ -94,7 +94,21 @@ public sealed class StagedFolder : IDisposable
     /// <summary>Removes every staging folder of this process that was not published (before a forced exit).</summary>
     public static void RemoveUnpublished()
     {
-        foreach (var path in Active.Keys) TryDelete(path);
+        foreach (var path in Active.Keys)
+        {
+            // moved aside first: a thread still writing into it then fails instead of refilling it while it is deleted
+            var aside = path + ".removing";
+            try
+            {
+                Directory.Move(path, aside);
+            }
+            catch (Exception e) when (e is IOException or UnauthorizedAccessException)
+            {
+                aside = path;
+            }
+
+            for (var attempt = 0; attempt < 3 && Directory.Exists(aside); attempt++) TryDelete(aside);
+        }
     }
 
     private static void TryDelete(string path)
