@@ -30,7 +30,7 @@ public sealed class UnfoldCommand : ICommand
         var setup = a.Positional(0, "SETUP (a setup .toml file)");
         a.NoMorePositionals(1);
         var outDir = a.Value("out") ?? Path.Combine(Path.GetDirectoryName(Path.GetFullPath(setup)) ?? ".", "unfold-out");
-        var reuse = a.Value("calibration") is string cal ? Calibration.CalibrationFile.Read(cal) : null;
+        var reuse = a.Value("calibration") is string cal ? SavedCalibration.Read(cal) : null;
         var run = UnfoldPipeline.Run(setup, new StderrProgress(stderr, a.Flag("quiet")), reuse);
         // outputs are complete or absent: written into a staging folder, published by rename (Io/StagedFolder.cs)
         using (var staged = Io.StagedFolder.Create(outDir))

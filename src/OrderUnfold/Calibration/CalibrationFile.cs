@@ -62,11 +62,11 @@ public static class CalibrationFile
     /// <summary>Reads a calibration file; InputException (with the file) when it is not one or is damaged.</summary>
     public static CalibrationSet Read(string path)
     {
-        var text = Io.InputLimits.ReadAllText(path, "calibration file"); // type, size and line-length limits
+        if (!File.Exists(path)) throw new InputException($"calibration file not found: {Path.GetFullPath(path)}", path);
         JsonNode? root;
         try
         {
-            root = JsonNode.Parse(text);
+            root = JsonNode.Parse(File.ReadAllText(path));
         }
         catch (JsonException e)
         {

@@ -219,7 +219,7 @@ public static class UnfoldOutputs
                 ["clusters_dropped_as_insignificant"] = rd.Dropped,
                 ["unambiguous_range_hz"] = N(rd.UnambiguousRangeHz),
                 ["unambiguous_statement"] = rd.UnambiguousStatement,
-                ["uncertainties"] = "standard errors from the fit covariance scaled by the reduced chi-square; frequency_crb_hz is the unscaled covariance (Cramér–Rao bound at the fit); frequency_sigma_hz includes the axis-calibration uncertainty, propagated from each axis fit's coefficient covariance, when it is known (its part: frequency_axis_sigma_hz)",
+                ["uncertainties"] = "standard errors from the fit covariance scaled by the reduced chi-square; frequency_crb_hz is the unscaled covariance (Cramér–Rao bound at the fit); frequency_sigma_hz includes the axis-calibration uncertainty, propagated from each axis fit's coefficient covariance, when it is known (its part: frequency_axis_sigma_hz); with a reduced chi-square below 1 (a pessimistic noise estimate) the scaled sigma lies below frequency_crb_hz by the factor sqrt(reduced chi-square)",
             } : null,
             ["unambiguous_range_statement"] = r.OrdersResolved
                 ? $"lines closer than {Units.Quantity.FormatFrequency(r.UnambiguousRangeHz)} apart cannot be an exact alias of one another for these instruments (alias margin ≥ 3 linewidths); each line's alias_delta_chi2 says how securely its order is pinned at this noise level"

@@ -332,4 +332,42 @@ public class WhyCasesTests(RobustnessFolder fx) : IClassFixture<RobustnessFolder
         Assert.False(Directory.Exists(output));
         Assert.True(NoStagingLeft(output));
     }
+
+    [Fact]
+    public void ABatchRowNamingDevZeroFailsAtOnce()
+    {
+        if (!OperatingSystem.IsLinux()) return;
+        var manifest = Path.Combine(fx.Archive, $"manifest-zero-{Guid.NewGuid():N}.csv");
+        File.WriteAllText(manifest, "id,setup,files,calibration\nzero,setup.toml,/dev/zero,calibration.json\n");
+        try
+        {
+            var clock = Stopwatch.StartNew();
+            var output = fx.NewPath("batch-zero");
+            var (code, _, _) = RunCli("batch", manifest, "--out", output, "--jobs", "1", "--quiet", "--allow-outside-paths");
+            Assert.Equal(1, code);
+            Assert.Contains("character device", File.ReadAllText(Path.Combine(output, "summary.csv")));
+            Assert.True(clock.Elapsed < TimeSpan.FromSeconds(20));
+        }
+        finally
+        {
+            File.Delete(manifest);
+        }
+    }
+
+    [Fact]
+    public void SweepsSwappedBetweenCavitiesEndWhenCancelled()
+    {
+        // the mismatched-model case whose refinement ran for minutes: whatever the refinement's own budget, a cancelled
+        // run ends promptly through the checks in the solving and refining loops
+        var dir = fx.Copy("swapped");
+        var setup = Path.Combine(dir, "setup.toml");
+        var text = File.ReadAllText(setup).Replace("\"A_source.csv\"", "\"@A@\"").Replace("\"B_source.csv\"", "\"A_source.csv\"").Replace("\"@A@\"", "\"B_source.csv\"");
+        File.WriteAllText(setup, text);
+        using var cts = new CancellationTokenSource(TimeSpan.FromSeconds(1.5));
+        var clock = Stopwatch.StartNew();
+        var (code, _, err) = CliWith(cts.Token, "unfold", setup, "--out", Path.Combine(dir, "out"), "--no-plots", "--quiet");
+        Assert.True(code is 0 or 2 or 130, err);
+        Assert.True(clock.Elapsed < TimeSpan.FromSeconds(6.5), $"took {clock.Elapsed.TotalSeconds:F1} s");
+        if (code != 0) Assert.False(Directory.Exists(Path.Combine(dir, "out")));
+    }
 }

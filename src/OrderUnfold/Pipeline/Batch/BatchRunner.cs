@@ -130,7 +130,7 @@ public static class BatchRunner
 
         var complete = true;
         using var stop = CancellationTokenSource.CreateLinkedTokenSource(cancel);
-        using var ambient = Cancellation.Use(stop.Token); // the items' reading, solving and refining loops check it
+        var ambient = Cancellation.Use(stop.Token); // the items' reading, solving and refining loops check it
         var publisher = new Publisher(staging, 4 * options.Jobs + 4, stop);
         try
         {
@@ -170,7 +170,11 @@ public static class BatchRunner
         finally
         {
             publisher.Finish(); // items handed over are published before the summary is written
+            ambient.Dispose();
         }
+
+        // the summary of what finished is written even when the run was stopped
+        using var summaryScope = Cancellation.Use(CancellationToken.None);
 
         // the output folder itself failed while publishing (disk full, permissions): nothing more can be written
         if (publisher.Failure is not null) System.Runtime.ExceptionServices.ExceptionDispatchInfo.Capture(publisher.Failure).Throw();
@@ -389,7 +393,7 @@ public static class BatchRunner
             }
             else
             {
-                var (set, sha) = Cached(ctx.Calibrations, calibrationPath, () => (CalibrationFile.Read(calibrationPath), Sha256OfFile(calibrationPath)));
+                var (set, sha) = Cached(ctx.Calibrations, calibrationPath, () => (SavedCalibration.Read(calibrationPath), Sha256OfFile(calibrationPath)));
                 calibration = set;
                 parts.Add("calibration " + sha);
             }
