@@ -6,8 +6,8 @@ namespace OrderUnfold.Cli.Commands;
 /// <summary><c>orderunfold batch MANIFEST --out DIR</c>: the unfold on every item of a manifest.</summary>
 public sealed class BatchCommand : ICommand
 {
-    /// <summary>Exit code when the run was interrupted (Ctrl-C or SIGTERM): 128 + SIGINT, as shells report it.</summary>
-    public const int Interrupted = 130;
+    /// <summary>Exit code when the run was interrupted by Ctrl-C (SIGTERM gives <see cref="ExitCodes.Terminated"/>).</summary>
+    public const int Interrupted = ExitCodes.Interrupted;
 
     public string Name => "batch";
     public string Summary => "unfold every item of a manifest (parallel, resumable, shardable) into one summary";
@@ -37,9 +37,12 @@ public sealed class BatchCommand : ICommand
                            less time per single-sweep item, but no refined uncertainties or order checks
           --retry-failed   run failed items again even if their inputs did not change
           --quiet          no progress display
-        Ctrl-C (or SIGTERM) lets the items in flight finish, writes the summary of what finished and exits
-        with 130; run the same command again to resume.
-        Exit codes: 0 all items ok, 1 some items failed, 2 bad usage or manifest, 130 interrupted.
+        Ctrl-C (or SIGTERM) stops the items in flight (they run again on resume), writes the summary of what
+        finished and exits with 130 (143 for SIGTERM); run the same command again to resume. Items that failed
+        with an internal error run again on resume; items refused for bad input only with --retry-failed or
+        when their inputs change. Files named in the manifest are read from its folder and below unless
+        --allow-outside-paths is given.
+        Exit codes: 0 all items ok, 1 some items failed, 2 bad usage or manifest, 130/143 interrupted.
         See docs/batch.md.
         """.Replace("{cores}", Environment.ProcessorCount.ToString(System.Globalization.CultureInfo.InvariantCulture));
 
@@ -61,30 +64,15 @@ public sealed class BatchCommand : ICommand
             ToolVersion = Cli.Version,
         };
 
-        using var cts = new CancellationTokenSource();
-        ConsoleCancelEventHandler onCancel = (_, e) =>
-        {
-            if (cts.IsCancellationRequested) return; // a second Ctrl-C stops at once
-            e.Cancel = true;
-            cts.Cancel();
-            stderr.WriteLine();
-            stderr.WriteLine("batch: interrupted; finishing the items in flight and writing the summary (Ctrl-C again stops at once)");
-        };
-        Console.CancelKeyPress += onCancel;
-        using var onTerm = PosixSignalRegistration.Create(PosixSignal.SIGTERM, ctx =>
-        {
-            ctx.Cancel = true;
-            cts.Cancel();
-        });
+        // Ctrl-C and SIGTERM cancel the run's token (Program.cs): items in flight stop and run again on resume
         var display = new BatchProgressDisplay(stderr, a.Flag("quiet"), Terminal(stderr));
         BatchResult result;
         try
         {
-            result = BatchRunner.Run(manifest, outDir, options, display, cts.Token);
+            result = BatchRunner.Run(manifest, outDir, options, display, OrderUnfold.Cancellation.Token);
         }
         finally
         {
-            Console.CancelKeyPress -= onCancel;
             display.Finish();
         }
 
@@ -93,11 +81,11 @@ public sealed class BatchCommand : ICommand
         stdout.WriteLine($"batch{(options.Shard.IsAll ? "" : $" shard {options.Shard}")}: {result.Ok + result.Failed} of {result.Rows} item(s) finished: {result.Ok} ok, {result.Failed} failed, " +
                          $"{result.Skipped} already done; {ran} run in {result.Elapsed.TotalSeconds:F1} s ({rate:F1} items/s, {options.Jobs} job{(options.Jobs == 1 ? "" : "s")})");
         stdout.WriteLine($"summary: {result.SummaryPath}");
-        if (!options.Shard.IsAll) stdout.WriteLine($"when every shard has finished: orderunfold merge {Path.GetFullPath(outDir)}");
+        if (!options.Shard.IsAll) stdout.WriteLine($"when every shard has finished: {Hint.Command("merge " + Hint.Quote(Path.GetFullPath(outDir)))}");
         if (!result.Complete)
         {
             stdout.WriteLine("interrupted: the summary lists the items finished so far; run the same command again to resume");
-            return Interrupted;
+            return ExitCodes.Interrupted;
         }
 
         return result.Failed > 0 ? ExitCodes.SomeFailed : ExitCodes.Ok;

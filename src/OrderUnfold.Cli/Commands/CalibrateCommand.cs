@@ -69,11 +69,16 @@ public sealed class CalibrateCommand : ICommand
             allWarnings.AddRange(trial.Warnings.Where(w => !allWarnings.Contains(w)));
         }
 
-        Directory.CreateDirectory(outDir);
         var stated = setup.Instruments.Select(i => i.ToInstrument()).ToList();
-        CalibrationFile.Write(Path.Combine(outDir, CalibrationReport.CalibrationFileName), set);
-        var plots = a.Flag("no-plots") ? [] : CalibrationPlots.Write(set.Axes, outDir);
-        CalibrationReport.Write(Path.Combine(outDir, CalibrationReport.FileName), CalibrationReport.Build(set, stated, allWarnings, fsr, Cli.Version));
+        IReadOnlyList<string> plots;
+        using (var staged = StagedFolder.Create(outDir)) // complete or absent (Io/StagedFolder.cs)
+        {
+            CalibrationFile.Write(Path.Combine(staged.Path, CalibrationReport.CalibrationFileName), set);
+            plots = a.Flag("no-plots") ? [] : CalibrationPlots.Write(set.Axes, staged.Path);
+            CalibrationReport.Write(Path.Combine(staged.Path, CalibrationReport.FileName), CalibrationReport.Build(set, stated, allWarnings, fsr, Cli.Version));
+            staged.Publish(CalibrationReport.FileName);
+        }
+
 
         foreach (var i in set.Instruments) stdout.WriteLine($"instrument {i}");
         foreach (var c in set.Axes)

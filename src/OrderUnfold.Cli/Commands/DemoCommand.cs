@@ -28,8 +28,14 @@ public sealed class DemoCommand : ICommand
         stdout.WriteLine("OrderUnfold demo: SIMULATED data (a dual-wavelength fibre laser under test, an invented scenario)");
         stdout.WriteLine($"data: {dataDir}");
         var run = UnfoldPipeline.Run(setup, new StderrProgress(stderr, a.Flag("quiet")));
-        UnfoldOutputs.Write(run, outDir, plots: !a.Flag("no-plots"), toolVersion: Cli.Version);
-        Commands.Summary.Unfold(run, stdout);
+        using (var staged = Io.StagedFolder.Create(outDir)) // complete or absent (Io/StagedFolder.cs)
+        {
+            UnfoldOutputs.Write(run, staged.Path, plots: !a.Flag("no-plots"), toolVersion: Cli.Version);
+            staged.Publish(OutputNames.Report);
+        }
+
+        if (a.Flag("quiet")) Commands.Summary.UnfoldBrief(run, stdout);
+        else Commands.Summary.Unfold(run, stdout);
         var truthPath = Path.Combine(dataDir, "truth.csv");
         if (File.Exists(truthPath))
         {

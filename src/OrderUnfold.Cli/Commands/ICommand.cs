@@ -25,4 +25,10 @@ public static class ExitCodes
 
     /// <summary>Usage or input error: nothing useful was produced.</summary>
     public const int BadInput = 2;
+
+    /// <summary>Stopped by Ctrl-C (SIGINT): 128 + 2, as shells report it. Nothing partial is published.</summary>
+    public const int Interrupted = 130;
+
+    /// <summary>Stopped by SIGTERM: 128 + 15. Nothing partial is published.</summary>
+    public const int Terminated = 143;
 }

@@ -27,7 +27,7 @@ public sealed class InitCommand : ICommand
         }
 
         AtomicFile.WriteAllText(path, SetupReader.Template());
-        stdout.WriteLine($"wrote {Path.GetFullPath(path)}: edit the instruments and the sweep files, then run 'orderunfold unfold {path}'");
+        stdout.WriteLine($"wrote {Path.GetFullPath(path)}: edit the instruments and the sweep files, then run '{Hint.Command("unfold " + Hint.Quote(path))}'");
         return ExitCodes.Ok;
     }
 }

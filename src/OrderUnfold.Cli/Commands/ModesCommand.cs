@@ -88,7 +88,7 @@ public sealed class ModesCommand : ICommand
             if (UnfoldSetup is null)
             {
                 stderr.WriteLine("orderunfold modes: running the unfold from a setup is not available in this build; " +
-                                 $"run 'orderunfold unfold {target} --out DIR' then 'orderunfold modes DIR'");
+                                 $"run '{Hint.Command($"unfold {Hint.Quote(target)} --out DIR")}' then '{Hint.Command("modes DIR")}'");
                 return ExitCodes.BadInput;
             }
 

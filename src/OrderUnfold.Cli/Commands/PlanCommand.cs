@@ -146,28 +146,39 @@ public sealed class PlanCommand : ICommand
         var limit = Math.Min(chosen.Repeat?.RepeatHz ?? chosen.RepeatSearchLimitHz, chosen.RepeatSearchLimitHz);
         limit = Math.Max(limit, span);
         var unambiguous = AliasMargin.FirstBelow(instruments, margin, chosen.MinimumShiftHz, limit);
-        stdout.WriteLine();
-        stdout.WriteLine(chosen.Passes ? (candidates is null ? "Design:" : "Recommended:") :
-            candidates is null ? "Design (does not meet the required margin):" : "Best found (does not meet the required margin):");
-        stdout.Write(PlanReport.Describe(chosen, unambiguous, limit, settings.Sampling, settings.RequiredDeltaChiSquare));
 
-        // files
-        Directory.CreateDirectory(outDir);
-        var csvPath = Path.Combine(outDir, "plan.csv");
+        // the what-if runs before the verdict is printed: a design whose own simulation shows ghost or missing lines
+        // is not reported as ok
+        WhatIfResult? whatIf = null;
+        if (simLines is not null) whatIf = WhatIf.Run(instruments, simLines, whatIfOptions, new Progress(stderr));
+        var confirmed = whatIf is null || whatIf.Passes;
+        stdout.WriteLine();
+        stdout.WriteLine(chosen.Passes && confirmed ? (candidates is null ? "Design:" : "Recommended:") :
+            chosen.Passes ? (candidates is null ? "Design (meets the margin, but its what-if simulation fails):" : "Best found (meets the margin, but its what-if simulation fails):") :
+            candidates is null ? "Design (does not meet the required margin):" : "Best found (does not meet the required margin):");
+        var description = PlanReport.Describe(chosen, unambiguous, limit, settings.Sampling, settings.RequiredDeltaChiSquare);
+        if (chosen.Passes && !confirmed)
+            description = description.Replace("  verdict: ok", "  verdict: not confirmed: the alias margin is met, but the what-if simulation below " +
+                (whatIf!.AllRecovered ? $"shows {whatIf.Ghosts.Count} ghost line(s)" : "misses line(s)"));
+        stdout.Write(description);
+
+        // files: complete or absent (Io/StagedFolder.cs)
+        using var staged = StagedFolder.Create(outDir);
+        var csvPath = Path.Combine(staged.Path, "plan.csv");
         var all = triples is null ? ranked : ranked.Concat(triples).ToList();
         AtomicFile.WriteAllText(csvPath, PlanReport.Csv(all));
-        var marginPath = Path.Combine(outDir, "margin.png");
+        var marginPath = Path.Combine(staged.Path, "margin.png");
         var curve = AliasMargin.Vertices(instruments, 0, span);
         var names = string.Join(" + ", chosen.Cavities.Select(c => c.Instrument.LengthM is double l ? Quantity.FormatLength(l) : Quantity.FormatFrequency(c.Instrument.FsrHz) + " FSR"));
         PlanPlots.SaveMarginCurve(marginPath, new MarginCurveInput(
             $"Alias margin of {names} ({chosen.Cavities[0].Instrument.Geometry.ToString().ToLowerInvariant()} reference)",
-            $"worst within tolerance {chosen.Robust.MarginLinewidths:0.##} linewidths at {Quantity.FormatFrequency(chosen.Robust.DeltaHz)} · verdict: {chosen.VerdictText} · curve at nominal lengths",
+            $"worst within tolerance {chosen.Robust.MarginLinewidths:0.##} linewidths at {Quantity.FormatFrequency(chosen.Robust.DeltaHz)} · verdict: {(chosen.Passes && !confirmed ? "not confirmed by the what-if" : chosen.VerdictText)} · curve at nominal lengths",
             curve, margin, chosen.MinimumShiftHz, AliasMargin.Aliases(instruments, margin, chosen.MinimumShiftHz, span), chosen.Nominal, chosen.Repeat?.RepeatHz,
             "worst alias at nominal lengths"));
         var written = new List<string> { csvPath, marginPath };
         if (candidates is not null)
         {
-            var candPath = Path.Combine(outDir, "candidates.png");
+            var candPath = Path.Combine(staged.Path, "candidates.png");
             var lengths = ranked.Select(d => d.Added[^1].Instrument.LengthM!.Value).ToArray();
             var chosenLength = chosen.Cavities.Count == fixedCavities.Count + 1 ? chosen.Added[^1].Instrument.LengthM : ranked[0].Added[^1].Instrument.LengthM;
             PlanPlots.SaveCandidateMap(candPath, new CandidateMapInput(
@@ -181,18 +192,17 @@ public sealed class PlanCommand : ICommand
             written.Add(candPath);
         }
 
+        staged.Publish("plan.csv");
         stdout.WriteLine();
-        stdout.WriteLine("Wrote " + string.Join(", ", written));
+        stdout.WriteLine("Wrote " + string.Join(", ", written.Select(staged.Final)));
 
         var ok = chosen.Passes;
-        if (simLines is not null)
+        if (simLines is not null && whatIf is not null)
         {
             stdout.WriteLine();
-            stdout.WriteLine($"What-if: simulating {simLines.Count} line(s) through {instruments.Count} cavities (noise {whatIfOptions.NoiseFraction.ToString("G3", CultureInfo.InvariantCulture)} of the peak, {whatIfOptions.Samples} samples per record, seed {whatIfOptions.Seed}) and unfolding");
-            var progress = new Progress(stderr);
-            var result = WhatIf.Run(instruments, simLines, whatIfOptions, progress);
-            stdout.Write(PlanReport.WhatIfSummary(result));
-            ok &= result.Passes;
+            stdout.WriteLine($"What-if: simulated {simLines.Count} line(s) through {instruments.Count} cavities (noise {whatIfOptions.NoiseFraction.ToString("G3", CultureInfo.InvariantCulture)} of the peak, {whatIfOptions.Samples} samples per record, seed {whatIfOptions.Seed}) and unfolded");
+            stdout.Write(PlanReport.WhatIfSummary(whatIf));
+            ok &= whatIf.Passes;
         }
 
         return ok ? ExitCodes.Ok : ExitCodes.SomeFailed;

@@ -37,12 +37,19 @@ public sealed class SimulateArchiveCommand : ICommand
             HopAt = a.Flag("no-hop") ? -1 : (int)Math.Round(spec.HopAt * (items / (double)spec.Items)),
             Defects = spec.Defects.Where(d => d.Key < items).ToDictionary(),
         };
-        var output = DemoArchive.Write(outDir, spec);
+        string manifest, calibration, truth;
+        using (var staged = Io.StagedFolder.Create(outDir)) // complete or absent (Io/StagedFolder.cs)
+        {
+            var output = DemoArchive.Write(staged.Path, spec);
+            (manifest, calibration, truth) = (staged.Final(output.ManifestPath), staged.Final(output.CalibrationPath), staged.Final(output.Simulation.TruthPath));
+            staged.Publish(Path.GetFileName(output.ManifestPath));
+        }
+
         stdout.WriteLine($"wrote a simulated archive of {items} item(s) (SIMULATED DATA) to {Path.GetFullPath(outDir)}");
-        stdout.WriteLine($"  manifest:    {output.ManifestPath}");
-        stdout.WriteLine($"  calibration: {output.CalibrationPath}");
-        stdout.WriteLine($"  truth:       {output.Simulation.TruthPath}");
-        stdout.WriteLine($"next: orderunfold batch {output.ManifestPath} --out batch-out && orderunfold track batch-out");
+        stdout.WriteLine($"  manifest:    {manifest}");
+        stdout.WriteLine($"  calibration: {calibration}");
+        stdout.WriteLine($"  truth:       {truth}");
+        stdout.WriteLine($"next: {Hint.Command($"batch {Hint.Quote(manifest)} --out batch-out")} && {Hint.Command("track batch-out")}");
         return ExitCodes.Ok;
     }
 }

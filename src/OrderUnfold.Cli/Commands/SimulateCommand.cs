@@ -96,10 +96,19 @@ public sealed class SimulateCommand : ICommand
         if (!(spec.StatedFinesseFactor > 0)) throw new UsageException($"simulate: --stated-finesse-factor must be positive but got {spec.StatedFinesseFactor}");
         if (spec.RingDown && spec.Lines.Any(l => l.WidthHz > 0))
             throw new UsageException("simulate: --ring-down takes lines without an intrinsic width; drop the widths from --lines or drop --ring-down");
-        var output = Scenarios.Write(spec, outDir);
-        stdout.WriteLine($"wrote {output.Files.Count} files (simulated data) to {Path.GetFullPath(outDir)}:");
-        foreach (var f in output.Files) stdout.WriteLine($"  {Path.GetFileName(f)}");
-        stdout.WriteLine($"next: orderunfold unfold {output.SetupPath}");
+        string setupPath;
+        IReadOnlyList<string> files;
+        using (var staged = Io.StagedFolder.Create(outDir)) // complete or absent (Io/StagedFolder.cs)
+        {
+            var output = Scenarios.Write(spec, staged.Path);
+            setupPath = staged.Final(output.SetupPath);
+            files = output.Files;
+            staged.Publish(Path.GetFileName(output.SetupPath));
+        }
+
+        stdout.WriteLine($"wrote {files.Count} files (simulated data) to {Path.GetFullPath(outDir)}:");
+        foreach (var f in files) stdout.WriteLine($"  {Path.GetFileName(f)}");
+        stdout.WriteLine($"next: {Hint.Command("unfold " + Hint.Quote(setupPath))}");
         return ExitCodes.Ok;
     }
 

@@ -6,6 +6,15 @@ namespace OrderUnfold.Cli.Commands;
 /// <summary>Plain-text summaries printed by the commands.</summary>
 internal static class Summary
 {
+    /// <summary>The --quiet summary: one line (the table and warnings are in lines.csv and report.json).</summary>
+    public static void UnfoldBrief(UnfoldRun run, TextWriter o)
+    {
+        var r = run.Result;
+        var warnings = run.AllWarnings.Count();
+        o.WriteLine($"{r.Lines.Count} line(s); orders {(r.OrdersResolved ? "resolved" : "unknown (one instrument)")}; reduced χ² {r.ReducedChiSquare:F2}" +
+                    (warnings > 0 ? $"; {warnings} warning(s) in report.json" : ""));
+    }
+
     public static void Unfold(UnfoldRun run, TextWriter o)
     {
         var r = run.Result;
@@ -16,7 +25,7 @@ internal static class Summary
         foreach (var s in r.Sweeps)
             o.WriteLine($"sweep {s.Name}: {s.Samples} samples, reduced χ² {s.ReducedChiSquare:F2}");
         o.WriteLine(r.OrdersResolved
-            ? $"window {Quantity.FormatFrequency(r.Grid.StartHz)} to {Quantity.FormatFrequency(r.Grid.EndHz)} ({r.Grid.Count} bins of {Quantity.FormatFrequency(r.Grid.StepHz)}); unambiguous range {Quantity.FormatFrequency(r.UnambiguousRangeHz)}"
+            ? $"{r.Grid.Count} bins of {Quantity.FormatFrequency(r.Grid.StepHz)}; {UnfoldOutputs.UnambiguousText(run)}"
             : $"one instrument only: spectrum folded into one FSR ({Quantity.FormatFrequency(r.UnambiguousRangeHz)}); orders unknown");
         o.WriteLine($"solver: {r.Solver.Status.ToString().ToLowerInvariant()} after {r.Solver.Iterations} iterations; reduced χ² {r.ReducedChiSquare:F2}");
         var anchor = run.Setup.Solve.AnchorFrequencyHz;

@@ -40,7 +40,15 @@ public sealed class TrackCommand : ICommand
         var tolerance = a.Quantity("tolerance", Dimension.Frequency) ?? 20e6;
         if (!(tolerance > 0)) throw new UsageException($"track: --tolerance must be a positive frequency but got '{a.Value("tolerance")}'");
         var options = new TrackOptions { ToleranceHz = tolerance, Frame = frame, MaxGap = a.Int("max-gap", 0) ?? 10, Plots = !a.Flag("no-plots") };
-        var r = LineTracker.Run(dir, a.Value("out"), options);
+        TrackResult r;
+        string outputs;
+        using (var staged = Io.StagedFolder.Create(a.Value("out") ?? Path.Combine(dir, "track"))) // complete or absent
+        {
+            r = LineTracker.Run(dir, staged.Path, options);
+            outputs = staged.Target;
+            staged.Publish("series.csv");
+        }
+
         foreach (var w in r.Warnings) stderr.WriteLine($"warning: {w}");
         stdout.WriteLine($"{r.Series.Count} item(s) tracked; {r.Tracks.Count} track(s); {r.Hops.Count} mode hop(s)");
         stdout.WriteLine("  track  points   mean frequency     drift");
@@ -53,7 +61,7 @@ public sealed class TrackCommand : ICommand
         foreach (var h in r.Hops.Take(20))
             stdout.WriteLine($"  mode hop between {h.FromId} and {h.ToId}: strongest line moved {Quantity.FormatFrequency(h.JumpHz, 4)} (track {h.FromTrack} → {h.ToTrack})");
         if (r.Hops.Count > 20) stdout.WriteLine($"  ... {r.Hops.Count - 20} more in hops.csv");
-        stdout.WriteLine($"outputs: {Path.GetDirectoryName(r.Files[0])}");
+        stdout.WriteLine($"outputs: {outputs}");
         return ExitCodes.Ok;
     }
 }

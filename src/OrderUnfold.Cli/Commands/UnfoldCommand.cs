@@ -18,7 +18,10 @@ public sealed class UnfoldCommand : ICommand
           spectrum.csv  the frequency grid and recovered intensity
           *.png         each sweep with the model and residuals, the spectrum, the axis calibrations
         --calibration FILE reuses a calibration written by 'orderunfold calibrate' (the setup's calibration
-        sweeps are then not read). Exit code 0 on success, 2 on bad input.
+        sweeps are then not read). --quiet prints no progress and a one-line summary instead of the table.
+        The outputs appear together once complete (never a half-written folder). Files named in SETUP are
+        read from its folder and below unless --allow-outside-paths is given.
+        Exit code 0 on success, 2 on bad input, 130/143 when stopped by Ctrl-C/SIGTERM.
         """;
 
     public int Run(string[] args, TextWriter stdout, TextWriter stderr)
@@ -27,10 +30,17 @@ public sealed class UnfoldCommand : ICommand
         var setup = a.Positional(0, "SETUP (a setup .toml file)");
         a.NoMorePositionals(1);
         var outDir = a.Value("out") ?? Path.Combine(Path.GetDirectoryName(Path.GetFullPath(setup)) ?? ".", "unfold-out");
-        var reuse = a.Value("calibration") is string cal ? Calibration.CalibrationFile.Read(cal) : null;
+        var reuse = a.Value("calibration") is string cal ? SavedCalibration.Read(cal) : null;
         var run = UnfoldPipeline.Run(setup, new StderrProgress(stderr, a.Flag("quiet")), reuse);
-        UnfoldOutputs.Write(run, outDir, plots: !a.Flag("no-plots"), toolVersion: Cli.Version);
-        Commands.Summary.Unfold(run, stdout);
+        // outputs are complete or absent: written into a staging folder, published by rename (Io/StagedFolder.cs)
+        using (var staged = Io.StagedFolder.Create(outDir))
+        {
+            UnfoldOutputs.Write(run, staged.Path, plots: !a.Flag("no-plots"), toolVersion: Cli.Version);
+            staged.Publish(OutputNames.Report);
+        }
+
+        if (a.Flag("quiet")) Commands.Summary.UnfoldBrief(run, stdout);
+        else Commands.Summary.Unfold(run, stdout);
         stdout.WriteLine($"outputs: {Path.GetFullPath(outDir)}");
         return ExitCodes.Ok;
     }

@@ -213,6 +213,7 @@ internal static class LevenbergMarquardt
         var nu = 2.0;
         for (var iteration = 1; iteration <= maxIterations; iteration++)
         {
+            Cancellation.ThrowIfRequested(); // Ctrl-C / SIGTERM (Cancellation.cs)
             if (budget is not null && !budget.Spend()) return new LmOutcome(p, chi, jtj, LmExit.Budget, iteration - 1);
             // solve (A + μD) h = g by Cholesky; a failed factorisation (A not positive definite) raises the damping
             for (var i = 0; i < f * f; i++) chol[i] = a[i];

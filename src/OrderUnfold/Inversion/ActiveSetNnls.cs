@@ -141,6 +141,7 @@ public static class ActiveSetNnls
         var message = "";
         while (iterations < options.MaxIterations)
         {
+            Cancellation.ThrowIfRequested(); // Ctrl-C / SIGTERM (Cancellation.cs)
             eq.Multiply(x, gx);
             var best = -1;
             var bestValue = options.Tolerance;

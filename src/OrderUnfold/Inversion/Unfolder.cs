@@ -11,6 +11,9 @@ namespace OrderUnfold.Inversion;
 /// </summary>
 public static class Unfolder
 {
+    /// <summary>Rough working memory of the solve per grid bin (a dozen vectors of doubles over the grid), for messages.</summary>
+    public const int BytesPerBin = 100;
+
     public static UnfoldResult Run(IReadOnlyList<CalibratedSweep> sweeps, UnfoldOptions? options = null, IProgress<string>? progress = null)
     {
         options ??= new UnfoldOptions();
@@ -47,10 +50,16 @@ public static class Unfolder
             warnings.Add($"only one instrument (FSR {Units.Quantity.FormatFrequency(unambiguous)}): the spectrum is folded into one FSR and the orders of the lines are unknown");
         }
 
-        if (!(end > start)) throw new InputException($"the frequency window is empty ({start} Hz to {end} Hz)");
+        if (!(end > start))
+            throw new InputException($"the frequency window is empty ({Units.Quantity.FormatFrequency(start)} to {Units.Quantity.FormatFrequency(end)}); check window in [solve]");
+        // the bin count as a double first: a tiny grid_step over a wide window must be refused, not overflow an int
+        var binsNeeded = Math.Ceiling((end - start) / step) + 1;
+        if (!(binsNeeded <= options.MaxGridBins))
+            throw new InputException(
+                $"grid_step {Units.Quantity.FormatFrequency(step)} over the window {Units.Quantity.FormatFrequency(start)} to {Units.Quantity.FormatFrequency(end)} needs {binsNeeded:G4} grid bins " +
+                $"(about {Io.InputLimits.FormatBytes((long)Math.Min(binsNeeded * BytesPerBin, long.MaxValue / 2))} of solver memory at ~{BytesPerBin} bytes per bin), more than the limit of {options.MaxGridBins} bins; " +
+                $"set grid_step in [solve] to at least {Units.Quantity.FormatFrequency((end - start) / (options.MaxGridBins - 1))} or narrow window in [solve]");
         var grid = FrequencyGrid.Covering(start, end, step);
-        if (grid.Count > options.MaxGridBins)
-            throw new InputException($"the frequency window needs {grid.Count} grid bins, more than the limit of {options.MaxGridBins}; narrow the window or enlarge the grid step");
         var periodicStep = Math.Min(step / 2, narrowest / 20);
 
         // initial gains from the sweep means: the mean Airy transmission over whole FSRs is Tmax/√(1+F)

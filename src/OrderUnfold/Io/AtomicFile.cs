@@ -23,7 +23,11 @@ public static class AtomicFile
     /// Writes a file in a staging folder that is published as a whole (renamed into place once complete): no temporary
     /// file and no flush here; whoever publishes the folder calls <see cref="FlushToDisk"/> on its files first.
     /// </summary>
-    public static void WriteStaged(string path, string content) => File.WriteAllText(path, content, Utf8NoBom);
+    public static void WriteStaged(string path, string content)
+    {
+        Cancellation.ThrowIfRequested(); // a stopping run writes nothing more (Ctrl-C / SIGTERM)
+        File.WriteAllText(path, content, Utf8NoBom);
+    }
 
     /// <summary><see cref="WriteStaged"/> when <paramref name="staged"/>, else <see cref="WriteAllText(string, string)"/>.</summary>
     public static void WriteAllText(string path, string content, bool staged)
@@ -42,6 +46,7 @@ public static class AtomicFile
     /// <summary>Writes through a callback that receives the temporary stream.</summary>
     public static void Write(string path, Action<Stream> write)
     {
+        Cancellation.ThrowIfRequested(); // a stopping run writes nothing more (Ctrl-C / SIGTERM)
         var full = Path.GetFullPath(path);
         var dir = Path.GetDirectoryName(full)!;
         Directory.CreateDirectory(dir);

@@ -510,19 +510,29 @@ internal static class DelimitedText
         var start = c.Rows.Row(c.StartIndex);
         if (hasHeader == false) return (null, null, start.Line);
 
-        // Nearest row above the data that holds text; rows of numbers, NaN or blanks in between are skipped.
+        // Nearest row above the data that holds text; rows of numbers, NaN or blanks in between are skipped. A comment
+        // line ('#…') between the header and the data does not hide the header; it is the header only when no other is found.
+        (string[] Fields, int Line)? comment = null;
         for (int i = c.StartIndex - 1; i >= 0; i--)
         {
             var row = c.Rows.Row(i);
             if (row.IsBlank || !HasText(row, c.DecimalComma)) continue;
             bool looksLikeHeader = row.Fields.Length == c.FieldCount &&
                                    row.Fields.All(f => Classify(f, c.DecimalComma, out _) is CellKind.Text or CellKind.Empty);
+            if (row.Fields[0].TrimStart().StartsWith('#'))
+            {
+                if (comment is null && (hasHeader == true || looksLikeHeader)) comment = (row.Fields, row.Line);
+                continue;
+            }
+
             if (hasHeader == true || looksLikeHeader) return (row.Fields, row.Line, start.Line);
-            return (null, null, start.Line);
+            break;
         }
 
+        if (comment is { } h) return (h.Fields, h.Line, start.Line);
+
         // Told there is a header but nothing above the numbers: the first number row is the header.
-        if (hasHeader == true) return (start.Fields, start.Line, start.Line + 1);
+        if (hasHeader == true && !AnyTextAbove(c)) return (start.Fields, start.Line, start.Line + 1);
         return (null, null, start.Line);
     }
 
@@ -534,6 +544,13 @@ internal static class DelimitedText
         var row = c.Rows.Row(index);
         if (row.Line != headerLine - 1 || row.Fields.Length != c.FieldCount || !HasText(row, c.DecimalComma)) return null;
         return row.Fields;
+    }
+
+    private static bool AnyTextAbove(Candidate c)
+    {
+        for (int i = c.StartIndex - 1; i >= 0; i--)
+            if (!c.Rows.Row(i).IsBlank && HasText(c.Rows.Row(i), c.DecimalComma)) return true;
+        return false;
     }
 
     private static InputException NoData(string head, string file)

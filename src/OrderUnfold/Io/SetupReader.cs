@@ -67,17 +67,8 @@ public static class SetupReader
     {
         if (string.IsNullOrWhiteSpace(path)) throw new InputException("expected the path of a setup file but got an empty name");
         var full = Path.GetFullPath(path);
-        if (Directory.Exists(full)) throw new InputException($"expected a setup file but {full} is a folder", path);
-        if (!File.Exists(full)) throw new InputException($"setup file not found: {full}", path);
-        string text;
-        try
-        {
-            text = File.ReadAllText(full);
-        }
-        catch (Exception e) when (e is IOException or UnauthorizedAccessException)
-        {
-            throw new InputException($"cannot read the setup file: {e.Message}", path, inner: e);
-        }
+        // type, size and line-length limits, checked before and while reading (Io/InputLimits.cs)
+        var text = InputLimits.ReadAllText(full, "setup file");
 
         return ReadText(text, path);
     }
@@ -308,6 +299,7 @@ public static class SetupReader
                 throw t.AtValue("file", $"file: expected a file name but got \"{name}\" ({e.Message})");
             }
 
+            if (InputLimits.OutsideMessage(resolved, _directory, file) is string outside) throw t.AtValue("file", $"file: {outside}");
             if (Directory.Exists(resolved)) throw t.AtValue("file", $"file names a folder, not a file: {resolved}");
             if (!File.Exists(resolved)) throw t.AtValue("file", $"file not found: {resolved}");
 

@@ -280,16 +280,8 @@ public static class SweepReader
 
     private static string ReadText(string path)
     {
-        if (Directory.Exists(path)) throw new InputException($"expected a file but got a folder: {path}", path);
-        if (!File.Exists(path)) throw new InputException($"file not found: {path}", path);
-        try
-        {
-            return File.ReadAllText(path);
-        }
-        catch (Exception e) when (e is IOException or UnauthorizedAccessException)
-        {
-            throw new InputException($"cannot read the file: {e.Message}", path, inner: e);
-        }
+        // type, size and line-length limits, checked before and while reading (Io/InputLimits.cs)
+        return InputLimits.ReadAllText(path, "sweep file");
     }
 
     private static Columns ResolveColumns(SweepFileOptions o, DataLayout layout)
@@ -403,6 +395,7 @@ public static class SweepReader
         {
             foreach (var row in DelimitedText.CellRows(text, layout.Delimiter))
             {
+                Cancellation.ThrowIfRequested(); // Ctrl-C / SIGTERM (Cancellation.cs)
                 if (row.Line < layout.FirstDataLine) continue;
                 if (row.IsBlank)
                 {

@@ -78,6 +78,23 @@ public static class UnfoldOutputs
         return sb.ToString();
     }
 
+    /// <summary>
+    /// The unambiguous range in one wording for the console and the plots: the window's alias-free width from the
+    /// instruments' geometry (what the summary prints), and, when the refinement tested it, how far the weakest
+    /// line's order is pinned at this noise (a different quantity, so it is named as such).
+    /// </summary>
+    public static string UnambiguousText(UnfoldRun run)
+    {
+        var r = run.Result;
+        if (!r.OrdersResolved) return "one instrument: the spectrum is folded into one FSR; orders are unknown";
+        var text = $"unambiguous range {Units.Quantity.FormatFrequency(r.UnambiguousRangeHz)} (alias margin ≥ 3 linewidths; window {Units.Quantity.FormatFrequency(r.Grid.StartHz)} to {Units.Quantity.FormatFrequency(r.Grid.EndHz)})";
+        if (run.Refinement?.UnambiguousRangeHz is double noise)
+            text += run.Refinement.UnambiguousRangeIsLowerBound
+                ? $"; at this noise no order shift of the weakest line up to ±{Units.Quantity.FormatFrequency(noise)} fits"
+                : $"; at this noise the weakest line's order is pinned against shifts up to ±{Units.Quantity.FormatFrequency(noise)}";
+        return text;
+    }
+
     /// <summary>"secure", "doubtful", "unknown" (one instrument) or "unchecked" (no refinement).</summary>
     public static string Verdict(UnfoldRun run, UnfoldedLine l) =>
         !run.Result.OrdersResolved ? "unknown" : !run.Result.Refined ? "unchecked" : l.Doubtful ? "doubtful" : "secure";
@@ -117,8 +134,10 @@ public static class UnfoldOutputs
         Plots.SaveSpectrum(sp, new SpectrumPlotInput(title, r.Grid.ToArray(), r.Spectrum, marks, run.Setup.Solve.AnchorFrequencyHz, r.DetectionLimit));
         written.Add(sp);
         // line plots (dB spectrum with detection limit, zoom panels per line group): Plotting/LinePlots.cs
-        written.AddRange(LinePlots.Write(directory, r, run.Instruments.Max(i => i.LinewidthHz), run.Refinement?.UnambiguousStatement));
-        foreach (var c in run.Calibrations)
+        written.AddRange(LinePlots.Write(directory, r, run.Instruments.Max(i => i.LinewidthHz), UnambiguousText(run)));
+        // a calibration reused from a file (--calibration) keeps its axis but not its points: its plots were written by
+        // the calibrate command, and there is nothing to draw here
+        foreach (var c in run.Calibrations.Where(c => c.PointX.Length > 0))
         {
             var p = Path.Combine(directory, $"calibration-{Slug(c.Instrument)}-{c.Direction.ToString().ToLowerInvariant()}.png");
             var xs = Enumerable.Range(0, 200).Select(i => c.Axis.XMin + (c.Axis.XMax - c.Axis.XMin) * i / 199.0).ToArray();
@@ -212,7 +231,7 @@ public static class UnfoldOutputs
                 ["budget_exhausted"] = rd.BudgetExhausted,
                 ["unambiguous_range_hz"] = N(rd.UnambiguousRangeHz),
                 ["unambiguous_statement"] = rd.UnambiguousStatement,
-                ["uncertainties"] = "standard errors from the fit covariance scaled by the reduced chi-square; frequency_crb_hz is the unscaled covariance (Cramér–Rao bound at the fit); frequency_sigma_hz includes the axis-calibration uncertainty, propagated from each axis fit's coefficient covariance, when it is known (its part: frequency_axis_sigma_hz)",
+                ["uncertainties"] = "standard errors from the fit covariance scaled by the reduced chi-square; frequency_crb_hz is the unscaled covariance (Cramér–Rao bound at the fit); frequency_sigma_hz includes the axis-calibration uncertainty, propagated from each axis fit's coefficient covariance, when it is known (its part: frequency_axis_sigma_hz); with a reduced chi-square below 1 (a pessimistic noise estimate) the scaled sigma lies below frequency_crb_hz by the factor sqrt(reduced chi-square)",
             } : null,
             ["unambiguous_range_statement"] = r.OrdersResolved
                 ? $"lines closer than {Units.Quantity.FormatFrequency(r.UnambiguousRangeHz)} apart cannot be an exact alias of one another for these instruments (alias margin ≥ 3 linewidths); each line's alias_delta_chi2 says how securely its order is pinned at this noise level"

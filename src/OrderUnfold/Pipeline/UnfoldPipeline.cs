@@ -26,6 +26,18 @@ public static class UnfoldPipeline
     /// and instrument parameters are used instead (archived sweeps of one session share one calibration).</summary>
     public static UnfoldRun Run(Setup setup, IProgress<string>? progress = null, CalibrationSet? reuse = null)
     {
+        try
+        {
+            return RunSetup(setup, progress, reuse);
+        }
+        catch (InputException e) when (e.File is null && setup.Path is not null)
+        {
+            throw e.At(setup.Path); // a problem of the [solve] settings: name the setup file
+        }
+    }
+
+    private static UnfoldRun RunSetup(Setup setup, IProgress<string>? progress, CalibrationSet? reuse)
+    {
         var warnings = new List<string>();
         var notes = new List<string>();
         var inputs = new List<InputFile>();
@@ -398,6 +410,7 @@ public static class UnfoldPipeline
     /// <summary>Size and SHA-256 of a file, read without modifying it.</summary>
     public static InputFile Describe(string role, string path)
     {
+        InputLimits.CheckFile(path, role + " file"); // never hash a device, a FIFO or an oversized file
         using var stream = File.OpenRead(path);
         var hash = SHA256.HashData(stream);
         return new InputFile(role, Path.GetFullPath(path), stream.Length, Convert.ToHexString(hash).ToLowerInvariant());

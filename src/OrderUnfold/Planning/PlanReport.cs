@@ -180,8 +180,7 @@ public static class PlanReport
 
     private static string Num(double? v) => v is double x ? x.ToString("R", C) : "";
 
-    private static string Quote(string? s) =>
-        s is null ? "" : s.IndexOfAny([',', '"', '\n', '\r']) >= 0 ? "\"" + s.Replace("\"", "\"\"") + "\"" : s;
+    private static string Quote(string? s) => Io.CsvCell.Text(s); // quoting and the formula guard (CSV injection)
 
     private static string Align(List<string[]> rows, int[] rightAligned)
     {

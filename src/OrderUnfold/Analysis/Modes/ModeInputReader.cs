@@ -41,9 +41,14 @@ public static class ModeInputReader
         if (!File.Exists(linesPath))
             throw new InputException($"no {LinesFileName} in the result folder; run 'orderunfold unfold' first", dir);
 
-        var lines = ReadLines(linesPath, File.ReadAllText(linesPath));
+        var linesText = InputLimits.ReadAllText(linesPath, LinesFileName);
         var reportPath = Path.Combine(dir, ReportFileName);
-        var report = File.Exists(reportPath) ? ReadReport(reportPath, File.ReadAllBytes(reportPath)) : new ReportFields();
+        // lines.csv written by an unfold (it has the "order" column) without its report.json is the output of a run that
+        // did not finish: whether its orders are resolved is unknown, so no spacing is reported from it
+        if (!File.Exists(reportPath) && linesText.Split('\n', 2)[0].Split(',').Any(h => h.Trim() == "order"))
+            throw new InputException($"{LinesFileName} has no {ReportFileName} beside it: the unfold that wrote this folder did not finish, so whether its orders are resolved is unknown; run the unfold again", dir);
+        var lines = ReadLines(linesPath, linesText);
+        var report = File.Exists(reportPath) ? ReadReport(reportPath, System.Text.Encoding.UTF8.GetBytes(InputLimits.ReadAllText(reportPath, ReportFileName))) : new ReportFields();
 
         var input = new ModeInput(lines, report.DetectionLimit, report.OrdersResolved ?? true, report.FoldingFsrHz, report.AnchorHz);
         if (!input.OrdersResolved && input.FoldingFsrHz is null)

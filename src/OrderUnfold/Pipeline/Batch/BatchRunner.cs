@@ -72,7 +72,8 @@ public sealed record BatchResult(long Rows, long Ok, long Failed, long Skipped, 
 /// shardable. Each item is written into a staging folder and renamed into <c>items/&lt;id&gt;/</c> once
 /// complete, with <c>done.json</c> written last; an item whose key (inputs, setup text, calibration, settings,
 /// tool version) matches a finished record is skipped. A failing item records its error and the run goes on.
-/// When cancelled, items in flight finish, no new item starts, and the summary of what finished is written.
+/// When cancelled, items in flight stop unpublished (they run again on resume), no new item starts, and the summary of
+/// what finished is written.
 /// </summary>
 public static class BatchRunner
 {
@@ -129,6 +130,7 @@ public static class BatchRunner
 
         var complete = true;
         using var stop = CancellationTokenSource.CreateLinkedTokenSource(cancel);
+        var ambient = Cancellation.Use(stop.Token); // the items' reading, solving and refining loops check it
         var publisher = new Publisher(staging, 4 * options.Jobs + 4, stop);
         try
         {
@@ -161,10 +163,18 @@ public static class BatchRunner
         {
             complete = false;
         }
+        catch (AggregateException e) when (stop.IsCancellationRequested && e.Flatten().InnerExceptions.All(i => i is OperationCanceledException))
+        {
+            complete = false;
+        }
         finally
         {
             publisher.Finish(); // items handed over are published before the summary is written
+            ambient.Dispose();
         }
+
+        // the summary of what finished is written even when the run was stopped
+        using var summaryScope = Cancellation.Use(CancellationToken.None);
 
         // the output folder itself failed while publishing (disk full, permissions): nothing more can be written
         if (publisher.Failure is not null) System.Runtime.ExceptionServices.ExceptionDispatchInfo.Capture(publisher.Failure).Throw();
@@ -174,6 +184,8 @@ public static class BatchRunner
         SummaryTable.Write(summary, BatchLayout.Items(outDir), finished);
         new BatchStatus(shard, complete, manifestPath, manifestSha, context.Tool, total, ok, failed, skipped).Write(BatchLayout.Status(outDir, shard));
         TryDelete(staging);
+        var stagingParent = Path.GetDirectoryName(staging)!;
+        if (Directory.Exists(stagingParent) && !Directory.EnumerateFileSystemEntries(stagingParent).Any()) TryDelete(stagingParent); // no empty staging/ left
         return new BatchResult(total, ok, failed, skipped, complete, summary, clock.Elapsed);
     }
 
@@ -266,7 +278,9 @@ public static class BatchRunner
         }
 
         var existing = ItemRecord.TryRead(Path.Combine(target, BatchLayout.DoneFile));
-        if (existing is not null && existing.Key == plan.Key && (existing.Status == ItemStatus.Ok || !ctx.Options.RetryFailed))
+        // a failure from bad input is kept until the inputs change (or --retry-failed); an internal error runs again
+        if (existing is not null && existing.Key == plan.Key &&
+            (existing.Status == ItemStatus.Ok || (!ctx.Options.RetryFailed && !IsInternalError(existing.Error))))
             return (existing, true);
 
         var stage = Path.Combine(ctx.Staging, folder);
@@ -299,6 +313,12 @@ public static class BatchRunner
                     Analysis = analysis,
                 };
             }
+            catch (Exception e) when (e is OperationCanceledException && Cancellation.Token.IsCancellationRequested)
+            {
+                // stopped by Ctrl-C or SIGTERM: the item is dropped unpublished and runs again on resume
+                Directory.Delete(stage, recursive: true);
+                throw;
+            }
             catch (Exception e) when (e is not OutOfMemoryException)
             {
                 // whatever was written for this item is dropped: a failed item holds only its record
@@ -314,12 +334,16 @@ public static class BatchRunner
         return (record, false);
     }
 
+    private const string InternalErrorPrefix = "internal error (";
+
     private static string Message(Exception e) => e switch
     {
         InputException ie => ie.Located,
         IOException or UnauthorizedAccessException => e.Message,
-        _ => $"internal error ({e.GetType().Name}): {e.Message}",
+        _ => $"{InternalErrorPrefix}{e.GetType().Name}): {InputLimits.Clip(e.Message, 300)}",
     };
+
+    private static bool IsInternalError(string? error) => error is not null && error.StartsWith(InternalErrorPrefix, StringComparison.Ordinal);
 
     /// <summary>The setup and calibration an item runs with, its key, or why it cannot run.</summary>
     private sealed record Plan(Setup? Setup, CalibrationSet? Calibration, string Key, string? Error);
@@ -331,12 +355,16 @@ public static class BatchRunner
             return new Plan(null, null, Key(ctx, row.Folder, row.Timestamp, ["row-problem " + row.Problem]), $"{where}: {row.Problem}");
 
         var setupPath = row.Setup is not null ? Path.GetFullPath(Path.Combine(ctx.ManifestDir, row.Setup)) : ctx.DefaultSetup;
+        // files named in the manifest stay in its folder unless --allow-outside-paths (Io/InputLimits.cs)
+        foreach (var named in new[] { row.Setup, row.Calibration }.Concat(row.Files ?? []))
+            if (named is not null && InputLimits.OutsideMessage(Path.Combine(ctx.ManifestDir, named), ctx.ManifestDir, manifest) is string outside)
+                return new Plan(null, null, Key(ctx, row.Folder, row.Timestamp, ["outside " + named]), $"{where}: {outside}");
         if (setupPath is null)
             return new Plan(null, null, Key(ctx, row.Folder, row.Timestamp, ["no-setup"]), $"{where}: no setup: give the row a setup column value or the batch a --setup");
         var (setup, setupSha) = Cached(ctx.Setups, setupPath, () =>
         {
             if (!File.Exists(setupPath)) throw new InputException($"setup file not found: {setupPath}", where);
-            var text = File.ReadAllText(setupPath);
+            var text = InputLimits.ReadAllText(setupPath, "setup file");
             return (SetupReader.ReadText(text, setupPath), Sha256Hex(Encoding.UTF8.GetBytes(text)));
         });
 
@@ -365,7 +393,7 @@ public static class BatchRunner
             }
             else
             {
-                var (set, sha) = Cached(ctx.Calibrations, calibrationPath, () => (CalibrationFile.Read(calibrationPath), Sha256OfFile(calibrationPath)));
+                var (set, sha) = Cached(ctx.Calibrations, calibrationPath, () => (SavedCalibration.Read(calibrationPath), Sha256OfFile(calibrationPath)));
                 calibration = set;
                 parts.Add("calibration " + sha);
             }
@@ -392,7 +420,12 @@ public static class BatchRunner
         try
         {
             if (!File.Exists(path)) return $"not found: {path}";
+            InputLimits.CheckFile(path, "sweep file");
             return "sha256 " + Sha256OfFile(path);
+        }
+        catch (InputException e)
+        {
+            return $"unreadable: {e.Message}";
         }
         catch (Exception e) when (e is IOException or UnauthorizedAccessException)
         {

@@ -85,7 +85,7 @@ public static class CsvLine
     public static string Quote(string? value)
     {
         if (string.IsNullOrEmpty(value)) return "";
-        var v = value.Replace("\r\n", " ").Replace('\n', ' ').Replace('\r', ' ');
+        var v = Io.CsvCell.Guard(value.Replace("\r\n", " ").Replace('\n', ' ').Replace('\r', ' ')); // formula guard (CSV injection)
         var needs = v.Contains(',') || v.Contains('"') || v[0] == ' ' || v[^1] == ' ';
         return needs ? "\"" + v.Replace("\"", "\"\"") + "\"" : v;
     }

@@ -44,9 +44,7 @@ public static class Manifest
     public static IEnumerable<ManifestRow> Read(string path)
     {
         if (string.IsNullOrWhiteSpace(path)) throw new InputException("expected the path of a manifest (CSV) but got an empty name");
-        if (Directory.Exists(path)) throw new InputException($"expected a manifest file but {Path.GetFullPath(path)} is a folder", path);
-        if (!File.Exists(path)) throw new InputException($"manifest not found: {Path.GetFullPath(path)}", path);
-        return ReadLines(path, File.ReadLines(path));
+        return ReadLines(path, Io.InputLimits.ReadLines(path, "manifest")); // type, size and line-length limits
     }
 
     /// <summary>Streams the rows of manifest text given as lines (<paramref name="path"/> names it in messages).</summary>

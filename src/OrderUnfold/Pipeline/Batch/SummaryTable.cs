@@ -32,7 +32,7 @@ public static class SummaryTable
         var sb = new StringBuilder(128);
         sb.Append(r.Id).Append(',')
           .Append(r.Status.ToString().ToLowerInvariant()).Append(',')
-          .Append(r.Timestamp).Append(',')
+          .Append(CsvLine.Quote(r.Timestamp)).Append(',')
           .Append(r.Lines?.ToString(c)).Append(',')
           .Append(ItemRecord.F(r.StrongestLineHz)).Append(',')
           .Append(CsvLine.Quote(r.Analysis.GetValueOrDefault(ModeSpacingColumn))).Append(',')

@@ -1,0 +1,64 @@
+#!/usr/bin/env bash
+# Kill test (issue 16): a batch over a small simulated archive is killed with SIGKILL at random moments three times,
+# resumed, and must then equal an uninterrupted run byte for byte apart from timing (the summary's seconds column,
+# report.json's created_utc, done.json's seconds). Needs a Release build of the CLI. Bounded: every run has a timeout.
+# Usage: scripts/kill-test.sh [ITEMS]   (ITEMS defaults to 200; KILL_TEST_SEED fixes the kill moments)
+set -euo pipefail
+cd "$(dirname "$0")/.."
+items="${1:-300}"
+seed="${KILL_TEST_SEED:-$RANDOM}"
+RANDOM=$seed
+cli=(dotnet src/OrderUnfold.Cli/bin/Release/net10.0/OrderUnfold.Cli.dll)
+work="$(mktemp -d)"
+trap 'rm -rf "$work"' EXIT
+
+echo "kill test: seed $seed, $items simulated items, work folder $work"
+timeout 300 "${cli[@]}" simulate-archive --out "$work/archive" --items "$items" >/dev/null
+# reference: one uninterrupted run (exit 1: the archive holds a few damaged items on purpose)
+timeout 600 "${cli[@]}" batch "$work/archive/manifest.csv" --out "$work/reference" --jobs 2 --quiet >/dev/null || [ $? -eq 1 ]
+
+kills=0
+for attempt in 1 2 3 4 5 6 7 8; do
+  [ "$kills" -lt 3 ] || break
+  "${cli[@]}" batch "$work/archive/manifest.csv" --out "$work/killed" --jobs 2 --quiet >/dev/null 2>&1 &
+  pid=$!
+  delay_ms=$((300 + RANDOM % 2200))
+  sleep "$(printf '%d.%03d' $((delay_ms / 1000)) $((delay_ms % 1000)))"
+  if kill -0 "$pid" 2>/dev/null; then
+    kill -KILL "$pid" || true
+    kills=$((kills + 1))
+    echo "kill test: run $attempt killed with SIGKILL after ${delay_ms} ms"
+  else
+    echo "kill test: run $attempt had finished before ${delay_ms} ms (no kill)"
+  fi
+  wait "$pid" 2>/dev/null || true
+done
+if [ "$kills" -lt 3 ]; then echo "kill test: FAILED: only $kills kill(s) landed before the batch finished; use more items"; exit 1; fi
+timeout 600 "${cli[@]}" batch "$work/archive/manifest.csv" --out "$work/killed" --jobs 2 --quiet >/dev/null || [ $? -eq 1 ]
+
+# compare, with the timing fields blanked
+normalise() {
+  local dir="$1" out="$2"
+  mkdir -p "$out"
+  awk -F, 'BEGIN{OFS=","} {if (NR>1) $10=""; print}' "$dir/summary.csv" > "$out/summary.csv"
+  (cd "$dir/items" && find . -type f | LC_ALL=C sort) > "$out/files.txt"
+  while IFS= read -r f; do
+    case "$f" in
+      */report.json) grep -v '"created_utc"' "$dir/items/$f" ;;
+      */done.json) grep -v '"seconds"' "$dir/items/$f" ;;
+      *) cat "$dir/items/$f" ;;
+    esac
+  done < "$out/files.txt" | sha256sum > "$out/content.sha256"
+}
+normalise "$work/reference" "$work/n-reference"
+normalise "$work/killed" "$work/n-killed"
+if [ -d "$work/killed/staging" ] && [ -n "$(ls -A "$work/killed/staging")" ]; then
+  echo "kill test: FAILED: staging/ not empty after the resumed run"; exit 1
+fi
+if diff -r "$work/n-reference" "$work/n-killed" >/dev/null; then
+  echo "kill test: ok: the resumed run equals the uninterrupted one ($(($(wc -l < "$work/n-reference/summary.csv") - 1)) items; summary, item files and records byte for byte apart from timing)"
+else
+  echo "kill test: FAILED: the resumed run differs from the uninterrupted one"
+  diff -r "$work/n-reference" "$work/n-killed" | head -20
+  exit 1
+fi

@@ -1,0 +1,27 @@
+using System.Text.Json;
+using OrderUnfold.Calibration;
+using OrderUnfold.Io;
+
+namespace OrderUnfold.Pipeline;
+
+/// <summary>
+/// Reads a saved calibration file (<see cref="CalibrationFile"/>) as user input: the input limits first (a regular
+/// file within <c>--max-file-size</c>; Io/InputLimits.cs), and any damage the JSON reader does not turn into an
+/// <see cref="InputException"/> itself (a key given twice, a value of the wrong kind) becomes one naming the file.
+/// </summary>
+public static class SavedCalibration
+{
+    public static CalibrationSet Read(string path)
+    {
+        InputLimits.CheckFile(path, "calibration file");
+        try
+        {
+            return CalibrationFile.Read(path);
+        }
+        catch (Exception e) when (e is ArgumentException or InvalidOperationException or FormatException or JsonException or KeyNotFoundException
+                                      or OverflowException)
+        {
+            throw new InputException($"not a readable calibration file ({e.GetType().Name}: {InputLimits.Clip(e.Message, 120)}); write it again with the calibrate command", path, inner: e);
+        }
+    }
+}
