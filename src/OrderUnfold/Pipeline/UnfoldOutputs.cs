@@ -260,6 +260,14 @@ public static class UnfoldOutputs
             }).ToArray()),
             ["warnings"] = new JsonArray(run.AllWarnings.Select(w => (JsonNode)JsonValue.Create(w)!).ToArray()),
             ["notes"] = new JsonArray(run.Notes.Select(w => (JsonNode)JsonValue.Create(w)!).ToArray()),
+            ["window_widening"] = run.Window is { } wf ? new JsonObject
+            {
+                ["reason"] = wf.Reason,
+                ["first_window_hz"] = new JsonArray(N(wf.FirstStartHz), N(wf.FirstEndHz)),
+                ["widened_half_width_hz"] = N(wf.HalfWidthHz),
+                ["near_aliases"] = new JsonArray(wf.NearAliases.Select(a => (JsonNode)new JsonObject { ["shift_hz"] = N(a.DeltaHz), ["margin_linewidths"] = N(a.MarginLinewidths) }).ToArray()),
+                ["source_wider_than_widened_window"] = wf.StillWider,
+            } : null,
         };
         return o;
     }

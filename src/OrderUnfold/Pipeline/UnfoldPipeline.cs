@@ -47,6 +47,7 @@ public static class UnfoldPipeline
         // source sweeps
         var calibrated = new List<CalibratedSweep>();
         var raw = new List<Sweep>();
+        var segmentAxes = new List<(Sweep Segment, AxisCalibration Axis)>();
         foreach (var spec in setup.Sweeps)
         {
             progress?.Report($"reading {Path.GetFileName(spec.File.Path)}");
@@ -95,8 +96,15 @@ public static class UnfoldPipeline
                     AxisUncertainty = axis.ShapeCovariance is { } cov ? new AxisUncertainty(axis, axis.Axis, cov, seg.X) : null,
                 });
                 raw.Add(seg);
+                segmentAxes.Add((seg, axis));
             }
         }
+
+        // source lines broader than the calibration laser: solve with the response the source's own peaks show
+        var fixedFinesse = setup.Instruments.Where(i => i.FixFinesse).Select(i => i.Name).ToHashSet();
+        foreach (var w in SourceLineWidth.Apply(calibrated, segmentAxes, calibrations, fixedFinesse))
+            notes.Add($"instrument '{w.Instrument}': the source's peaks are broader than the calibration laser's (apparent finesse {w.ApparentFinesse:F1} ± {w.ApparentSigma:F1} from {w.PeaksFitted} peaks, cavity {w.CavityFinesse:F1}): " +
+                      $"its lines have a width of their own, about {Quantity.FormatFrequency(w.LineWidthHz)} FWHM (Lorentzian), and the source sweeps are solved with the broadened response");
 
         var solve = setup.Solve;
         var options = new UnfoldOptions
@@ -113,6 +121,7 @@ public static class UnfoldPipeline
         // ---- FSR refinement (issue 3): Vernier ratio and/or a known interval; see Calibration/FsrRefiner.cs ----
         UnfoldResult result;
         FsrRefinement? fsrRefinement = null;
+        WindowFinding? windowFinding = null;
         // stated FSRs that disagree with each other (a datasheet value, a length measured roughly) fold every line to a
         // slightly wrong place in one instrument: the grid then explains each line with a cloud of false ones. The folded
         // peaks show it before any unfold; the ratio is then refined from the data, not carried on silently.
@@ -151,7 +160,10 @@ public static class UnfoldPipeline
         }
         else
         {
-            result = Unfolder.Run(calibrated, options, progress);
+            // a source wider than the default window is caught here and the window widened (Pipeline/WindowWidening.cs)
+            var sweepsNow = calibrated;
+            (result, windowFinding) = WindowWidening.Run(o => Unfolder.Run(sweepsNow, o, progress), options, calibrated.Select(c => c.Instrument).ToList(), progress);
+            if (windowFinding is not null) options = options with { WindowStartHz = -windowFinding.HalfWidthHz, WindowEndHz = windowFinding.HalfWidthHz };
             // a ratio error too small for the folded peaks to show (a few tenths of a percent) still spoils the fit: the
             // grid explains each line with a cloud of weak ones and χ² stays high. Then the ratio refined from the data is
             // tried, and kept only when it fits clearly better (Δχ² above 25 per refined ratio, i.e. five standard errors,
@@ -244,6 +256,7 @@ public static class UnfoldPipeline
             FsrRefinement = fsrRefinement,
             Warnings = warnings,
             Notes = notes,
+            Window = windowFinding,
         };
     }
 

@@ -34,6 +34,9 @@ public sealed record UnfoldRun
     /// <summary>Warnings from reading and calibrating (the result's own warnings are in <see cref="Result"/>).</summary>
     public IReadOnlyList<string> Warnings { get; init; } = [];
 
+    /// <summary>The window check: set when the source looked wider than the first window and the window was widened.</summary>
+    public WindowFinding? Window { get; init; }
+
     /// <summary>What the run did that a careful user may want to know but that needs no action (report.json "notes").</summary>
     public IReadOnlyList<string> Notes { get; init; } = [];
 
