@@ -62,10 +62,10 @@ public static class FinesseFit
 
     /// <summary>Fits one peak. <paramref name="frequencyHz"/> is the calibrated axis at each sample; null when the fit fails.</summary>
     public static PeakProfileFit? FitPeak(IReadOnlyList<double> frequencyHz, IReadOnlyList<double> signal, double centerHz, double fwhmGuessHz,
-        double periodHz, double noiseSigma, double x = double.NaN)
+        double periodHz, double noiseSigma, double x = double.NaN, double halfWindowFwhm = HalfWindowFwhm)
     {
         if (!(fwhmGuessHz > 0) || !(periodHz > 0) || !(noiseSigma > 0)) return null;
-        var half = Math.Min(HalfWindowFwhm * fwhmGuessHz, 0.45 * periodHz);
+        var half = Math.Min(halfWindowFwhm * fwhmGuessHz, 0.45 * periodHz);
         var idx = new List<int>();
         for (var i = 0; i < frequencyHz.Count; i++)
             if (Math.Abs(frequencyHz[i] - centerHz) <= half && double.IsFinite(signal[i])) idx.Add(i);
@@ -135,8 +135,16 @@ public static class FinesseFit
         if (peaks.Count == 0) return null;
         var noise = PeakFinder.NoiseSigma(sweep.Y);
         if (!(noise > 0)) return null;
-        var lo = axis.XMin - 0.02 * (axis.XMax - axis.XMin);
-        var hi = axis.XMax + 0.02 * (axis.XMax - axis.XMin);
+        // the calibrated range plus a few peak widths: a peak at the end of the range (a sweep of little more than one
+        // period has its only peaks there) is fitted on the axis extrapolated over a few linewidths
+        var widestX = peaks.Select(p =>
+        {
+            var i = (int)Math.Clamp(Math.Round(p.Position), 1, sweep.Count - 2);
+            return p.WidthSamples * Math.Abs(sweep.X[i + 1] - sweep.X[i - 1]) / 2;
+        }).Max();
+        var margin = Math.Max(0.02 * (axis.XMax - axis.XMin), (HalfWindowFwhm + 2) * widestX);
+        var lo = axis.XMin - margin;
+        var hi = axis.XMax + margin;
         var inRange = Enumerable.Range(0, sweep.Count).Where(i => sweep.X[i] >= lo && sweep.X[i] <= hi).ToArray();
         if (inRange.Length < 16) return null;
         var freq = inRange.Select(i => axis.Evaluate(sweep.X[i])).ToArray();
@@ -160,9 +168,11 @@ public static class FinesseFit
             var reach = (HalfWindowFwhm + 1.5) * q.Fwhm;
             var crowded = info.Any(o => !ReferenceEquals(o.Peak, q.Peak) && o.Peak.Height > 0.03 * q.Peak.Height && Math.Abs(o.F - q.F) < reach);
             if (crowded) continue;
-            // stay inside the record: the whole window must be sampled
-            if (Math.Abs(q.F - freq.Min()) < HalfWindowFwhm * q.Fwhm || Math.Abs(freq.Max() - q.F) < HalfWindowFwhm * q.Fwhm) continue;
-            var fit = FitPeak(freq, sig, q.F, q.Fwhm, periodHz, noise, q.Peak.X);
+            // stay inside the record: the whole window must be sampled; near the ends of a short record the window
+            // shrinks to what the record holds, down to 2 FWHM on each side (still the whole peak and its wings)
+            var room = Math.Min(Math.Abs(q.F - freq.Min()), Math.Abs(freq.Max() - q.F)) / q.Fwhm;
+            if (room < 2) continue;
+            var fit = FitPeak(freq, sig, q.F, q.Fwhm, periodHz, noise, q.Peak.X, Math.Min(HalfWindowFwhm, room));
             if (fit is null) continue;
             // a fit far outside the noise is not an Airy peak (a blend of lines, a shoulder): kept aside
             if (fit.ReducedChiSquare > 25)
@@ -190,7 +200,10 @@ public static class FinesseFit
         var mean = fits.Select((p, i) => weights[i] * p.Finesse).Sum() / sw;
         var scatter = fits.Count > 1 ? fits.Select((p, i) => weights[i] * (p.Finesse - mean) * (p.Finesse - mean)).Sum() / (fits.Count - 1) : 1.0;
         var sigma = Math.Sqrt(1 / sw) * Math.Sqrt(Math.Max(1, scatter));
-        var scattered = fits.Count >= 3 && scatter > 6;
+        // peaks that disagree beyond their (small) noise but only by a few per cent still measure the finesse: the
+        // scatter then sets its uncertainty (σ above is inflated by it); a spread of more than 10 % RMS is not one finesse
+        var spread = fits.Count > 1 ? Math.Sqrt(fits.Sum(p => (p.Finesse - mean) * (p.Finesse - mean)) / (fits.Count - 1)) / mean : 0;
+        var scattered = fits.Count >= 3 && scatter > 6 && spread > 0.1;
         var consistent = !scattered && !ReferenceEquals(fits, poor);
         if (scattered)
         {

@@ -38,7 +38,7 @@ public sealed class SweepOperator
         M = m;
         StepHz = fsr / m;
         var kernel = new double[m];
-        for (var i = 0; i < m; i++) kernel[i] = Airy.Transmission(i * StepHz, fsr, instrument.Finesse);
+        for (var i = 0; i < m; i++) kernel[i] = instrument.Response(i * StepHz); // Airy peak plus the cavity's transverse families
         _conv = new CircularConvolver(kernel);
         _kernel = kernel;
         SampleCount = scanHz.Count;

@@ -201,6 +201,9 @@ public static class UnfoldPipeline
             instruments[name] = inst with { Finesse = Math.Max(1, f) };
         }
 
+        // the period decided from the peak pattern, the cavity's transverse families, and whether the finesse was measured
+        if (reuse is null) CalibrationSteps.ApplyCavityProperties(instruments, calibrations, warnings, n => specs[n].FixFinesse);
+
         return (instruments, calibrations);
     }
 
