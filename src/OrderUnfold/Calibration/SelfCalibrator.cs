@@ -203,7 +203,7 @@ public static class SelfCalibrator
             }
 
             if (adopted?.Fit is null || adopted.Pairs.Count(c => c.Used) == 0)
-                throw Undecided(sweep, d, $"the {(k < 1 ? "half" : "double")} period explains the peaks but its repeats could not be fitted");
+                throw Undecided(sweep, d, $"a period {k:G3} times the first explains the peaks but its repeats could not be fitted");
             runs.Add(adopted);
             chosen = adopted;
         }
@@ -347,20 +347,20 @@ public static class SelfCalibrator
         }
 
         double? adopt = null;
-        var half = list.First(c => c.K == 0.5);
         var one = list.First(c => c.K == 1);
         var dbl = list.First(c => c.K == 2);
         string basis;
-        if (half.Score.Consistent && half.Score.Predictions > 0)
+        var shorter = list.Where(c => c.K < 0.97 && c.Score.Consistent && c.Score.Predictions > 0).OrderBy(c => c.K).FirstOrDefault();
+        if (shorter.Score is not null)
         {
-            adopt = 0.5;
-            basis = "the half of the repeat period explains every peak as well: the shortest consistent period is the period";
+            adopt = shorter.K;
+            basis = $"a shorter period ({shorter.Score.Label}) explains every peak as well: the shortest consistent period is the period";
         }
         else if (one.Score.Consistent)
         {
             basis = "the shortest period at which every peak group repeats with the same height";
         }
-        else if (dbl.Score.Consistent)
+        else if (dbl.Score.Consistent && dbl.Score.Predictions > 0)
         {
             adopt = 2;
             basis = "only the double of the first repeat period explains every peak";
