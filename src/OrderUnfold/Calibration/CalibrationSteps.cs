@@ -155,7 +155,11 @@ public static class CalibrationSteps
             {
                 var sibling = done.FirstOrDefault(c => c.Direction == seg.Direction);
                 if (sibling is null)
-                    throw new InputException($"{e.Message} (no [[calibration]] sweep for instrument '{spec.Instrument}' and no other {seg.Direction.ToString().ToLowerInvariant()}-ramp segment of this file to fall back on)", e.File ?? spec.File.Path, e.Line, e.Column, e);
+                {
+                    var others = failed.Where(f => f.Segment.Direction == seg.Direction && !ReferenceEquals(f.Segment, seg)).Select(f => f.Error.Message).ToList();
+                    var also = others.Count == 0 ? "" : $"; the other {others.Count} segment(s) of that direction failed too: {string.Join(" | ", others)}";
+                    throw new InputException($"{e.Message} (no [[calibration]] sweep for instrument '{spec.Instrument}' and no other {seg.Direction.ToString().ToLowerInvariant()}-ramp segment of this file to fall back on{also})", e.File ?? spec.File.Path, e.Line, e.Column, e);
+                }
                 warnings.Add($"{seg.Name}: self-calibration failed, using the axis of {sibling.Source} (same ramp direction) instead: {e.Message}");
             }
         }
@@ -183,6 +187,34 @@ public static class CalibrationSteps
             var inst = instruments[name];
             var mine = calibrations.Where(c => c.Instrument == name).ToList();
             var decided = mine.Where(c => c.PeriodDecision is not null).Select(c => c.PeriodDecision!).ToList();
+            // the period in Hz (c/4L or c/2L for a stated confocal cavity) is decided by the sweeps whose period explains
+            // every peak; a sweep whose pattern was explained only in part (noise, ring-down) follows them, its axis rescaled
+            var sure = decided.Where(d => d.Candidates.Any(c => c.Chosen && c.Consistent)).ToList();
+            var surePeriods = sure.Select(d => d.PeriodHz).Distinct().ToList();
+            if (surePeriods.Count == 1)
+            {
+                for (var i = 0; i < calibrations.Count; i++)
+                {
+                    var c = calibrations[i];
+                    if (c.Instrument != name || c.PeriodDecision is not { } d || sure.Contains(d) || d.PeriodHz == surePeriods[0]) continue;
+                    var f = surePeriods[0] / d.PeriodHz;
+                    warnings.Add($"{c.Source}: its peak pattern did not decide the FSR; it follows the sweeps that did ({Quantity.FormatFrequency(surePeriods[0])})");
+                    calibrations[i] = c with
+                    {
+                        Axis = c.Axis.Scaled(f),
+                        PointHz = c.PointHz.Select(v => v * f).ToArray(),
+                        ResidualHz = c.ResidualHz.Select(v => v * f).ToArray(),
+                        ResidualRmsHz = c.ResidualRmsHz * f,
+                        AxisSigmaHz = c.AxisSigmaHz * f,
+                        ShapeCovariance = c.ShapeCovariance?.Select(v => v * f * f).ToArray(),
+                        PeriodDecision = d with { PeriodHz = surePeriods[0], Basis = d.Basis + $"; the FSR follows the sweeps that decided it ({Quantity.FormatFrequency(surePeriods[0])})" },
+                    };
+                }
+
+                mine = calibrations.Where(c => c.Instrument == name).ToList();
+                decided = mine.Where(c => c.PeriodDecision is not null).Select(c => c.PeriodDecision!).ToList();
+            }
+
             var periods = decided.Select(d => d.PeriodHz).Distinct().ToList();
             if (periods.Count > 1)
                 throw new InputException($"instrument '{name}': the sweeps disagree on the period: {string.Join(" vs ", decided.Select(d => $"{Quantity.FormatFrequency(d.PeriodHz)} ({d.Basis})"))}; " +

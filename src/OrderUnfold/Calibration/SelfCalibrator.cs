@@ -99,6 +99,10 @@ public sealed record PeriodCandidate(double PeriodSamples, int Pairs, double Cov
 /// </summary>
 public static class SelfCalibrator
 {
+    /// <summary>A period that explains fewer of its predicted repeats than this is not used, even when it beats its half and
+    /// double (between this and <see cref="PeriodDecider.MinExplained"/> it is kept with a warning).</summary>
+    public const double MinExplainedToKeep = 0.7;
+
 
 
     /// <summary>Self-calibrates one sweep segment (x relative to the segment start for time scans).</summary>
@@ -215,6 +219,8 @@ public static class SelfCalibrator
             var rival = decision.Candidates.Where(c => c.Label is "half" or "double").MaxBy(c => c.Explained)!;
             if (rival.Explained >= mine.Explained - 0.1)
                 throw Undecided(sweep, decision, $"the {rival.Label} period explains the peak pattern about as well as the chosen one");
+            if (mine.Explained < MinExplainedToKeep)
+                throw Undecided(sweep, decision, $"the best period explains only {mine.Explained:P0} of the repeats its peak groups predict");
             warnings.Add($"{sweep.Name}: the period explains only {mine.Explained:P0} of the repeats its peak groups predict (its {rival.Label} {rival.Explained:P0}): " +
                          "the source may have changed during the sweep, or some peaks are not source lines; a [[calibration]] sweep would settle the scale");
         }
