@@ -77,6 +77,27 @@ public static class CalibrationSteps
             }
         }
 
+        // the period decision on the calibration sweep's own peak pattern (candidates, families) as evidence; kept when
+        // it agrees with the numbered axis (same period in Hz, scale within 5 %)
+        if (axis.PeriodDecision is null && axis.PointCount >= 2)
+        {
+            try
+            {
+                var check = SelfCalibrator.Calibrate(PrepareForPeakFinding(sweep, instrument), instrument,
+                    new SelfCalibrationOptions { PeriodHz = period, FitFinesse = false }).Calibration;
+                var mid = 0.5 * (axis.Axis.XMin + axis.Axis.XMax);
+                var scale = check.Axis.Derivative(mid) / axis.Axis.Derivative(mid);
+                // with few peaks the pattern can settle on a multiple of the spacing; the numbered axis (and the
+                // alternation check above) then stands, without this evidence
+                if (check.PeriodDecision is { } d && Math.Abs(d.PeriodHz / period - 1) < 1e-9 && Math.Abs(scale - 1) < 0.05)
+                    axis = axis with { PeriodDecision = d };
+            }
+            catch (InputException)
+            {
+                // the pattern alone does not decide here (too few peaks): the numbered axis stands on its own
+            }
+        }
+
         var finesse = FinesseFit.FromSweep(sweep, axis.Axis, period, instrument.Finesse);
         if (finesse is not null) warnings.AddRange(finesse.Warnings.Select(w => $"{sweep.Name}: {w}"));
         var measured = finesse is { Consistent: true } ? finesse.Finesse : axis.Finesse;
