@@ -200,4 +200,29 @@ public sealed class PeriodDecisionTests(ITestOutputHelper output)
         Assert.NotNull(c.Finesse);
         Assert.InRange(c.Finesse!.Value, 30 * 0.8, 30 * 1.2);
     }
+
+    [Fact]
+    public void Calibration_files_keep_the_families_and_whether_the_finesse_was_measured()
+    {
+        var inst = Instrument.FromLength("cav", 0.055, CavityGeometry.Planar, 142) with
+        {
+            Families = [new CavityModeFamily(1, 0.5319, 1.85, "measured")],
+            FinesseMeasured = false,
+        };
+        var path = Path.Combine(Path.GetTempPath(), $"ou-cal-{Guid.NewGuid():N}.json");
+        try
+        {
+            CalibrationFile.Write(path, new CalibrationSet([inst], [], "test"));
+            var back = CalibrationFile.Read(path).Instruments.Single();
+            var f = Assert.Single(back.Families);
+            Assert.Equal(1, f.N);
+            Assert.Equal(0.5319, f.GouyOffsetFsr, 12);
+            Assert.Equal(1.85, f.RelativeHeight, 12);
+            Assert.False(back.FinesseMeasured);
+        }
+        finally
+        {
+            File.Delete(path);
+        }
+    }
 }
