@@ -1102,14 +1102,34 @@ public static class LineRefiner
     /// </summary>
     internal readonly record struct LineShape(double Area, double Fc, double PiOverFsr)
     {
+        /// <summary>The cavity's transverse families (offset o_N·FSR in Hz, relative height), part of the response; null when none.</summary>
+        public (double ShiftHz, double Height)[]? Families { get; init; }
+
         public static LineShape For(Instrument inst, double width)
         {
             var lw = inst.LinewidthHz;
             var finesse = width > 0 ? inst.FsrHz / (lw + width) : inst.Finesse;
-            return new LineShape(width > 0 ? lw / (lw + width) : 1.0, Airy.CoefficientOfFinesse(finesse), Math.PI / inst.FsrHz);
+            return new LineShape(width > 0 ? lw / (lw + width) : 1.0, Airy.CoefficientOfFinesse(finesse), Math.PI / inst.FsrHz)
+            {
+                Families = inst.Families.Count == 0 ? null : inst.Families.Select(f => (f.GouyOffsetFsr * inst.FsrHz, f.RelativeHeight)).ToArray(),
+            };
         }
 
         public (double T, double dT) Evaluate(double delta)
+        {
+            var (t, dt) = Peak(delta);
+            if (Families is { } fams)
+                foreach (var (shift, height) in fams)
+                {
+                    var (tf, dtf) = Peak(delta - shift);
+                    t += height * tf;
+                    dt += height * dtf;
+                }
+
+            return (t, dt);
+        }
+
+        private (double T, double dT) Peak(double delta)
         {
             var (s, c) = Math.SinCos(PiOverFsr * delta);
             var t = 1 / (1 + Fc * s * s);

@@ -57,6 +57,16 @@ public sealed record AxisCalibration(
     /// <summary>The Airy fits behind <see cref="Finesse"/> when the finesse was fitted to isolated peaks.</summary>
     public FinesseEstimate? FinesseDetail { get; init; }
 
+    /// <summary>How the period (FSR in scan units) was decided from the peak pattern, with the candidates and the cavity's
+    /// transverse families; null when the axis was not decided that way.</summary>
+    public PeriodDecision? PeriodDecision { get; init; }
+
+    /// <summary>Transverse families of the cavity found with the period (offsets measured); empty when none.</summary>
+    public IReadOnlyList<CavityModeFamily> Families => PeriodDecision?.Families ?? [];
+
+    /// <summary>True when <see cref="Finesse"/> was measured from the peaks (false: none measured here).</summary>
+    public bool FinesseMeasured => Finesse is not null;
+
     /// <summary>Transverse-mode families seen in a calibration sweep, when checked.</summary>
     public TransverseModeReport? TransverseModes { get; init; }
 }
@@ -120,7 +130,9 @@ public static class AxisCalibrator
         {
             var floor = 1e-5 * fsr;
             var bestBic = double.PositiveInfinity;
-            var maxDegree = Math.Min(MaxAutoDegree, n - 2);
+            // three peaks (two FSRs) already show the piezo's curvature: a quadratic through them gives each interval its
+            // own FSR in scan units, where a line would force one mean spacing on both (without a degree of freedom left)
+            var maxDegree = Math.Min(MaxAutoDegree, n == 3 ? 2 : n - 2);
             for (var deg = 1; deg <= Math.Max(1, maxDegree); deg++)
             {
                 var fit = AxisPolynomial.Fit(px, pf, deg);

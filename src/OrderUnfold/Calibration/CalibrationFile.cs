@@ -35,6 +35,8 @@ public static class CalibrationFile
                 ["finesse"] = i.Finesse,
                 ["length_m"] = i.LengthM,
                 ["refractive_index"] = i.RefractiveIndex,
+                ["finesse_measured"] = i.FinesseMeasured,
+                ["transverse_families"] = CalibrationReport.FamiliesNode(i.Families),
             }).ToArray()),
             ["axes"] = new JsonArray(set.Axes.Select(a => (JsonNode)new JsonObject
             {
@@ -52,6 +54,7 @@ public static class CalibrationFile
                 ["points"] = a.PointCount,
                 ["finesse"] = Finite(a.Finesse),
                 ["finesse_sigma"] = Finite(a.FinesseSigma),
+                ["period_decision"] = CalibrationReport.PeriodDecisionNode(a.PeriodDecision),
             }).ToArray()),
         };
         return o.ToJsonString(new JsonSerializerOptions { WriteIndented = true }) + "\n";
@@ -85,7 +88,12 @@ public static class CalibrationFile
                 (double)n["finesse"]!,
                 Enum.Parse<CavityGeometry>((string)n["geometry"]!, ignoreCase: true),
                 (double?)n["length_m"],
-                (double?)n["refractive_index"] ?? 1.0)).ToList();
+                (double?)n["refractive_index"] ?? 1.0)
+            {
+                FinesseMeasured = (bool?)n["finesse_measured"] ?? true,
+                Families = n["transverse_families"]?.AsArray().Select(f => new CavityModeFamily((int)f!["n"]!, (double)f["gouy_offset_fsr"]!,
+                    (double)f["relative_height"]!, ((string?)f["basis"] ?? "measured") + " (reused)")).ToList() ?? [],
+            }).ToList();
             var axes = o["axes"]!.AsArray().Select(n =>
             {
                 var poly = new AxisPolynomial(n!["coefficients_hz"]!.AsArray().Select(c => (double)c!).ToArray(),
@@ -116,7 +124,9 @@ public static class CalibrationFile
             var cal = set.Instruments.FirstOrDefault(i => i.Name == spec.Name)
                       ?? throw new InputException($"the calibration has no instrument '{spec.Name}' (it has: {string.Join(", ", set.Instruments.Select(i => i.Name))}); it was made for another setup", path);
             var stated = spec.ToInstrument().FsrHz;
-            if (Math.Abs(cal.FsrHz / stated - 1) > 0.01)
+            // a stated confocal FSR (c/4L) that the data showed to be c/2L (a resolved odd family) is the same instrument
+            var doubled = spec.Geometry == CavityGeometry.Confocal && Math.Abs(cal.FsrHz / stated - 2) < 0.02 && cal.Families.Any(f => f.N == 1);
+            if (Math.Abs(cal.FsrHz / stated - 1) > 0.01 && !doubled)
                 throw new InputException($"the calibration's instrument '{spec.Name}' has FSR {Units.Quantity.FormatFrequency(cal.FsrHz)}, the setup states {Units.Quantity.FormatFrequency(stated)}: the calibration was made for another instrument", path);
         }
     }

@@ -97,6 +97,7 @@ public static class CalibrationReport
                 ["profile_detuning_fwhm"] = f.Profile is null ? null : new JsonArray(f.Profile.DetuningFwhm.Select(v => N(v)).ToArray()),
                 ["profile_measured"] = f.Profile is null ? null : new JsonArray(f.Profile.Measured.Select(v => N(v)).ToArray()),
             },
+            ["period_decision"] = PeriodDecisionNode(a.PeriodDecision),
             ["transverse_modes"] = t is null ? null : new JsonObject
             {
                 ["main_peaks"] = t.MainPeaks,
@@ -150,4 +151,38 @@ public static class CalibrationReport
     };
 
     private static JsonNode? N(double? v) => v is double d && double.IsFinite(d) ? JsonValue.Create(d) : null;
+
+    /// <summary>The period decision as JSON (candidates and scores, basis, families); null when none was made.</summary>
+    public static JsonNode? PeriodDecisionNode(PeriodDecision? d) => d is null ? null : new JsonObject
+    {
+        ["period_scan_units"] = Num(d.PeriodScan),
+        ["period_hz"] = Num(d.PeriodHz),
+        ["stated_fsr_hz"] = Num(d.StatedFsrHz),
+        ["basis"] = d.Basis,
+        ["fundamental"] = d.Fundamental,
+        ["candidates"] = new JsonArray(d.Candidates.Select(c => (JsonNode)new JsonObject
+        {
+            ["label"] = c.Label,
+            ["period_scan_units"] = Num(c.PeriodScan),
+            ["explained"] = Num(c.Explained),
+            ["predicted_repeats"] = c.Predictions,
+            ["height_agreement"] = Num(c.HeightAgreement),
+            ["groups"] = c.Groups,
+            ["consistent"] = c.Consistent,
+            ["chosen"] = c.Chosen,
+        }).ToArray()),
+        ["families"] = FamiliesNode(d.Families),
+    };
+
+    /// <summary>Transverse families as JSON: index, Gouy offset and apparent offset (fractions of the FSR), relative height, basis.</summary>
+    public static JsonArray FamiliesNode(IEnumerable<CavityModeFamily> families) => new(families.Select(f => (JsonNode)new JsonObject
+    {
+        ["n"] = f.N,
+        ["gouy_offset_fsr"] = Num(f.GouyOffsetFsr),
+        ["apparent_offset_fsr"] = Num(f.ApparentOffsetFsr),
+        ["relative_height"] = Num(f.RelativeHeight),
+        ["basis"] = f.Basis,
+    }).ToArray());
+
+    private static JsonNode? Num(double v) => double.IsFinite(v) ? JsonValue.Create(v) : null;
 }

@@ -1,5 +1,6 @@
 using OrderUnfold.Instruments;
 using OrderUnfold.Io;
+using OrderUnfold.Units;
 
 namespace OrderUnfold.Calibration;
 
@@ -76,6 +77,27 @@ public static class CalibrationSteps
             }
         }
 
+        // the period decision on the calibration sweep's own peak pattern (candidates, families) as evidence; kept when
+        // it agrees with the numbered axis (same period in Hz, scale within 5 %)
+        if (axis.PeriodDecision is null && axis.PointCount >= 2)
+        {
+            try
+            {
+                var check = SelfCalibrator.Calibrate(PrepareForPeakFinding(sweep, instrument), instrument,
+                    new SelfCalibrationOptions { PeriodHz = period, FitFinesse = false }).Calibration;
+                var mid = 0.5 * (axis.Axis.XMin + axis.Axis.XMax);
+                var scale = check.Axis.Derivative(mid) / axis.Axis.Derivative(mid);
+                // with few peaks the pattern can settle on a multiple of the spacing; the numbered axis (and the
+                // alternation check above) then stands, without this evidence
+                if (check.PeriodDecision is { } d && Math.Abs(d.PeriodHz / period - 1) < 1e-9 && Math.Abs(scale - 1) < 0.05)
+                    axis = axis with { PeriodDecision = d };
+            }
+            catch (InputException)
+            {
+                // the pattern alone does not decide here (too few peaks): the numbered axis stands on its own
+            }
+        }
+
         var finesse = FinesseFit.FromSweep(sweep, axis.Axis, period, instrument.Finesse);
         if (finesse is not null) warnings.AddRange(finesse.Warnings.Select(w => $"{sweep.Name}: {w}"));
         var measured = finesse is { Consistent: true } ? finesse.Finesse : axis.Finesse;
@@ -113,12 +135,13 @@ public static class CalibrationSteps
         {
             if (!instruments.TryGetValue(spec.Instrument, out var inst)) continue; // the pipeline reports the unknown name
             var mine = fromSweeps.Where(c => c.Instrument == spec.Instrument).ToList();
-            // ring-down (issue 14): fast-swept peaks that ring are fitted with the swept-cavity model and the peak finding
-            // below sees each one as its static response at the resonance crossing; other sweeps pass unchanged
-            var ringdown = RingdownHandling.PrepareAll(readSegments(spec.File));
-            foreach (var prepared in ringdown)
+            var failed = new List<(Sweep Segment, InputException Error)>();
+            var done = new List<AxisCalibration>();
+            // ring-down: fast-swept peaks that ring are fitted with the swept-cavity model and the peak finding below sees
+            // each one as its static response at the resonance crossing; other sweeps pass unchanged (RingdownHandling.cs)
+            foreach (var ring in RingdownHandling.PrepareAll(readSegments(spec.File)))
             {
-                var seg = prepared.Sweep;
+                var seg = ring.Sweep;
                 var exact = mine.FirstOrDefault(c => c.Direction == seg.Direction);
                 AxisCalibration? companion = null;
                 if (exact is not null)
@@ -128,21 +151,138 @@ public static class CalibrationSteps
                 }
 
                 progress?.Report($"self-calibrating {seg.Name} from its repeats one FSR apart");
+                // the place where a sweep's signal goes into peak finding: a signal filter (e.g. for ring-down) applies here
+                var prepared = PrepareForPeakFinding(seg, inst);
                 try
                 {
-                    var result = SelfCalibrator.Calibrate(seg, inst, new SelfCalibrationOptions { Companion = companion });
-                    var calibration = RingdownHandling.Annotate(result.Calibration, prepared, inst.FsrHz); // finesse from the decay time when the peaks ring
+                    var result = SelfCalibrator.Calibrate(prepared, inst, new SelfCalibrationOptions { Companion = companion });
+                    var calibration = RingdownHandling.Annotate(result.Calibration, ring, inst.FsrHz); // finesse from the decay time when the peaks ring
                     calibrations.Add(calibration);
+                    done.Add(calibration);
                     warnings.AddRange(calibration.Warnings);
                 }
                 catch (InputException e)
                 {
                     var fallback = exact ?? mine.FirstOrDefault(c => c.Direction == RampDirection.Single || seg.Direction == RampDirection.Single);
                     if (fallback is null)
-                        throw new InputException($"{e.Message} (no [[calibration]] sweep for instrument '{spec.Instrument}' to fall back on)", e.File ?? spec.File.Path, e.Line, e.Column, e);
+                    {
+                        failed.Add((seg, e));
+                        continue;
+                    }
+
                     warnings.Add($"{seg.Name}: self-calibration failed, using the {fallback.Method} instead: {e.Message}");
                 }
             }
+
+            // a segment that cannot be self-calibrated (often a partial ramp at the start or end of the record) uses the
+            // axis of another segment of the same ramp direction in the same file, with a warning naming why
+            foreach (var (seg, e) in failed)
+            {
+                var sibling = done.FirstOrDefault(c => c.Direction == seg.Direction);
+                if (sibling is null)
+                {
+                    var others = failed.Where(f => f.Segment.Direction == seg.Direction && !ReferenceEquals(f.Segment, seg)).Select(f => f.Error.Message).ToList();
+                    var also = others.Count == 0 ? "" : $"; the other {others.Count} segment(s) of that direction failed too: {string.Join(" | ", others)}";
+                    throw new InputException($"{e.Message} (no [[calibration]] sweep for instrument '{spec.Instrument}' and no other {seg.Direction.ToString().ToLowerInvariant()}-ramp segment of this file to fall back on{also})", e.File ?? spec.File.Path, e.Line, e.Column, e);
+                }
+                warnings.Add($"{seg.Name}: self-calibration failed, using the axis of {sibling.Source} (same ramp direction) instead: {e.Message}");
+            }
+        }
+    }
+
+    /// <summary>
+    /// The one place where a sweep's signal is prepared before peak finding in the calibration flow, after the ring-down
+    /// preparation (Calibration/RingdownHandling.cs) that the callers apply to a file's segments together.
+    /// </summary>
+    public static Sweep PrepareForPeakFinding(Sweep sweep, Instrument instrument) => sweep;
+
+    /// <summary>
+    /// Carries what the calibrations measured about each cavity into its instrument: the period decided from the peak
+    /// pattern (the FSR, when the data show it is another multiple of the stated one), the transverse families (median
+    /// over the axes that found them; part of the instrument response from here on), and whether the finesse was
+    /// measured. Where it was not, warns, says which value is used and flags the instrument so the refinement can widen
+    /// its uncertainties.
+    /// </summary>
+    /// <exception cref="InputException">The axes of one instrument disagree on the period.</exception>
+    public static void ApplyCavityProperties(IDictionary<string, Instrument> instruments, List<AxisCalibration> calibrations, List<string> warnings,
+        Func<string, bool>? finesseFixed = null)
+    {
+        foreach (var name in instruments.Keys.ToList())
+        {
+            var inst = instruments[name];
+            var mine = calibrations.Where(c => c.Instrument == name).ToList();
+            var decided = mine.Where(c => c.PeriodDecision is not null).Select(c => c.PeriodDecision!).ToList();
+            // the period in Hz (c/4L or c/2L for a stated confocal cavity) is decided by the sweeps whose period explains
+            // every peak; a sweep whose pattern was explained only in part (noise, ring-down) follows them, its axis rescaled
+            var sure = decided.Where(d => d.Candidates.Any(c => c.Chosen && c.Consistent)).ToList();
+            var surePeriods = sure.Select(d => d.PeriodHz).Distinct().ToList();
+            if (surePeriods.Count == 1)
+            {
+                for (var i = 0; i < calibrations.Count; i++)
+                {
+                    var c = calibrations[i];
+                    if (c.Instrument != name || c.PeriodDecision is not { } d || sure.Contains(d) || d.PeriodHz == surePeriods[0]) continue;
+                    var f = surePeriods[0] / d.PeriodHz;
+                    warnings.Add($"{c.Source}: its peak pattern did not decide the FSR; it follows the sweeps that did ({Quantity.FormatFrequency(surePeriods[0])})");
+                    calibrations[i] = c with
+                    {
+                        Axis = c.Axis.Scaled(f),
+                        PointHz = c.PointHz.Select(v => v * f).ToArray(),
+                        ResidualHz = c.ResidualHz.Select(v => v * f).ToArray(),
+                        ResidualRmsHz = c.ResidualRmsHz * f,
+                        AxisSigmaHz = c.AxisSigmaHz * f,
+                        ShapeCovariance = c.ShapeCovariance?.Select(v => v * f * f).ToArray(),
+                        PeriodDecision = d with { PeriodHz = surePeriods[0], Basis = d.Basis + $"; the FSR follows the sweeps that decided it ({Quantity.FormatFrequency(surePeriods[0])})" },
+                    };
+                }
+
+                mine = calibrations.Where(c => c.Instrument == name).ToList();
+                decided = mine.Where(c => c.PeriodDecision is not null).Select(c => c.PeriodDecision!).ToList();
+            }
+
+            var periods = decided.Select(d => d.PeriodHz).Distinct().ToList();
+            if (periods.Count > 1)
+                throw new InputException($"instrument '{name}': the sweeps disagree on the period: {string.Join(" vs ", decided.Select(d => $"{Quantity.FormatFrequency(d.PeriodHz)} ({d.Basis})"))}; " +
+                                         "a [[calibration]] sweep, the mirror radii (mirror_radius) or a stated interval would settle it");
+            if (periods.Count == 1 && Math.Abs(periods[0] / inst.FsrHz - 1) > 1e-9)
+            {
+                warnings.Add($"instrument '{name}': the data decide an FSR of {Quantity.FormatFrequency(periods[0])} instead of the stated {Quantity.FormatFrequency(inst.FsrHz)} ({decided[0].Basis})");
+                // axes not decided from the pattern (calibration sweeps) were made with the stated FSR
+                var factor = periods[0] / inst.FsrHz;
+                for (var i = 0; i < calibrations.Count; i++)
+                {
+                    var c = calibrations[i];
+                    if (c.Instrument != name || c.PeriodDecision is not null) continue;
+                    calibrations[i] = c with
+                    {
+                        Axis = c.Axis.Scaled(factor),
+                        PointHz = c.PointHz.Select(v => v * factor).ToArray(),
+                        ResidualHz = c.ResidualHz.Select(v => v * factor).ToArray(),
+                        ResidualRmsHz = c.ResidualRmsHz * factor,
+                        AxisSigmaHz = c.AxisSigmaHz * factor,
+                        ShapeCovariance = c.ShapeCovariance?.Select(v => v * factor * factor).ToArray(),
+                    };
+                }
+
+                inst = inst with { FsrHz = periods[0] };
+            }
+
+            // families: the median offset and height per family index over the axes that found them
+            var families = decided.SelectMany(d => d.Families).GroupBy(f => f.N).OrderBy(g => g.Key)
+                .Select(g =>
+                {
+                    var off = g.Select(f => f.GouyOffsetFsr).OrderBy(v => v).ElementAt(g.Count() / 2);
+                    var h = g.Select(f => f.RelativeHeight).OrderBy(v => v).ElementAt(g.Count() / 2);
+                    return new CavityModeFamily(g.Key, off, h, g.First().Basis);
+                }).ToList();
+            if (families.Count > 0)
+                warnings.Add($"instrument '{name}': transverse families of the cavity are part of its response (not source lines): " +
+                             string.Join(", ", families.Select(f => $"N={f.N} at {f.ApparentOffsetFsr:F4} FSR after TEM00, {100 * f.RelativeHeight:F0} % of its height")));
+
+            var measured = mine.Any(c => c.Finesse is not null);
+            if (!measured && !(finesseFixed?.Invoke(name) ?? false))
+                warnings.Add($"instrument '{name}': the finesse could not be measured from the peaks (no isolated peak fitted the Airy profile consistently; see the warnings of its sweeps); the stated value {inst.Finesse:F0} is used and the line uncertainties are widened");
+            instruments[name] = inst with { Families = families, FinesseMeasured = measured };
         }
     }
 

@@ -62,10 +62,10 @@ public static class FinesseFit
 
     /// <summary>Fits one peak. <paramref name="frequencyHz"/> is the calibrated axis at each sample; null when the fit fails.</summary>
     public static PeakProfileFit? FitPeak(IReadOnlyList<double> frequencyHz, IReadOnlyList<double> signal, double centerHz, double fwhmGuessHz,
-        double periodHz, double noiseSigma, double x = double.NaN)
+        double periodHz, double noiseSigma, double x = double.NaN, double halfWindowFwhm = HalfWindowFwhm)
     {
         if (!(fwhmGuessHz > 0) || !(periodHz > 0) || !(noiseSigma > 0)) return null;
-        var half = Math.Min(HalfWindowFwhm * fwhmGuessHz, 0.45 * periodHz);
+        var half = Math.Min(halfWindowFwhm * fwhmGuessHz, 0.45 * periodHz);
         var idx = new List<int>();
         for (var i = 0; i < frequencyHz.Count; i++)
             if (Math.Abs(frequencyHz[i] - centerHz) <= half && double.IsFinite(signal[i])) idx.Add(i);
@@ -135,8 +135,16 @@ public static class FinesseFit
         if (peaks.Count == 0) return null;
         var noise = PeakFinder.NoiseSigma(sweep.Y);
         if (!(noise > 0)) return null;
-        var lo = axis.XMin - 0.02 * (axis.XMax - axis.XMin);
-        var hi = axis.XMax + 0.02 * (axis.XMax - axis.XMin);
+        // the calibrated range plus a few peak widths: a peak at the end of the range (a sweep of little more than one
+        // period has its only peaks there) is fitted on the axis extrapolated over a few linewidths
+        var widestX = peaks.Select(p =>
+        {
+            var i = (int)Math.Clamp(Math.Round(p.Position), 1, sweep.Count - 2);
+            return p.WidthSamples * Math.Abs(sweep.X[i + 1] - sweep.X[i - 1]) / 2;
+        }).Max();
+        var margin = Math.Max(0.02 * (axis.XMax - axis.XMin), (HalfWindowFwhm + 2) * widestX);
+        var lo = axis.XMin - margin;
+        var hi = axis.XMax + margin;
         var inRange = Enumerable.Range(0, sweep.Count).Where(i => sweep.X[i] >= lo && sweep.X[i] <= hi).ToArray();
         if (inRange.Length < 16) return null;
         var freq = inRange.Select(i => axis.Evaluate(sweep.X[i])).ToArray();
@@ -160,9 +168,11 @@ public static class FinesseFit
             var reach = (HalfWindowFwhm + 1.5) * q.Fwhm;
             var crowded = info.Any(o => !ReferenceEquals(o.Peak, q.Peak) && o.Peak.Height > 0.03 * q.Peak.Height && Math.Abs(o.F - q.F) < reach);
             if (crowded) continue;
-            // stay inside the record: the whole window must be sampled
-            if (Math.Abs(q.F - freq.Min()) < HalfWindowFwhm * q.Fwhm || Math.Abs(freq.Max() - q.F) < HalfWindowFwhm * q.Fwhm) continue;
-            var fit = FitPeak(freq, sig, q.F, q.Fwhm, periodHz, noise, q.Peak.X);
+            // stay inside the record: the whole window must be sampled; near the ends of a short record the window
+            // shrinks to what the record holds, down to 2 FWHM on each side (still the whole peak and its wings)
+            var room = Math.Min(Math.Abs(q.F - freq.Min()), Math.Abs(freq.Max() - q.F)) / q.Fwhm;
+            if (room < 2) continue;
+            var fit = FitPeak(freq, sig, q.F, q.Fwhm, periodHz, noise, q.Peak.X, Math.Min(HalfWindowFwhm, room));
             if (fit is null) continue;
             // a fit far outside the noise is not an Airy peak (a blend of lines, a shoulder): kept aside
             if (fit.ReducedChiSquare > 25)
@@ -184,13 +194,31 @@ public static class FinesseFit
             warnings.Add($"no peak fits the Airy profile within its noise (reduced χ² {poor.Min(p => p.ReducedChiSquare):F0} at best): the finesse below is only an effective width");
         }
 
+        var blended = false;
+        if (fits.Count == 0)
+        {
+            // no isolated peak: fit the tallest blend of peaks (lines closer than a few widths) jointly, every peak with
+            // its own centre and height and one common finesse
+            var blend = FitBlend(freq, sig, info.Select(q => (q.F, q.Fwhm, q.Peak.Height, q.Peak.X)).ToList(), periodHz, noise);
+            if (blend is not null)
+            {
+                blended = true;
+                fits.Add(blend);
+                samplesPerFwhm.Add(info.Average(q => q.Peak.WidthSamples));
+                warnings.Add($"no isolated peak: the finesse is fitted jointly to a blend of {blend.DetuningHz.Length} samples around the tallest peak (reduced χ² {blend.ReducedChiSquare:F1})");
+            }
+        }
+
         if (fits.Count == 0) return null;
         var weights = fits.Select(p => 1 / (p.FinesseSigma * p.FinesseSigma)).ToArray();
         var sw = weights.Sum();
         var mean = fits.Select((p, i) => weights[i] * p.Finesse).Sum() / sw;
         var scatter = fits.Count > 1 ? fits.Select((p, i) => weights[i] * (p.Finesse - mean) * (p.Finesse - mean)).Sum() / (fits.Count - 1) : 1.0;
         var sigma = Math.Sqrt(1 / sw) * Math.Sqrt(Math.Max(1, scatter));
-        var scattered = fits.Count >= 3 && scatter > 6;
+        // peaks that disagree beyond their (small) noise but only by a few per cent still measure the finesse: the
+        // scatter then sets its uncertainty (σ above is inflated by it); a spread of more than 10 % RMS is not one finesse
+        var spread = fits.Count > 1 ? Math.Sqrt(fits.Sum(p => (p.Finesse - mean) * (p.Finesse - mean)) / (fits.Count - 1)) / mean : 0;
+        var scattered = fits.Count >= 3 && scatter > 6 && spread > 0.1;
         var consistent = !scattered && !ReferenceEquals(fits, poor);
         if (scattered)
         {
@@ -203,11 +231,121 @@ public static class FinesseFit
         if (perFwhm < 4)
             warnings.Add($"peaks are only {perFwhm:F1} samples wide (FWHM): the fitted finesse is unreliable; sample faster or sweep fewer FSRs");
 
-        var profile = Profile(fits, mean, periodHz, noise);
+        var profile = blended ? null : Profile(fits, mean, periodHz, noise); // a blend's samples hold its neighbours too
         if (profile is { AiryShaped: false })
             warnings.Add($"the averaged peak is not Airy-shaped (RMS deviation {100 * profile.RmsDeviation:F1} % of the height, asymmetric part {100 * profile.OddRms:F1} %): " +
                          "mirror defects, misalignment or transverse modes; the finesse is an effective value and the fitted line positions may be biased");
         return new FinesseEstimate(mean, sigma, fits, scatter, consistent, profile, warnings) { PeriodHz = periodHz };
+    }
+
+    /// <summary>
+    /// Fits the tallest peak and every peak chained to it within a few widths as a sum of Airy peaks with one common
+    /// finesse (each with its own centre and height, one baseline); null when the blend spans too much of the period,
+    /// has more than eight peaks, or the fit fails.
+    /// </summary>
+    internal static PeakProfileFit? FitBlend(double[] freq, double[] sig, List<(double F, double Fwhm, double Height, double X)> peaks, double periodHz, double noise)
+    {
+        if (peaks.Count == 0) return null;
+        var top = peaks.MaxBy(p => p.Height);
+        var chain = new List<(double F, double Fwhm, double Height, double X)> { top };
+        bool grown;
+        do
+        {
+            grown = false;
+            foreach (var p in peaks)
+            {
+                if (chain.Contains(p)) continue;
+                if (chain.Any(c => Math.Abs(c.F - p.F) < (HalfWindowFwhm + 1.5) * Math.Max(c.Fwhm, p.Fwhm)) && p.Height > 0.03 * top.Height)
+                {
+                    chain.Add(p);
+                    grown = true;
+                }
+            }
+        } while (grown && chain.Count <= 8);
+
+        if (chain.Count > 8) return null;
+        var fwhm = chain.Select(c => c.Fwhm).OrderBy(v => v).ElementAt(chain.Count / 2);
+        var lo = chain.Min(c => c.F) - HalfWindowFwhm * fwhm;
+        var hi = chain.Max(c => c.F) + HalfWindowFwhm * fwhm;
+        if (hi - lo > 0.9 * periodHz || lo < freq.Min() || hi > freq.Max()) return null;
+        var idx = Enumerable.Range(0, freq.Length).Where(i => freq[i] >= lo && freq[i] <= hi && double.IsFinite(sig[i])).ToArray();
+        var k = chain.Count;
+        if (idx.Length < 2 * k + 4) return null;
+        var f = idx.Select(i => freq[i]).ToArray();
+        var y = idx.Select(i => sig[i]).ToArray();
+        var m = f.Length;
+        var baseline0 = y.Min();
+
+        void Eval(double[] p, double[] r, double[,]? jac)
+        {
+            var fin = p[2 * k + 1];
+            var kk = Airy.CoefficientOfFinesse(fin);
+            var dk = 8 * fin / (Math.PI * Math.PI);
+            for (var i = 0; i < m; i++)
+            {
+                var model = p[2 * k];
+                double dFin = 0;
+                for (var q = 0; q < k; q++)
+                {
+                    var phase = Math.PI * (f[i] - p[2 * q]) / periodHz;
+                    var sn = Math.Sin(phase);
+                    var cs = Math.Cos(phase);
+                    var d = 1 + kk * sn * sn;
+                    var a = p[2 * q + 1];
+                    model += a / d;
+                    if (jac is null) continue;
+                    jac[i, 2 * q] = a * kk * 2 * sn * cs * (Math.PI / periodHz) / (d * d) / noise;
+                    jac[i, 2 * q + 1] = 1 / d / noise;
+                    dFin += -a * sn * sn * dk / (d * d);
+                }
+
+                r[i] = (y[i] - model) / noise;
+                if (jac is null) continue;
+                jac[i, 2 * k] = 1 / noise;
+                jac[i, 2 * k + 1] = dFin / noise;
+            }
+        }
+
+        var start = new double[2 * k + 2];
+        var lower = new double[2 * k + 2];
+        var upper = new double[2 * k + 2];
+        for (var q = 0; q < k; q++)
+        {
+            start[2 * q] = chain[q].F;
+            start[2 * q + 1] = Math.Max(chain[q].Height, 1e-12);
+            lower[2 * q] = chain[q].F - fwhm;
+            upper[2 * q] = chain[q].F + fwhm;
+            lower[2 * q + 1] = 0;
+            upper[2 * q + 1] = double.PositiveInfinity;
+        }
+
+        start[2 * k] = baseline0;
+        lower[2 * k] = double.NegativeInfinity;
+        upper[2 * k] = double.PositiveInfinity;
+        start[2 * k + 1] = Math.Max(1.5, periodHz / fwhm);
+        lower[2 * k + 1] = 1.0;
+        upper[2 * k + 1] = 1e7;
+        var result = DampedLeastSquares.Minimize(Eval, start, m, maxIterations: 100, lower: lower, upper: upper);
+        var pr = result.Parameters;
+        if (result.Covariance is null) return null;
+        var reduced = result.ChiSquare / Math.Max(1, m - start.Length);
+        var sigma = Math.Sqrt(Math.Max(0, result.Covariance[2 * k + 1, 2 * k + 1]) * Math.Max(1, reduced));
+        if (!double.IsFinite(sigma) || !(pr[2 * k + 1] > 1)) return null;
+        // the profile record describes the tallest peak of the blend
+        var tq = chain.IndexOf(top);
+        var kk2 = Airy.CoefficientOfFinesse(pr[2 * k + 1]);
+        var model = f.Select(v =>
+        {
+            var t = pr[2 * k];
+            for (var q = 0; q < k; q++)
+            {
+                var sn = Math.Sin(Math.PI * (v - pr[2 * q]) / periodHz);
+                t += pr[2 * q + 1] / (1 + kk2 * sn * sn);
+            }
+
+            return t;
+        }).ToArray();
+        return new PeakProfileFit(top.X, pr[2 * tq], pr[2 * tq + 1], pr[2 * k], pr[2 * k + 1], sigma, reduced, f.Select(v => v - pr[2 * tq]).ToArray(), y, model);
     }
 
     /// <summary>Averages the fitted peaks on a common detuning grid (units of the fitted FWHM), normalised to height 1.</summary>

@@ -99,8 +99,10 @@ public sealed record PeriodCandidate(double PeriodSamples, int Pairs, double Cov
 /// </summary>
 public static class SelfCalibrator
 {
-    /// <summary>Fewest FSRs (as estimated from the peak widths and the stated finesse) a sweep must span.</summary>
-    public const double MinSpanFsr = 1.15;
+    /// <summary>A period that explains fewer of its predicted repeats than this is not used, even when it beats its half and
+    /// double (between this and <see cref="PeriodDecider.MinExplained"/> it is kept with a warning).</summary>
+    public const double MinExplainedToKeep = 0.7;
+
 
 
     /// <summary>Self-calibrates one sweep segment (x relative to the segment start for time scans).</summary>
@@ -126,7 +128,6 @@ public static class SelfCalibrator
                                      "Check the signal column, or add a [[calibration]] sweep for this instrument", sweep.Source);
 
         var medianWidthSamples = Median(found.Select(p => p.WidthSamples));
-        var estimatedSpan = sweep.Count / Math.Max(1e-9, instrument.Finesse * medianWidthSamples * period / instrument.FsrHz);
 
         // starting axis, and the candidate periods it allows
         var companionPairs = CompanionPairs(options.Companion, instrument);
@@ -142,9 +143,14 @@ public static class SelfCalibrator
             initialPeriodSamples = SamplesPerPeriod(sweep, axis0, period);
         }
 
+        // starts from the sweep's own autocorrelation over every lag, and (a hint only) over the lags the stated
+        // finesse and the peak widths suggest; the pairs decide between them
+        var hint = instrument.Finesse * medianWidthSamples * period / instrument.FsrHz;
+        InputException? correlationError = null;
+        foreach (var prior in new double?[] { null, hint > 3 * medianWidthSamples && hint < sweep.Count ? hint : null }.Distinct())
         try
         {
-            var (axis0, rms0, lag) = StartFromCorrelation(sweep, instrument, period, delta, medianWidthSamples, estimatedSpan);
+            var (axis0, rms0, lag) = StartFromCorrelation(sweep, instrument, period, delta, medianWidthSamples, prior);
             if (double.IsNaN(initialPeriodSamples)) initialPeriodSamples = lag;
             // A source whose folded pattern nearly repeats within one FSR correlates almost as well at a fraction of
             // the period, and every pattern repeats at multiples of it: try the multiples that fit in the sweep and
@@ -152,14 +158,17 @@ public static class SelfCalibrator
             foreach (var k in new[] { 1.0, 2, 3, 4, 0.5 })
             {
                 var lagK = k * lag;
-                if (lagK > sweep.Count / MinSpanFsr || lagK < 3 * medianWidthSamples) continue;
+                if (lagK > sweep.Count - 2 * medianWidthSamples || lagK < 3 * medianWidthSamples) continue;
                 starts.Add((axis0.Scaled(1 / k), rms0 / k));
             }
         }
-        catch (InputException) when (starts.Count > 0)
+        catch (InputException e)
         {
-            // no repeat period in the sweep's own autocorrelation: the given axis remains the only start
+            // no repeat period in the sweep's own autocorrelation: the other starts remain
+            correlationError ??= e;
         }
+
+        if (starts.Count == 0) throw correlationError ?? NoRepeats(sweep, instrument, period, peaks.Count);
 
         var runs = new List<Run>();
         InputException? firstError = null;
@@ -175,9 +184,46 @@ public static class SelfCalibrator
             }
         }
 
-        if (runs.All(r => r.Fit is null)) throw firstError ?? NoRepeats(sweep, instrument, period, estimatedSpan, peaks.Count);
+        if (runs.All(r => r.Fit is null)) throw firstError ?? NoRepeats(sweep, instrument, period, peaks.Count);
         var chosen = Choose(runs, peaks, delta, xLo, xHi);
-        if (chosen.Fit is null || chosen.Pairs.Count == 0) throw NoRepeats(sweep, instrument, period, estimatedSpan, peaks.Count);
+        if (chosen.Fit is null || chosen.Pairs.Count == 0) throw NoRepeats(sweep, instrument, period, peaks.Count);
+
+        // the period from the whole peak pattern: the half and the double of the chosen period are tested explicitly;
+        // a consistent shorter period replaces the chosen one, and a pattern no candidate explains is refused
+        PeriodDecision? decision = null;
+        for (var attempt = 0; attempt < 2; attempt++)
+        {
+            var (d, adoptFactor) = DecidePeriod(chosen, runs, peaks, sweep, instrument, period, xLo, xHi);
+            decision = d;
+            if (adoptFactor is not double k) break;
+            Run? adopted = null;
+            try
+            {
+                adopted = Rounds(peaks, companionPairs, chosen.Fit!.Axis.Scaled(1 / k), Math.Max(chosen.Fit.AxisSigmaHz, 0.01 * period), delta, sweep, options, xLo, xHi, noise);
+            }
+            catch (InputException)
+            {
+                adopted = null;
+            }
+
+            if (adopted?.Fit is null || adopted.Pairs.Count(c => c.Used) == 0)
+                throw Undecided(sweep, d, $"a period {k:G3} times the first explains the peaks but its repeats could not be fitted");
+            runs.Add(adopted);
+            chosen = adopted;
+        }
+
+        if (decision is not null && decision.Candidates.FirstOrDefault(c => c.Chosen) is { Consistent: false } mine)
+        {
+            // the chosen period does not explain every repeat (a mode hop, a dense pattern of similar lines): keep it only
+            // when it explains clearly more than its half and its double; otherwise the evidence does not decide
+            var rival = decision.Candidates.Where(c => c.Label is "half" or "double").MaxBy(c => c.Explained)!;
+            if (rival.Explained >= mine.Explained - 0.1)
+                throw Undecided(sweep, decision, $"the {rival.Label} period explains the peak pattern about as well as the chosen one");
+            if (mine.Explained < MinExplainedToKeep)
+                throw Undecided(sweep, decision, $"the best period explains only {mine.Explained:P0} of the repeats its peak groups predict");
+            warnings.Add($"{sweep.Name}: the period explains only {mine.Explained:P0} of the repeats its peak groups predict (its {rival.Label} {rival.Explained:P0}): " +
+                         "the source may have changed during the sweep, or some peaks are not source lines; a [[calibration]] sweep would settle the scale");
+        }
         var pairs = chosen.Pairs;
         var fit = chosen.Fit;
         var scores = chosen.Scores;
@@ -241,11 +287,120 @@ public static class SelfCalibrator
             AxisSigmaHz = fit.AxisSigmaHz,
             ShapeCovariance = fit.ShapeCovariance,
             FinesseDetail = finesse,
+            PeriodDecision = decision,
         };
+        if (decision is not null && Math.Abs(decision.PeriodHz / period - 1) > 1e-9)
+        {
+            // the data say the period is another multiple of the stated FSR (a near-confocal cavity whose TEM00 repeats
+            // every c/2L): the whole axis scales with it
+            var factor = decision.PeriodHz / period;
+            calibration = calibration with
+            {
+                Axis = calibration.Axis.Scaled(factor),
+                PointHz = calibration.PointHz.Select(v => v * factor).ToArray(),
+                ResidualHz = calibration.ResidualHz.Select(v => v * factor).ToArray(),
+                ResidualRmsHz = calibration.ResidualRmsHz * factor,
+                AxisSigmaHz = calibration.AxisSigmaHz * factor,
+                ShapeCovariance = calibration.ShapeCovariance?.Select(v => v * factor * factor).ToArray(),
+                Warnings = calibration.Warnings.Append($"{sweep.Name}: {decision.Basis}").ToList(),
+            };
+        }
         var reportPairs = allPairs.Select(c => new RepeatPair(c.XA, c.XB, c.HA, c.HB, c.Delta, c.Sigma, c.Origin, c.Residual, c.Used)).ToList();
         var candidates = runs.Select(r => new PeriodCandidate(r.PeriodSamples, r.Pairs.Count(c => c.Used), r.Coverage, r.HeightMismatch, ReferenceEquals(r, chosen))).ToList();
         return new SelfCalibrationResult(calibration, reportPairs, found, scores, fit.AxisSigmaHz, iterations, initialPeriodSamples, candidates);
     }
+
+    // ------------------------------------------------------------------ period decision
+
+    /// <summary>
+    /// Scores the chosen period, its half and its double (and the other starts) against the whole peak pattern
+    /// (<see cref="PeriodDecider"/>), splits the groups at the period into source lines and cavity families, and
+    /// says which factor to adopt instead of the chosen period (null: keep it).
+    /// </summary>
+    private static (PeriodDecision Decision, double? AdoptFactor) DecidePeriod(Run chosen, List<Run> runs, List<P> peaks, Sweep sweep, Instrument instrument,
+        double period, double xLo, double xHi)
+    {
+        var axis = chosen.Fit!.Axis;
+        var tallest = peaks.Max(p => p.Height);
+        var clear = peaks.Where(p => p.Height >= 0.1 * tallest).Select(p => new PeriodDecider.PatternPeak(p.X, p.Height, p.WidthX)).ToList();
+        var f0 = axis.Evaluate(xLo);
+        double U(double x) => (axis.Evaluate(x) - f0) / period;
+        var uLo = Math.Min(U(xLo), U(xHi));
+        var uHi = Math.Max(U(xLo), U(xHi));
+        var mid = 0.5 * (axis.XMin + axis.XMax);
+        var slope = Math.Abs(axis.Derivative(mid));
+        var periodScan = slope > 0 ? period / slope : double.NaN;
+        // positions agree within about a peak width, or three times the axis residual when that is larger
+        var fwhm = Median(clear.Select(p => p.WidthX * Math.Abs(axis.Derivative(p.X)) / period));
+        var rms = chosen.Pairs.Where(c => c.Used).Select(c => c.Residual * c.Residual).DefaultIfEmpty(0).Average();
+        var tol = Math.Clamp(Math.Max(double.IsFinite(fwhm) ? fwhm : 0.01, 3 * Math.Sqrt(rms) / period), 0.005, 0.03);
+
+        var list = new List<(PeriodCandidateScore Score, double K)>();
+        void Add(string label, double k)
+        {
+            if (list.Any(c => Math.Abs(c.K / k - 1) < 0.03)) return;
+            var sc = PeriodDecider.Score(label, periodScan * k, clear, x => U(x) / k, uLo / k, uHi / k, tol / k);
+            list.Add((sc, k));
+        }
+
+        Add("chosen", 1);
+        Add("half", 0.5);
+        Add("double", 2);
+        foreach (var r in runs.Where(r => r.Fit is not null && double.IsFinite(r.PeriodSamples)))
+        {
+            var k = r.PeriodSamples / chosen.PeriodSamples;
+            if (k > 0.2 && k < 5) Add($"start ×{k:F2}", Math.Round(k * 4) / 4 is var q && q > 0 && Math.Abs(q / k - 1) < 0.03 ? q : k);
+        }
+
+        double? adopt = null;
+        var one = list.First(c => c.K == 1);
+        var dbl = list.First(c => c.K == 2);
+        string basis;
+        var shorter = list.Where(c => c.K < 0.97 && c.Score.Consistent && c.Score.Predictions > 0).OrderBy(c => c.K).FirstOrDefault();
+        if (shorter.Score is not null)
+        {
+            adopt = shorter.K;
+            basis = $"a shorter period ({shorter.Score.Label}) explains every peak as well: the shortest consistent period is the period";
+        }
+        else if (one.Score.Consistent)
+        {
+            basis = "the shortest period at which every peak group repeats with the same height";
+        }
+        else if (dbl.Score.Consistent && dbl.Score.Predictions > 0)
+        {
+            adopt = 2;
+            basis = "only the double of the first repeat period explains every peak";
+        }
+        else
+        {
+            basis = "no candidate explains the peak pattern";
+        }
+
+        // groups at the period → source lines and transverse families of the cavity
+        var groups = PeriodDecider.Group(clear, U, tol);
+        var minMembers = uHi - uLo >= 2 ? 2 : 1;
+        var (families, fundamental) = adopt is null ? PeriodDecider.Families(groups, instrument, tol, minMembers) : ([], "");
+
+        // a stated confocal FSR (c/4L) is the peak period only when the odd family is degenerate with TEM00 of the next
+        // order; a resolved odd family near half the period means TEM00 repeats every c/2L, twice the stated FSR
+        var periodHz = period;
+        var odd = families.FirstOrDefault(f => f.N == 1 && Math.Abs(f.ApparentOffsetFsr - 0.5) < 0.06);
+        if (adopt is null && instrument.Geometry == CavityGeometry.Confocal && odd is not null)
+        {
+            periodHz = 2 * period;
+            basis += $"; the odd transverse family sits at {odd.ApparentOffsetFsr:F4} of the period with {100 * odd.RelativeHeight:F0} % of TEM00's height, " +
+                     $"so the cavity is not exactly confocal: TEM00 repeats every c/2L and the FSR is {Quantity.FormatFrequency(periodHz)}, twice the stated {Quantity.FormatFrequency(period)}";
+        }
+
+        var scores = list.Select(c => c.Score with { Chosen = c.K == 1 }).ToList();
+        return (new PeriodDecision(periodScan, periodHz, period, scores, basis, families, fundamental), adopt);
+    }
+
+    private static InputException Undecided(Sweep sweep, PeriodDecision d, string why) =>
+        new($"{sweep.Name}: the period of the sweep is not decided ({why}). Candidates: " +
+            string.Join("; ", d.Candidates.Select(c => $"{c.Label} {c.PeriodScan:G4} scan units (explains {c.Explained:P0} of {c.Predictions} predicted repeats, alternate heights agree {c.HeightAgreement:F2})")) +
+            ". What would settle it: a [[calibration]] sweep with a single-frequency laser, a stated interval between two lines (known_interval in [solve]), " +
+            "the mirror radii of the cavity (mirror_radius), or the other ramp direction", sweep.Source);
 
     // ------------------------------------------------------------------ rounds
 
@@ -365,24 +520,31 @@ public static class SelfCalibrator
     /// of its near-equal multiples) says where its content repeats. Those repeat positions are fitted like pairs.
     /// </summary>
     private static (AxisPolynomial Axis, double RmsHz, double PeriodSamples) StartFromCorrelation(Sweep sweep, Instrument instrument, double period,
-        double delta, double medianWidth, double estimatedSpan)
+        double delta, double medianWidth, double? priorSamples = null)
     {
         var n = sweep.Count;
-        if (estimatedSpan < MinSpanFsr)
-            throw new InputException(
-                $"{sweep.Name}: the sweep covers about {estimatedSpan:F2} FSR (from the peak widths, {medianWidth:F1} samples, and the stated finesse {instrument.Finesse:F0}); " +
-                $"self-calibration needs features that repeat one FSR later, so the sweep must cover at least {MinSpanFsr:F2} FSR: sweep further, or add a [[calibration]] sweep", sweep.Source);
         var baseline = PeakFinder.Percentile(sweep.Y, 0.05);
         var z = new double[n];
         for (var i = 0; i < n; i++) z[i] = double.IsFinite(sweep.Y[i]) ? Math.Max(0, sweep.Y[i] - baseline) : 0;
         var cum = new double[n + 1];
         for (var i = 0; i < n; i++) cum[i + 1] = cum[i] + z[i] * z[i];
 
-        var prior = n / estimatedSpan; // samples per period from the stated finesse
-        var window = Math.Clamp(Math.Max(n / 12, (int)(0.4 * prior)), Math.Max(16, (int)(4 * medianWidth)), Math.Max(16, (int)(0.6 * prior)));
-        var lagMin = Math.Max((int)(3 * medianWidth), (int)(0.3 * prior));
-        var lagMax = (int)Math.Min(n - window - 1, 3.5 * prior);
-        if (lagMax <= lagMin + 2) lagMax = Math.Min(n - window - 1, lagMin + (int)prior);
+        // No prior on the period: neither the stated finesse nor the FSR in Hz says how many samples one period
+        // spans. Every lag from a few peak widths to the end of the sweep is tried; the sums are strided by a
+        // quarter of a peak width (and the best lag refined at full resolution), which bounds the cost.
+        var stride = Math.Max(1, (int)Math.Floor(medianWidth / 4));
+        var window = Math.Max(Math.Max(16, (int)(4 * medianWidth)), n / 12);
+        var lagMin = Math.Max(4, (int)(3 * medianWidth));
+        var lagMax = n - window - 1;
+        if (priorSamples is double prior)
+        {
+            // a hint (from the stated finesse) narrows the search to 0.3–3.5 times it; only a further start, never a limit
+            window = Math.Clamp(Math.Max(n / 12, (int)(0.4 * prior)), Math.Max(16, (int)(4 * medianWidth)), Math.Max(16, (int)(0.6 * prior)));
+            lagMin = Math.Max(lagMin, (int)(0.3 * prior));
+            lagMax = (int)Math.Min(n - window - 1, 3.5 * prior);
+        }
+
+        if (lagMax <= lagMin + 2) throw NoRepeats(sweep, instrument, period, -1);
         var peakZ = z.Max();
         var step = Math.Max(1, window / 2);
         var xs = new List<(double XLo, double XHi, double Weight)>();
@@ -395,19 +557,20 @@ public static class SelfCalibrator
             if (top < 0.15 * peakZ || !(energy > 0)) continue;
             var hi = Math.Min(lagMax, n - window - a);
             if (hi <= lagMin + 2) continue;
-            var c = new double[hi + 1];
-            for (var lag = lagMin; lag <= hi; lag++)
+            var c = new double[hi + 2];
+            double Similarity(int lag, int inner)
             {
                 var s = 0.0;
-                for (var i = a; i < a + window; i++) s += z[i] * z[i + lag];
+                for (var i = a; i < a + window; i += inner) s += z[i] * z[i + lag];
                 var e2 = cum[a + lag + window] - cum[a + lag];
                 // 2⟨u,v⟩/(|u|²+|v|²): 1 only for equal content, lower for look-alikes of another height
-                c[lag] = e2 > 0 ? 2 * s / (energy + e2) : 0;
+                return e2 > 0 ? 2 * s * inner / (energy + e2) : 0;
             }
 
+            for (var lag = lagMin; lag <= hi; lag += stride) c[lag] = Similarity(lag, stride);
             var best = lagMin;
-            for (var lag = lagMin; lag <= hi; lag++) if (c[lag] > c[best]) best = lag;
-            if (c[best] < 0.35) continue;
+            for (var lag = lagMin; lag <= hi; lag += stride) if (c[lag] > c[best]) best = lag;
+            if (c[best] < 0.3) continue;
             // the shortest lag that correlates almost as well: a whole multiple of the period correlates too
             for (var k = 4; k >= 2; k--)
             {
@@ -424,6 +587,17 @@ public static class SelfCalibrator
                 }
             }
 
+            if (stride > 1)
+            {
+                // refine at full resolution around the strided maximum
+                var lo = Math.Max(lagMin, best - stride - 1);
+                var up = Math.Min(hi, best + stride + 1);
+                for (var lag = lo; lag <= up; lag++) c[lag] = Similarity(lag, 1);
+                best = lo;
+                for (var lag = lo; lag <= up; lag++) if (c[lag] > c[best]) best = lag;
+            }
+
+            if (c[best] < 0.35) continue;
             var refined = best;
             double frac = 0;
             if (best > lagMin && best < hi)
@@ -448,12 +622,17 @@ public static class SelfCalibrator
             lagsFound.Add(lagTrue);
         }
 
-        if (xs.Count == 0) throw NoRepeats(sweep, instrument, period, estimatedSpan, -1);
+        if (xs.Count == 0) throw NoRepeats(sweep, instrument, period, -1);
 
-        // robust: drop windows whose lag disagrees with the median by more than 8 %
-        var medLag = Median(lagsFound);
+        // robust: the lag that the most windows agree on (within 8 %), weighted by how well each window repeats
+        // (similarity⁴: a window whose repeat lies beyond the end of the sweep finds only a look-alike, at lower
+        // similarity); windows whose lag disagrees with it are dropped
+        var medLag = Enumerable.Range(0, xs.Count)
+            .Select(i => (Lag: lagsFound[i], Support: Enumerable.Range(0, xs.Count).Where(j => Math.Abs(lagsFound[j] / lagsFound[i] - 1) < 0.08).Sum(j => xs[j].Weight * xs[j].Weight)))
+            .MaxBy(t => t.Support).Lag;
+        medLag = Median(Enumerable.Range(0, xs.Count).Where(i => Math.Abs(lagsFound[i] / medLag - 1) < 0.08).Select(i => lagsFound[i]));
         var keep = Enumerable.Range(0, xs.Count).Where(i => Math.Abs(lagsFound[i] / medLag - 1) < 0.08).ToList();
-        if (keep.Count == 0) throw NoRepeats(sweep, instrument, period, estimatedSpan, -1);
+        if (keep.Count == 0) throw NoRepeats(sweep, instrument, period, -1);
         var cands = keep.Select((i, k) => new Cand(-1 - k, -1 - k, xs[i].XLo, xs[i].XHi, 1, 1, delta, 0.01 * period / Math.Sqrt(xs[i].Weight), "window")).ToList();
         var maxDegree = Math.Min(3, Math.Max(1, cands.Count - 2));
         Fit? bestFit = null;
@@ -472,7 +651,7 @@ public static class SelfCalibrator
             }
         }
 
-        if (bestFit is null) throw NoRepeats(sweep, instrument, period, estimatedSpan, -1);
+        if (bestFit is null) throw NoRepeats(sweep, instrument, period, -1);
         var res = cands.Select(c => c.Delta - (bestFit.Axis.Evaluate(c.XB) - bestFit.Axis.Evaluate(c.XA))).ToList();
         var rms = Math.Sqrt(res.Sum(r => r * r) / res.Count);
         return (bestFit.Axis, Math.Max(rms, 0.003 * period), medLag);
@@ -820,13 +999,13 @@ public static class SelfCalibrator
         }
     }
 
-    private static InputException NoRepeats(Sweep sweep, Instrument instrument, double period, double estimatedSpan, int peakCount)
+    private static InputException NoRepeats(Sweep sweep, Instrument instrument, double period, int peakCount)
     {
         var found = peakCount >= 0 ? $"{peakCount} peaks were found but " : "";
         return new InputException(
-            $"{sweep.Name}: no repeats found: {found}no feature of the sweep recurs one FSR ({Quantity.FormatFrequency(period)}) later " +
-            $"(the sweep spans about {estimatedSpan:F1} FSR by the stated finesse {instrument.Finesse:F0}). Self-calibration needs a stable source and a sweep over more than one FSR; " +
-            "add a [[calibration]] sweep for this instrument, or check the FSR, the finesse and the signal column", sweep.Source);
+            $"{sweep.Name}: no repeats found: {found}no feature of the sweep recurs one period later at any spacing from a few peak widths up to the whole record " +
+            $"(the period sought is the FSR, {Quantity.FormatFrequency(period)}). Self-calibration needs a stable source and a sweep over more than one FSR; " +
+            "add a [[calibration]] sweep for this instrument, or check the signal column", sweep.Source);
     }
 
     // ------------------------------------------------------------------ helpers

@@ -52,6 +52,16 @@ public sealed record Instrument
     /// <summary>Tmax; the inversion absorbs it into the per-sweep gain.</summary>
     public double PeakTransmission { get; init; }
 
+    /// <summary>Mirror radii of curvature (m; ∞ for a plane mirror) when stated: starting points for the transverse families.</summary>
+    public (double R1, double R2)? MirrorRadiiM { get; init; }
+
+    /// <summary>Transverse families that belong to the instrument response (beside TEM00); empty when none were found.</summary>
+    public IReadOnlyList<CavityModeFamily> Families { get; init; } = [];
+
+    /// <summary>True once the finesse was measured from the data; false while it is the stated value (then the
+    /// refinement widens its uncertainties).</summary>
+    public bool FinesseMeasured { get; init; }
+
     /// <summary>Linewidth (FWHM) FSR/𝓕 in Hz.</summary>
     public double LinewidthHz => FsrHz / Finesse;
 
@@ -71,5 +81,17 @@ public sealed record Instrument
     /// <summary>Transmission relative to Tmax at a detuning from a peak.</summary>
     public double Transmission(double detuningHz) => Airy.Transmission(detuningHz, FsrHz, Finesse);
 
-    public override string ToString() => $"{Name}: FSR {Quantity.FormatFrequency(FsrHz)}, finesse {Finesse:F0}";
+    /// <summary>
+    /// The instrument response to one line at detuning δ = ν − φ − f(x): the TEM00 Airy peak plus each transverse
+    /// family's Airy peak, of its relative height, at δ = o_N·FSR.
+    /// </summary>
+    public double Response(double detuningHz)
+    {
+        var t = Airy.Transmission(detuningHz, FsrHz, Finesse);
+        foreach (var f in Families) t += f.RelativeHeight * Airy.Transmission(detuningHz - f.GouyOffsetFsr * FsrHz, FsrHz, Finesse);
+        return t;
+    }
+
+    public override string ToString() => $"{Name}: FSR {Quantity.FormatFrequency(FsrHz)}, finesse {Finesse:F0}" +
+        (Families.Count == 0 ? "" : "; transverse families " + string.Join(", ", Families.Select(f => $"N={f.N} {f.ApparentOffsetFsr:F4} FSR after TEM00 ({100 * f.RelativeHeight:F0} %)")));
 }

@@ -98,7 +98,34 @@ public sealed class SweepOperator
             _foldBin[j] = a;
             _foldFrac[j] = t;
         }
+
+        // the cavity's transverse families: each line also transmits, with the family's relative height, where the
+        // family is resonant, (−o_N mod 1)·FSR further along the scan; folded as extra copies of every bin, so the
+        // (even) Airy convolution and its adjoint are unchanged and the instrument response is Airy ⊛ (TEM00 + families)
+        var fams = Instrument.Families;
+        _famBin = new int[fams.Count][];
+        _famFrac = new double[fams.Count][];
+        _famHeight = fams.Select(f => f.RelativeHeight).ToArray();
+        for (var q = 0; q < fams.Count; q++)
+        {
+            var shift = fams[q].ApparentOffsetFsr * M;
+            _famBin[q] = new int[n];
+            _famFrac[q] = new double[n];
+            for (var j = 0; j < n; j++)
+            {
+                var u = _foldBin[j] + _foldFrac[j] + shift;
+                if (u >= M) u -= M;
+                var a = (int)Math.Floor(u);
+                if (a >= M) a -= M;
+                _famBin[q][j] = a;
+                _famFrac[q][j] = u - Math.Floor(u);
+            }
+        }
     }
+
+    private int[][] _famBin = [];
+    private double[][] _famFrac = [];
+    private double[] _famHeight = [];
 
     /// <summary>Fold: grid spectrum (n) → periodic grid (M).</summary>
     public void Fold(ReadOnlySpan<double> s, double[] periodic)
@@ -112,6 +139,14 @@ public sealed class SweepOperator
             var t = _foldFrac[j];
             periodic[a] += (1 - t) * v;
             periodic[a + 1 == M ? 0 : a + 1] += t * v;
+            for (var q = 0; q < _famHeight.Length; q++)
+            {
+                var b = _famBin[q][j];
+                var u = _famFrac[q][j];
+                var w = _famHeight[q] * v;
+                periodic[b] += (1 - u) * w;
+                periodic[b + 1 == M ? 0 : b + 1] += u * w;
+            }
         }
     }
 
@@ -120,9 +155,7 @@ public sealed class SweepOperator
     {
         for (var j = 0; j < result.Length; j++)
         {
-            var a = _foldBin[j];
-            var t = _foldFrac[j];
-            result[j] += scale * ((1 - t) * periodic[a] + t * periodic[a + 1 == M ? 0 : a + 1]);
+            result[j] += scale * Gather(periodic, j);
         }
     }
 
@@ -131,7 +164,15 @@ public sealed class SweepOperator
     {
         var a = _foldBin[j];
         var t = _foldFrac[j];
-        return (1 - t) * periodic[a] + t * periodic[a + 1 == M ? 0 : a + 1];
+        var v = (1 - t) * periodic[a] + t * periodic[a + 1 == M ? 0 : a + 1];
+        for (var q = 0; q < _famHeight.Length; q++)
+        {
+            var b = _famBin[q][j];
+            var u = _famFrac[q][j];
+            v += _famHeight[q] * ((1 - u) * periodic[b] + u * periodic[b + 1 == M ? 0 : b + 1]);
+        }
+
+        return v;
     }
 
     /// <summary>Puts a unit bin j onto a cleared periodic vector.</summary>
@@ -142,6 +183,13 @@ public sealed class SweepOperator
         var t = _foldFrac[j];
         periodic[a] += 1 - t;
         periodic[a + 1 == M ? 0 : a + 1] += t;
+        for (var q = 0; q < _famHeight.Length; q++)
+        {
+            var b = _famBin[q][j];
+            var u = _famFrac[q][j];
+            periodic[b] += _famHeight[q] * (1 - u);
+            periodic[b + 1 == M ? 0 : b + 1] += _famHeight[q] * u;
+        }
     }
 
     /// <summary>K·fold(e_j) — the Airy profile of a unit bin j on the periodic grid — written directly from the kernel
@@ -159,6 +207,20 @@ public sealed class SweepOperator
             if (d < 0) d += m;
             var d1 = d == 0 ? m - 1 : d - 1;
             periodic[p] = (1 - t) * kernel[d] + t * kernel[d1];
+        }
+
+        for (var q = 0; q < _famHeight.Length; q++)
+        {
+            var b = _famBin[q][j];
+            var u = _famFrac[q][j];
+            var h = _famHeight[q];
+            for (var p = 0; p < m; p++)
+            {
+                var d = p - b;
+                if (d < 0) d += m;
+                var d1 = d == 0 ? m - 1 : d - 1;
+                periodic[p] += h * ((1 - u) * kernel[d] + u * kernel[d1]);
+            }
         }
     }
 

@@ -28,6 +28,12 @@ public sealed record InstrumentSpec
     /// <summary>True: keep the stated finesse even when a calibration sweep measures another.</summary>
     public bool FixFinesse { get; init; }
 
+    /// <summary>Radius of curvature of the first mirror (of both when <see cref="MirrorRadius2M"/> is null), m; null when not stated.</summary>
+    public double? MirrorRadiusM { get; init; }
+
+    /// <summary>Radius of curvature of the second mirror, m, when it differs from the first.</summary>
+    public double? MirrorRadius2M { get; init; }
+
     /// <summary>1-based line of the [[instrument]] table in the setup file (for messages).</summary>
     public int Line { get; init; }
 
@@ -37,7 +43,10 @@ public sealed record InstrumentSpec
         var fsr = FsrHz ?? Instrument.FsrFromLength(LengthM!.Value, Geometry, RefractiveIndex);
         var finesse = Finesse ?? Airy.ReflectanceFinesse(Reflectance!.Value);
         var peak = Reflectance is double r ? Airy.PeakTransmission(r, MirrorLoss) : 1.0;
-        return new Instrument(Name, fsr, finesse, Geometry, LengthM, RefractiveIndex, peak);
+        return new Instrument(Name, fsr, finesse, Geometry, LengthM, RefractiveIndex, peak)
+        {
+            MirrorRadiiM = MirrorRadiusM is double r1 ? (r1, MirrorRadius2M ?? r1) : null,
+        };
     }
 }
 

@@ -220,9 +220,21 @@ public static class SetupReader
             if (reflectance is double rr && rr + loss >= 1)
                 throw t.AtValue("mirror_loss", $"reflectance + mirror_loss must stay below 1 (the mirrors must transmit some light) but got {rr} + {loss}");
 
+            // Mirror radii: starting points for the transverse families (Gouy offsets); they need the mirror spacing.
+            var radius1 = t.OptionalQuantity("mirror_radius", Dimension.Length);
+            if (radius1 is <= 0) throw t.AtValue("mirror_radius", $"mirror_radius must be positive but got {t.ValueText("mirror_radius")}");
+            var radius2 = t.OptionalQuantity("mirror_radius_2", Dimension.Length);
+            if (radius2 is <= 0) throw t.AtValue("mirror_radius_2", $"mirror_radius_2 must be positive but got {t.ValueText("mirror_radius_2")}");
+            if (radius2 is not null && radius1 is null)
+                throw t.AtKey("mirror_radius_2", $"instrument '{name}' gives mirror_radius_2 without mirror_radius; expected mirror_radius (first mirror, or both) and optionally mirror_radius_2 (second mirror)");
+            if (radius1 is not null && length is null)
+                throw t.AtKey("mirror_radius", $"instrument '{name}' gives mirror_radius but no length; the transverse-family offsets need the mirror spacing: give length instead of fsr");
+
             var spec = new InstrumentSpec
             {
                 Name = name,
+                MirrorRadiusM = radius1,
+                MirrorRadius2M = radius2,
                 Geometry = geometry,
                 LengthM = length,
                 FsrHz = fsr,

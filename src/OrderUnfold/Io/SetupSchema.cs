@@ -22,6 +22,7 @@ public static class SetupSchema
     public static IReadOnlyList<string> InstrumentKeys { get; } =
     [
         "name", "geometry", "length", "fsr", "refractive_index", "finesse", "reflectance", "mirror_loss", "fix_finesse",
+        "mirror_radius", "mirror_radius_2",
     ];
 
     /// <summary>Keys that say how to read one delimited-text file (shared by [[sweep]] and [[calibration]]).</summary>

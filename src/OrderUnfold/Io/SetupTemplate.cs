@@ -31,6 +31,8 @@ internal static class SetupTemplate
         finesse = 90               # FSR / linewidth; give either finesse or reflectance, not both
         mirror_loss = 0.0          # absorption + scatter per mirror, as a fraction (affects peak height only)
         fix_finesse = false        # true: keep this finesse even if a calibration sweep measures another
+        # mirror_radius = "50 mm"    # radius of curvature of the mirrors (needs length): predicts the transverse families
+        # mirror_radius_2 = "52 mm"  # second mirror's radius when it differs from the first
 
         [[instrument]]
         name = "fine"

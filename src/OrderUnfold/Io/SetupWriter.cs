@@ -92,6 +92,8 @@ public static class SetupWriter
 
         Key(w, "mirror_loss", Number(i.MirrorLoss, "mirror_loss"));
         Key(w, "fix_finesse", i.FixFinesse ? "true" : "false");
+        if (i.MirrorRadiusM is double r1) Key(w, "mirror_radius", Quantity(r1, LengthUnits, "mirror_radius"));
+        if (i.MirrorRadius2M is double r2) Key(w, "mirror_radius_2", Quantity(r2, LengthUnits, "mirror_radius_2"));
     }
 
     private static void WriteFileOptions(StringBuilder w, SweepFileOptions o, string dir)

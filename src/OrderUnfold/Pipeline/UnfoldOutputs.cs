@@ -172,6 +172,8 @@ public static class UnfoldOutputs
                 ["fsr_hz"] = N(i.FsrHz),
                 ["finesse"] = N(i.Finesse),
                 ["linewidth_hz"] = N(i.LinewidthHz),
+                ["finesse_measured"] = i.FinesseMeasured,
+                ["transverse_families"] = CalibrationReport.FamiliesNode(i.Families),
             }).ToArray()),
             ["calibrations"] = new JsonArray(run.Calibrations.Select(CalibrationNode).ToArray()),
             ["fsr_refinement"] = run.FsrRefinement is { } fr ? CalibrationReport.Fsr(fr) : null,
@@ -287,6 +289,7 @@ public static class UnfoldOutputs
         ["axis_coefficients_hz"] = new JsonArray(c.Axis.Coefficients.Select(v => (JsonNode?)N(v)).ToArray()),
         ["axis_center"] = N(c.Axis.Center),
         ["axis_half_range"] = N(c.Axis.HalfRange),
+        ["period_decision"] = CalibrationReport.PeriodDecisionNode(c.PeriodDecision),
         ["warnings"] = new JsonArray(c.Warnings.Select(w => (JsonNode)JsonValue.Create(w)!).ToArray()),
     };
 

@@ -291,7 +291,8 @@ public static class UnfoldPipeline
             inputs.Add(Describe("calibration", cal.File.Path));
             var inst = Lookup(instruments, cal.Instrument, cal.File.Path);
             var ratio = WavelengthRatio(cal, setup);
-            var segments = ReadSegments(cal.File);
+            // calibration sweeps ring too when swept fast: the same preparation as the source sweeps
+            var segments = RingdownHandling.PrepareAll(ReadSegments(cal.File)).Select(p => p.Sweep).ToList();
             var byDirection = new Dictionary<RampDirection, AxisCalibration>();
             var reasons = new List<string>();
             foreach (var seg in segments)
@@ -348,6 +349,9 @@ public static class UnfoldPipeline
                 warnings.Add($"instrument '{name}': measured finesse {f:F0} differs from the stated {inst.Finesse:F0} by more than 20 %; using the measured value (set fix_finesse = true to keep the stated one)");
             instruments[name] = inst with { Finesse = Math.Max(1, f) };
         }
+
+        // the period decided from the peak pattern, the cavity's transverse families, and whether the finesse was measured
+        if (reuse is null) CalibrationSteps.ApplyCavityProperties(instruments, calibrations, warnings, n => specs[n].FixFinesse);
 
         return (instruments, calibrations);
     }
