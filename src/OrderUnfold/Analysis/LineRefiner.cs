@@ -1250,6 +1250,13 @@ public static class LineRefiner
         // far below the Δχ² of 1 that one standard error costs
         var problem = new Problem(data, layout, y ?? data.Y, blocks, budget, label);
         var outcome = LevenbergMarquardt.Minimise(problem, p0, scales, isFixed, options.MaxIterations, budget: budget);
+        if (outcome.Exit == LmExit.Budget)
+        {
+            // out of budget: no covariance (its eigen-decomposition costs (parameters)³, and nothing uses it after a stop)
+            var none = Matrix<double>.Build.Dense(layout.Count, layout.Count, double.NaN);
+            return new FitResult(outcome.P, none, none, outcome.ChiSquare, false, BudgetReason, outcome.Iterations);
+        }
+
         return Summarise(data, layout, outcome, isFixed);
     }
 

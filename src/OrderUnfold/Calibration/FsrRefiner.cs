@@ -213,31 +213,6 @@ public static class FsrRefiner
         }
     }
 
-    /// <summary>
-    /// Checks the stated FSRs of two or more instruments against each other before any unfold, with the folded-peak
-    /// pre-scan over ±<paramref name="maxError"/> (default 12 %): returns the relative correction of each instrument's
-    /// FSR against the first one that the folded peaks agree on best, or an empty dictionary when the stated ratio
-    /// explains them as well as any (or nothing can be said). Cheap (no unfold); the pipeline uses it to decide that the
-    /// FSR ratio must be refined although the setup did not ask for it.
-    /// </summary>
-    public static (IReadOnlyDictionary<string, double> Corrections, IReadOnlyList<string> Warnings) CheckStatedRatio(
-        IReadOnlyList<CalibratedSweep> sweeps, UnfoldOptions? unfoldOptions, double maxError = 0.12)
-    {
-        var names = sweeps.Select(s => s.Instrument.Name).Distinct().ToList();
-        if (names.Count < 2) return (new Dictionary<string, double>(), []);
-        // the narrow range first (fewer chance coincidences, so a small error is found without ambiguity), then the wide one
-        var warnings = new List<string>();
-        foreach (var range in new[] { Math.Min(maxError, new FsrRefineOptions().MaxScaleError), maxError }.Distinct())
-        {
-            var scan = Prescan(sweeps, unfoldOptions ?? new UnfoldOptions(), new FsrRefineOptions { ReferenceInstrument = names[0], MaxScaleError = range }, true);
-            var found = scan.Scales.Where(kv => kv.Value != 1).ToDictionary(kv => kv.Key, kv => kv.Value - 1);
-            if (found.Count > 0) return (found, scan.Warnings);
-            warnings = scan.Warnings;
-        }
-
-        return (new Dictionary<string, double>(), warnings);
-    }
-
     // ------------------------------------------------------------------ pre-scan of folded peaks
 
     private sealed record Feature(double U, double Height, int Count);

@@ -10,8 +10,8 @@ namespace OrderUnfold.Pipeline;
 /// <summary>One unfold from a setup: read sweeps, calibrate the axes, solve, collect what happened.</summary>
 public static class UnfoldPipeline
 {
-    /// <summary>Reduced χ² of the grid fit above which, with two or more instruments and no FSR refinement asked for, the
-    /// FSR ratio refined from the data is tried (and kept only if it fits clearly better).</summary>
+    /// <summary>Reduced χ² of the grid fit above which a line refinement that ran out of its budget is not reported but refused
+    /// (the grid's many lines then absorb a model mismatch).</summary>
     public const double PoorFitReducedChiSquare = 1.5;
 
     /// <summary>Reduced χ² of the final fit of any sweep above which the run is refused (the model cannot explain the data:
@@ -122,38 +122,13 @@ public static class UnfoldPipeline
         UnfoldResult result;
         FsrRefinement? fsrRefinement = null;
         WindowFinding? windowFinding = null;
-        // stated FSRs that disagree with each other (a datasheet value, a length measured roughly) fold every line to a
-        // slightly wrong place in one instrument: the grid then explains each line with a cloud of false ones. The folded
-        // peaks show it before any unfold; the ratio is then refined from the data, not carried on silently.
         var refineRatio = solve.RefineFsr;
-        string? doubted = null; // set when a check found the stated model poor
-        var maxScaleError = new FsrRefineOptions().MaxScaleError;
-        if (!solve.RefineFsr && solve.KnownIntervalHz is null && calibrated.Select(s => s.Instrument.Name).Distinct().Count() > 1)
-        {
-            progress?.Report("checking the stated FSR ratio against the folded peaks");
-            var (corrections, _) = FsrRefiner.CheckStatedRatio(calibrated, options); // "cannot tell" is no finding: nothing said
-            if (corrections.Count > 0)
-            {
-                refineRatio = true;
-                doubted = "the stated FSRs disagree with the folded peaks";
-                maxScaleError = Math.Max(maxScaleError, 1.5 * corrections.Values.Max(Math.Abs));
-                var reference = calibrated[0].Instrument.Name;
-                warnings.Add("the stated FSRs disagree with the folded peaks: " + string.Join("; ", corrections.Select(c => $"'{c.Key}' fits best {100 * c.Value:+0.000;-0.000} % off its stated FSR against '{reference}'")) +
-                             $"; the FSR ratio was refined from the data (as with refine_fsr = true), and the absolute frequency scale rests on the stated FSR of '{reference}': correct the setup or state a known_interval");
-            }
-        }
-
         if (refineRatio || solve.KnownIntervalHz is not null)
         {
             progress?.Report("refining the FSRs from the lines");
             IReadOnlyList<CalibratedSweep> refined;
             (refined, result, fsrRefinement) = FsrRefiner.UnfoldWithRefinement(calibrated, options,
-                new FsrRefineOptions
-                {
-                    RefineRatio = refineRatio, KnownIntervalHz = solve.KnownIntervalHz, MaxScaleError = maxScaleError,
-                    // found by the check, not asked for: one polish round (each costs an unfold); asked for: the default
-                    MaxRounds = solve.RefineFsr || solve.KnownIntervalHz is not null ? new FsrRefineOptions().MaxRounds : 1,
-                }, progress);
+                new FsrRefineOptions { RefineRatio = refineRatio, KnownIntervalHz = solve.KnownIntervalHz }, progress);
             calibrated = refined.ToList();
             CalibrationSteps.ApplyFsrRefinement(fsrRefinement, instruments, calibrations);
             warnings.AddRange(fsrRefinement.Warnings);
@@ -163,32 +138,6 @@ public static class UnfoldPipeline
             // a source wider than the default window is caught here and the window widened (Pipeline/WindowWidening.cs)
             var sweepsNow = calibrated;
             (result, windowFinding) = WindowWidening.Run(o => Unfolder.Run(sweepsNow, o, progress), options, calibrated.Select(c => c.Instrument).ToList(), progress);
-            if (windowFinding is not null) options = options with { WindowStartHz = -windowFinding.HalfWidthHz, WindowEndHz = windowFinding.HalfWidthHz };
-            // a ratio error too small for the folded peaks to show (a few tenths of a percent) still spoils the fit: the
-            // grid explains each line with a cloud of weak ones and χ² stays high. Then the ratio refined from the data is
-            // tried, and kept only when it fits clearly better (Δχ² above 25 per refined ratio, i.e. five standard errors,
-            // common practice for a nested model with one extra parameter) without adding lines.
-            var count = calibrated.Select(s => s.Instrument.Name).Distinct().Count();
-            if (count > 1 && result.ReducedChiSquare > PoorFitReducedChiSquare)
-            {
-                doubted = $"reduced χ² {result.ReducedChiSquare:F2} with the stated FSRs";
-                progress?.Report($"reduced χ² {result.ReducedChiSquare:F2} with the stated FSRs: trying the FSR ratio refined from the data");
-                var (tried, triedResult, triedRefinement) = FsrRefiner.RefineAndRerun(calibrated, result, options,
-                    new FsrRefineOptions { RefineRatio = true, MaxScaleError = maxScaleError, MaxRounds = 1 }, progress);
-                var chiStated = result.Sweeps.Sum(s => s.ChiSquare);
-                var chiTried = triedResult.Sweeps.Sum(s => s.ChiSquare);
-                if (chiTried < chiStated - 25.0 * (count - 1) && triedResult.Lines.Count <= result.Lines.Count)
-                {
-                    warnings.Add($"the fit with the stated FSRs was poor (reduced χ² {result.ReducedChiSquare:F2}, {result.Lines.Count} grid line(s)); with the FSR ratio refined from the data it is {triedResult.ReducedChiSquare:F2} with {triedResult.Lines.Count} line(s), so the refined ratio is used (as with refine_fsr = true): " +
-                                 string.Join("; ", triedRefinement.Instruments.Where(i => i.RelativeChange != 0).Select(i => $"'{i.Instrument}' {100 * i.RelativeChange:+0.000;-0.000} %")) +
-                                 $"; the absolute frequency scale rests on the stated FSR of '{calibrated[0].Instrument.Name}': correct the setup or state a known_interval");
-                    calibrated = tried.ToList();
-                    result = triedResult;
-                    fsrRefinement = triedRefinement;
-                    CalibrationSteps.ApplyFsrRefinement(fsrRefinement, instruments, calibrations);
-                    warnings.AddRange(fsrRefinement.Warnings);
-                }
-            }
         }
 
         // ---- end of FSR refinement ----
@@ -213,11 +162,6 @@ public static class UnfoldPipeline
 
         // a grid fit this poor cannot be polished into a right answer: refuse before spending the refinement's budget
         RefuseMismatch(result, "grid");
-        // (only when the folded peaks — not χ², which rests on the noise estimate — found the stated FSRs wrong)
-        if (doubted is not null && doubted.StartsWith("the stated FSRs disagree", StringComparison.Ordinal) && result.ReducedChiSquare > PoorFitReducedChiSquare)
-            throw new InputException(
-                $"{doubted}, and the fit stays poor with the FSR ratio refined from the data (reduced χ² {result.ReducedChiSquare:F2}, {result.Lines.Count} grid line(s)): " +
-                "the grid absorbs the mismatch with false lines, so no line list is reported. Check the stated FSRs (state a known_interval if one is known), the finesse, and which sweep file belongs to which instrument", setup.Path);
         Analysis.RefinementDiagnostics? refinement = null;
         if (solve.Refine)
         {
@@ -234,9 +178,9 @@ public static class UnfoldPipeline
 
         // a line fit that ran out of its budget on a grid that fits poorly: the grid's many lines are the model's way of
         // absorbing a mismatch, not a measurement (the refinement's fallback is for a good grid that is slow to polish)
-        if (refinement is { FellBackToGrid: true, BudgetExhausted: not null } && (result.ReducedChiSquare > PoorFitReducedChiSquare || doubted is not null))
+        if (refinement is { FellBackToGrid: true, BudgetExhausted: not null } && result.ReducedChiSquare > PoorFitReducedChiSquare)
             throw new InputException(
-                $"the line fit ran out of its budget ({refinement.BudgetExhausted}) on {result.Lines.Count} grid line(s), and the fit is poor (reduced χ² {result.ReducedChiSquare:F2}{(doubted is null ? "" : $"; {doubted}")}): " +
+                $"the line fit ran out of its budget ({refinement.BudgetExhausted}) on {result.Lines.Count} grid line(s), and the fit is poor (reduced χ² {result.ReducedChiSquare:F2}): " +
                 "a spectrum explained by that many lines with a poor fit is the mark of a model that does not match the data, so no line list is reported. " +
                 "Check the stated FSRs (refine_fsr = true, or a known_interval), the finesse, and which sweep file belongs to which instrument", setup.Path);
 
