@@ -167,6 +167,7 @@ public sealed class FieldTraceReadingTests
             ramp_value_column = "Ampl"
             scan = "ramp"
             """;
+        using var outside = InputLimits.Use(new InputLimits { AllowOutsidePaths = true }); // the raw files stay in shared/field-traces
         var setup = SetupReader.ReadText(toml, Path.Combine(Path.GetTempPath(), "t05-setup.toml"));
         var sweeps = SweepReader.ReadSweeps(Assert.Single(setup.Sweeps).File);
         Assert.Equal([RampDirection.Up, RampDirection.Down, RampDirection.Up], sweeps.Select(s => s.Direction));

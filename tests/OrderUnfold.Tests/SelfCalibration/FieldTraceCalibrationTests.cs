@@ -40,6 +40,8 @@ public sealed class FieldTraceCalibrationTests(ITestOutputHelper output)
         {
             var path = Path.Combine(dir.FullName, "setup.toml");
             File.WriteAllText(path, toml);
+            // the raw files stay in shared/field-traces, outside the setup's temporary folder
+            using var outside = InputLimits.Use(new InputLimits { AllowOutsidePaths = true });
             var setup = SetupReader.Read(path);
             _setup = setup;
             var set = UnfoldPipeline.Calibrate(setup, null, out warnings);
