@@ -146,7 +146,11 @@ public static class CalibrationSteps
                 AxisCalibration? companion = null;
                 if (exact is not null)
                 {
-                    if (mode == SelfCalibrationMode.Auto && (exact.PointCount >= 4 || exact.PointCount == 0)) continue;
+                    // a calibration sweep with enough peaks that fits them well stands alone; one with few peaks, or whose
+                    // polynomial cannot follow the piezo between them (residual above a twentieth of a linewidth), is
+                    // fitted jointly with the source's own repeats
+                    var wellPinned = exact.PointCount >= 4 && exact.ResidualRmsHz <= JointResidualLinewidths * inst.LinewidthHz;
+                    if (mode == SelfCalibrationMode.Auto && (wellPinned || exact.PointCount == 0)) continue;
                     companion = exact.PointCount >= 2 ? exact : null;
                 }
 
@@ -189,6 +193,10 @@ public static class CalibrationSteps
             }
         }
     }
+
+    /// <summary>Calibration-sweep residual RMS (in linewidths) above which, with self_calibrate = "auto", the source's
+    /// repeats are fitted jointly with the calibration peaks.</summary>
+    public const double JointResidualLinewidths = 0.05;
 
     /// <summary>
     /// The one place where a sweep's signal is prepared before peak finding in the calibration flow, after the ring-down
