@@ -14,6 +14,9 @@ public static class UnfoldPipeline
     /// (the grid's many lines then absorb a model mismatch).</summary>
     public const double PoorFitReducedChiSquare = 1.5;
 
+    /// <summary>Most grid lines reported unrefined when the refinement runs out of its budget; more are refused.</summary>
+    public const int MaxUnrefinedLines = 40;
+
     /// <summary>Reduced χ² of the final fit of any sweep above which the run is refused (the model cannot explain the data:
     /// a wrong FSR, a sweep assigned to the wrong instrument, a wrong finesse held fixed). A correct model with an honest
     /// noise estimate gives about 1. Measured data never match the model exactly: at a signal-to-noise ratio of a few
@@ -109,6 +112,23 @@ public static class UnfoldPipeline
             notes.Add($"instrument '{w.Instrument}': the source's peaks are broader than the calibration laser's (apparent finesse {w.ApparentFinesse:F1} ± {w.ApparentSigma:F1} from {w.PeaksFitted} peaks, cavity {w.CavityFinesse:F1}): " +
                       $"its lines have a width of their own, about {Quantity.FormatFrequency(w.LineWidthHz)} FWHM (Lorentzian), and the source sweeps are solved with the broadened response");
 
+        // a ramp segment that covers less than one FSR (a partial ramp at the start or end of a record) cannot be unfolded:
+        // it is dropped with a warning naming why, and the other segments carry on; only when nothing is left is it an error
+        var tooShort = Enumerable.Range(0, calibrated.Count).Where(k => Math.Abs(calibrated[k].ScanHz[^1] - calibrated[k].ScanHz[0]) < calibrated[k].Instrument.FsrHz).ToList();
+        if (tooShort.Count > 0 && tooShort.Count < calibrated.Count)
+        {
+            foreach (var k in tooShort)
+                warnings.Add($"{calibrated[k].Name}: dropped: it covers {Math.Abs(calibrated[k].ScanHz[^1] - calibrated[k].ScanHz[0]) / calibrated[k].Instrument.FsrHz:F2} FSR of '{calibrated[k].Instrument.Name}', less than the one full FSR a sweep needs to be unfolded; the other sweeps carry on");
+            var keepSweeps = Enumerable.Range(0, calibrated.Count).Except(tooShort).ToList();
+            var instrumentsLeft = keepSweeps.Select(k => calibrated[k].Instrument.Name).ToHashSet();
+            var lost = calibrated.Select(c => c.Instrument.Name).Distinct().Where(n => !instrumentsLeft.Contains(n)).ToList();
+            if (lost.Count > 0)
+                throw new InputException($"no sweep of instrument '{lost[0]}' covers one full FSR, which a sweep needs to be unfolded: sweep further", setup.Path);
+            calibrated = keepSweeps.Select(k => calibrated[k]).ToList();
+            raw = keepSweeps.Select(k => raw[k]).ToList();
+            segmentAxes = keepSweeps.Select(k => segmentAxes[k]).ToList();
+        }
+
         var solve = setup.Solve;
         var options = new UnfoldOptions
         {
@@ -181,13 +201,17 @@ public static class UnfoldPipeline
 
         // a line fit that ran out of its budget on a grid that fits poorly: the grid's many lines are the model's way of
         // absorbing a mismatch, not a measurement (the refinement's fallback is for a good grid that is slow to polish)
-        if (refinement is { FellBackToGrid: true, BudgetExhausted: not null } && result.ReducedChiSquare > PoorFitReducedChiSquare)
+        // the same when the window had to be widened (near-aliases inside it: the unrefined grid cannot say which lines are
+        // real) or the grid holds far more lines than a refinement could check
+        var widened = windowFinding is not null ? $"; the window was widened to ±{Quantity.FormatFrequency(windowFinding.HalfWidthHz)} because the source looked wider than the first one, and the unrefined grid cannot tell lines from near-aliases there" : "";
+        if (refinement is { FellBackToGrid: true, BudgetExhausted: not null } && (result.ReducedChiSquare > PoorFitReducedChiSquare || windowFinding is not null || result.Lines.Count > MaxUnrefinedLines))
             throw new InputException(
-                $"the line fit ran out of its budget ({refinement.BudgetExhausted}) on {result.Lines.Count} grid line(s), and the fit is poor (reduced χ² {result.ReducedChiSquare:F2}): " +
+                $"the line fit ran out of its budget ({refinement.BudgetExhausted}) on {result.Lines.Count} grid line(s) (reduced χ² {result.ReducedChiSquare:F2}{widened}): " +
                 "a spectrum explained by that many lines with a poor fit is the mark of a model that does not match the data, so no line list is reported. " +
                 "Check the stated FSRs (refine_fsr = true, or a known_interval), the finesse, and which sweep file belongs to which instrument", setup.Path);
 
         RefuseMismatch(result, refinement is null ? "grid" : "line");
+        result = FewerLines(result, solve.MinSnr, warnings);
         result = ExtrapolationShare.Apply(result, calibrated);
 
         return new UnfoldRun
@@ -207,6 +231,22 @@ public static class UnfoldPipeline
         };
     }
 
+
+    /// <summary>
+    /// When the data cannot tell a line from its alias, the explanation with fewer lines is preferred: a weak line
+    /// (SNR below twice min_snr) whose order the refinement found doubtful is left out of the line list and named in a
+    /// warning. Such lines are what a slightly imperfect model leaves near the aliases of strong lines; a real weak
+    /// line is not lost, only not claimed.
+    /// </summary>
+    internal static UnfoldResult FewerLines(UnfoldResult result, double minSnr, List<string> warnings)
+    {
+        if (!result.OrdersResolved) return result;
+        var weak = result.Lines.Where(l => l.Verdict == Analysis.OrderVerdict.Doubtful && l.Snr < 2 * minSnr && l.FrequencyHz != 0).ToList();
+        if (weak.Count == 0) return result;
+        warnings.Add($"{weak.Count} weak line(s) whose order the data cannot pin were left out (an alias fits almost as well and the SNR is below {2 * minSnr:0.#}; " +
+                     "the explanation with fewer lines is kept): " + string.Join(", ", weak.Select(l => $"{Quantity.FormatFrequency(l.FrequencyHz)} (SNR {l.Snr:F1}, intensity {l.Intensity:F4})")));
+        return result with { Lines = result.Lines.Except(weak).ToList() };
+    }
 
     /// <summary>Calibration only: the axes and instruments a setup's calibration sweeps give (for <c>calibrate</c>).</summary>
     public static CalibrationSet Calibrate(Setup setup, IProgress<string>? progress, out IReadOnlyList<string> warnings)

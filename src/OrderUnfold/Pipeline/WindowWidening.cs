@@ -30,6 +30,12 @@ public static class WindowWidening
     /// <summary>A line closer than this many linewidths to an edge of the window counts as a line at the edge.</summary>
     public const double EdgeLinewidths = 3;
 
+    /// <summary>Smallest intensity (relative to the strongest line) of a line at the edge that counts as a sign of folding.</summary>
+    public const double EdgeMinIntensity = 0.05;
+
+    /// <summary>Smallest SNR of a line at the edge that counts as a sign of folding.</summary>
+    public const double EdgeMinSnr = 20;
+
     /// <summary>Margin below which two shifts are taken as indistinguishable: the widened window stops there.</summary>
     public const double FarThresholdLinewidths = 1;
 
@@ -39,7 +45,9 @@ public static class WindowWidening
         if (!result.OrdersResolved || result.Lines.Count == 0) return null;
         var lo = result.Grid.StartHz;
         var hi = result.Grid.EndHz;
-        var atEdge = result.Lines.Where(l => l.FrequencyHz - lo < EdgeLinewidths * linewidthHz || hi - l.FrequencyHz < EdgeLinewidths * linewidthHz).ToList();
+        // only clear lines count: weak ones at the edges are what a slightly imperfect model leaves anywhere
+        var atEdge = result.Lines.Where(l => l.Intensity >= EdgeMinIntensity && l.Snr >= EdgeMinSnr)
+            .Where(l => l.FrequencyHz - lo < EdgeLinewidths * linewidthHz || hi - l.FrequencyHz < EdgeLinewidths * linewidthHz).ToList();
         if (atEdge.Count == 0) return null;
         return $"{atEdge.Count} line(s) at the edges of the window ({Quantity.FormatFrequency(lo)} to {Quantity.FormatFrequency(hi)}), where lines from outside it fold in";
     }
