@@ -151,6 +151,9 @@ internal sealed record LmOutcome(double[] P, double ChiSquare, double[] Fisher, 
 /// </summary>
 internal static class LevenbergMarquardt
 {
+    /// <summary>Accepted steps in a row that each lower χ² by less than the tolerance after which the fit stops.</summary>
+    internal const int CrawlSteps = 5;
+
     /// <param name="problem">The problem.</param>
     /// <param name="p0">Start values (not modified).</param>
     /// <param name="scales">Typical size of each parameter: steps are measured in these units.</param>
@@ -211,6 +214,7 @@ internal static class LevenbergMarquardt
         for (var u = 0; u < f; u++) d[u] = Math.Max(d[u], 1e-12 * dMax);
         var mu = 1e-3;
         var nu = 2.0;
+        var crawl = 0;
         for (var iteration = 1; iteration <= maxIterations; iteration++)
         {
             Cancellation.ThrowIfRequested(); // Ctrl-C / SIGTERM (Cancellation.cs)
@@ -257,6 +261,10 @@ internal static class LevenbergMarquardt
                 nu = 2;
                 if (decrease < chiSquareTolerance && predicted < 2 * chiSquareTolerance)
                     return new LmOutcome(p, chi, jtj, LmExit.SmallDecrease, iteration);
+                // a crawl: accepted steps that each lower χ² by less than the tolerance while the model predicts more (a
+                // mismatched model near its best) end the fit after a few in a row instead of running to the limit
+                crawl = decrease < chiSquareTolerance ? crawl + 1 : 0;
+                if (crawl >= CrawlSteps) return new LmOutcome(p, chi, jtj, LmExit.SmallDecrease, iteration);
             }
             else
             {

@@ -246,11 +246,20 @@ public static class LineRefiner
             }
 
             // 3. the weakest line of a group below the detection threshold (Wald test with the χ²-scaled covariance): drop it
+            //    (with, in the same round, every other line of that group far below it — z² under a quarter of the
+            //    threshold — so that a grid that absorbed a mismatch with dozens of weak lines is pruned in a few rounds,
+            //    not one line per round; backward elimination in steps, common practice)
             foreach (var weakest in WeakestInsignificant(layout, fit, threshold, groups))
             {
                 if (changed.Contains(groups[weakest])) continue;
                 remove.Add(weakest);
                 dropped++;
+                foreach (var j in Enumerable.Range(0, layout.Lines).Where(j => j != weakest && groups[j] == groups[weakest] && FarBelow(layout, fit, threshold, j)))
+                {
+                    remove.Add(j);
+                    dropped++;
+                }
+
                 changed.Add(groups[weakest]);
             }
 
@@ -285,6 +294,16 @@ public static class LineRefiner
             var weakest = WeakestInsignificant(layout, fit, threshold, members);
             if (weakest >= 0) yield return weakest;
         }
+    }
+
+    /// <summary>True when line j's Wald statistic is far below the detection threshold (z² under a quarter of it, or a ≤ 0).</summary>
+    private static bool FarBelow(Layout layout, FitResult fit, double threshold, int j)
+    {
+        var a = fit.P[layout.A(j)];
+        var va = fit.Scaled[layout.A(j), layout.A(j)];
+        if (a <= 0) return true;
+        if (!(double.IsFinite(va) && va > 0)) return false;
+        return a * a / va < threshold / 4;
     }
 
     /// <summary>Pairs of lines of one group, each group's closest pair only, with their separation.</summary>
@@ -1249,7 +1268,8 @@ public static class LineRefiner
         // step tolerance 1e-9 scaled units (positions: 1e-9 linewidth), far below any uncertainty; χ² tolerance 1e-9,
         // far below the Δχ² of 1 that one standard error costs
         var problem = new Problem(data, layout, y ?? data.Y, blocks, budget, label);
-        var outcome = LevenbergMarquardt.Minimise(problem, p0, scales, isFixed, options.MaxIterations, budget: budget);
+        // χ² here is in units of the noise: a change of 10⁻³ moves no parameter by a noticeable fraction of its σ
+        var outcome = LevenbergMarquardt.Minimise(problem, p0, scales, isFixed, options.MaxIterations, chiSquareTolerance: 1e-3, budget: budget);
         if (outcome.Exit == LmExit.Budget)
         {
             // out of budget: no covariance (its eigen-decomposition costs (parameters)³, and nothing uses it after a stop)

@@ -123,7 +123,9 @@ public static class UnfoldPipeline
             var instrumentsLeft = keepSweeps.Select(k => calibrated[k].Instrument.Name).ToHashSet();
             var lost = calibrated.Select(c => c.Instrument.Name).Distinct().Where(n => !instrumentsLeft.Contains(n)).ToList();
             if (lost.Count > 0)
-                throw new InputException($"no sweep of instrument '{lost[0]}' covers one full FSR, which a sweep needs to be unfolded: sweep further", setup.Path);
+                throw new InputException($"no sweep of instrument '{lost[0]}' covers one full FSR, which a sweep needs to be unfolded (" +
+                    string.Join("; ", tooShort.Where(k => calibrated[k].Instrument.Name == lost[0]).Select(k => $"{calibrated[k].Name}: {Math.Abs(calibrated[k].ScanHz[^1] - calibrated[k].ScanHz[0]) / calibrated[k].Instrument.FsrHz:F2} FSR")) +
+                    "): sweep further", setup.Path);
             calibrated = keepSweeps.Select(k => calibrated[k]).ToList();
             raw = keepSweeps.Select(k => raw[k]).ToList();
             segmentAxes = keepSweeps.Select(k => segmentAxes[k]).ToList();
