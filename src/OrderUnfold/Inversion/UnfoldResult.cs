@@ -28,6 +28,10 @@ public sealed record UnfoldOptions
     /// <summary>Alias margin (in linewidths) below which two shifts count as confusable when choosing the default window.</summary>
     public double AliasThresholdLinewidths { get; init; } = 3.0;
 
+    /// <summary>Which NNLS solver the joint solve uses (the offset search always uses the active set, whose solves are
+    /// small). Default: chosen by the problem (see <see cref="NnlsSolver"/>).</summary>
+    public SolverChoice Solver { get; init; } = SolverChoice.Auto;
+
     /// <summary>Largest grid the default window may use.</summary>
     public int MaxGridBins { get; init; } = 200_000;
 }

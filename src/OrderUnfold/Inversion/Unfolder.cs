@@ -199,7 +199,8 @@ public static class Unfolder
                 jointWeights = (problem.L1Weight, problem.SmoothnessWeight, gains.ToArray());
             }
 
-            nnls = ActiveSetNnls.Solve(problem, SolverOptions(problem), round == 0 ? default : nnls.Solution);
+            nnls = NnlsSolver.Solve(problem, options.Solver, SolverOptions(problem), problem.L1Weight, problem.SmoothnessWeight,
+                round == 0 ? default : nnls.Solution);
             if (round == rounds) break;
             var s = nnls.Solution.AsSpan(0, grid.Count);
             var moved = 0.0;

@@ -1,4 +1,5 @@
 using OrderUnfold.Instruments;
+using OrderUnfold.Inversion;
 using OrderUnfold.Units;
 using Tomlyn.Parsing;
 using Tomlyn.Syntax;
@@ -45,6 +46,13 @@ public static class SetupReader
         ["auto"] = null,
         ["true"] = true,
         ["false"] = false,
+    };
+
+    private static readonly Dictionary<string, SolverChoice> SolverChoices = new(StringComparer.OrdinalIgnoreCase)
+    {
+        ["auto"] = SolverChoice.Auto,
+        ["active-set"] = SolverChoice.ActiveSet,
+        ["dense"] = SolverChoice.Dense,
     };
 
     private static readonly Dictionary<string, SelfCalibrationMode> SelfCalibrationModes = new(StringComparer.OrdinalIgnoreCase)
@@ -439,6 +447,7 @@ public static class SetupReader
             return new SolveOptions
             {
                 SelfCalibrate = t.Choice("self_calibrate", SelfCalibrationModes, SelfCalibrationMode.Auto),
+                Solver = t.Choice("solver", SolverChoices, SolverChoice.Auto),
                 KnownIntervalHz = knownInterval,
                 RefineFsr = t.OptionalBool("refine_fsr") ?? false,
                 Refine = refine,
