@@ -32,8 +32,12 @@ public sealed record UnfoldOptions
     /// small). Default: chosen by the problem (see <see cref="NnlsSolver"/>).</summary>
     public SolverChoice Solver { get; init; } = SolverChoice.Auto;
 
-    /// <summary>Largest grid the default window may use.</summary>
+    /// <summary>Largest grid the default window (the unambiguous range) may span; an explicit window is limited by
+    /// <see cref="MaxMemoryBytes"/> only.</summary>
     public int MaxGridBins { get; init; } = 200_000;
+
+    /// <summary>Most memory the unfold may need (estimated by <see cref="UnfoldMemory"/> before solving), bytes. Default 4 GB.</summary>
+    public long MaxMemoryBytes { get; init; } = 4_000_000_000;
 }
 
 /// <summary>A line: a cluster of nonzero grid bins.</summary>

@@ -49,8 +49,11 @@ public static class Unfolder
 
         if (!(end > start)) throw new InputException($"the frequency window is empty ({start} Hz to {end} Hz)");
         var grid = FrequencyGrid.Covering(start, end, step);
-        if (grid.Count > options.MaxGridBins)
-            throw new InputException($"the frequency window needs {grid.Count} grid bins, more than the limit of {options.MaxGridBins}; narrow the window or enlarge the grid step");
+        // the size limit follows the memory the unfold needs, estimated and stated before solving
+        var memory = UnfoldMemory.EstimateUnfoldBytes(grid.Count, sweeps.Sum(s => (long)s.Signal.Length));
+        if (memory > options.MaxMemoryBytes)
+            throw new InputException($"the frequency window needs {grid.Count} grid bins; an unfold of this size needs about {UnfoldMemory.Format(memory)} of memory, more than the limit of {UnfoldMemory.Format(options.MaxMemoryBytes)}; narrow the window, enlarge the grid step, or raise max_memory in [solve]");
+        progress?.Report($"grid of {grid.Count} bins; estimated memory {UnfoldMemory.Format(memory)}");
         var periodicStep = Math.Min(step / 2, narrowest / 20);
 
         // initial gains from the sweep means: the mean Airy transmission over whole FSRs is Tmax/√(1+F)

@@ -441,6 +441,8 @@ public static class SetupReader
             var doubtful = t.OptionalNumber("doubtful_delta_chi2") ?? 25.0;
             if (doubtful <= 0) throw t.AtValue("doubtful_delta_chi2", $"doubtful_delta_chi2 must be positive but got {t.ValueText("doubtful_delta_chi2")}");
 
+            var maxMemory = t.OptionalNumber("max_memory_gb") ?? 4.0;
+            if (!(maxMemory > 0) || maxMemory > 1e6) throw t.AtValue("max_memory_gb", $"max_memory_gb must be a positive number of gigabytes (up to 10⁶) but got {t.ValueText("max_memory_gb")}");
             var knownInterval = t.OptionalQuantity("known_interval", Dimension.Frequency);
             if (knownInterval is <= 0) throw t.AtValue("known_interval", $"known_interval must be a positive frequency but got {t.ValueText("known_interval")}");
 
@@ -448,6 +450,7 @@ public static class SetupReader
             {
                 SelfCalibrate = t.Choice("self_calibrate", SelfCalibrationModes, SelfCalibrationMode.Auto),
                 Solver = t.Choice("solver", SolverChoices, SolverChoice.Auto),
+                MaxMemoryGb = maxMemory,
                 KnownIntervalHz = knownInterval,
                 RefineFsr = t.OptionalBool("refine_fsr") ?? false,
                 Refine = refine,
