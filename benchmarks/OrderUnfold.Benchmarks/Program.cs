@@ -17,6 +17,12 @@ public static class Program
             return;
         }
 
+        if (args.Length == 1 && args[0] == "--unfold-probe")
+        {
+            UnfoldScalingBenchmarks.Probe(Console.Out);
+            return;
+        }
+
         if (args.Length >= 1 && args[0] == "--dense-probe")
         {
             DenseNnlsBenchmarks.Probe(Console.Out, args.Length > 1 && args[1] == "--with-active-set");
