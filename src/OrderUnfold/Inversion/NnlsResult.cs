@@ -56,8 +56,8 @@ public enum NnlsMethod
 /// <summary>Which solver <see cref="NnlsSolver"/> uses: chosen automatically, or forced.</summary>
 public enum SolverChoice
 {
-    /// <summary>Dense solver when the problem has no L1 weight or a smoothness weight (support will be dense); otherwise the
-    /// active set, which hands over to the dense solver when its active set passes a fraction of the bins.</summary>
+    /// <summary>Dense solver when the problem has a smoothness weight (support will be dense); otherwise the active set
+    /// (see <see cref="NnlsSolver.Solve"/> for the optional handover by support).</summary>
     Auto,
 
     /// <summary>Always the active-set solver.</summary>

@@ -121,16 +121,17 @@ public class DenseNnlsTests
         var c = DenseSupportCase.Create(4000, 1000);
         var asOptions = new ActiveSetNnls.Options { Tolerance = 1e-3, MaxIterations = 5000 };
 
-        // no L1 weight: dense support expected, the dense solver runs from the start
+        // smoothness weight on: dense support expected, the dense solver runs from the start
         var plain = c.Problem();
         var r0 = NnlsSolver.Solve(plain, SolverChoice.Auto, asOptions, plain.L1Weight, plain.SmoothnessWeight);
         Assert.Equal(NnlsMethod.Dense, r0.Method);
-        Assert.Contains("no L1 weight", r0.Reason);
+        Assert.Contains("smoothness weight on", r0.Reason);
+        Assert.Equal(SolverStatus.Converged, r0.Status);
 
         // the unfolder's default L1 weight (sparsity 3 × the middle column's norm) on a broadband source: the active set
         // starts, its support passes the limit, it hands over
-        var weighted = plain.WithPenalties(3 * Math.Sqrt(plain.ColumnNormSquared(500)), 0);
-        var r1 = NnlsSolver.Solve(weighted, SolverChoice.Auto, asOptions, weighted.L1Weight, weighted.SmoothnessWeight);
+        var weighted = c.Problem(0).WithPenalties(3 * Math.Sqrt(plain.ColumnNormSquared(500)), 0);
+        var r1 = NnlsSolver.Solve(weighted, SolverChoice.Auto, asOptions, weighted.L1Weight, weighted.SmoothnessWeight, handover: true);
         Assert.Contains("handed over", r1.Reason);
         Assert.True(r1.Status == SolverStatus.Converged, r1.Reason + ": " + r1.Message);
         Assert.True(r1.KktViolation <= asOptions.Tolerance * 1.0001 || r1.KktViolation <= r1.Tolerance, $"KKT {r1.KktViolation}");
@@ -149,7 +150,7 @@ public class DenseNnlsTests
         var eq = RandomProblem(11, 8, 1, 3.0);
         var r = NnlsSolver.Solve(eq, SolverChoice.Auto, new ActiveSetNnls.Options(), 3.0, 0);
         Assert.Equal(NnlsMethod.ActiveSet, r.Method);
-        Assert.Equal("sparse support (L1 weight on)", r.Reason);
+        Assert.Equal("no smoothness weight: sparse support expected", r.Reason);
         Assert.Equal(ActiveSetNnls.Solve(eq).Solution, r.Solution);
     }
 
