@@ -5,7 +5,8 @@ namespace OrderUnfold.Benchmarks;
 /// <summary>
 /// Entry point. <c>dotnet run -c Release --project benchmarks/OrderUnfold.Benchmarks -- --filter '*'</c> runs the
 /// BenchmarkDotNet suite; <c>-- --cpu-time</c> runs <see cref="CpuTimeProbe"/> (CPU time next to wall time);
-/// <c>-- --cpu-time-refine</c> only its line-refinement part (the nine-mode comb of <see cref="RefineCombBenchmark"/>).
+/// <c>-- --cpu-time-refine</c> only its line-refinement part (the nine-mode comb of <see cref="RefineCombBenchmark"/>);
+/// <c>-- --export-dense DIR</c> writes the dense-support problems for the scipy reference script.
 /// </summary>
 public static class Program
 {
@@ -20,6 +21,31 @@ public static class Program
         if (args.Length == 1 && args[0] == "--cpu-time")
         {
             CpuTimeProbe.Run(Console.Out);
+            return;
+        }
+
+        if (args.Length == 1 && args[0] == "--unfold-probe")
+        {
+            UnfoldScalingBenchmarks.Probe(Console.Out);
+            return;
+        }
+
+        if (args.Length >= 1 && args[0] == "--dense-probe")
+        {
+            DenseNnlsBenchmarks.Probe(Console.Out, args.Length > 1 && args[1] == "--with-active-set");
+            return;
+        }
+
+        if (args.Length == 2 && args[0] == "--export-dense")
+        {
+            // the dense-support problems of DenseNnlsBenchmarks as dense arrays, for tests/reference/dense_nnls_reference.py
+            foreach (var (rows, bins) in DenseNnlsBenchmarks.Sizes)
+            {
+                var dir = Path.Combine(args[1], $"{rows}x{bins}");
+                DenseSupportCase.Create(rows, bins).Export(dir);
+                Console.WriteLine($"wrote {dir}");
+            }
+
             return;
         }
 

@@ -38,6 +38,11 @@ public static class ActiveSetNnls
 
         /// <summary>Relative ridge added to each new diagonal entry to keep the factor positive definite.</summary>
         public double Ridge { get; init; } = 1e-12;
+
+        /// <summary>Stop (status <see cref="SolverStatus.IterationLimit"/>, <see cref="NnlsResult.HandedOver"/> set) when
+        /// the active set grows past this many entries: the caller hands the problem to <see cref="DenseNnls"/>, whose cost
+        /// does not grow with the support. Default: no limit.</summary>
+        public int MaxActiveCount { get; init; } = int.MaxValue;
     }
 
     /// <summary>Solves from scratch, or warm-started from a previous solution <paramref name="start"/>
@@ -56,6 +61,7 @@ public static class ActiveSetNnls
         var gx = new double[n];
         var column = new double[n + 1];
         var removals = 0;
+        var handedOver = false;
 
         bool TryAdd(int j)
         {
@@ -170,6 +176,13 @@ public static class ActiveSetNnls
                 break;
             }
 
+            if (active.Count >= options.MaxActiveCount)
+            {
+                handedOver = true;
+                message = $"active set passed {options.MaxActiveCount} entries";
+                break;
+            }
+
             iterations++;
             if (!TryAdd(best))
             {
@@ -199,8 +212,8 @@ public static class ActiveSetNnls
             }
         }
 
-        if (status == SolverStatus.IterationLimit) message = $"stopped after {iterations} iterations (limit {options.MaxIterations})";
-        return new NnlsResult(x, iterations, removals, status, message, violation, activeCount);
+        if (status == SolverStatus.IterationLimit && !handedOver) message = $"stopped after {iterations} iterations (limit {options.MaxIterations})";
+        return new NnlsResult(x, iterations, removals, status, message, violation, activeCount) { HandedOver = handedOver, Tolerance = options.Tolerance };
     }
 }
 

@@ -24,4 +24,45 @@ public enum SolverStatus
 /// <param name="KktViolation">Largest violation of the KKT conditions at the end, in gradient units
 /// (max over zero entries of the positive gradient part, and over positive entries of |gradient|).</param>
 /// <param name="ActiveCount">Number of nonzero (or free) entries at the end.</param>
-public sealed record NnlsResult(double[] Solution, int Iterations, int Removals, SolverStatus Status, string Message, double KktViolation, int ActiveCount);
+public sealed record NnlsResult(double[] Solution, int Iterations, int Removals, SolverStatus Status, string Message, double KktViolation, int ActiveCount)
+{
+    /// <summary>Which solver produced the solution.</summary>
+    public NnlsMethod Method { get; init; } = NnlsMethod.ActiveSet;
+
+    /// <summary>Why that solver was chosen (empty when it was called directly).</summary>
+    public string Reason { get; init; } = "";
+
+    /// <summary>Products G x the solve used (the dense solver's cost measure; 0 when not counted).</summary>
+    public int Products { get; init; }
+
+    /// <summary>The KKT tolerance the solver aimed at, in gradient units (NaN when not recorded).</summary>
+    public double Tolerance { get; init; } = double.NaN;
+
+    /// <summary>True when the active-set solver stopped because its support grew past its limit (see
+    /// <see cref="ActiveSetNnls.Options.MaxActiveCount"/>).</summary>
+    public bool HandedOver { get; init; }
+}
+
+/// <summary>The NNLS solvers.</summary>
+public enum NnlsMethod
+{
+    /// <summary>Lawson–Hanson active set (<see cref="ActiveSetNnls"/>): fast for sparse support.</summary>
+    ActiveSet,
+
+    /// <summary>Gradient projection with conjugate gradients (<see cref="DenseNnls"/>): for dense support.</summary>
+    Dense,
+}
+
+/// <summary>Which solver <see cref="NnlsSolver"/> uses: chosen automatically, or forced.</summary>
+public enum SolverChoice
+{
+    /// <summary>Dense solver when the problem has a smoothness weight (support will be dense); otherwise the active set
+    /// (see <see cref="NnlsSolver.Solve"/> for the optional handover by support).</summary>
+    Auto,
+
+    /// <summary>Always the active-set solver.</summary>
+    ActiveSet,
+
+    /// <summary>Always the dense solver.</summary>
+    Dense,
+}

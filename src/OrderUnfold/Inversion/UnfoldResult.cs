@@ -28,8 +28,16 @@ public sealed record UnfoldOptions
     /// <summary>Alias margin (in linewidths) below which two shifts count as confusable when choosing the default window.</summary>
     public double AliasThresholdLinewidths { get; init; } = 3.0;
 
-    /// <summary>Largest grid the default window may use.</summary>
+    /// <summary>Which NNLS solver the joint solve uses (the offset search always uses the active set, whose solves are
+    /// small). Default: chosen by the problem (see <see cref="NnlsSolver"/>).</summary>
+    public SolverChoice Solver { get; init; } = SolverChoice.Auto;
+
+    /// <summary>Largest grid the default window (the unambiguous range) may span; an explicit window is limited by
+    /// <see cref="MaxMemoryBytes"/> only.</summary>
     public int MaxGridBins { get; init; } = 200_000;
+
+    /// <summary>Most memory the unfold may need (estimated by <see cref="UnfoldMemory"/> before solving), bytes. Default 4 GB.</summary>
+    public long MaxMemoryBytes { get; init; } = 4_000_000_000;
 }
 
 /// <summary>A line: a cluster of nonzero grid bins.</summary>

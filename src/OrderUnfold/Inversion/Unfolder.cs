@@ -11,9 +11,6 @@ namespace OrderUnfold.Inversion;
 /// </summary>
 public static class Unfolder
 {
-    /// <summary>Rough working memory of the solve per grid bin (a dozen vectors of doubles over the grid), for messages.</summary>
-    public const int BytesPerBin = 100;
-
     public static UnfoldResult Run(IReadOnlyList<CalibratedSweep> sweeps, UnfoldOptions? options = null, IProgress<string>? progress = null)
     {
         options ??= new UnfoldOptions();
@@ -52,14 +49,17 @@ public static class Unfolder
 
         if (!(end > start))
             throw new InputException($"the frequency window is empty ({Units.Quantity.FormatFrequency(start)} to {Units.Quantity.FormatFrequency(end)}); check window in [solve]");
-        // the bin count as a double first: a tiny grid_step over a wide window must be refused, not overflow an int
+        // the size limit follows the memory the unfold needs, estimated and stated before solving; the bin count is a
+        // double first, so that a tiny grid_step over a wide window is refused rather than overflowing an int
         var binsNeeded = Math.Ceiling((end - start) / step) + 1;
-        if (!(binsNeeded <= options.MaxGridBins))
+        var memory = UnfoldMemory.EstimateUnfoldBytes((long)Math.Min(binsNeeded, 1e15), sweeps.Sum(s => (long)s.Signal.Length));
+        if (!(binsNeeded < int.MaxValue / 4) || memory > options.MaxMemoryBytes)
             throw new InputException(
-                $"grid_step {Units.Quantity.FormatFrequency(step)} over the window {Units.Quantity.FormatFrequency(start)} to {Units.Quantity.FormatFrequency(end)} needs {binsNeeded:G4} grid bins " +
-                $"(about {Io.InputLimits.FormatBytes((long)Math.Min(binsNeeded * BytesPerBin, long.MaxValue / 2))} of solver memory at ~{BytesPerBin} bytes per bin), more than the limit of {options.MaxGridBins} bins; " +
-                $"set grid_step in [solve] to at least {Units.Quantity.FormatFrequency((end - start) / (options.MaxGridBins - 1))} or narrow window in [solve]");
+                $"grid_step {Units.Quantity.FormatFrequency(step)} over the window {Units.Quantity.FormatFrequency(start)} to {Units.Quantity.FormatFrequency(end)} needs {binsNeeded:G4} grid bins; " +
+                $"an unfold of this size needs about {UnfoldMemory.Format(memory)} of memory, more than the limit of {UnfoldMemory.Format(options.MaxMemoryBytes)}: " +
+                "enlarge grid_step or narrow window in [solve], or raise max_memory_gb in [solve]");
         var grid = FrequencyGrid.Covering(start, end, step);
+        progress?.Report($"grid of {grid.Count} bins; estimated memory {UnfoldMemory.Format(memory)}");
         var periodicStep = Math.Min(step / 2, narrowest / 20);
 
         // initial gains from the sweep means: the mean Airy transmission over whole FSRs is Tmax/√(1+F)
@@ -208,7 +208,8 @@ public static class Unfolder
                 jointWeights = (problem.L1Weight, problem.SmoothnessWeight, gains.ToArray());
             }
 
-            nnls = ActiveSetNnls.Solve(problem, SolverOptions(problem), round == 0 ? default : nnls.Solution);
+            nnls = NnlsSolver.Solve(problem, options.Solver, SolverOptions(problem), problem.L1Weight, problem.SmoothnessWeight,
+                round == 0 ? default : nnls.Solution);
             if (round == rounds) break;
             var s = nnls.Solution.AsSpan(0, grid.Count);
             var moved = 0.0;

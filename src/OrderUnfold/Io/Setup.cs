@@ -110,6 +110,12 @@ public sealed record SolveOptions
     /// <summary>Δχ² to the best alternative placement below which a line's order is doubtful. Default 25.</summary>
     public double DoubtfulDeltaChiSquare { get; init; } = 25;
 
+    /// <summary>Which NNLS solver the unfold uses (see <see cref="Inversion.NnlsSolver"/>). Default auto.</summary>
+    public Inversion.SolverChoice Solver { get; init; } = Inversion.SolverChoice.Auto;
+
+    /// <summary>Most memory the unfold may need, GB (10⁹ bytes); the grid size limit follows from it. Default 4.</summary>
+    public double MaxMemoryGb { get; init; } = 4.0;
+
     /// <summary>When to calibrate sweep axes from the source's own repeats one FSR apart. Default auto.</summary>
     public SelfCalibrationMode SelfCalibrate { get; init; } = SelfCalibrationMode.Auto;
 

@@ -1,4 +1,5 @@
 using OrderUnfold.Instruments;
+using OrderUnfold.Inversion;
 using OrderUnfold.Units;
 using Tomlyn.Parsing;
 using Tomlyn.Syntax;
@@ -45,6 +46,13 @@ public static class SetupReader
         ["auto"] = null,
         ["true"] = true,
         ["false"] = false,
+    };
+
+    private static readonly Dictionary<string, SolverChoice> SolverChoices = new(StringComparer.OrdinalIgnoreCase)
+    {
+        ["auto"] = SolverChoice.Auto,
+        ["active-set"] = SolverChoice.ActiveSet,
+        ["dense"] = SolverChoice.Dense,
     };
 
     private static readonly Dictionary<string, SelfCalibrationMode> SelfCalibrationModes = new(StringComparer.OrdinalIgnoreCase)
@@ -437,12 +445,16 @@ public static class SetupReader
             var doubtful = t.OptionalNumber("doubtful_delta_chi2") ?? 25.0;
             if (doubtful <= 0) throw t.AtValue("doubtful_delta_chi2", $"doubtful_delta_chi2 must be positive but got {t.ValueText("doubtful_delta_chi2")}");
 
+            var maxMemory = t.OptionalNumber("max_memory_gb") ?? 4.0;
+            if (!(maxMemory > 0) || maxMemory > 1e6) throw t.AtValue("max_memory_gb", $"max_memory_gb must be a positive number of gigabytes (up to 10⁶) but got {t.ValueText("max_memory_gb")}");
             var knownInterval = t.OptionalQuantity("known_interval", Dimension.Frequency);
             if (knownInterval is <= 0) throw t.AtValue("known_interval", $"known_interval must be a positive frequency but got {t.ValueText("known_interval")}");
 
             return new SolveOptions
             {
                 SelfCalibrate = t.Choice("self_calibrate", SelfCalibrationModes, SelfCalibrationMode.Auto),
+                Solver = t.Choice("solver", SolverChoices, SolverChoice.Auto),
+                MaxMemoryGb = maxMemory,
                 KnownIntervalHz = knownInterval,
                 RefineFsr = t.OptionalBool("refine_fsr") ?? false,
                 Refine = refine,

@@ -43,7 +43,7 @@ public static class SetupSchema
     [
         "window", "grid_step", "sparsity", "smoothness", "anchor_frequency", "min_snr", "source_wavelength",
         "refine", "fit_widths", "bootstrap", "doubtful_delta_chi2",
-        "self_calibrate", "known_interval", "refine_fsr",
+        "self_calibrate", "known_interval", "refine_fsr", "solver", "max_memory_gb",
     ];
 
     /// <summary>Largest polynomial degree accepted for a sweep axis.</summary>

@@ -112,6 +112,8 @@ internal static class SetupTemplate
         self_calibrate = "auto"           # axes from the source's own repeats one FSR apart: "auto", "always" or "never"
         # known_interval = "2.5 GHz"      # lines this far apart (e.g. phase-modulator sidebands) fix the absolute FSR
         refine_fsr = false                # refine the FSR ratio of the cavities from the lines' Vernier pattern
+        solver = "auto"                   # NNLS solver: "auto", "active-set" (line spectra) or "dense" (broadband)
+        max_memory_gb = 4.0               # refuse (before solving) an unfold estimated to need more memory than this
 
         """;
 }

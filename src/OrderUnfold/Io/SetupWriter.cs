@@ -154,6 +154,9 @@ public static class SetupWriter
         }));
         if (s.KnownIntervalHz is double interval) Key(w, "known_interval", Quantity(interval, FrequencyUnits, "known_interval"));
         Key(w, "refine_fsr", s.RefineFsr ? "true" : "false");
+        // written only when not the default, so that existing setups (the demo's) stay byte-identical
+        if (s.MaxMemoryGb != 4.0) Key(w, "max_memory_gb", Number(s.MaxMemoryGb, "max_memory_gb"));
+        if (s.Solver != Inversion.SolverChoice.Auto) Key(w, "solver", Str(s.Solver == Inversion.SolverChoice.Dense ? "dense" : "active-set"));
     }
 
     private static void Key(StringBuilder w, string key, string value) => w.Append(key).Append(" = ").Append(value).Append('\n');

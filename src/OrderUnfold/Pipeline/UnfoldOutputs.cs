@@ -185,6 +185,8 @@ public static class UnfoldOutputs
                 ["l1_weight"] = N(r.L1Weight),
                 ["orders_resolved"] = r.OrdersResolved,
                 ["unambiguous_range_hz"] = N(r.UnambiguousRangeHz),
+                ["solver"] = r.Solver.Method == Inversion.NnlsMethod.Dense ? "dense" : "active-set",
+                ["solver_reason"] = r.Solver.Reason,
                 ["solver_status"] = r.Solver.Status.ToString().ToLowerInvariant(),
                 ["solver_message"] = r.Solver.Message,
                 ["solver_iterations"] = r.Solver.Iterations,

@@ -139,6 +139,8 @@ public static class UnfoldPipeline
             GridStepHz = solve.GridStepHz,
             Sparsity = solve.Sparsity,
             Smoothness = solve.Smoothness,
+            Solver = solve.Solver,
+            MaxMemoryBytes = (long)(solve.MaxMemoryGb * 1e9),
             // with the refinement on, the grid stage only proposes candidates and the refinement's significance test
             // decides (see LineRefiner.CandidateMinSnr); without it the grid is the answer
             MinSnr = solve.Refine ? Analysis.LineRefiner.CandidateMinSnr(solve.MinSnr, solve.Sparsity) : solve.MinSnr,

@@ -1,0 +1,341 @@
+namespace OrderUnfold.Inversion;
+
+/// <summary>Normal equations that can give their diagonal cheaply (used as a Jacobi preconditioner).</summary>
+public interface INormalDiagonal
+{
+    /// <summary>G[j, j], penalties included.</summary>
+    double Diagonal(int j);
+}
+
+/// <summary>Normal equations with a cheap approximate inverse z ≈ G⁻¹ r (symmetric positive definite), used to
+/// precondition the conjugate gradients.</summary>
+public interface INormalPreconditioner
+{
+    /// <summary>z = P r for a full-length r (entries outside the current face are zero in r and ignored in z).</summary>
+    void Precondition(ReadOnlySpan<double> r, Span<double> z);
+}
+
+/// <summary>
+/// NNLS for dense support: minimises ½ xᵀGx − bᵀx subject to x ≥ 0 on the constrained entries by gradient projection
+/// with conjugate gradients on the current face (Moré &amp; Toraldo, "On the solution of large quadratic programming
+/// problems with bound constraints", SIAM J. Optim. 1, 93–113, 1991). Each outer iteration takes a few scaled
+/// projected-gradient steps with a projected Armijo search, which may fix or release many bounds at once, then runs
+/// Jacobi-preconditioned conjugate gradients on the entries that are positive (or free) and a projected search along
+/// the result. Every step costs one or a few matrix-free products G x (O(n + M log M) for <see cref="UnfoldProblem"/>),
+/// never a factorisation, so the cost does not grow with the number of active entries as the active-set solver's does.
+/// It stops when the KKT conditions hold within the tolerance, or at the product budget with an honest status.
+/// </summary>
+public static class DenseNnls
+{
+    public sealed record Options
+    {
+        /// <summary>Absolute KKT tolerance in gradient units (as <see cref="ActiveSetNnls.Options.Tolerance"/>).</summary>
+        public double Tolerance { get; init; }
+
+        /// <summary>KKT tolerance relative to the largest |b_j|; the larger of the two tolerances applies.</summary>
+        public double RelativeTolerance { get; init; } = 1e-8;
+
+        /// <summary>Most outer iterations (each: a few gradient-projection steps and one conjugate-gradient run).</summary>
+        public int MaxIterations { get; init; } = 1000;
+
+        /// <summary>Most products G x in all: the bound on the cost.</summary>
+        public int MaxProducts { get; init; } = 20_000;
+
+        /// <summary>Most conjugate-gradient steps per face.</summary>
+        public int MaxCgSteps { get; init; } = 1000;
+    }
+
+    private const double Armijo = 1e-4;
+
+    /// <summary>Conjugate gradients on a face stop when a step gains less than this fraction of the best step's decrease
+    /// (the rule of Moré &amp; Toraldo, with a smaller factor).</summary>
+    private const double CgStop = 1e-3;
+
+    public static NnlsResult Solve(INormalEquations eq, Options? options = null, ReadOnlySpan<double> start = default)
+    {
+        options ??= new Options();
+        var n = eq.Count;
+        var b = eq.RightHandSide.ToArray();
+        var free = new bool[n];
+        for (var j = 0; j < n; j++) free[j] = eq.IsFree(j);
+
+        // Jacobi scaling
+        var inv = new double[n];
+        var diagonal = eq as INormalDiagonal;
+        for (var j = 0; j < n; j++)
+        {
+            var d = diagonal?.Diagonal(j) ?? 1;
+            inv[j] = d > 0 && double.IsFinite(d) ? 1 / d : 0;
+        }
+
+        var meanInv = inv.Where(v => v > 0).DefaultIfEmpty(1).Average();
+        for (var j = 0; j < n; j++) if (inv[j] == 0) inv[j] = meanInv;
+
+        var x = new double[n];
+        if (start.Length == n)
+            for (var j = 0; j < n; j++) x[j] = free[j] ? start[j] : Math.Max(0, start[j]);
+        var gx = new double[n];
+        var g = new double[n];
+        var products = 0;
+
+        double Objective(double[] v, double[] gv)
+        {
+            var s = 0.0;
+            for (var j = 0; j < n; j++) s += v[j] * (0.5 * gv[j] - b[j]);
+            return s;
+        }
+
+        void Product(double[] v, double[] result)
+        {
+            eq.Multiply(v, result);
+            products++;
+        }
+
+        Product(x, gx);
+        for (var j = 0; j < n; j++) g[j] = gx[j] - b[j];
+        var q = Objective(x, gx);
+        var bMax = 0.0;
+        for (var j = 0; j < n; j++) bMax = Math.Max(bMax, Math.Abs(b[j]));
+        var tol = Math.Max(options.Tolerance, options.RelativeTolerance * bMax);
+
+        var pre = eq as INormalPreconditioner;
+        var moved = false;
+        var xt = new double[n];
+        var gxt = new double[n];
+        var p = new double[n];
+        var gp = new double[n];
+        var r = new double[n];
+        var z = new double[n];
+        var dir = new double[n];
+        var inFace = new bool[n];
+
+        double Violation()
+        {
+            var v = 0.0;
+            for (var j = 0; j < n; j++)
+                v = Math.Max(v, free[j] || x[j] > 0 ? Math.Abs(g[j]) : Math.Max(0, -g[j]));
+            return v;
+        }
+
+        // projected search along d from x: xt = P(x + α d), Armijo on the objective; accepts into x, gx, g, q
+        bool ProjectedSearch(double[] d, double alpha)
+        {
+            for (var trial = 0; trial < 40; trial++)
+            {
+                var slope = 0.0;
+                for (var j = 0; j < n; j++)
+                {
+                    var v = x[j] + alpha * d[j];
+                    if (!free[j] && v < 0) v = 0;
+                    xt[j] = v;
+                    slope += g[j] * (v - x[j]);
+                }
+
+                if (!(slope < 0)) return false;
+                Product(xt, gxt);
+                // the change of a quadratic is exactly ½ (g(x) + g(x + Δ))ᵀ Δ: no cancellation between two large objectives
+                var change = 0.0;
+                for (var j = 0; j < n; j++) change += 0.5 * (g[j] + gxt[j] - b[j]) * (xt[j] - x[j]);
+                if (!double.IsFinite(change)) return false;
+                if (change <= Armijo * slope)
+                {
+                    Array.Copy(xt, x, n);
+                    Array.Copy(gxt, gx, n);
+                    for (var j = 0; j < n; j++) g[j] = gx[j] - b[j];
+                    q += change;
+                    moved = true;
+                    return true;
+                }
+
+                alpha *= 0.5;
+            }
+
+            return false;
+        }
+
+        var status = SolverStatus.IterationLimit;
+        var message = "";
+        var iterations = 0;
+        var stalls = 0;
+        var binding = new bool[n];
+        while (true)
+        {
+            var violation = Violation();
+            if (!double.IsFinite(violation) || !double.IsFinite(q))
+            {
+                status = SolverStatus.InvalidValues;
+                message = "gradient has non-finite values";
+                break;
+            }
+
+            if (violation <= tol)
+            {
+                status = SolverStatus.Converged;
+                message = "KKT conditions hold";
+                break;
+            }
+
+            if (iterations >= options.MaxIterations || products >= options.MaxProducts)
+            {
+                message = $"stopped after {iterations} iterations and {products} products G x (limits {options.MaxIterations}, {options.MaxProducts}); KKT violation {violation:G3} > tolerance {tol:G3}";
+                break;
+            }
+
+            iterations++;
+            moved = false;
+
+            // 1) scaled projected-gradient steps until the set of bound entries settles or progress slows
+            var maxDecrease = 0.0;
+            for (var step = 0; step < 5; step++)
+            {
+                var any = false;
+                for (var j = 0; j < n; j++)
+                {
+                    var v = -g[j] * inv[j];
+                    if (!free[j] && x[j] <= 0 && v < 0) v = 0;
+                    p[j] = v;
+                    any |= v != 0;
+                }
+
+                if (!any) break;
+                Product(p, gp);
+                double pgp = 0, slope = 0;
+                for (var j = 0; j < n; j++)
+                {
+                    pgp += p[j] * gp[j];
+                    slope += g[j] * p[j];
+                }
+
+                if (!(slope < 0)) break;
+                var alpha = pgp > 0 ? -slope / pgp : 1;
+                var before = q;
+                if (!ProjectedSearch(p, alpha)) break;
+                var decrease = before - q;
+                var changed = false;
+                for (var j = 0; j < n; j++)
+                {
+                    var bound = !free[j] && x[j] <= 0 && g[j] > 0;
+                    if (bound != binding[j]) changed = true;
+                    binding[j] = bound;
+                }
+
+                if (!changed || decrease <= 0.1 * maxDecrease) break;
+                maxDecrease = Math.Max(maxDecrease, decrease);
+            }
+
+            // 2) preconditioned conjugate gradients on the face of positive (and free) entries
+            var faceSize = 0;
+            for (var j = 0; j < n; j++)
+            {
+                inFace[j] = free[j] || x[j] > 0;
+                if (inFace[j]) faceSize++;
+                dir[j] = 0;
+                r[j] = inFace[j] ? -g[j] : 0;
+            }
+
+            void ApplyPreconditioner()
+            {
+                if (pre is null)
+                {
+                    for (var j = 0; j < n; j++) z[j] = r[j] * inv[j];
+                    return;
+                }
+
+                pre.Precondition(r, z);
+                for (var j = 0; j < n; j++) if (!inFace[j]) z[j] = 0;
+            }
+
+            ApplyPreconditioner();
+            Array.Copy(z, p, n);
+
+            if (faceSize > 0)
+            {
+                var rz = 0.0;
+                for (var j = 0; j < n; j++) rz += r[j] * z[j];
+                var best = 0.0;
+                for (var k = 0; k < options.MaxCgSteps && rz > 0 && products < options.MaxProducts; k++)
+                {
+                    Product(p, gp);
+                    var pAp = 0.0;
+                    for (var j = 0; j < n; j++)
+                    {
+                        if (!inFace[j]) gp[j] = 0;
+                        pAp += p[j] * gp[j];
+                    }
+
+                    if (!(pAp > 0)) break;
+                    var a = rz / pAp;
+                    var rNorm = 0.0;
+                    for (var j = 0; j < n; j++)
+                    {
+                        dir[j] += a * p[j];
+                        r[j] -= a * gp[j];
+                        rNorm = Math.Max(rNorm, Math.Abs(r[j]));
+                    }
+
+                    var decrease = 0.5 * a * rz;
+                    best = Math.Max(best, decrease);
+                    if (rNorm <= 0.1 * tol || decrease <= CgStop * best) break;
+                    ApplyPreconditioner();
+                    var rzNew = 0.0;
+                    for (var j = 0; j < n; j++) rzNew += r[j] * z[j];
+
+                    var beta = rzNew / rz;
+                    rz = rzNew;
+                    for (var j = 0; j < n; j++) p[j] = z[j] + beta * p[j];
+                }
+
+                ProjectedSearch(dir, 1);
+            }
+
+            if (!moved)
+            {
+                // neither phase moved: the projected searches found no decrease (round-off level)
+                if (++stalls >= 3)
+                {
+                    var v = Violation();
+                    if (v <= tol)
+                    {
+                        status = SolverStatus.Converged;
+                        message = "KKT conditions hold";
+                    }
+                    else
+                    {
+                        message = $"no further progress after {iterations} iterations; KKT violation {v:G3} > tolerance {tol:G3}";
+                    }
+
+                    break;
+                }
+            }
+            else
+            {
+                stalls = 0;
+            }
+        }
+
+        // KKT check on the returned point (the same definition as the active-set solver)
+        Product(x, gx);
+        var kkt = 0.0;
+        var activeCount = 0;
+        for (var j = 0; j < n; j++)
+        {
+            var grad = b[j] - gx[j];
+            if (free[j] || x[j] > 0)
+            {
+                activeCount++;
+                kkt = Math.Max(kkt, Math.Abs(grad));
+            }
+            else
+            {
+                kkt = Math.Max(kkt, Math.Max(0, grad));
+            }
+        }
+
+        return new NnlsResult(x, iterations, 0, status, message, kkt, activeCount)
+        {
+            Method = NnlsMethod.Dense,
+            Products = products,
+            Tolerance = tol,
+        };
+    }
+}
