@@ -68,22 +68,26 @@ public class FieldTraceTests(ITestOutputHelper output)
         return e.GetDouble();
     }
 
+    /// <summary>README 02 and 03: the same handheld 8-bit scope (600 points at 4 µs, no ramp channel) and 2 GHz confocal
+    /// interferometer, finesse about 30.</summary>
+    private const string ShortScopeSetup = """
+        [[instrument]]
+        name = "sfpi"
+        geometry = "confocal"
+        fsr = "2 GHz"
+        finesse = 30
+        [[sweep]]
+        instrument = "sfpi"
+        file = "scope_ch1.csv"
+        y_column = 2
+        sample_interval = "4 us"
+        """;
+
     [Fact]
     public void T03_ShortScopeSingle()
     {
         // README 03: handheld 8-bit scope, 2 GHz confocal interferometer, finesse about 30, 600 points at 4 µs, no ramp
-        const string setup = """
-            [[instrument]]
-            name = "sfpi"
-            geometry = "confocal"
-            fsr = "2 GHz"
-            finesse = 30
-            [[sweep]]
-            instrument = "sfpi"
-            file = "scope_ch1.csv"
-            y_column = 2
-            sample_interval = "4 us"
-            """;
+        const string setup = ShortScopeSetup;
         var truth = FieldTraceSet.Truth("03_short_scope_single");
         var (run, check) = Unfold("03_short_scope_single", setup);
         // truth.json tolerances.lines: exactly one line
@@ -99,18 +103,7 @@ public class FieldTraceTests(ITestOutputHelper output)
     public void T02_ShortScopeTwoModes()
     {
         // README 02: same scope and interferometer, a gas laser on two longitudinal modes, ~1.9 FSR, decimal commas
-        const string setup = """
-            [[instrument]]
-            name = "sfpi"
-            geometry = "confocal"
-            fsr = "2 GHz"
-            finesse = 30
-            [[sweep]]
-            instrument = "sfpi"
-            file = "scope_ch1.csv"
-            y_column = 2
-            sample_interval = "4 us"
-            """;
+        const string setup = ShortScopeSetup;
         var truth = FieldTraceSet.Truth("02_short_scope_two_modes");
         var (run, check) = Unfold("02_short_scope_two_modes", setup);
         var fsr = run.Instruments[0].FsrHz;
