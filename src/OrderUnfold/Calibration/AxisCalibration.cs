@@ -69,6 +69,18 @@ public sealed record AxisCalibration(
 
     /// <summary>Transverse-mode families seen in a calibration sweep, when checked.</summary>
     public TransverseModeReport? TransverseModes { get; init; }
+
+    /// <summary>The same axis with every frequency scaled by <paramref name="factor"/> (the FSR it rests on changed by that
+    /// factor): the polynomial, the points, the residuals and the shape uncertainty.</summary>
+    public AxisCalibration Scaled(double factor) => this with
+    {
+        Axis = Axis.Scaled(factor),
+        PointHz = PointHz.Select(v => v * factor).ToArray(),
+        ResidualHz = ResidualHz.Select(v => v * factor).ToArray(),
+        ResidualRmsHz = ResidualRmsHz * factor,
+        AxisSigmaHz = AxisSigmaHz * factor,
+        ShapeCovariance = ShapeCovariance?.Select(v => v * factor * factor).ToArray(),
+    };
 }
 
 /// <summary>Builds sweep axes from calibration sweeps (a single-frequency laser through the same cavity and ramp).</summary>

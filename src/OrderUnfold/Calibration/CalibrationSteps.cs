@@ -232,14 +232,8 @@ public static class CalibrationSteps
                     if (c.Instrument != name || c.PeriodDecision is not { } d || sure.Contains(d) || d.PeriodHz == surePeriods[0]) continue;
                     var f = surePeriods[0] / d.PeriodHz;
                     warnings.Add($"{c.Source}: its peak pattern did not decide the FSR; it follows the sweeps that did ({Quantity.FormatFrequency(surePeriods[0])})");
-                    calibrations[i] = c with
+                    calibrations[i] = c.Scaled(f) with
                     {
-                        Axis = c.Axis.Scaled(f),
-                        PointHz = c.PointHz.Select(v => v * f).ToArray(),
-                        ResidualHz = c.ResidualHz.Select(v => v * f).ToArray(),
-                        ResidualRmsHz = c.ResidualRmsHz * f,
-                        AxisSigmaHz = c.AxisSigmaHz * f,
-                        ShapeCovariance = c.ShapeCovariance?.Select(v => v * f * f).ToArray(),
                         PeriodDecision = d with { PeriodHz = surePeriods[0], Basis = d.Basis + $"; the FSR follows the sweeps that decided it ({Quantity.FormatFrequency(surePeriods[0])})" },
                     };
                 }
@@ -261,15 +255,7 @@ public static class CalibrationSteps
                 {
                     var c = calibrations[i];
                     if (c.Instrument != name || c.PeriodDecision is not null) continue;
-                    calibrations[i] = c with
-                    {
-                        Axis = c.Axis.Scaled(factor),
-                        PointHz = c.PointHz.Select(v => v * factor).ToArray(),
-                        ResidualHz = c.ResidualHz.Select(v => v * factor).ToArray(),
-                        ResidualRmsHz = c.ResidualRmsHz * factor,
-                        AxisSigmaHz = c.AxisSigmaHz * factor,
-                        ShapeCovariance = c.ShapeCovariance?.Select(v => v * factor * factor).ToArray(),
-                    };
+                    calibrations[i] = c.Scaled(factor);
                 }
 
                 inst = inst with { FsrHz = periods[0] };
@@ -306,16 +292,7 @@ public static class CalibrationSteps
             {
                 var c = calibrations[i];
                 if (c.Instrument != s.Instrument) continue;
-                calibrations[i] = c with
-                {
-                    Axis = c.Axis.Scaled(factor),
-                    PointHz = c.PointHz.Select(v => v * factor).ToArray(),
-                    ResidualHz = c.ResidualHz.Select(v => v * factor).ToArray(),
-                    ResidualRmsHz = c.ResidualRmsHz * factor,
-                    AxisSigmaHz = c.AxisSigmaHz * factor,
-                    ShapeCovariance = c.ShapeCovariance?.Select(v => v * factor * factor).ToArray(),
-                    Method = c.Method + $"; FSR refined by {100 * (factor - 1):+0.000;-0.000} % ({s.Basis})",
-                };
+                calibrations[i] = c.Scaled(factor) with { Method = c.Method + $"; FSR refined by {100 * (factor - 1):+0.000;-0.000} % ({s.Basis})" };
             }
         }
     }

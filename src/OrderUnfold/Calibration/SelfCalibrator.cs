@@ -294,16 +294,7 @@ public static class SelfCalibrator
             // the data say the period is another multiple of the stated FSR (a near-confocal cavity whose TEM00 repeats
             // every c/2L): the whole axis scales with it
             var factor = decision.PeriodHz / period;
-            calibration = calibration with
-            {
-                Axis = calibration.Axis.Scaled(factor),
-                PointHz = calibration.PointHz.Select(v => v * factor).ToArray(),
-                ResidualHz = calibration.ResidualHz.Select(v => v * factor).ToArray(),
-                ResidualRmsHz = calibration.ResidualRmsHz * factor,
-                AxisSigmaHz = calibration.AxisSigmaHz * factor,
-                ShapeCovariance = calibration.ShapeCovariance?.Select(v => v * factor * factor).ToArray(),
-                Warnings = calibration.Warnings.Append($"{sweep.Name}: {decision.Basis}").ToList(),
-            };
+            calibration = calibration.Scaled(factor) with { Warnings = calibration.Warnings.Append($"{sweep.Name}: {decision.Basis}").ToList() };
         }
         var reportPairs = allPairs.Select(c => new RepeatPair(c.XA, c.XB, c.HA, c.HB, c.Delta, c.Sigma, c.Origin, c.Residual, c.Used)).ToList();
         var candidates = runs.Select(r => new PeriodCandidate(r.PeriodSamples, r.Pairs.Count(c => c.Used), r.Coverage, r.HeightMismatch, ReferenceEquals(r, chosen))).ToList();
