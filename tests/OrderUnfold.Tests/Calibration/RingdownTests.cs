@@ -1,3 +1,4 @@
+using OrderUnfold.Tests.FieldTraces;
 using System.Numerics;
 using System.Text.Json;
 using OrderUnfold.Calibration;
@@ -228,15 +229,7 @@ public class RingdownTests(ITestOutputHelper output)
     // ------------------------------------------------------------------ field traces
 
     /// <summary>&lt;repo root&gt;/../shared/field-traces, found by walking up from the test assembly to the folder holding OrderUnfold.sln.</summary>
-    internal static string FieldTraces()
-    {
-        var dir = new DirectoryInfo(AppContext.BaseDirectory);
-        while (dir is not null && !File.Exists(Path.Combine(dir.FullName, "OrderUnfold.sln"))) dir = dir.Parent;
-        Assert.NotNull(dir);
-        var path = Path.GetFullPath(Path.Combine(dir!.FullName, "..", "shared", "field-traces"));
-        Assert.True(Directory.Exists(path), $"field traces not found at {path}");
-        return path;
-    }
+    internal static string FieldTraces() => FieldTraceSet.Root;
 
     public static TheoryData<string, string?, string?, string?, double?> StaticTraces => new()
     {

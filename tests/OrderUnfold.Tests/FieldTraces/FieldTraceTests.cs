@@ -68,26 +68,11 @@ public class FieldTraceTests(ITestOutputHelper output)
         return e.GetDouble();
     }
 
-    /// <summary>README 02 and 03: the same handheld 8-bit scope (600 points at 4 µs, no ramp channel) and 2 GHz confocal
-    /// interferometer, finesse about 30.</summary>
-    private const string ShortScopeSetup = """
-        [[instrument]]
-        name = "sfpi"
-        geometry = "confocal"
-        fsr = "2 GHz"
-        finesse = 30
-        [[sweep]]
-        instrument = "sfpi"
-        file = "scope_ch1.csv"
-        y_column = 2
-        sample_interval = "4 us"
-        """;
-
     [Fact]
     public void T03_ShortScopeSingle()
     {
         // README 03: handheld 8-bit scope, 2 GHz confocal interferometer, finesse about 30, 600 points at 4 µs, no ramp
-        const string setup = ShortScopeSetup;
+        var setup = FieldTraceSetups.ShortScope(name => name);
         var truth = FieldTraceSet.Truth("03_short_scope_single");
         var (run, check) = Unfold("03_short_scope_single", setup);
         // truth.json tolerances.lines: exactly one line
@@ -103,7 +88,7 @@ public class FieldTraceTests(ITestOutputHelper output)
     public void T02_ShortScopeTwoModes()
     {
         // README 02: same scope and interferometer, a gas laser on two longitudinal modes, ~1.9 FSR, decimal commas
-        const string setup = ShortScopeSetup;
+        var setup = FieldTraceSetups.ShortScope(name => name);
         var truth = FieldTraceSet.Truth("02_short_scope_two_modes");
         var (run, check) = Unfold("02_short_scope_two_modes", setup);
         var fsr = run.Instruments[0].FsrHz;
@@ -131,18 +116,7 @@ public class FieldTraceTests(ITestOutputHelper output)
     public void T04_OpenLaserFourModes()
     {
         // README 04: datasheet FSR 2.0 GHz (truly 2.2 GHz), finesse about 25, 1000 noisy 8-bit points, settings preamble
-        const string setup = """
-            [[instrument]]
-            name = "sfpi"
-            geometry = "confocal"
-            fsr = "2 GHz"
-            finesse = 25
-            [[sweep]]
-            instrument = "sfpi"
-            file = "open_laser.csv"
-            x_column = "TIME"
-            y_column = "CH1"
-            """;
+        var setup = FieldTraceSetups.OpenLaser(name => name);
         var truth = FieldTraceSet.Truth("04_open_laser_four_modes");
         var (run, check) = Unfold("04_open_laser_four_modes", setup);
         var fsr = run.Instruments[0].FsrHz;
@@ -171,18 +145,7 @@ public class FieldTraceTests(ITestOutputHelper output)
     public void T06_PlaneLowFinesse()
     {
         // README 06: plane etalon, FSR 64 GHz, finesse about 8, stepped by a DAC (300 rows dac_code, detector_V)
-        const string setup = """
-            [[instrument]]
-            name = "etalon"
-            fsr = "64 GHz"
-            finesse = 8
-            [[sweep]]
-            instrument = "etalon"
-            file = "stepscan.csv"
-            x_column = "dac_code"
-            y_column = "detector_V"
-            scan = "ramp"
-            """;
+        var setup = FieldTraceSetups.PlaneEtalon(name => name);
         var truth = FieldTraceSet.Truth("06_plane_low_finesse");
         var (run, check) = Unfold("06_plane_low_finesse", setup);
         check.That(run.Result.Lines.Count == 1, $"exactly one line (got {run.Result.Lines.Count})");
@@ -222,40 +185,7 @@ public class FieldTraceTests(ITestOutputHelper output)
     {
         // README 07: two confocal interferometers, calibrated FSR 1.500 and 1.620 GHz, finesse about 200 and 220;
         // a calibration sweep and a measurement per cavity; Time;CH1;CH2 with CH2 the ramp monitor
-        const string setup = """
-            [[instrument]]
-            name = "cavA"
-            fsr = "1.5 GHz"
-            finesse = 200
-            [[instrument]]
-            name = "cavB"
-            fsr = "1.62 GHz"
-            finesse = 220
-            [[sweep]]
-            instrument = "cavA"
-            file = "cavA_meas.csv"
-            x_column = 3
-            y_column = 2
-            scan = "ramp"
-            [[sweep]]
-            instrument = "cavB"
-            file = "cavB_meas.csv"
-            x_column = 3
-            y_column = 2
-            scan = "ramp"
-            [[calibration]]
-            instrument = "cavA"
-            file = "cavA_cal.csv"
-            x_column = 3
-            y_column = 2
-            scan = "ramp"
-            [[calibration]]
-            instrument = "cavB"
-            file = "cavB_cal.csv"
-            x_column = 3
-            y_column = 2
-            scan = "ramp"
-            """;
+        var setup = FieldTraceSetups.TwoCavities(name => name);
         var truth = FieldTraceSet.Truth("07_two_cavity_multiline");
         if (UnfoldOrRefuse("07_two_cavity_multiline", setup) is not { } done) return; // refused: see the test output
         var (run, check) = done;
@@ -273,28 +203,7 @@ public class FieldTraceTests(ITestOutputHelper output)
     public void T08_DiodeCombTwoCavity()
     {
         // README 08: two planar cavities, calibrated FSR 10.0 and 7.3 GHz, finesse about 150 and 160; time axis only
-        const string setup = """
-            [[instrument]]
-            name = "cav10"
-            fsr = "10 GHz"
-            finesse = 150
-            [[instrument]]
-            name = "cav7p3"
-            fsr = "7.3 GHz"
-            finesse = 160
-            [[sweep]]
-            instrument = "cav10"
-            file = "cav10_meas.csv"
-            [[sweep]]
-            instrument = "cav7p3"
-            file = "cav7p3_meas.csv"
-            [[calibration]]
-            instrument = "cav10"
-            file = "cav10_cal.csv"
-            [[calibration]]
-            instrument = "cav7p3"
-            file = "cav7p3_cal.csv"
-            """;
+        var setup = FieldTraceSetups.DiodeComb(name => name);
         var truth = FieldTraceSet.Truth("08_diode_comb_two_cavity");
         if (UnfoldOrRefuse("08_diode_comb_two_cavity", setup) is not { } done) return; // refused: see the test output
         var (run, check) = done;

@@ -1,3 +1,4 @@
+using OrderUnfold.Tests.FieldTraces;
 using System.Text.Json;
 using OrderUnfold.Io;
 using Xunit;
@@ -8,18 +9,7 @@ namespace OrderUnfold.Tests.Io;
 internal static class FieldTraceFolder
 {
     /// <summary>The folder; the repository root is the first folder above the test assembly that holds OrderUnfold.sln.</summary>
-    public static string Path
-    {
-        get
-        {
-            var dir = new DirectoryInfo(AppContext.BaseDirectory);
-            while (dir is not null && !System.IO.File.Exists(System.IO.Path.Combine(dir.FullName, "OrderUnfold.sln"))) dir = dir.Parent;
-            Assert.True(dir is not null, "no folder above the test assembly holds OrderUnfold.sln");
-            var folder = System.IO.Path.GetFullPath(System.IO.Path.Combine(dir!.FullName, "..", "shared", "field-traces"));
-            Assert.True(Directory.Exists(folder), $"the field traces are expected at {folder}");
-            return folder;
-        }
-    }
+    public static string Path => FieldTraceSet.Root;
 
     public static string File(string trace, string name) => System.IO.Path.Combine(Path, trace, name);
 

@@ -1,3 +1,4 @@
+using OrderUnfold.Tests.FieldTraces;
 using System.Text.Json;
 using OrderUnfold.Calibration;
 using OrderUnfold.Io;
@@ -15,15 +16,7 @@ namespace OrderUnfold.Tests.SelfCalibration;
 /// </summary>
 public sealed class FieldTraceCalibrationTests(ITestOutputHelper output)
 {
-    private static string Root()
-    {
-        var dir = new DirectoryInfo(AppContext.BaseDirectory);
-        while (dir is not null && !File.Exists(Path.Combine(dir.FullName, "OrderUnfold.sln"))) dir = dir.Parent;
-        Assert.NotNull(dir);
-        var root = Path.GetFullPath(Path.Combine(dir!.FullName, "..", "shared", "field-traces"));
-        Assert.True(Directory.Exists(root), $"field traces not found at {root}");
-        return root;
-    }
+    private static string Root() => FieldTraceSet.Root;
 
     private static string Folder(string prefix) => Directory.GetDirectories(Root()).Single(d => Path.GetFileName(d).StartsWith(prefix, StringComparison.Ordinal));
 
@@ -126,18 +119,7 @@ public sealed class FieldTraceCalibrationTests(ITestOutputHelper output)
     {
         var folder = Folder("02_");
         var file = Path.Combine(folder, "scope_ch1.csv");
-        var set = Calibrate($"""
-            [[instrument]]
-            name = "sfpi"
-            geometry = "confocal"
-            fsr = "2 GHz"
-            finesse = 30
-            [[sweep]]
-            instrument = "sfpi"
-            file = "{file}"
-            y_column = 2
-            sample_interval = "4 us"
-            """, out _);
+        var set = Calibrate(FieldTraceSetups.ShortScope(n => Path.Combine(folder, n)), out _);
         var inst = set.Instruments.Single();
         CheckOrderSpacings(set, "sfpi", folder, "scope_ch1.csv", Options(Path.GetFileName(file)), 0.01);
         // source: shared/field-traces/02_short_scope_two_modes/truth.json (finesse 31.5, tolerance ±20 %)
@@ -156,18 +138,7 @@ public sealed class FieldTraceCalibrationTests(ITestOutputHelper output)
     {
         var folder = Folder("03_");
         var file = Path.Combine(folder, "scope_ch1.csv");
-        var set = Calibrate($"""
-            [[instrument]]
-            name = "sfpi"
-            geometry = "confocal"
-            fsr = "2 GHz"
-            finesse = 30
-            [[sweep]]
-            instrument = "sfpi"
-            file = "{file}"
-            y_column = 2
-            sample_interval = "4 us"
-            """, out _);
+        var set = Calibrate(FieldTraceSetups.ShortScope(n => Path.Combine(folder, n)), out _);
         var inst = set.Instruments.Single();
         CheckOrderSpacings(set, "sfpi", folder, "scope_ch1.csv", Options(Path.GetFileName(file)), 0.01);
         // source: shared/field-traces/03_short_scope_single/truth.json (finesse 31.5 ± 20 %)
@@ -181,18 +152,7 @@ public sealed class FieldTraceCalibrationTests(ITestOutputHelper output)
     {
         var folder = Folder("04_");
         var file = Path.Combine(folder, "open_laser.csv");
-        var set = Calibrate($"""
-            [[instrument]]
-            name = "sfpi"
-            geometry = "confocal"
-            fsr = "2 GHz"
-            finesse = 25
-            [[sweep]]
-            instrument = "sfpi"
-            file = "{file}"
-            x_column = "TIME"
-            y_column = "CH1"
-            """, out var warnings);
+        var set = Calibrate(FieldTraceSetups.OpenLaser(n => Path.Combine(folder, n)), out var warnings);
         var inst = set.Instruments.Single();
         CheckOrderSpacings(set, "sfpi", folder, "open_laser.csv", Options(Path.GetFileName(file)), 0.01);
         // truth (shared/field-traces/04_open_laser_four_modes/truth.json): four source lines, no transverse families
@@ -208,19 +168,7 @@ public sealed class FieldTraceCalibrationTests(ITestOutputHelper output)
     {
         var folder = Folder("06_");
         var file = Path.Combine(folder, "stepscan.csv");
-        var set = Calibrate($"""
-            [[instrument]]
-            name = "etalon"
-            geometry = "planar"
-            fsr = "64 GHz"
-            finesse = 8
-            [[sweep]]
-            instrument = "etalon"
-            file = "{file}"
-            x_column = "dac_code"
-            y_column = "detector_V"
-            scan = "ramp"
-            """, out _);
+        var set = Calibrate(FieldTraceSetups.PlaneEtalon(n => Path.Combine(folder, n)), out _);
         var inst = set.Instruments.Single();
         // source: shared/field-traces/06_plane_low_finesse/truth.json (FSR in DAC codes ± 2 %, finesse 7.8 ± 15 %)
         CheckOrderSpacings(set, "etalon", folder, "stepscan.csv", Options(Path.GetFileName(file)), 0.02);
@@ -234,40 +182,7 @@ public sealed class FieldTraceCalibrationTests(ITestOutputHelper output)
     {
         var folder = Folder("07_");
         string F(string n) => Path.Combine(folder, n);
-        var set = Calibrate($"""
-            [[instrument]]
-            name = "cavA"
-            fsr = "1.5 GHz"
-            finesse = 200
-            [[instrument]]
-            name = "cavB"
-            fsr = "1.62 GHz"
-            finesse = 220
-            [[sweep]]
-            instrument = "cavA"
-            file = "{F("cavA_meas.csv")}"
-            x_column = 3
-            y_column = 2
-            scan = "ramp"
-            [[sweep]]
-            instrument = "cavB"
-            file = "{F("cavB_meas.csv")}"
-            x_column = 3
-            y_column = 2
-            scan = "ramp"
-            [[calibration]]
-            instrument = "cavA"
-            file = "{F("cavA_cal.csv")}"
-            x_column = 3
-            y_column = 2
-            scan = "ramp"
-            [[calibration]]
-            instrument = "cavB"
-            file = "{F("cavB_cal.csv")}"
-            x_column = 3
-            y_column = 2
-            scan = "ramp"
-            """, out _);
+        var set = Calibrate(FieldTraceSetups.TwoCavities(F), out _);
         foreach (var cav in new[] { "cavA", "cavB" })
         {
             var options = Options($"{cav}_cal.csv");
@@ -287,28 +202,7 @@ public sealed class FieldTraceCalibrationTests(ITestOutputHelper output)
     {
         var folder = Folder("08_");
         string F(string n) => Path.Combine(folder, n);
-        var set = Calibrate($"""
-            [[instrument]]
-            name = "cav10"
-            fsr = "10 GHz"
-            finesse = 150
-            [[instrument]]
-            name = "cav7p3"
-            fsr = "7.3 GHz"
-            finesse = 160
-            [[sweep]]
-            instrument = "cav10"
-            file = "{F("cav10_meas.csv")}"
-            [[sweep]]
-            instrument = "cav7p3"
-            file = "{F("cav7p3_meas.csv")}"
-            [[calibration]]
-            instrument = "cav10"
-            file = "{F("cav10_cal.csv")}"
-            [[calibration]]
-            instrument = "cav7p3"
-            file = "{F("cav7p3_cal.csv")}"
-            """, out _);
+        var set = Calibrate(FieldTraceSetups.DiodeComb(F), out _);
         foreach (var cav in new[] { "cav10", "cav7p3" })
         {
             var options = Options($"{cav}_cal.csv");
