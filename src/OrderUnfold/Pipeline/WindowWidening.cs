@@ -53,15 +53,13 @@ public static class WindowWidening
     }
 
     /// <summary>Half width of the widest window the instruments can unfold, within the bin limit.</summary>
-    public static double WidestHalfWidth(IReadOnlyList<Instrument> instruments, double stepHz, int maxBins)
+    public static double WidestHalfWidth(IReadOnlyList<Instrument> instruments, double stepHz, int maxBins, double aliasThreshold)
     {
         var limit = maxBins * stepHz / 2;
-        var from = AliasMargin.DefaultMinimumShiftHz(instruments, AliasThreshold);
+        var from = AliasMargin.DefaultMinimumShiftHz(instruments, aliasThreshold);
         var first = AliasMargin.FirstBelow(instruments, FarThresholdLinewidths, from, limit) ?? limit;
         return Math.Min(first, limit);
     }
-
-    private const double AliasThreshold = 3;
 
     /// <summary>Runs the unfold, and again on a widened window when the first result looks folded.</summary>
     public static (UnfoldResult Result, WindowFinding? Finding) Run(Func<UnfoldOptions, UnfoldResult> unfold, UnfoldOptions options,
@@ -73,13 +71,14 @@ public static class WindowWidening
         var reason = WiderThanWindow(first, narrowest);
         if (reason is null) return (first, null);
         var step = first.Grid.StepHz;
-        var half = WidestHalfWidth(instruments.DistinctBy(i => i.FsrHz).ToList(), step, options.MaxGridBins);
+        var distinct = instruments.DistinctBy(i => i.FsrHz).ToList();
+        var half = WidestHalfWidth(distinct, step, options.MaxGridBins, options.AliasThresholdLinewidths);
         var firstHalf = (first.Grid.EndHz - first.Grid.StartHz) / 2;
         if (!(half > 1.2 * firstHalf))
             return (Folded(first, reason, "the window is already as wide as the instruments (or the bin limit) allow"), new WindowFinding(reason, first.Grid.StartHz, first.Grid.EndHz, firstHalf, [], true));
         progress?.Report($"the source looks wider than the window ({reason}); widening it to ±{Quantity.FormatFrequency(half)}");
         var widened = unfold(options with { WindowStartHz = -half, WindowEndHz = half });
-        var aliases = AliasMargin.Aliases(instruments.DistinctBy(i => i.FsrHz).ToList(), AliasThreshold, AliasMargin.DefaultMinimumShiftHz(instruments, AliasThreshold), 2 * half);
+        var aliases = AliasMargin.Aliases(distinct, options.AliasThresholdLinewidths, AliasMargin.DefaultMinimumShiftHz(distinct, options.AliasThresholdLinewidths), 2 * half);
         var still = WiderThanWindow(widened, narrowest);
         var warnings = widened.Warnings.ToList();
         warnings.Add($"the source looked wider than the first window ({reason}); the window was widened to ±{Quantity.FormatFrequency(half)}, as far as the instruments can tell a shift from zero" +
