@@ -160,7 +160,10 @@ public static class CalibrationSteps
                 try
                 {
                     var result = SelfCalibrator.Calibrate(prepared, inst, new SelfCalibrationOptions { Companion = companion });
-                    var calibration = RingdownHandling.Annotate(result.Calibration, ring, inst.FsrHz); // finesse from the decay time when the peaks ring
+                    // finesse from the decay time when the peaks ring, with the FSR the period decision settled on (a cavity stated
+                    // as confocal that is not has twice the stated FSR, and F = π·FSR·τ)
+                    var fsrHz = result.Calibration.PeriodDecision?.PeriodHz ?? inst.FsrHz;
+                    var calibration = RingdownHandling.Annotate(result.Calibration, ring, fsrHz);
                     calibrations.Add(calibration);
                     done.Add(calibration);
                     warnings.AddRange(calibration.Warnings);
