@@ -21,8 +21,19 @@ internal static class DampedLeastSquares
     /// <param name="Converged">True when the relative χ² change and the step fell below the tolerance.</param>
     public sealed record Result(double[] Parameters, double ChiSquare, Matrix<double>? Covariance, int Iterations, bool Converged);
 
+    /// <param name="evaluate">Residuals and Jacobian.</param>
+    /// <param name="start">Starting parameters.</param>
+    /// <param name="residualCount">Number of residuals.</param>
+    /// <param name="maxIterations">Most iterations.</param>
+    /// <param name="tolerance">Relative χ² change (and relative step) below which the fit has converged.</param>
+    /// <param name="lower">Lower bounds, or null.</param>
+    /// <param name="upper">Upper bounds, or null.</param>
+    /// <param name="crawlChiSquare">With whitened residuals, an absolute χ² gain per step below which a step counts as a
+    /// crawl; five crawling steps in a row end the fit as converged (a χ² change far below 1 moves no parameter by a
+    /// meaningful fraction of its uncertainty). 0: off.</param>
+    /// <param name="keepGoing">Asked before each iteration; false stops the fit where it is (a shared work budget).</param>
     public static Result Minimize(Evaluate evaluate, double[] start, int residualCount, int maxIterations = 100, double tolerance = 1e-9,
-        double[]? lower = null, double[]? upper = null)
+        double[]? lower = null, double[]? upper = null, double crawlChiSquare = 0, Func<bool>? keepGoing = null)
     {
         var n = start.Length;
         var p = (double[])start.Clone();
@@ -36,8 +47,10 @@ internal static class DampedLeastSquares
         var it = 0;
         var trial = new double[n];
         var rTrial = new double[residualCount];
+        var crawling = 0;
         for (; it < maxIterations; it++)
         {
+            if (keepGoing is not null && !keepGoing()) break;
             var (a, g) = Normal(jac, r, n);
             var improved = false;
             for (var attempt = 0; attempt < 12; attempt++)
@@ -62,6 +75,7 @@ internal static class DampedLeastSquares
                 if (double.IsFinite(chiTrial) && chiTrial <= chi)
                 {
                     var relative = (chi - chiTrial) / Math.Max(chi, 1e-300);
+                    crawling = chi - chiTrial < crawlChiSquare ? crawling + 1 : 0;
                     var stepSmall = true;
                     for (var i = 0; i < n; i++)
                         if (Math.Abs(step[i]) > tolerance * 1e3 * (Math.Abs(p[i]) + 1e-12)) stepSmall = false;
@@ -69,7 +83,7 @@ internal static class DampedLeastSquares
                     chi = chiTrial;
                     lambda = Math.Max(lambda / 4, 1e-12);
                     improved = true;
-                    if (relative < tolerance || stepSmall) converged = true;
+                    if (relative < tolerance || stepSmall || crawling >= 5) converged = true;
                     break;
                 }
 

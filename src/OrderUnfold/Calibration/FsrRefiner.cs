@@ -33,8 +33,12 @@ public sealed record FsrRefineOptions
     /// <summary>Most lines used (the strongest).</summary>
     public int MaxLines { get; init; } = 14;
 
-    /// <summary>Largest relative FSR error the pre-scan of folded peaks looks for (default 1.2 %).</summary>
-    public double MaxScaleError { get; init; } = 0.012;
+    /// <summary>Largest relative FSR error the pre-scan of folded peaks looks for (default 2.5 %).</summary>
+    public double MaxScaleError { get; init; } = 0.025;
+
+    /// <summary>CPU seconds (of the calling thread) that the per-instrument line fits of all rounds may use together;
+    /// when used up the rounds stop with a warning and the FSRs stay as far as the finished rounds took them.</summary>
+    public double CpuBudgetSeconds { get; init; } = 5;
 }
 
 /// <summary>The refined FSR of one instrument.</summary>
@@ -149,10 +153,19 @@ public static class FsrRefiner
             return (current, result, Finish());
         }
 
+        var budget = new Analysis.WorkBudget(int.MaxValue, options.CpuBudgetSeconds, progress);
         for (var round = 0; round < options.MaxRounds; round++)
         {
-            var est = Estimate(current, currentResult, options with { ReferenceInstrument = reference }, names.Count > 1 && options.RefineRatio);
+            var est = Estimate(current, currentResult, options with { ReferenceInstrument = reference }, names.Count > 1 && options.RefineRatio, budget);
             rounds = round + 1;
+            if (budget.Exhausted is not null)
+            {
+                // a line fit cut short measures nothing reliable: this round's scales are not applied
+                warnings.Add($"the FSR refinement stopped in round {round + 1} because {budget.Exhausted} (after {budget.CpuSeconds:F1} s); " +
+                             (round == 0 ? "the FSRs were not refined beyond the pre-scan" : "the FSRs are those of the rounds before"));
+                break;
+            }
+
             if (round == 0)
             {
                 warnings.AddRange(est.Warnings);
@@ -455,7 +468,8 @@ public static class FsrRefiner
     internal sealed record Estimation(Dictionary<string, (double Scale, double RelativeSigma, string Basis)> Scales, List<IntervalMatch> Intervals,
         List<InstrumentLineFit> Fits, List<string> Warnings, List<string> Notes);
 
-    internal static Estimation Estimate(IReadOnlyList<CalibratedSweep> sweeps, UnfoldResult result, FsrRefineOptions options, bool ratio)
+    internal static Estimation Estimate(IReadOnlyList<CalibratedSweep> sweeps, UnfoldResult result, FsrRefineOptions options, bool ratio,
+        Analysis.WorkBudget? budget = null)
     {
         var warnings = new List<string>();
         var notes = new List<string>();
@@ -472,7 +486,7 @@ public static class FsrRefiner
         var anchor = lines.IndexOf(lines.MaxBy(l => l.Intensity)!);
         var names = sweeps.Select(s => s.Instrument.Name).Distinct().ToList();
         var reference = options.ReferenceInstrument ?? names[0];
-        var fits = names.Select(n => FitInstrument(sweeps.Where(s => s.Instrument.Name == n).ToList(), result, lines, anchor)).ToList();
+        var fits = names.Select(n => FitInstrument(sweeps.Where(s => s.Instrument.Name == n).ToList(), result, lines, anchor, budget)).ToList();
         var refFit = fits.First(f => f.Instrument == reference);
 
         // Vernier ratios: νᵏ = r·νʳᵉᶠ, both anchored at the same line
@@ -687,7 +701,7 @@ public static class FsrRefiner
     /// Fits one instrument's sweeps alone: line positions (the anchor fixed) and intensities shared by its sweeps,
     /// and per sweep an offset, a gain (the first fixed) and a background.
     /// </summary>
-    private static InstrumentLineFit FitInstrument(List<CalibratedSweep> group, UnfoldResult result, List<L> lines, int anchor)
+    private static InstrumentLineFit FitInstrument(List<CalibratedSweep> group, UnfoldResult result, List<L> lines, int anchor, Analysis.WorkBudget? budget)
     {
         var inst = group[0].Instrument;
         var fsr = inst.FsrHz;
@@ -781,7 +795,10 @@ public static class FsrRefiner
             }
         }
 
-        var fit = DampedLeastSquares.Minimize(Eval, p0, m, maxIterations: 80, tolerance: 1e-10);
+        // whitened residuals: steps that gain less than 0.01 in χ² five times in a row move no line by a meaningful
+        // fraction of its uncertainty, so the fit ends there (common practice for a stopping rule, not from a reference)
+        var fit = DampedLeastSquares.Minimize(Eval, p0, m, maxIterations: 80, tolerance: 1e-10, crawlChiSquare: 0.01,
+            keepGoing: budget is null ? null : () => budget.Spend());
         var reduced = fit.ChiSquare / Math.Max(1, m - nP);
         var freq = new double[nLines];
         var cov = new double[nLines, nLines];

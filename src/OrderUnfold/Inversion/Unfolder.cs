@@ -210,6 +210,7 @@ public static class Unfolder
 
             nnls = NnlsSolver.Solve(problem, options.Solver, SolverOptions(problem), problem.L1Weight, problem.SmoothnessWeight,
                 round == 0 ? default : nnls.Solution);
+            progress?.Report($"NNLS round {round + 1}: {nnls.ActiveCount} active entries after {nnls.Iterations} iterations ({nnls.Status})");
             if (round == rounds) break;
             var s = nnls.Solution.AsSpan(0, grid.Count);
             var moved = 0.0;

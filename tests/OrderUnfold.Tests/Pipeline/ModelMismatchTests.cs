@@ -105,6 +105,16 @@ public class ModelMismatchTests(ITestOutputHelper output)
         Assert.Contains(run.FsrRefinement!.Instruments, i => i.Instrument == "B" && Math.Abs(Math.Abs(i.RelativeChange) - 0.0007) < 0.0002);
     }
 
+    /// <summary>Cavity B's stated length 2 % long (95.574 mm for 93.7 mm), with and without refine_fsr: beyond what the folded
+    /// peaks pin (several ratios explain the demo's six lines) and far beyond what the line fits can correct, so the run is
+    /// refused naming the stated FSRs; the FSR refinement's line fits share a CPU budget, so this ends.</summary>
+    [Theory]
+    [InlineData("false")]
+    [InlineData("true")]
+    public void FsrOff2PercentIsRefusedWithTheCause(string refine) =>
+        AssertRefused(Setup(t => t.Replace("length = \"93.7 mm\"", "length = \"95.574 mm\"").Replace("refine_fsr = false", $"refine_fsr = {refine}")),
+            "reduced χ²", "stated FSR");
+
     /// <summary>Cavity B's stated length 10 % long: no ratio explains the data well; the run is refused, naming the reduced
     /// χ² and the stated FSR or the sweep assignment as the likely cause.</summary>
     [Fact]
