@@ -212,7 +212,7 @@ public static class UnfoldPipeline
             throw new InputException(
                 $"the line fit ran out of its budget ({refinement.BudgetExhausted}) on {result.Lines.Count} grid line(s) (reduced χ² {result.ReducedChiSquare:F2}{widened}): " +
                 "a spectrum explained by that many lines with a poor fit is the mark of a model that does not match the data, so no line list is reported. " +
-                "Check the stated FSRs (refine_fsr = true, or a known_interval), the finesse, and which sweep file belongs to which instrument", setup.Path);
+                LikelyCauses(result, instruments, calibrations, fsrRefinement is not null), setup.Path);
 
         RefuseMismatch(result, refinement is null ? "grid" : "line");
         result = FewerLines(result, solve.MinSnr, warnings);
@@ -235,6 +235,46 @@ public static class UnfoldPipeline
         };
     }
 
+
+    /// <summary>
+    /// What to check when the model does not match the data, most suspect first, from the run's own evidence: an axis whose
+    /// calibration fits its own peaks poorly or rests on few constraints, then (with two or more instruments) the stated FSRs
+    /// and the sweep-to-instrument assignment, a finesse that could not be measured, and (one instrument) the cavity's own
+    /// response. A single instrument has no FSR ratio to refine, so refine_fsr is not suggested there.
+    /// </summary>
+    internal static string LikelyCauses(UnfoldResult result, IReadOnlyDictionary<string, Instrument> instruments, IReadOnlyList<AxisCalibration> calibrations, bool fsrRefined)
+    {
+        var causes = new List<string>();
+        // the instruments of the sweeps that fit worst first
+        var order = result.Sweeps.OrderByDescending(f => f.ReducedChiSquare).Select(f => f.Instrument).Distinct()
+            .Concat(instruments.Keys).Distinct().Where(instruments.ContainsKey).ToList();
+        foreach (var name in order)
+        {
+            var lw = instruments[name].LinewidthHz;
+            var weak = calibrations.Where(c => c.Instrument == name && c.PointCount > 0)
+                .Select(c => (c, Lw: c.ResidualRmsHz / lw, Few: c.FromRepeats && c.PairsUsed < 2 * (c.Axis.Degree + 1)))
+                .Where(v => v.Lw > CalibrationSteps.JointResidualLinewidths || v.Few)
+                .OrderByDescending(v => v.Lw).FirstOrDefault();
+            if (weak.c is { } c)
+                causes.Add($"the axis of '{name}' ({c.Source}: {c.Method}; residual {weak.Lw:F2} linewidths" +
+                           (weak.Few ? $", only {c.PairsUsed} constraints for a degree-{c.Axis.Degree} polynomial" : "") +
+                           "): add a calibration sweep or sweep over more FSRs");
+        }
+
+        if (instruments.Count >= 2)
+        {
+            causes.Add(fsrRefined ? "the stated FSRs (even after the refinement from the data: a known_interval pins the scale)" : "the stated FSRs (refine_fsr = true, or a known_interval)");
+            causes.Add("which sweep file belongs to which instrument");
+        }
+
+        foreach (var (name, inst) in instruments)
+            if (!calibrations.Any(c => c.Instrument == name && c.FinesseMeasured))
+                causes.Add($"the finesse of '{name}' (the stated {inst.Finesse:G4} was used; no peak measured it)");
+        if (instruments.Count == 1)
+            causes.Add("the cavity's own response (transverse families or ring-down that the model leaves in the residuals; mirror_radius in the setup places the families)");
+        causes.Add("the noise level (a σ far below the real noise makes every fit look poor)");
+        return "Check, most suspect first: " + string.Join("; ", causes);
+    }
 
     /// <summary>
     /// When the data cannot tell a line from its alias, the explanation with fewer lines is preferred: a weak line
