@@ -26,7 +26,8 @@ internal static class Summary
             o.WriteLine($"sweep {s.Name}: {s.Samples} samples, reduced χ² {s.ReducedChiSquare:F2}");
         o.WriteLine(r.OrdersResolved
             ? $"{r.Grid.Count} bins of {Quantity.FormatFrequency(r.Grid.StepHz)}; {UnfoldOutputs.UnambiguousText(run)}"
-            : $"one instrument only: spectrum folded into one FSR ({Quantity.FormatFrequency(r.UnambiguousRangeHz)}); orders unknown");
+            // the instrument's FSR as reported above (an FSR refinement may end with a last correction too small to re-unfold for)
+            : $"one instrument only: spectrum folded into one FSR ({Quantity.FormatFrequency(run.Instruments.Count == 1 ? run.Instruments[0].FsrHz : r.UnambiguousRangeHz)}); orders unknown");
         o.WriteLine($"solver: {r.Solver.Status.ToString().ToLowerInvariant()} after {r.Solver.Iterations} iterations; reduced χ² {r.ReducedChiSquare:F2}");
         var anchor = run.Setup.Solve.AnchorFrequencyHz;
         o.WriteLine($"{r.Lines.Count} line(s), frequencies relative to the strongest line" + (anchor is double a ? $" (anchored at {Quantity.FormatFrequency(a, 10)})" : "") + ":");

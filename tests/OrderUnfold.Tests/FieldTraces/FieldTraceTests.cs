@@ -142,6 +142,25 @@ public class FieldTraceTests(ITestOutputHelper output)
     }
 
     [Fact]
+    public void T04_KnownLaserLengthCorrectsTheDatasheetFsr()
+    {
+        // README 04: the user also knows the laser's mirror spacing, 0.70 m, so its modes are c/2L = 214.14 MHz apart; given
+        // as a known interval it calibrates the interferometer's FSR, which the README says is really 2.2 GHz (datasheet 2.0)
+        var setup = FieldTraceSetups.OpenLaser(name => name) + "\n[solve]\nknown_interval = \"214.14 MHz\"\n";
+        var truth = FieldTraceSet.Truth("04_open_laser_four_modes");
+        var (run, check) = Unfold("04_open_laser_four_modes", setup);
+        check.That(run.Result.Lines.Count == 4, $"exactly four lines per FSR (got {run.Result.Lines.Count})");
+        // README 04: corrected FSR 2.2 GHz, tolerance ±3 %
+        check.Within(run.Instruments[0].FsrHz, 2.2e9, 0.03, "FSR corrected by the known interval");
+        // truth.json true.mode_spacing_fsr 0.0973 of the true FSR: neighbouring lines now 214 MHz apart (±0.003 FSR)
+        var hz = run.Result.Lines.Select(l => l.FrequencyHz).OrderBy(v => v).ToList();
+        var spacingHz = Get(truth, "true", "mode_spacing_fsr") * 2.2e9;
+        for (var j = 1; j < hz.Count; j++)
+            check.That(Math.Abs(hz[j] - hz[j - 1] - spacingHz) <= 0.003 * 2.2e9, $"spacing {(hz[j] - hz[j - 1]) / 1e6:F1} MHz vs {spacingHz / 1e6:F1} MHz (±0.003 FSR)");
+        check.Done();
+    }
+
+    [Fact]
     public void T06_PlaneLowFinesse()
     {
         // README 06: plane etalon, FSR 64 GHz, finesse about 8, stepped by a DAC (300 rows dac_code, detector_V)
