@@ -279,6 +279,17 @@ public class FieldTraceTests(ITestOutputHelper output)
             check.Within(n1.RelativeHeight, 1.85, 0.20, "N=1 height relative to TEM00");
         }
 
+        // README 05: satellites 0.0638 FSR before each group: N=2 (22 %) before TEM00, i.e. 0.9362 FSR after it, and N=3
+        // (30 %) before N=1, i.e. 0.4043 FSR after TEM00; offsets ±0.005 FSR, heights ±20 %
+        foreach (var (n, offset, height) in new[] { (2, 1 - 0.0638, 0.22), (3, 0.4681 - 0.0638, 0.30) })
+        {
+            var f = run.Instruments[0].Families.FirstOrDefault(f => f.N == n);
+            check.That(f is not null, $"the N={n} family is reported with the cavity");
+            if (f is null) continue;
+            check.That(Math.Abs(f.ApparentOffsetFsr - offset) <= 0.005, $"N={n} apparent offset {f.ApparentOffsetFsr:F4} FSR vs {offset:F4} (±0.005)");
+            check.Within(f.RelativeHeight, height, 0.20, $"N={n} height relative to TEM00");
+        }
+
         check.Done();
     }
 
