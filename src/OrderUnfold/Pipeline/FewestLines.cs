@@ -174,7 +174,18 @@ public static class FewestLines
     /// offset <paramref name="jointOffsetHz"/> of this sweep), intensities relative to their sum.</summary>
     private static List<Folded> FoldedLines(CalibratedSweep sweep, double jointOffsetHz, UnfoldOptions options, IProgress<string>? progress)
     {
-        var alone = Unfolder.Run([sweep], options with { WindowStartHz = null, WindowEndHz = null });
+        UnfoldResult alone;
+        try
+        {
+            alone = Unfolder.Run([sweep], options with { WindowStartHz = null, WindowEndHz = null });
+        }
+        catch (InputException e)
+        {
+            // a sweep that cannot be unfolded alone gives no folded lines: the stage then proposes nothing
+            progress?.Report($"fewest lines: {sweep.Name} could not be unfolded alone ({e.Message})");
+            return [];
+        }
+
         var phi = alone.Sweeps[0].OffsetHz;
         var sum = alone.Lines.Sum(l => l.Intensity);
         if (!(sum > 0)) return [];
