@@ -200,7 +200,21 @@ public static class UnfoldPipeline
                 MinSnr = solve.MinSnr,
                 DoubtfulDeltaChiSquare = solve.DoubtfulDeltaChiSquare,
             };
-            (result, refinement) = Analysis.LineRefiner.Refine(calibrated, result, refineOptions, progress);
+            // two cavities on a widened window: the grid's L1 cannot tell the true lines from mixtures of them, so the
+            // explanation with the fewest lines is tried first and kept when it fits as well (Pipeline/FewestLines.cs)
+            if (FewestLines.Applies(calibrated, result, windowFinding))
+            {
+                var (fewest, fewestRefinement, finding) = FewestLines.Run(calibrated, result, options, windowFinding!.HalfWidthHz, refineOptions, progress);
+                progress?.Report($"fewest lines: {(finding.Kept ? "kept" : "not kept")}: {finding.Reason}");
+                if (finding.Kept)
+                {
+                    result = fewest;
+                    refinement = fewestRefinement;
+                }
+                else warnings.Add($"a fewest-lines explanation of the widened window ({finding.Proposed} line(s)) was tried and not kept: {finding.Reason}");
+            }
+
+            if (refinement is null) (result, refinement) = Analysis.LineRefiner.Refine(calibrated, result, refineOptions, progress);
         }
 
         // a line fit that ran out of its budget on a grid that fits poorly: the grid's many lines are the model's way of
