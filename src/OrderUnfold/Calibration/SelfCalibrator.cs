@@ -223,7 +223,14 @@ public static class SelfCalibrator
             foreach (var c in chosen.Pairs) c.Residual = c.Delta - (ladder.Fit.Axis.Evaluate(c.XB) - ladder.Fit.Axis.Evaluate(c.XA));
             var trial = chosen with { Fit = ladder.Fit, Scores = ladder.Scores };
             var (d2, adopt2) = DecidePeriod(trial, runs, peaks, sweep, instrument, period, xLo, xHi);
-            if (adopt2 is null && Math.Abs(d2.PeriodHz / decision.PeriodHz - 1) < 1e-9 && d2.Families.Count >= decision.Families.Count &&
+            // the ladder is physics of ideal spherical mirrors; an astigmatic cavity splits its families off the rungs. The extra
+            // constraints must agree with the peaks as well as the pairs alone do (reduced χ² at most twice theirs, or 2)
+            var pairFit = chosen.Fit!;
+            var pairDof = Math.Max(1, chosen.Pairs.Count(c => c.Used) - pairFit.Axis.Degree);
+            var agrees = ladder.ReducedChiSquare <= 2 * Math.Max(1, pairFit.ChiSquare / pairDof);
+            if (!agrees)
+                warnings.Add($"{sweep.Name}: the transverse families do not lie on one Gouy ladder within the peak positions' uncertainty (reduced χ² {ladder.ReducedChiSquare:G3} against {pairFit.ChiSquare / pairDof:G3} of the repeat pairs alone); the axis rests on the repeat pairs");
+            if (agrees && adopt2 is null && Math.Abs(d2.PeriodHz / decision.PeriodHz - 1) < 1e-9 && d2.Families.Count >= decision.Families.Count &&
                 d2.Candidates.First(c => c.Chosen).Consistent == decision.Candidates.First(c => c.Chosen).Consistent)
             {
                 runs[runs.IndexOf(chosen)] = trial;
@@ -418,7 +425,11 @@ public static class SelfCalibrator
     }
 
     /// <summary>The axis refitted to every peak of one source line and its transverse families at once.</summary>
-    private sealed record Ladder(Fit Fit, List<DegreeScore> Scores, int Points, string Note);
+    private sealed record Ladder(Fit Fit, List<DegreeScore> Scores, int Points, string Note)
+    {
+        /// <summary>χ² per degree of freedom of the chosen degree (points − degree − 2 unknowns).</summary>
+        public double ReducedChiSquare => Fit.ChiSquare / Math.Max(1, Points - Fit.Axis.Degree - 2);
+    }
 
     /// <summary>
     /// Refits the axis to the peaks of a single source line and its transverse families on a Gouy ladder. Family N lies

@@ -56,6 +56,7 @@ public class FieldTraceTests(ITestOutputHelper output)
         var run = FieldTraceSet.Run(path);
         output.WriteLine($"{trace}: {sw.Elapsed.TotalSeconds:F1} s wall, {(Process.GetCurrentProcess().TotalProcessorTime - cpu).TotalSeconds:F1} s CPU (process)");
         foreach (var i in run.Instruments) output.WriteLine($"{trace}: instrument {i}");
+        foreach (var c in run.Calibrations) output.WriteLine($"{trace}: axis {c.Source}: {c.Method}, degree {c.Axis.Degree}");
         foreach (var l in run.Result.Lines)
             output.WriteLine($"{trace}: line {l.FrequencyHz / 1e6:F3} MHz ± {l.FrequencySigmaHz / 1e6:F3}, intensity {l.Intensity:F3}, SNR {l.Snr:F0}, {l.Verdict}");
         foreach (var w in run.AllWarnings) output.WriteLine($"{trace}: warning: {w}");
