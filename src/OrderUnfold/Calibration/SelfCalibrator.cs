@@ -45,6 +45,10 @@ public sealed record SelfCalibrationOptions
 
     /// <summary>Fit the effective finesse from isolated peaks (costs a few small fits).</summary>
     public bool FitFinesse { get; init; } = true;
+
+    /// <summary>When the peaks show transverse families on a Gouy ladder (a family N ≥ 2 besides N = 1), refit the axis to every
+    /// peak of the line and its families at once (<see cref="SelfCalibrator"/>, the ladder refit); false keeps the repeat pairs alone.</summary>
+    public bool UseFamilyLadder { get; init; } = true;
 }
 
 /// <summary>Two peaks taken to be one feature one period apart: f(XB) − f(XA) = DeltaHz.</summary>
@@ -216,7 +220,7 @@ public static class SelfCalibrator
         // to every labelled peak at once, with the ladder's one offset free (LadderFit); kept when it explains the peaks at
         // least as well as the pairs do and the period decision stands on it
         Ladder? ladderUsed = null;
-        if (decision is not null && options.Degree is null && companionPairs.Count == 0 &&
+        if (decision is not null && options.UseFamilyLadder && options.Degree is null && companionPairs.Count == 0 &&
             LadderFit(chosen, decision, peaks, sweep, options, period, xLo, xHi) is { } ladder)
         {
             var before = chosen.Pairs.Select(c => c.Residual).ToList();
