@@ -216,6 +216,8 @@ public static class UnfoldPipeline
 
         RefuseMismatch(result, refinement is null ? "grid" : "line");
         result = FewerLines(result, solve.MinSnr, warnings);
+        // a weak line on a family's peaks of a stronger line is that family's residue when one cavity measured it (FamilyResidue.cs)
+        result = FamilyResidue.Apply(result, calibrated.Select(c => c.Instrument).ToList(), calibrations, warnings);
         result = ExtrapolationShare.Apply(result, calibrated);
 
         return new UnfoldRun
