@@ -311,6 +311,16 @@ public class FieldTraceTests(ITestOutputHelper output)
             }
 
             var offset = expected.GetProperty("apparent_offset_fsr").GetDouble();
+            if (n == 1)
+            {
+                // truth.json true.cavity.mirror_radius_m 0.052 (both mirrors): the N=1 offset implies it for the stated length;
+                // ±0.7 mm is the offset tolerance ±0.004 FSR carried through R = L/(1 − cos(π·o₁)) (no tolerance is stated for R)
+                var r = OrderUnfold.Instruments.GouyPhase.EqualMirrorRadius(got.GouyOffsetFsr, 0.05);
+                var trueR = Get(truth, "true", "cavity", "mirror_radius_m");
+                check.That(Math.Abs(r - trueR) <= 0.7e-3, $"mirror radius implied by the N=1 offset {r * 1e3:F2} mm vs {trueR * 1e3:F1} mm (±0.7 mm)");
+                check.That(run.AllWarnings.Any(w => w.Contains("mirrors of R = ", StringComparison.Ordinal)), "the implied mirror radius is stated");
+            }
+
             check.That(Math.Abs(got.ApparentOffsetFsr - offset) <= offsetTol, $"N={n} apparent offset {got.ApparentOffsetFsr:F4} FSR vs {offset:F4} (±{offsetTol})");
             check.Within(got.RelativeHeight, expected.GetProperty("height_rel_TEM00").GetDouble(), heightTol, $"N={n} height relative to TEM00");
         }

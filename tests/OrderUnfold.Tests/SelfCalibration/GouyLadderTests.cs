@@ -65,6 +65,18 @@ public sealed class GouyLadderTests(ITestOutputHelper output)
 
     private static (double, double)[] Ladder => [(Apparent(1), 0.4), (Apparent(2), 0.12), (Apparent(3), 0.07)];
 
+    [Theory]
+    [InlineData(0.050, 0.052)] // near-confocal, g = +0.038
+    [InlineData(0.055, 0.050)] // g = −0.1
+    [InlineData(0.030, 0.200)] // g = +0.85
+    public void The_equal_mirror_radius_inverts_the_Gouy_offset(double lengthM, double radiusM)
+    {
+        // Siegman, Lasers (1986), ch. 19: o₁ = arccos(±√(g₁g₂))/π, g = 1 − L/R; the inverse for g₁ = g₂ must return R
+        Assert.Equal(radiusM, GouyPhase.EqualMirrorRadius(GouyPhase.OffsetFsr(1, lengthM, radiusM, radiusM), lengthM), 9);
+        Assert.True(double.IsPositiveInfinity(GouyPhase.EqualMirrorRadius(1e-12, lengthM)) || GouyPhase.EqualMirrorRadius(1e-12, lengthM) > 1e6);
+        Assert.True(double.IsNaN(GouyPhase.EqualMirrorRadius(1.2, lengthM)));
+    }
+
     [Fact]
     public void A_weak_family_at_a_rung_of_the_ladder_is_found_and_every_family_is_measured()
     {
