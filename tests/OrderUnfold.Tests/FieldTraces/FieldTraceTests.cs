@@ -311,6 +311,7 @@ public class FieldTraceTests(ITestOutputHelper output)
             }
 
             var offset = expected.GetProperty("apparent_offset_fsr").GetDouble();
+            check.That(got.Basis.StartsWith("fitted", StringComparison.Ordinal), $"N={n} fitted to the sweeps ({got.Basis})");
             if (n == 1)
             {
                 // truth.json true.cavity.mirror_radius_m 0.052 (both mirrors): the N=1 offset implies it for the stated length;
