@@ -274,13 +274,26 @@ public static class CalibrationSteps
                 }).ToList();
             if (families.Count > 0)
                 warnings.Add($"instrument '{name}': transverse families of the cavity are part of its response (not source lines): " +
-                             string.Join(", ", families.Select(f => $"N={f.N} at {f.ApparentOffsetFsr:F4} FSR after TEM00, {100 * f.RelativeHeight:F0} % of its height")));
+                             string.Join(", ", families.Select(f => $"N={f.N} at {f.ApparentOffsetFsr:F4} FSR after TEM00, {100 * f.RelativeHeight:F0} % of its height")) +
+                             MirrorRadiusNote(inst, families));
 
             var measured = mine.Any(c => c.Finesse is not null);
             if (!measured && !(finesseFixed?.Invoke(name) ?? false))
                 warnings.Add($"instrument '{name}': the finesse could not be measured from the peaks (no isolated peak fitted the Airy profile consistently; see the warnings of its sweeps); the stated value {inst.Finesse:F0} is used and the line uncertainties are widened");
             instruments[name] = inst with { Families = families, FinesseMeasured = measured };
         }
+    }
+
+    /// <summary>What the measured N = 1 offset says about the mirrors, for two equal mirrors at the stated length (Gouy phase
+    /// inverted: g = cos(π·o₁), R = L/(1 − g)), beside the stated radius when there is one; empty without N = 1 or a length.</summary>
+    internal static string MirrorRadiusNote(Instrument inst, IReadOnlyList<CavityModeFamily> families)
+    {
+        var one = families.FirstOrDefault(f => f.N == 1);
+        if (one is null || inst.LengthM is not double length) return "";
+        var r = GouyPhase.EqualMirrorRadius(one.GouyOffsetFsr, length);
+        if (!double.IsFinite(r)) return "";
+        var stated = inst.MirrorRadiiM is { } radii ? $" (stated {Quantity.FormatLength(radii.R1)}{(radii.R2 != radii.R1 ? $" and {Quantity.FormatLength(radii.R2)}" : "")})" : "";
+        return $"; with the stated length {Quantity.FormatLength(length)}, the N=1 offset means mirrors of R = {Quantity.FormatLength(r)} if both are equal{stated}";
     }
 
     /// <summary>Carries refined FSRs into the instruments and scales the axes of those instruments with them.</summary>

@@ -30,6 +30,13 @@ public sealed record PeriodCandidateScore(string Label, double PeriodScan, doubl
 public sealed record PeriodDecision(double PeriodScan, double PeriodHz, double StatedFsrHz, IReadOnlyList<PeriodCandidateScore> Candidates, string Basis,
     IReadOnlyList<CavityModeFamily> Families, string Fundamental)
 {
+    /// <summary>Phase (in periods, on the axis the decision was made with, from the low end of the sweep) of the TEM00 group
+    /// whose families were found; null without families.</summary>
+    public double? FundamentalPhase { get; init; }
+
+    /// <summary>Phase tolerance (periods) within which peaks were grouped.</summary>
+    public double Tolerance { get; init; }
+
     /// <summary>One line for the console.</summary>
     public string Summary =>
         $"period {PeriodScan:G5} scan units = {Quantity.FormatFrequency(PeriodHz)} ({Basis}); candidates " +
@@ -127,8 +134,24 @@ public static class PeriodDecider
     /// <param name="minMembers">Groups with fewer members are not used (a stray peak is not a family).</param>
     public static (List<CavityModeFamily> Families, string Fundamental) Families(List<PeakGroup> groups, Instrument instrument, double tolerance, int minMembers)
     {
+        var split = Split(groups, instrument, tolerance, minMembers);
+        return (split.Families, split.Fundamental);
+    }
+
+    /// <summary>How <see cref="Split"/> divided the peak groups: the families, how TEM00 was identified, and its phase.</summary>
+    public sealed record FamilySplit(List<CavityModeFamily> Families, string Fundamental, double? FundamentalPhase);
+
+    /// <summary>
+    /// <see cref="Families"/> with the phase of the TEM00 group, and weaker families: once a ladder is found among the clear
+    /// groups, a weaker group (from <paramref name="weakGroups"/>: every peak the self-calibration uses, down to a few % of
+    /// the tallest) that sits at a free rung N·a (N ≤ 3) of that ladder and accompanies every TEM00 member but at most one
+    /// (the sweep's edges) is the family N too: a family that follows the fundamental at its Gouy offset, order after order,
+    /// belongs to the cavity whatever its height.
+    /// </summary>
+    public static FamilySplit Split(List<PeakGroup> groups, Instrument instrument, double tolerance, int minMembers, List<PeakGroup>? weakGroups = null)
+    {
         var usable = groups.Where(g => g.Members.Count >= minMembers).ToList();
-        if (usable.Count < 2) return ([], "one peak group: no transverse family");
+        if (usable.Count < 2) return new([], "one peak group: no transverse family", null);
 
         // offsets the mirror radii predict (apparent offsets after TEM00), with a margin for nominal radii
         double[]? predicted = null;
@@ -182,8 +205,25 @@ public static class PeriodDecider
             }
         }
 
-        if (best.Members.Count == 0) return ([], "the peak groups do not form a transverse-family ladder: they are taken as source lines");
+        if (best.Members.Count == 0) return new([], "the peak groups do not form a transverse-family ladder: they are taken as source lines", null);
         var b = best.Base;
+        if (weakGroups is not null)
+        {
+            for (var n = 2; n <= 3; n++)
+            {
+                if (best.Members.Any(m => m.N == n)) continue;
+                var target = Frac(b.Phase + n * best.A);
+                var weak = weakGroups.Where(g => CircularDistance(g.Phase, target) <= 1.5 * tolerance &&
+                                                 g.Members.Count >= Math.Max(minMembers, b.Members.Count - 1) &&
+                                                 !usable.Any(u => CircularDistance(u.Phase, g.Phase) <= tolerance) &&
+                                                 !best.Members.Any(m => CircularDistance(m.G.Phase, g.Phase) <= tolerance))
+                    .MaxBy(g => g.Members.Count + g.Height / b.Height);
+                if (weak is not null) best.Members.Add((weak, n, Frac(weak.Phase - b.Phase)));
+            }
+
+            best.Members.Sort((p, q) => p.N.CompareTo(q.N));
+        }
+
         var families = best.Members.Select(m => new CavityModeFamily(m.N, Frac(-m.A), m.G.Height / b.Height,
             predicted is not null ? "measured (mirror radii predicted " + predicted[m.N - 1].ToString("F4") + " FSR after TEM00)" : "measured")).ToList();
         var why = best.Members.Count >= 2
@@ -191,7 +231,7 @@ public static class PeriodDecider
             : predicted is not null && CircularDistance(predicted[0], best.A) < 0.04
                 ? $"TEM00 is the group with a family {best.A:F4} FSR after it, as the mirror radii predict ({predicted[0]:F4})"
                 : $"a family {best.A:F4} FSR after the taller group (near half the FSR: the odd family of a near-confocal cavity); which group is TEM00 is not decided by the data: state mirror_radius to settle it";
-        return (families, why);
+        return new(families, why, b.Phase);
     }
 
     internal static double Frac(double v) => v - Math.Floor(v);

@@ -45,6 +45,10 @@ public sealed record SelfCalibrationOptions
 
     /// <summary>Fit the effective finesse from isolated peaks (costs a few small fits).</summary>
     public bool FitFinesse { get; init; } = true;
+
+    /// <summary>When the peaks show transverse families on a Gouy ladder (a family N ≥ 2 besides N = 1), refit the axis to every
+    /// peak of the line and its families at once (<see cref="SelfCalibrator"/>, the ladder refit); false keeps the repeat pairs alone.</summary>
+    public bool UseFamilyLadder { get; init; } = true;
 }
 
 /// <summary>Two peaks taken to be one feature one period apart: f(XB) − f(XA) = DeltaHz.</summary>
@@ -212,6 +216,38 @@ public static class SelfCalibrator
             chosen = adopted;
         }
 
+        // transverse families on the rungs of a Gouy ladder (N·a) tie the peaks of each order together: the axis is refitted
+        // to every labelled peak at once, with the ladder's one offset free (LadderFit); kept when it explains the peaks at
+        // least as well as the pairs do and the period decision stands on it
+        Ladder? ladderUsed = null;
+        if (decision is not null && options.UseFamilyLadder && options.Degree is null && companionPairs.Count == 0 &&
+            LadderFit(chosen, decision, peaks, sweep, options, period, xLo, xHi) is { } ladder)
+        {
+            var before = chosen.Pairs.Select(c => c.Residual).ToList();
+            foreach (var c in chosen.Pairs) c.Residual = c.Delta - (ladder.Fit.Axis.Evaluate(c.XB) - ladder.Fit.Axis.Evaluate(c.XA));
+            var trial = chosen with { Fit = ladder.Fit, Scores = ladder.Scores };
+            var (d2, adopt2) = DecidePeriod(trial, runs, peaks, sweep, instrument, period, xLo, xHi);
+            // the ladder is physics of ideal spherical mirrors; an astigmatic cavity splits its families off the rungs. The extra
+            // constraints must agree with the peaks as well as the pairs alone do (reduced χ² at most twice theirs, or 2)
+            var pairFit = chosen.Fit!;
+            var pairDof = Math.Max(1, chosen.Pairs.Count(c => c.Used) - pairFit.Axis.Degree);
+            var agrees = ladder.ReducedChiSquare <= 2 * Math.Max(1, pairFit.ChiSquare / pairDof);
+            if (!agrees)
+                warnings.Add($"{sweep.Name}: the transverse families do not lie on one Gouy ladder within the peak positions' uncertainty (reduced χ² {ladder.ReducedChiSquare:G3} against {pairFit.ChiSquare / pairDof:G3} of the repeat pairs alone); the axis rests on the repeat pairs");
+            if (agrees && adopt2 is null && Math.Abs(d2.PeriodHz / decision.PeriodHz - 1) < 1e-9 && d2.Families.Count >= decision.Families.Count &&
+                d2.Candidates.First(c => c.Chosen).Consistent == decision.Candidates.First(c => c.Chosen).Consistent)
+            {
+                runs[runs.IndexOf(chosen)] = trial;
+                chosen = trial;
+                decision = d2;
+                ladderUsed = ladder;
+            }
+            else
+            {
+                for (var i = 0; i < before.Count; i++) chosen.Pairs[i].Residual = before[i];
+            }
+        }
+
         if (decision is not null && decision.Candidates.FirstOrDefault(c => c.Chosen) is { Consistent: false } mine)
         {
             // the chosen period does not explain every repeat (a mode hop, a dense pattern of similar lines): keep it only
@@ -251,7 +287,7 @@ public static class SelfCalibrator
             warnings.Add($"{sweep.Name}: the self-calibrated axis is uncertain by {Quantity.FormatFrequency(fit.AxisSigmaHz, 3)} RMS ({fit.AxisSigmaHz / lw:F2} linewidths) with {usedPairs.Count} pairs; sweep over more FSRs or add a calibration sweep");
         if (allPairs.Count > 0 && rejected > 0.2 * allPairs.Count)
             warnings.Add($"{sweep.Name}: {rejected} of {allPairs.Count} repeat pairs were rejected as outliers; the source may not be stable over the sweep");
-        if (usedPairs.Count < 2 * (final.Degree + 1))
+        if ((ladderUsed?.Points ?? usedPairs.Count) < 2 * (final.Degree + 1))
             warnings.Add($"{sweep.Name}: only {usedPairs.Count} repeat pairs support a degree-{final.Degree} axis; the non-linearity of the piezo is poorly pinned");
         var atMax = scores.FirstOrDefault(d => d.Degree == final.Degree);
         var below = scores.FirstOrDefault(d => d.Degree == final.Degree - 1);
@@ -275,7 +311,9 @@ public static class SelfCalibrator
         }
 
         var companion = options.Companion;
-        var method = companion is null
+        var method = ladderUsed is not null
+            ? $"self-calibration from repeats one FSR apart ({usedRepeats} pairs) and the transverse families on their Gouy ladder ({ladderUsed.Note})"
+            : companion is null
             ? $"self-calibration from repeats one FSR apart ({usedRepeats} pairs)"
             : $"self-calibration from repeats one FSR apart ({usedRepeats} pairs) jointly with the {companion.Method} ({companionPairs.Count(c => c.Used)} intervals)";
         var calibration = new AxisCalibration(instrument.Name, sweep.Direction, sweep.Name, method, final, pointX, pointHz, residualHz, residualRms,
@@ -370,7 +408,10 @@ public static class SelfCalibrator
         // groups at the period → source lines and transverse families of the cavity
         var groups = PeriodDecider.Group(clear, U, tol);
         var minMembers = uHi - uLo >= 2 ? 2 : 1;
-        var (families, fundamental) = adopt is null ? PeriodDecider.Families(groups, instrument, tol, minMembers) : ([], "");
+        // every peak the pairing uses (down to a few % of the tallest) may hold a weak family at a rung of the ladder
+        var weakGroups = PeriodDecider.Group(peaks.Select(p => new PeriodDecider.PatternPeak(p.X, p.Height, p.WidthX)).ToList(), U, tol);
+        var split = adopt is null ? PeriodDecider.Split(groups, instrument, tol, minMembers, weakGroups) : new PeriodDecider.FamilySplit([], "", null);
+        var (families, fundamental) = (split.Families, split.Fundamental);
 
         // a stated confocal FSR (c/4L) is the peak period only when the odd family is degenerate with TEM00 of the next
         // order; a resolved odd family near half the period means TEM00 repeats every c/2L, twice the stated FSR
@@ -384,7 +425,153 @@ public static class SelfCalibrator
         }
 
         var scores = list.Select(c => c.Score with { Chosen = c.K == 1 }).ToList();
-        return (new PeriodDecision(periodScan, periodHz, period, scores, basis, families, fundamental), adopt);
+        return (new PeriodDecision(periodScan, periodHz, period, scores, basis, families, fundamental) { FundamentalPhase = split.FundamentalPhase, Tolerance = tol }, adopt);
+    }
+
+    /// <summary>The axis refitted to every peak of one source line and its transverse families at once.</summary>
+    private sealed record Ladder(Fit Fit, List<DegreeScore> Scores, int Points, string Note)
+    {
+        /// <summary>χ² per degree of freedom of the chosen degree (points − degree − 2 unknowns).</summary>
+        public double ReducedChiSquare => Fit.ChiSquare / Math.Max(1, Points - Fit.Axis.Degree - 2);
+    }
+
+    /// <summary>
+    /// Refits the axis to the peaks of a single source line and its transverse families on a Gouy ladder. Family N lies
+    /// N·o₁ (mod 1) of an FSR from TEM00 (Siegman, <i>Lasers</i>, 1986, ch. 19), so with apparent offsets a_N = N·a₁ − m_N
+    /// (m_N whole) every labelled peak i of order k_i and family N_i satisfies f(x_i) = C + FSR·(k_i − m_N) + N_i·A with
+    /// two unknowns shared by all peaks (C, the origin; A = FSR·a₁). Repeat pairs use only the distance between equal
+    /// families of neighbouring orders; here a family N ≥ 2 next to TEM00 (or next to N = 1) also measures the local slope
+    /// of the axis, which pins the shape of a piezo's cubic that a few pairs clustered at two places along the sweep leave
+    /// nearly free. Linear least squares in the polynomial's shape coefficients, C and A, weighted by each peak's position
+    /// uncertainty; the degree is chosen by leave-one-out cross-validation as for the pairs (at least two degrees of
+    /// freedom). Null when the families do not form a ladder with a rung N ≥ 2, when fewer than three families have peaks,
+    /// or when no monotone fit results.
+    /// </summary>
+    private static Ladder? LadderFit(Run chosen, PeriodDecision decision, List<P> peaks, Sweep sweep, SelfCalibrationOptions options, double period,
+        double xLo, double xHi)
+    {
+        if (decision.FundamentalPhase is not double basePhase || chosen.Fit is null) return null;
+        var one = decision.Families.FirstOrDefault(f => f.N == 1);
+        if (one is null) return null;
+        var axis = chosen.Fit.Axis;
+        var f0 = axis.Evaluate(xLo);
+        var tol = decision.Tolerance;
+        // rungs a_N = N·a₁ − m_N; a family off its rung by more than the grouping tolerance is not used
+        var rungs = new List<(int N, double A, int M)> { (0, 0, 0) };
+        foreach (var fam in decision.Families.Where(f => f.N >= 1))
+        {
+            var off = fam.N * one.ApparentOffsetFsr - fam.ApparentOffsetFsr;
+            var m = (int)Math.Round(off);
+            if (Math.Abs(off - m) <= tol) rungs.Add((fam.N, fam.ApparentOffsetFsr, m));
+        }
+
+        if (!rungs.Any(r => r.N >= 2)) return null;
+        var labelled = new List<(double X, int N, int K, int M, double Sigma)>();
+        foreach (var p in peaks)
+        {
+            var u = (axis.Evaluate(p.X) - f0) / period;
+            (int N, int K, int M, double D)? best = null;
+            foreach (var r in rungs)
+            {
+                var v = u - basePhase - r.A;
+                var k = (int)Math.Round(v);
+                var d = Math.Abs(v - k);
+                if (d <= tol && (best is null || d < best.Value.D)) best = (r.N, k, r.M, d);
+            }
+
+            if (best is { } l) labelled.Add((p.X, l.N, l.K, l.M, Math.Max(p.SigmaX * Math.Abs(axis.Derivative(p.X)), 1e-9 * period)));
+        }
+
+        // one peak per label; two peaks claiming one label are both left out
+        var pts = labelled.GroupBy(q => (q.N, q.K)).Where(g => g.Count() == 1).Select(g => g.First()).OrderBy(q => q.X).ToList();
+        if (pts.Select(q => q.N).Distinct().Count() < 3) return null;
+        var n = pts.Count;
+        var lo = pts[0].X;
+        var hi = pts[^1].X;
+        var centre = 0.5 * (lo + hi);
+        var half = 0.5 * (hi - lo);
+        if (!(half > 0)) return null;
+        var maxDegree = Math.Min(options.MaxDegree, n - 4); // d shape coefficients + C + A, at least two degrees of freedom
+        var fits = new List<Fit>();
+        var scores = new List<DegreeScore>();
+        for (var deg = 1; deg <= maxDegree; deg++)
+        {
+            var cols = deg + 2;
+            var a = Matrix<double>.Build.Dense(n, cols);
+            var b = Vector<double>.Build.Dense(n);
+            for (var i = 0; i < n; i++)
+            {
+                var q = pts[i];
+                var w = 1 / q.Sigma;
+                var t = (q.X - centre) / half;
+                var pw = t;
+                for (var j = 0; j < deg; j++)
+                {
+                    a[i, j] = w * pw;
+                    pw *= t;
+                }
+
+                a[i, deg] = w;
+                a[i, deg + 1] = w * q.N;
+                b[i] = w * period * (q.K - q.M);
+            }
+
+            var qr = a.QR(MathNet.Numerics.LinearAlgebra.Factorization.QRMethod.Thin);
+            var rank = true;
+            for (var j = 0; j < cols; j++)
+                if (Math.Abs(qr.R[j, j]) < 1e-10 * Math.Abs(qr.R[0, 0])) rank = false;
+            if (!rank) break;
+            var sol = qr.Solve(b);
+            var coefficients = new double[deg + 1];
+            for (var j = 1; j <= deg; j++) coefficients[j] = sol[j - 1];
+            var tRef = (sweep.X[0] - centre) / half;
+            var c0 = 0.0;
+            for (var j = deg; j >= 1; j--) c0 = (c0 + coefficients[j]) * tRef;
+            coefficients[0] = -c0;
+            var poly = new AxisPolynomial(coefficients, centre, half, lo, hi);
+            var resid = a * sol - b;
+            var chi = resid.DotProduct(resid);
+            var leverage = new double[n];
+            var press = 0.0;
+            for (var i = 0; i < n; i++)
+            {
+                var h = 0.0;
+                for (var j = 0; j < cols; j++) h += qr.Q[i, j] * qr.Q[i, j];
+                leverage[i] = Math.Min(h, 0.99);
+                press += Math.Pow(resid[i] / (1 - leverage[i]), 2);
+            }
+
+            double sigma = double.NaN;
+            double[]? shapeCovariance = null;
+            try
+            {
+                var cov = a.TransposeThisAndMultiply(a).Inverse() * (chi / (n - cols));
+                var flat = new double[deg * deg];
+                for (var i = 0; i < deg; i++)
+                for (var j = 0; j < deg; j++)
+                    flat[i * deg + j] = cov[i, j];
+                if (flat.All(double.IsFinite))
+                {
+                    sigma = AxisPolynomial.ShapeSigmaRms(flat, deg);
+                    shapeCovariance = flat;
+                }
+            }
+            catch (Exception e) when (e is ArgumentException or InvalidOperationException)
+            {
+                sigma = double.NaN;
+            }
+
+            var mono = poly.IsMonotone(lo, hi, 801);
+            scores.Add(new DegreeScore(deg, chi, Bic(chi, n, deg, period), press, mono));
+            if (mono && double.IsFinite(press)) fits.Add(new Fit(poly, chi, sigma, leverage, press) { ShapeCovariance = shapeCovariance });
+        }
+
+        if (fits.Count == 0) return null;
+        var minPress = fits.Min(f => f.Press);
+        var chosenFit = fits.First(f => f.Press <= 1.05 * minPress + 1e-12);
+        var dof = n - chosenFit.Axis.Degree - 2;
+        var note = $"{n} peaks of {pts.Select(q => q.N).Distinct().Count()} families, reduced χ² {chosenFit.ChiSquare / dof:G3}";
+        return new Ladder(chosenFit, scores, n, note);
     }
 
     private static InputException Undecided(Sweep sweep, PeriodDecision d, string why) =>

@@ -38,4 +38,16 @@ public static class GouyPhase
         var sign = g1 + g2 < 0 ? -1.0 : 1.0;
         return CavityModeFamily.Frac(n * Math.Acos(sign * root) / Math.PI);
     }
+
+    /// <summary>
+    /// The radius of two equal mirrors (g₁ = g₂ = g) that puts family N = 1 at <paramref name="offsetFsr"/> above TEM00: the
+    /// inverse of <see cref="OffsetFsr"/>, g = cos(π·o₁), R = L/(1 − g). Infinity for g = 1 (plane mirrors); NaN outside
+    /// 0 &lt; o₁ &lt; 1.
+    /// </summary>
+    public static double EqualMirrorRadius(double offsetFsr, double lengthM)
+    {
+        if (!(offsetFsr > 0 && offsetFsr < 1) || !(lengthM > 0)) return double.NaN;
+        var g = Math.Cos(Math.PI * offsetFsr);
+        return g >= 1 ? double.PositiveInfinity : lengthM / (1 - g);
+    }
 }

@@ -229,7 +229,11 @@ public static class UnfoldPipeline
                 LikelyCauses(result, instruments, calibrations, fsrRefinement is not null), setup.Path);
 
         RefuseMismatch(result, refinement is null ? "grid" : "line");
+        // the cavity's transverse families fitted to the sweeps with the refined lines held (Analysis/FamilyFit.cs)
+        if (refinement is not null) FitFamilies(calibrated, result, instruments, warnings, notes);
         result = FewerLines(result, solve.MinSnr, warnings);
+        // a weak line on a family's peaks of a stronger line is that family's residue when one cavity measured it (FamilyResidue.cs)
+        result = FamilyResidue.Apply(result, calibrated.Select(c => instruments.TryGetValue(c.Instrument.Name, out var i) ? i : c.Instrument).ToList(), calibrations, warnings);
         result = ExtrapolationShare.Apply(result, calibrated);
 
         return new UnfoldRun
@@ -288,6 +292,47 @@ public static class UnfoldPipeline
             causes.Add("the cavity's own response (transverse families or ring-down that the model leaves in the residuals; mirror_radius in the setup places the families)");
         causes.Add("the noise level (a σ far below the real noise makes every fit look poor)");
         return "Check, most suspect first: " + string.Join("; ", causes);
+    }
+
+    /// <summary>
+    /// Fits each instrument's transverse families (offset and height) to its sweeps with the refined lines held and puts the
+    /// fitted values into the instrument as reported cavity properties, when the fit converged, lowered χ² and moved no
+    /// offset by more than a linewidth from the calibration's measurement (else the measured values stay, with a warning).
+    /// The lines are not refitted: the families they were solved with are the measured ones.
+    /// </summary>
+    private static void FitFamilies(IReadOnlyList<CalibratedSweep> sweeps, UnfoldResult result, Dictionary<string, Instrument> instruments, List<string> warnings, List<string> notes)
+    {
+        foreach (var name in instruments.Keys.ToList())
+        {
+            var inst = instruments[name];
+            if (inst.Families.Count == 0) continue;
+            var fit = Analysis.FamilyFit.Fit(sweeps, result, name);
+            if (fit is null) continue;
+            var lw = inst.LinewidthHz / inst.FsrHz;
+            var measured = inst.Families;
+            var sane = fit.Families.Zip(measured).All(t => Distance(t.First.ApparentOffsetFsr, t.Second.ApparentOffsetFsr) <= lw &&
+                                                              t.First.RelativeHeight > 0 && double.IsFinite(t.First.OffsetSigmaFsr));
+            if (!fit.Converged || !(fit.ChiSquareAfter <= fit.ChiSquareBefore) || !sane)
+            {
+                warnings.Add($"instrument '{name}': the fit of its transverse families to the sweeps did not settle (converged: {fit.Converged}, χ² {fit.ChiSquareBefore:G4} → {fit.ChiSquareAfter:G4}); the values measured from the peak heights are reported");
+                continue;
+            }
+
+            instruments[name] = inst with
+            {
+                Families = fit.Families.Zip(measured).Select(t => new CavityModeFamily(t.Second.N, CavityModeFamily.Frac(-t.First.ApparentOffsetFsr), t.First.RelativeHeight,
+                    $"fitted to the sweeps with the lines: {t.First.ApparentOffsetFsr:F5} ± {t.First.OffsetSigmaFsr:G2} FSR after TEM00, height {t.First.RelativeHeight:F4} ± {t.First.HeightSigma:G2} (statistical) " +
+                    $"(measured from the peaks: {t.Second.ApparentOffsetFsr:F4}, {t.Second.RelativeHeight:F3})")).ToList(),
+            };
+            notes.Add($"instrument '{name}': transverse families fitted to the sweeps with the refined lines (χ² {fit.ChiSquareBefore:G6} → {fit.ChiSquareAfter:G6}, {fit.Iterations} iterations): " +
+                      string.Join(", ", fit.Families.Select(f => $"N={f.N} at {f.ApparentOffsetFsr:F5} ± {f.OffsetSigmaFsr:G2} FSR, {100 * f.RelativeHeight:F1} ± {100 * f.HeightSigma:G2} % (statistical σ)")));
+        }
+
+        static double Distance(double a, double b)
+        {
+            var d = Math.Abs(CavityModeFamily.Frac(a) - CavityModeFamily.Frac(b));
+            return Math.Min(d, 1 - d);
+        }
     }
 
     /// <summary>
