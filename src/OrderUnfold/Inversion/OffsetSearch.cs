@@ -120,7 +120,7 @@ internal static class OffsetSearch
                 // the best-ranked candidate gets the whole iteration budget; later ones a short solve first
                 var first = best is null;
                 var r = Eval(phi, null, first ? cap : screenCap);
-                if (first) full++;
+                if (first || r.Converged) full++;
                 else if (!r.Converged && r.Chi < ScreenChiSquareFactor * best!.Value.Chi)
                 {
                     r = Eval(phi, r.X, cap); // close enough to the best to need the whole solve
