@@ -57,7 +57,8 @@ public static class ActiveSetNnls
         var active = new List<int>();
         var chol = new IncrementalCholesky();
         var blocked = new bool[n];
-        var grad = new double[n];
+        var free = new bool[n]; // IsFree once, not once per entry and iteration
+        for (var j = 0; j < n; j++) free[j] = eq.IsFree(j);
         var gx = new double[n];
         var column = new double[n + 1];
         var removals = 0;
@@ -153,11 +154,11 @@ public static class ActiveSetNnls
             var bestValue = options.Tolerance;
             for (var j = 0; j < n; j++)
             {
-                grad[j] = b[j] - gx[j];
-                if (inSet[j] || blocked[j] || eq.IsFree(j)) continue;
-                if (grad[j] > bestValue)
+                if (inSet[j] || blocked[j] || free[j]) continue;
+                var g = b[j] - gx[j];
+                if (g > bestValue)
                 {
-                    bestValue = grad[j];
+                    bestValue = g;
                     best = j;
                 }
             }

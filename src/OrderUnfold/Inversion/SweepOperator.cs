@@ -150,6 +150,72 @@ public sealed class SweepOperator
         }
     }
 
+    /// <summary><see cref="Fold"/> of a spectrum whose nonzero bins are listed (ascending) in <paramref name="nonzero"/>:
+    /// O(nonzero) instead of O(n), with the same sums in the same order.</summary>
+    public void Fold(ReadOnlySpan<double> s, List<int> nonzero, double[] periodic)
+    {
+        Array.Clear(periodic);
+        foreach (var j in nonzero)
+        {
+            var v = s[j];
+            var a = _foldBin[j];
+            var t = _foldFrac[j];
+            periodic[a] += (1 - t) * v;
+            periodic[a + 1 == M ? 0 : a + 1] += t * v;
+            for (var q = 0; q < _famHeight.Length; q++)
+            {
+                var b = _famBin[q][j];
+                var u = _famFrac[q][j];
+                var w = _famHeight[q] * v;
+                periodic[b] += (1 - u) * w;
+                periodic[b + 1 == M ? 0 : b + 1] += u * w;
+            }
+        }
+    }
+
+    /// <summary>
+    /// result[j] = Σ_k scales[k] · Gather_k(periodic[k], j) for every grid bin: <see cref="FoldTransposeAdd"/> of all sweeps
+    /// (which share one grid) into a cleared vector in one pass over the grid instead of one per sweep, with the same sums in
+    /// the same order.
+    /// </summary>
+    internal static void FoldTransposeAll(SweepOperator[] ops, double[][] periodic, double[] scales, Span<double> result)
+    {
+        var n = result.Length;
+        if (ops.Any(o => o._famHeight.Length > 0) || ops.Length != 2)
+        {
+            for (var j = 0; j < n; j++)
+            {
+                var v = 0.0;
+                for (var k = 0; k < ops.Length; k++) v += scales[k] * ops[k].Gather(periodic[k], j);
+                result[j] = v;
+            }
+
+            return;
+        }
+
+        // two sweeps without transverse families (the common case), written out
+        var bin0 = ops[0]._foldBin;
+        var frac0 = ops[0]._foldFrac;
+        var p0 = periodic[0];
+        var m0 = ops[0].M;
+        var c0 = scales[0];
+        var bin1 = ops[1]._foldBin;
+        var frac1 = ops[1]._foldFrac;
+        var p1 = periodic[1];
+        var m1 = ops[1].M;
+        var c1 = scales[1];
+        for (var j = 0; j < n; j++)
+        {
+            var a = bin0[j];
+            var t = frac0[j];
+            var g0 = (1 - t) * p0[a] + t * p0[a + 1 == m0 ? 0 : a + 1];
+            var b = bin1[j];
+            var u = frac1[j];
+            var g1 = (1 - u) * p1[b] + u * p1[b + 1 == m1 ? 0 : b + 1];
+            result[j] = 0.0 + c0 * g0 + c1 * g1;
+        }
+    }
+
     /// <summary>Transpose of <see cref="Fold"/>: periodic grid (M) → grid (n), added into <paramref name="result"/> times <paramref name="scale"/>.</summary>
     public void FoldTransposeAdd(double[] periodic, Span<double> result, double scale)
     {

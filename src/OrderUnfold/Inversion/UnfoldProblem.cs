@@ -68,6 +68,7 @@ public sealed class UnfoldProblem : INormalEquations, INormalDiagonal, INormalPr
         _work1 = new double[k][];
         _work2 = new double[k][];
         _colCache = new double[k][];
+        _scales = new double[k];
         for (var s = 0; s < k; s++)
         {
             var sw = _sweeps[s];
@@ -119,6 +120,7 @@ public sealed class UnfoldProblem : INormalEquations, INormalDiagonal, INormalPr
         _work1 = source._work1.Select(w => new double[w.Length]).ToArray();
         _work2 = source._work2.Select(w => new double[w.Length]).ToArray();
         _colCache = source._colCache.Select(w => new double[w.Length]).ToArray();
+        _scales = new double[source._scales.Length];
     }
 
     public FrequencyGrid Grid { get; }
@@ -139,30 +141,35 @@ public sealed class UnfoldProblem : INormalEquations, INormalDiagonal, INormalPr
     public void Multiply(ReadOnlySpan<double> x, Span<double> result)
     {
         var n = Grid.Count;
-        result.Clear();
         var s = x[..n];
+        // the solver's iterates are sparse: list the nonzero bins once, fold only those (O(nonzero), not O(n) per sweep)
+        _nonzero.Clear();
+        for (var j = 0; j < n; j++)
+            if (s[j] != 0) _nonzero.Add(j);
         for (var k = 0; k < _sweeps.Length; k++)
         {
             var op = _ops[k];
             var c = Scale(k);
             var bg = x[n + k];
-            op.Fold(s, _work1[k]);
-            op.Convolve(_work1[k], _work2[k]);
-            // bg·Sᵀ1 + c·SᵀS K fold(s) share one convolution below
-            op.SampleNormal(_work2[k], _work1[k]);
-            var w1 = _work1[k];
-            // K (c SᵀS K f s) + bg K Sᵀ1
-            op.Convolve(w1, _work2[k]);
-            var w2 = _work2[k];
+            op.Fold(s, _nonzero, _work1[k]);
             var kst1 = _kSt1[k];
-            for (var a = 0; a < op.M; a++) w2[a] = c * w2[a] + bg * kst1[a];
-            op.FoldTransposeAdd(w2, result[..n], c);
-            // background row: (c·A s)ᵀ1 + m·bg = c·(SᵀS... ) use K Sᵀ1 · fold(s)
-            op.Fold(s, w1);
+            // background row: (c·A s)ᵀ1 + m·bg = c·(K Sᵀ1)·fold(s) + m·bg
+            var w1 = _work1[k];
             var dot = 0.0;
             for (var a = 0; a < op.M; a++) dot += kst1[a] * w1[a];
             result[n + k] = c * dot + _sweeps[k].Signal.Length * bg;
+            op.Convolve(_work1[k], _work2[k]);
+            // bg·Sᵀ1 + c·SᵀS K fold(s) share one convolution below
+            op.SampleNormal(_work2[k], _work1[k]);
+            // K (c SᵀS K f s) + bg K Sᵀ1
+            op.Convolve(w1, _work2[k]);
+            var w2 = _work2[k];
+            for (var a = 0; a < op.M; a++) w2[a] = c * w2[a] + bg * kst1[a];
+            _scales[k] = c;
         }
+
+        // Σ_k c_k · foldᵀ(w2_k), all sweeps in one pass over the grid
+        SweepOperator.FoldTransposeAll(_ops, _work2, _scales, result[..n]);
 
         if (_mu > 0)
         {
@@ -175,6 +182,9 @@ public sealed class UnfoldProblem : INormalEquations, INormalDiagonal, INormalPr
             }
         }
     }
+
+    private readonly List<int> _nonzero = [];
+    private readonly double[] _scales;
 
     public void Column(int j, IReadOnlyList<int> rows, Span<double> result, out double diagonal)
     {

@@ -74,118 +74,12 @@ public static class Unfolder
         var g0 = gains[0];
         for (var k = 0; k < gains.Length; k++) gains[k] /= g0;
 
-        // reference sweep: its strongest folded peak is the provisional origin
-        var offsets = new double[sweeps.Count];
-        var folded = sweeps.Select(FoldedPeaks).ToArray();
-        offsets[0] = folded[0].Count > 0 ? -folded[0][0] : 0;
-        var trials = new List<OffsetTrial>();
+        // origins of the sweeps, coarse to fine (OffsetSearch): the cross-correlation of folded profiles scores every
+        // origin at once, pair solves on a bounded sub-window check the best few
         progress?.Report("finding sweep offsets");
-        // Offsets: for each sweep, candidates from pairing its strongest folded peaks with the reference's
-        // strongest peak. Each candidate gets a solve of the pair, one Gauss–Newton step of its offset and a
-        // second solve (a candidate is only known to a fraction of a linewidth); the best one is refined by a
-        // parabolic line search on χ²(φ). The search runs with a heavier L1 weight (SearchSparsityFactor) so that
-        // a slightly misaligned model does not pull in hundreds of small bins: that keeps each solve cheap
-        // and does not change which offset fits best.
-        const double SearchSparsityFactor = 4;
-        var searchOptions = options with { Sparsity = Math.Max(options.Sparsity, 1) * SearchSparsityFactor };
-        var cap = 4 * folded.Sum(f => f.Count) + 60;
-        // the search runs on a grid twice as coarse (and a periodic grid of a tenth linewidth): enough to rank
-        // candidates and place the offset within a small fraction of a linewidth; the joint rounds below polish it
-        var searchGrid = FrequencyGrid.Covering(grid.StartHz, grid.EndHz, step * 2);
-        var searchPeriodicStep = Math.Min(step, narrowest / 10);
-        // Sweeps of an instrument already aligned (same FSR and finesse) are aligned to it by the cross-correlation
-        // of their folded profiles: both see the same folded spectrum, shifted by the difference of their origins.
-        var profiles = new Dictionary<int, double[]>();
-        double[] Profile(int k)
-        {
-            if (!profiles.TryGetValue(k, out var p))
-            {
-                var inst = sweeps[k].Instrument;
-                var bins = 1 << (int)Math.Ceiling(Math.Log2(Math.Max(64, 10 * inst.Finesse)));
-                profiles[k] = p = FoldedProfile.Fold(sweeps[k], bins);
-            }
-
-            return p;
-        }
-
-        for (var k = 1; k < sweeps.Count; k++)
-        {
-            var sibling = Enumerable.Range(0, k).FirstOrDefault(r => SameInstrument(sweeps[r].Instrument, sweeps[k].Instrument), -1);
-            if (sibling >= 0)
-            {
-                var delta = FoldedProfile.Shift(Profile(sibling), Profile(k), sweeps[k].Instrument.FsrHz);
-                offsets[k] = offsets[sibling] + delta;
-                trials.Add(new OffsetTrial(sweeps[k].Name, offsets[k], double.NaN, true));
-                continue;
-            }
-
-            var candidates = folded[k].Take(options.OffsetCandidates).Select(u => -u).ToList();
-            if (candidates.Count == 0) candidates.Add(0);
-            var pair = new[] { sweeps[0], sweeps[k] };
-            var pairGains = new[] { gains[0], gains[k] };
-            var lw = sweeps[k].Instrument.LinewidthHz;
-            double[]? warm = null;
-            (double Lambda, double Mu)? weights = null;
-            (double Chi, double[] X, UnfoldProblem P) Eval(double phi, double[]? start)
-            {
-                UnfoldProblem pr;
-                if (weights is (double l, double mu)) pr = new UnfoldProblem(pair, searchGrid, [offsets[0], phi], pairGains, l, mu, searchPeriodicStep);
-                else
-                {
-                    pr = BuildProblem(pair, searchGrid, [offsets[0], phi], pairGains, searchOptions, searchPeriodicStep);
-                    weights = (pr.L1Weight, pr.SmoothnessWeight);
-                }
-
-                var r = ActiveSetNnls.Solve(pr, SolverOptions(pr) with { MaxIterations = cap }, start);
-                return (ChiSquare(pr, r.Solution, pair), r.Solution, pr);
-            }
-
-            // every candidate gets one solve; only those within a factor of the best χ² get a Gauss–Newton step and
-            // a second solve (a wrong pairing is off by far more than that)
-            var firsts = candidates.Select(c => (phi: c, r: Eval(c, null))).ToList();
-            var bestFirst = firsts.Min(f => f.r.Chi);
-            var results = new List<(double phi, double chi, double[] x)>();
-            foreach (var (c, first) in firsts)
-            {
-                if (first.Chi > 4 * bestFirst)
-                {
-                    results.Add((c, first.Chi, first.X));
-                    continue;
-                }
-
-                var phi2 = c + Math.Clamp(first.P.OffsetStep(1, first.X), -lw, lw);
-                var second = Eval(phi2, first.X);
-                results.Add(second.Chi < first.Chi ? (phi2, second.Chi, second.X) : (c, first.Chi, first.X));
-            }
-
-            var best = results.MinBy(r => r.chi);
-            var phiBest = best.phi;
-            var chiBest = best.chi;
-            warm = best.x;
-            var h = lw / 4;
-            for (var it = 0; it < 3 && h > lw / 200; it++)
-            {
-                var minus = Eval(phiBest - h, warm);
-                var plus = Eval(phiBest + h, warm);
-                var curvature = minus.Chi + plus.Chi - 2 * chiBest;
-                var shift = curvature > 0 ? Math.Clamp(0.5 * h * (minus.Chi - plus.Chi) / curvature, -2 * h, 2 * h) : (minus.Chi < plus.Chi ? -2 * h : 2 * h);
-                var next = Eval(phiBest + shift, warm);
-                var options3 = new[] { (phi: phiBest - h, r: minus), (phi: phiBest + h, r: plus), (phi: phiBest + shift, r: next) };
-                var winner = options3.MinBy(o => o.r.Chi);
-                if (winner.r.Chi < chiBest)
-                {
-                    phiBest = winner.phi;
-                    chiBest = winner.r.Chi;
-                    warm = winner.r.X;
-                }
-
-                h /= 3;
-            }
-
-            offsets[k] = phiBest;
-            foreach (var r in results) trials.Add(new OffsetTrial(sweeps[k].Name, r.phi, r.chi, false));
-            trials.Add(new OffsetTrial(sweeps[k].Name, phiBest, chiBest, true));
-        }
+        var search = OffsetSearch.Run(sweeps, gains, grid, step, options, progress);
+        var offsets = search.OffsetsHz;
+        var trials = search.Trials;
 
         // joint solve: alternate NNLS (warm-started) with Gauss–Newton offset steps and gain refits
         progress?.Report("solving NNLS on all sweeps");
@@ -308,9 +202,6 @@ public static class Unfolder
         };
     }
 
-    private static bool SameInstrument(Instrument a, Instrument b) =>
-        a.Name == b.Name && a.FsrHz == b.FsrHz && a.Finesse == b.Finesse;
-
     /// <summary>Folded positions (Hz within one FSR) of a sweep's peaks, strongest first, merged across repeats.</summary>
     internal static List<double> FoldedPeaks(CalibratedSweep sweep)
     {
@@ -334,7 +225,7 @@ public static class Unfolder
         return list.Select(q => q.u).ToList();
     }
 
-    private static UnfoldProblem BuildProblem(IReadOnlyList<CalibratedSweep> sweeps, FrequencyGrid grid, IReadOnlyList<double> offsets,
+    internal static UnfoldProblem BuildProblem(IReadOnlyList<CalibratedSweep> sweeps, FrequencyGrid grid, IReadOnlyList<double> offsets,
         IReadOnlyList<double> gains, UnfoldOptions options, double periodicStep)
     {
         // first pass without penalties to measure the typical column norm, then the weighted problem
@@ -354,7 +245,7 @@ public static class Unfolder
         return probe.WithPenalties(lambda, mu);
     }
 
-    private static ActiveSetNnls.Options SolverOptions(UnfoldProblem problem)
+    internal static ActiveSetNnls.Options SolverOptions(UnfoldProblem problem)
     {
         var tol = Math.Max(1e-3 * problem.L1Weight, 1e-9);
         // The active set of a line spectrum stays far below this; a model that does not fit the data (wrong axis, wrong
@@ -362,7 +253,7 @@ public static class Unfolder
         return new ActiveSetNnls.Options { Tolerance = tol, MaxIterations = Math.Min(2500, Math.Max(500, problem.Grid.Count / 4)) };
     }
 
-    private static double ChiSquare(UnfoldProblem problem, double[] solution, IReadOnlyList<CalibratedSweep> sweeps)
+    internal static double ChiSquare(UnfoldProblem problem, double[] solution, IReadOnlyList<CalibratedSweep> sweeps)
     {
         var models = problem.Model(solution);
         double chi = 0;

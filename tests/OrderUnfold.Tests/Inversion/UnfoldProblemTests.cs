@@ -87,6 +87,29 @@ public class UnfoldProblemTests
         }
     }
 
+    [Theory]
+    [InlineData(5, 0.0)]
+    [InlineData(6, 0.2)]
+    public void MultiplyEqualsAdjointOfForwardWithTwoSweeps(int seed, double mu)
+    {
+        // two sweeps take the written-out one-pass transpose of the fold (SweepOperator.FoldTransposeAll)
+        var full = MakeCase(seed);
+        var c = full with { Sweeps = full.Sweeps[..2], Offsets = full.Offsets[..2], Gains = full.Gains[..2] };
+        var p = Problem(c, 0.4, mu);
+        var rng = new Random(seed + 200);
+        for (var trial = 0; trial < 2; trial++)
+        {
+            var x = new double[p.Count];
+            for (var j = 0; j < c.Grid.Count; j++) x[j] = trial == 0 ? (rng.NextDouble() < 0.03 ? rng.NextDouble() : 0) : rng.NextDouble() - 0.5;
+            for (var k = 0; k < 2; k++) x[c.Grid.Count + k] = rng.NextDouble() * 10 - 5;
+            var expected = Reference(c, x, mu);
+            var got = new double[p.Count];
+            p.Multiply(x, got);
+            var diff = Norm(expected.Zip(got, (a, b) => a - b));
+            Assert.True(diff <= 1e-10 * Norm(expected), $"|Gx − ref| = {diff:G3}, |ref| = {Norm(expected):G3}");
+        }
+    }
+
     [Fact]
     public void RightHandSideIsWhitenedAdjointOfTheSignalMinusTheL1Weight()
     {
