@@ -1161,8 +1161,12 @@ public static class SelfCalibrator
         {
             if (peaks[i].Height < 0.1 * tallest) continue; // a weak peak's repeat may hide in the noise
             var f = axis.Evaluate(peaks[i].X);
-            // the partner in the direction of increasing x: f + Δ (Δ carries the sweep's sign)
-            if (f + delta > fMin + 0.02 * period && f + delta < fMax - 0.02 * period) misses.Add((peaks[i].X, f, !forward[i]));
+            // the partner in the direction of increasing x: f + Δ (Δ carries the sweep's sign); a peak counts as repeated when
+            // a used pair says so or when any peak lies within a peak width of where its repeat falls (a pair the fit did not
+            // use, e.g. between partly resolved doublets whose shapes differ, is still a repeat: the source did not change)
+            var width = Math.Abs(axis.Derivative(peaks[i].X)) * peaks[i].WidthX;
+            var repeated = forward[i] || peaks.Any(q => Math.Abs(axis.Evaluate(q.X) - (f + delta)) <= width);
+            if (f + delta > fMin + 0.02 * period && f + delta < fMax - 0.02 * period) misses.Add((peaks[i].X, f, !repeated));
         }
 
         if (misses.Count < 4) yield break;
