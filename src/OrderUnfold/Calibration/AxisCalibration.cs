@@ -109,6 +109,20 @@ public static class AxisCalibrator
         var warnings = new List<string>();
         var sign = sweep.Direction == RampDirection.Down && sweep.Scan == ScanCoordinate.Time ? -1.0 : 1.0;
         var ordered = peaks.OrderBy(p => p.X).ToList();
+        // a transverse family as tall as a third of TEM00 puts its own peak between the orders: the peaks are then k
+        // interleaved classes, each one FSR apart, and taking consecutive peaks as consecutive orders would make the FSR
+        // in scan units 1/k of the truth (a factor-2 error of the whole frequency scale for a near-confocal cavity)
+        var interleaved = InterleavedClasses(ordered);
+        if (interleaved > 1)
+        {
+            var classes = Enumerable.Range(0, interleaved).Select(c => ordered.Where((_, i) => i % interleaved == c).ToList()).ToList();
+            var kept = classes.MaxBy(c => c.Average(p => p.Height))!;
+            warnings.Add($"{sweep.Name}: the calibration peaks form {interleaved} interleaved groups of different heights (" +
+                         string.Join(", ", classes.Select(c => $"{c.Average(p => p.Height) / kept.Average(p => p.Height):P0}")) +
+                         "): the cavity's transverse families put their own peaks between the orders, so each group repeats once per FSR; " +
+                         $"the tallest group ({kept.Count} peaks) calibrates the axis (improve the alignment of the calibration laser to lower the others)");
+            ordered = kept;
+        }
         var spacings = new List<double>();
         for (var i = 1; i < ordered.Count; i++) spacings.Add(ordered[i].X - ordered[i - 1].X);
         var sorted = spacings.OrderBy(v => v).ToList();
@@ -203,5 +217,60 @@ public static class AxisCalibrator
             ShapeCovariance = shapeCovariance,
             AxisSigmaHz = shapeCovariance is null ? null : AxisPolynomial.ShapeSigmaRms(shapeCovariance, best.Degree),
         };
+    }
+
+    /// <summary>Heights of one class of peaks of a single-frequency laser agree within this relative standard deviation.</summary>
+    internal const double ClassHeightScatter = 0.1;
+
+    /// <summary>
+    /// The number k (1 to 3) of interleaved peak classes in a calibration sweep: the smallest k for which the peaks taken
+    /// every k-th form classes of nearly equal height each (relative scatter below <see cref="ClassHeightScatter"/>, at least
+    /// two peaks per class) whose mean heights differ by more than 15 % from one another, and whose spacings repeat with
+    /// period k while differing within it. 1 when the heights all agree, or when no k explains them (a drifting laser power
+    /// changes every class alike; then the spacings decide as before).
+    /// </summary>
+    internal static int InterleavedClasses(IReadOnlyList<Peak> ordered)
+    {
+        static double Scatter(IReadOnlyList<double> h)
+        {
+            var mean = h.Average();
+            return h.Count < 2 || !(mean > 0) ? double.PositiveInfinity : Math.Sqrt(h.Sum(v => (v - mean) * (v - mean)) / (h.Count - 1)) / mean;
+        }
+
+        var heights = ordered.Select(p => p.Height).ToList();
+        if (Scatter(heights) <= ClassHeightScatter) return 1;
+        for (var k = 2; k <= 3; k++)
+        {
+            if (heights.Count < 2 * k) break;
+            var classes = Enumerable.Range(0, k).Select(c => heights.Where((_, i) => i % k == c).ToList()).ToList();
+            if (classes.Any(c => Scatter(c) > ClassHeightScatter)) continue;
+            // the spacings must show the pattern too (a family off half the FSR makes them alternate short and long): heights
+            // that alternate at even spacings are also what a confocal cavity stated at c/4L shows (its odd family coincides
+            // with the next order, every peak is one FSR), and a family at exactly half the FSR of a planar cavity is left
+            // to the check that refits the axis to repeats (CalibrationSteps.DescribeCalibrationSweep)
+            if (!SpacingsRepeat(ordered, k)) continue;
+            var means = classes.Select(c => c.Average()).OrderBy(v => v).ToList();
+            var distinct = true;
+            for (var i = 1; i < means.Count; i++)
+                if (means[i - 1] > 0.85 * means[i]) distinct = false;
+            if (distinct) return k;
+        }
+
+        return 1;
+    }
+
+    /// <summary>True when consecutive peak spacings repeat with period k but differ within it by more than a tenth of the
+    /// mean spacing (for k = 2: short, long, short, …).</summary>
+    private static bool SpacingsRepeat(IReadOnlyList<Peak> ordered, int k)
+    {
+        var s = new List<double>();
+        for (var i = 1; i < ordered.Count; i++) s.Add(ordered[i].X - ordered[i - 1].X);
+        if (s.Count < k + 1) return false;
+        var mean = s.Average(v => Math.Abs(v));
+        for (var i = 0; i + 1 < s.Count; i++)
+            if (Math.Abs(s[i + 1] - s[i]) < 0.1 * mean) return false;
+        for (var i = 0; i + k < s.Count; i++)
+            if (Math.Abs(s[i + k] - s[i]) > 0.5 * Math.Abs(s[i + 1] - s[i])) return false;
+        return true;
     }
 }
