@@ -91,6 +91,7 @@ public static class ProjectedNewtonNnls
         var iterations = 0;
         var cgSteps = 0;
         var stalls = 0;
+        var safeguards = 0;
         while (true)
         {
             var violation = Violation();
@@ -130,7 +131,7 @@ public static class ProjectedNewtonNnls
 
             // preconditioned conjugate gradients on G_FF d = −g_F
             var stop = 0.1 * tol;
-            face.SetBound(bound);
+            face.SetBound(bound, plain: stalls > 0);
             void Precondition()
             {
                 face.Apply(r, z);
@@ -177,6 +178,19 @@ public static class ProjectedNewtonNnls
                 }
             }
 
+            // safeguard: a direction that is not downhill on the face (rounding in the face preconditioner's Schur
+            // complement can make it indefinite when the bound block is ill-conditioned) is replaced by the preconditioned
+            // gradient with the plain restriction, which is downhill
+            var downhill = 0.0;
+            for (var j = 0; j < n; j++) if (!bound[j]) downhill += g[j] * d[j];
+            if (!(downhill < 0))
+            {
+                for (var j = 0; j < n; j++) r[j] = bound[j] ? 0 : -g[j];
+                pre.Precondition(r, d);
+                for (var j = 0; j < n; j++) if (bound[j]) d[j] = 0;
+                safeguards++;
+            }
+
             // projected search along d: x(α) = P(x + α d), Armijo on the exact change of the quadratic
             var moved = false;
             var alpha = 1.0;
@@ -192,10 +206,11 @@ public static class ProjectedNewtonNnls
                 }
 
                 if (double.IsNaN(slope)) break;
-                if (!(slope < 0))
+                // the projection can turn the step's first-order change uphill (entries that the Newton step pushes far below
+                // zero); the full step is still tried, since its exact change may be a decrease, and shorter steps clip fewer
+                // entries and are downhill for α small enough (Bertsekas 1982)
+                if (!(slope < 0) && trial > 0)
                 {
-                    // the projection turned the step uphill (entries at zero that the Newton step would push below it):
-                    // shorter steps clip fewer entries and are descent directions for α small enough (Bertsekas 1982)
                     alpha *= 0.5;
                     continue;
                 }
@@ -205,7 +220,7 @@ public static class ProjectedNewtonNnls
                 var change = 0.0;
                 for (var j = 0; j < n; j++) change += 0.5 * (g[j] + gxt[j] - b[j]) * (xt[j] - x[j]);
                 if (!double.IsFinite(change)) break;
-                if (change <= Armijo * slope)
+                if (change < 0 && change <= Armijo * Math.Min(slope, 0))
                 {
                     (x, xt) = (xt, x);
                     (gx, gxt) = (gxt, gx);
@@ -266,7 +281,7 @@ public static class ProjectedNewtonNnls
         }
 
         return new NnlsResult(x, iterations, 0, status,
-            $"{message} (projected Newton, {preconditionerName} preconditioner; {iterations} Newton steps, {cgSteps} conjugate-gradient steps, {products} products G x)",
+            $"{message} (projected Newton, {preconditionerName} preconditioner; {iterations} Newton steps, {cgSteps} conjugate-gradient steps, {products} products G x{(safeguards > 0 ? $", {safeguards} gradient steps as safeguard" : "")})",
             kkt, activeCount)
         {
             Method = NnlsMethod.Dense,
@@ -286,7 +301,7 @@ public static class ProjectedNewtonNnls
     /// </summary>
     private sealed class FacePreconditioner(INormalPreconditioner pre, int n)
     {
-        public const int MaxSet = 300;
+        public const int MaxSet = 1200;
 
         private readonly Dictionary<int, double[]> _columns = new();
         private int[] _set = [];
@@ -299,12 +314,14 @@ public static class ProjectedNewtonNnls
 
         private bool _empty;
 
-        public void SetBound(bool[] bound)
+        /// <summary>Prepares the face of the entries not in <paramref name="bound"/>; with <paramref name="plain"/> (after a
+        /// Newton step that made no progress) the plain restriction.</summary>
+        public void SetBound(bool[] bound, bool plain)
         {
             var set = new List<int>();
             for (var j = 0; j < n; j++) if (bound[j]) set.Add(j);
             _empty = set.Count == 0;
-            if (set.Count > MaxSet || (long)set.Count * n > 1L << 23)
+            if (plain || set.Count > MaxSet || (long)set.Count * n > 1L << 23)
             {
                 _exact = false;
                 _set = [];
@@ -312,6 +329,11 @@ public static class ProjectedNewtonNnls
             }
 
             if (_exact && set.SequenceEqual(_set)) return;
+            // rows of the factor depend only on the entries before them: the rows of a shared leading part are kept
+            var previous = _exact ? _set : [];
+            var previousFactor = _factor;
+            var keep = 0;
+            while (keep < previous.Length && keep < set.Count && previous[keep] == set[keep]) keep++;
             _set = set.ToArray();
             foreach (var key in _columns.Keys.Where(k => !bound[k]).ToList()) _columns.Remove(key);
             var unit = new double[n];
@@ -329,7 +351,9 @@ public static class ProjectedNewtonNnls
             var m = _set.Length;
             _factor = new double[m * m];
             _u = new double[m];
-            for (var a = 0; a < m; a++)
+            var mOld = previous.Length;
+            for (var a = 0; a < keep; a++) Array.Copy(previousFactor, a * mOld, _factor, a * m, a + 1);
+            for (var a = keep; a < m; a++)
             {
                 var col = _columns[_set[a]];
                 for (var c = 0; c <= a; c++)
