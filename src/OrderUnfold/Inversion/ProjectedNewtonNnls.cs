@@ -318,8 +318,13 @@ public static class ProjectedNewtonNnls
         /// Newton step that made no progress) the plain restriction.</summary>
         public void SetBound(bool[] bound, bool plain)
         {
+            // the entries in the order they became bound (those still bound from the last set first, then the new ones), so
+            // that the factor's leading rows, which depend only on the entries before them, can be kept
             var set = new List<int>();
-            for (var j = 0; j < n; j++) if (bound[j]) set.Add(j);
+            var inSet = new HashSet<int>();
+            foreach (var j in _set)
+                if (bound[j] && inSet.Add(j)) set.Add(j);
+            for (var j = 0; j < n; j++) if (bound[j] && inSet.Add(j)) set.Add(j);
             _empty = set.Count == 0;
             if (plain || set.Count > MaxSet || (long)set.Count * n > 1L << 23)
             {
