@@ -36,7 +36,7 @@ public class DenseNnlsBenchmarks
     {
         using var process = System.Diagnostics.Process.GetCurrentProcess();
         if (OperatingSystem.IsLinux() || OperatingSystem.IsWindows()) process.ProcessorAffinity = 1;
-        output.WriteLine("rows\tbins\tsolver\tcpu_s\twall_s\tobjective\tactive\tkkt\ttolerance\tproducts\tstatus");
+        output.WriteLine("rows\tbins\tsolver\tcpu_s\twall_s\tobjective\tactive\tkkt\ttolerance\tproducts\tstatus\tmessage");
         foreach (var (rows, bins) in Sizes)
         {
             var c = DenseSupportCase.Create(rows, bins);
@@ -50,7 +50,7 @@ public class DenseNnlsBenchmarks
                 wall.Stop();
                 process.Refresh();
                 var cpu = (process.TotalProcessorTime - cpu0).TotalSeconds;
-                output.WriteLine($"{rows}\t{bins}\t{name}\t{cpu:F3}\t{wall.Elapsed.TotalSeconds:F3}\t{c.Objective(problem, r.Solution):R}\t{r.ActiveCount - 2}\t{r.KktViolation:G3}\t{r.Tolerance:G3}\t{r.Products}\t{r.Status}");
+                output.WriteLine($"{rows}\t{bins}\t{name}\t{cpu:F3}\t{wall.Elapsed.TotalSeconds:F3}\t{c.Objective(problem, r.Solution):R}\t{r.ActiveCount - 2}\t{r.KktViolation:G3}\t{r.Tolerance:G3}\t{r.Products}\t{r.Status}\t{r.Message}");
             }
 
             Run("dense", () => DenseNnls.Solve(problem));

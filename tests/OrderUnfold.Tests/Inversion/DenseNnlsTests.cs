@@ -82,6 +82,7 @@ public class DenseNnlsTests
         var problem = c.Problem();
         var r = DenseNnls.Solve(problem);
         Assert.Equal(SolverStatus.Converged, r.Status);
+        Assert.Contains("projected Newton, Toeplitz preconditioner", r.Message);
         Assert.True(r.KktViolation <= r.Tolerance, $"KKT {r.KktViolation} > {r.Tolerance}");
         var positive = r.Solution.Take(1000).Count(v => v > 0);
         Assert.True(positive > 900, $"only {positive} of 1000 bins positive: not a dense-support case");
