@@ -385,7 +385,14 @@ public static class LineRefiner
     {
         var lwWide = sweeps.Max(s => s.Instrument.LinewidthHz);
         double Bound(UnfoldedLine l) => Math.Max(0.5 * (l.LastBin - l.FirstBin) * grid.Grid.StepHz, 0.5 * lwWide);
-        var anchor = grid.Lines.MaxBy(l => l.RawIntensity)!;
+        // the grid handed the refinement candidates down to CandidateMinSnr for its significance test to judge; unjudged,
+        // only those at the report's own threshold are lines (the strongest always stays: it anchors the frequencies)
+        var top = grid.Lines.MaxBy(l => l.RawIntensity)!;
+        var candidates = grid.Lines.Count;
+        grid = grid with { Lines = grid.Lines.Where(l => ReferenceEquals(l, top) || l.Snr >= options.MinSnr).ToList() };
+        if (grid.Lines.Count < candidates)
+            warnings.Add($"{candidates - grid.Lines.Count} weaker grid candidate(s) below min_snr {options.MinSnr:G3} that the refinement did not get to judge are left out");
+        var anchor = top;
         var anchorBound = Bound(anchor);
         warnings.Add($"line refinement stopped ({failure}); the {grid.Lines.Count} grid line(s) are reported unrefined, with frequency uncertainties widened to half their grid cluster or half a linewidth ({Quantity.FormatFrequency(0.5 * lwWide, 3)}), whichever is larger, and orders not judged"
                      + (budget.Exhausted?.Contains("CPU") == true ? "; the CPU-time budget depends on the machine's speed: a faster or idle machine may finish" : ""));

@@ -77,6 +77,22 @@ public class BoundedRefinementTests(ITestOutputHelper output)
         Assert.All(dense, g => Assert.Equal(0, g));
     }
 
+    /// <summary>When the budget stops the refinement, grid candidates below min_snr (handed over for the refinement's own
+    /// significance test, which never ran) are not reported as lines; the strongest line stays.</summary>
+    [Fact]
+    public void BudgetHitDropsUnjudgedCandidatesBelowMinSnr()
+    {
+        var (sweeps, grid, _) = ThreeLines(5);
+        // the grid's lines as candidates: the weakest given an SNR below the report's threshold
+        var weakest = grid.Lines.MinBy(l => l.RawIntensity)!;
+        var candidates = grid with { Lines = grid.Lines.Select(l => ReferenceEquals(l, weakest) ? l with { Snr = 3 } : l).ToList() };
+        var (result, diag) = LineRefiner.Refine(sweeps, candidates, new RefineOptions { IterationBudget = 3, MinSnr = 5 });
+        Assert.True(diag.FellBackToGrid);
+        Assert.Equal(grid.Lines.Count - 1, result.Lines.Count);
+        Assert.DoesNotContain(result.Lines, l => l.FrequencyHz == weakest.FrequencyHz);
+        Assert.Contains(result.Warnings, w => w.Contains("below min_snr") && w.Contains("left out"));
+    }
+
     /// <summary>A tiny iteration budget stops the refinement: a warning, the grid result kept with widened frequency
     /// uncertainties (a bound of at least half a linewidth, combined with the anchor's), orders not judged, and the
     /// iterations spent within the budget (counted, not timed).</summary>
