@@ -31,8 +31,9 @@ public class UnfoldScalingBenchmarks
     public int UnfolderRun() => Unfolder.Run(_case.Sweeps, _options).Lines.Count;
 
     /// <summary>CPU-time probe: the whole unfold at each size, and the share of the offset search (from the progress
-    /// marks "finding sweep offsets" to "solving NNLS on all sweeps"), one core, after one untimed warm-up unfold.</summary>
-    public static void Probe(TextWriter output)
+    /// marks "finding sweep offsets" to "solving NNLS on all sweeps"), one core, after one untimed warm-up unfold. With
+    /// <paramref name="marks"/> every progress mark is printed with the CPU time since the unfold began.</summary>
+    public static void Probe(TextWriter output, bool marks = false)
     {
         using var process = System.Diagnostics.Process.GetCurrentProcess();
         if (OperatingSystem.IsLinux() || OperatingSystem.IsWindows()) process.ProcessorAffinity = 1;
@@ -52,12 +53,15 @@ public class UnfoldScalingBenchmarks
             }
 
             TimeSpan? searchStart = null, searchEnd = null;
+            var cpuStart = TimeSpan.Zero;
             var progress = new Marks(m =>
             {
+                if (marks) output.WriteLine($"#\t{(Cpu() - cpuStart).TotalSeconds:F3}\t{m}");
                 if (m == "finding sweep offsets") searchStart = Cpu();
                 if (m == "solving NNLS on all sweeps") searchEnd = Cpu();
             });
             var cpu0 = Cpu();
+            cpuStart = cpu0;
             var wall = System.Diagnostics.Stopwatch.StartNew();
             var r = Unfolder.Run(c.Sweeps, options, progress);
             wall.Stop();
