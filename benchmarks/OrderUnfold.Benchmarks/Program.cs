@@ -7,6 +7,7 @@ namespace OrderUnfold.Benchmarks;
 /// BenchmarkDotNet suite; <c>-- --cpu-time</c> runs <see cref="CpuTimeProbe"/> (CPU time next to wall time);
 /// <c>-- --cpu-time-refine</c> only its line-refinement part (the nine-mode comb of <see cref="RefineCombBenchmark"/>);
 /// <c>-- --unfold-probe [--marks]</c> the whole unfold at 10⁴–10⁶ bins in CPU time (with the progress marks);
+/// <c>-- --working-set-probe</c> one NNLS solve at those sizes with and without the active set's working set;
 /// <c>-- --export-dense DIR</c> writes the dense-support problems for the scipy reference script.
 /// </summary>
 public static class Program
@@ -28,6 +29,12 @@ public static class Program
         if (args.Length >= 1 && args[0] == "--unfold-probe")
         {
             UnfoldScalingBenchmarks.Probe(Console.Out, args.Length > 1 && args[1] == "--marks");
+            return;
+        }
+
+        if (args.Length == 1 && args[0] == "--working-set-probe")
+        {
+            UnfoldScalingBenchmarks.WorkingSetProbe(Console.Out);
             return;
         }
 

@@ -71,6 +71,51 @@ public class UnfoldScalingBenchmarks
         }
     }
 
+    /// <summary>One L1-weighted NNLS solve at the true offsets and gains at each size, with a whole pass over the grid in
+    /// every iteration and with the working set (<see cref="ActiveSetNnls.Options.WorkingSetFraction"/>): iterations, active
+    /// entries, KKT violation, CPU time and the objective ½xᵀGx − bᵀx, whose difference must stay within the convexity
+    /// bound max(ε₁, ε₂)·(‖x₁‖₁ + ‖x₂‖₁).</summary>
+    public static void WorkingSetProbe(TextWriter output)
+    {
+        using var process = System.Diagnostics.Process.GetCurrentProcess();
+        if (OperatingSystem.IsLinux() || OperatingSystem.IsWindows()) process.ProcessorAffinity = 1;
+        var c = SimulatedCase.TwoCavities(20_000);
+        output.WriteLine("bins\tmode\titerations\tactive\tkkt\tcpu_s\tobjective\t|difference|\tbound");
+        foreach (var bins in BinCounts)
+        {
+            var grid = c.Grid(bins);
+            var lambda = c.L1Weight(grid);
+            var problem = new UnfoldProblem(c.Sweeps, grid, c.OffsetsHz, c.Gains, lambda, 0, c.PeriodicStepHz(grid));
+            var options = new ActiveSetNnls.Options { Tolerance = 1e-3 * lambda, MaxIterations = 5000 };
+            double Objective(double[] x)
+            {
+                var gx = new double[x.Length];
+                problem.Multiply(x, gx);
+                var f = 0.0;
+                for (var j = 0; j < x.Length; j++) f += 0.5 * x[j] * gx[j] - problem.RightHandSide[j] * x[j];
+                return f;
+            }
+
+            NnlsResult Timed(ActiveSetNnls.Options o, out double cpu)
+            {
+                process.Refresh();
+                var t0 = process.TotalProcessorTime;
+                var r = ActiveSetNnls.Solve(problem, o);
+                process.Refresh();
+                cpu = (process.TotalProcessorTime - t0).TotalSeconds;
+                return r;
+            }
+
+            var whole = Timed(options with { WorkingSetFraction = 0 }, out var cpuWhole);
+            var working = Timed(options with { WorkingSetMinEntries = 0 }, out var cpuWorking);
+            var f1 = Objective(whole.Solution);
+            var f2 = Objective(working.Solution);
+            var bound = Math.Max(whole.KktViolation, working.KktViolation) * (whole.Solution.Sum(Math.Abs) + working.Solution.Sum(Math.Abs));
+            output.WriteLine($"{bins}\twhole\t{whole.Iterations}\t{whole.ActiveCount}\t{whole.KktViolation:G3}\t{cpuWhole:F3}\t{f1:R}");
+            output.WriteLine($"{bins}\tworking\t{working.Iterations}\t{working.ActiveCount}\t{working.KktViolation:G3}\t{cpuWorking:F3}\t{f2:R}\t{Math.Abs(f1 - f2):G3}\t{bound:G3}");
+        }
+    }
+
     private sealed class Marks(Action<string> action) : IProgress<string>
     {
         public void Report(string value) => action(value);
