@@ -6,6 +6,8 @@ namespace OrderUnfold.Benchmarks;
 /// Entry point. <c>dotnet run -c Release --project benchmarks/OrderUnfold.Benchmarks -- --filter '*'</c> runs the
 /// BenchmarkDotNet suite; <c>-- --cpu-time</c> runs <see cref="CpuTimeProbe"/> (CPU time next to wall time);
 /// <c>-- --cpu-time-refine</c> only its line-refinement part (the nine-mode comb of <see cref="RefineCombBenchmark"/>);
+/// <c>-- --unfold-probe [--marks]</c> the whole unfold at 10⁴–10⁶ bins in CPU time (with the progress marks);
+/// <c>-- --working-set-probe</c> one NNLS solve at those sizes with and without the active set's working set;
 /// <c>-- --export-dense DIR</c> writes the dense-support problems for the scipy reference script.
 /// </summary>
 public static class Program
@@ -24,9 +26,15 @@ public static class Program
             return;
         }
 
-        if (args.Length == 1 && args[0] == "--unfold-probe")
+        if (args.Length >= 1 && args[0] == "--unfold-probe")
         {
-            UnfoldScalingBenchmarks.Probe(Console.Out);
+            UnfoldScalingBenchmarks.Probe(Console.Out, args.Length > 1 && args[1] == "--marks");
+            return;
+        }
+
+        if (args.Length == 1 && args[0] == "--working-set-probe")
+        {
+            UnfoldScalingBenchmarks.WorkingSetProbe(Console.Out);
             return;
         }
 

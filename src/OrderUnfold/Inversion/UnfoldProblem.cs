@@ -39,7 +39,7 @@ public sealed record AxisUncertainty(object Group, Calibration.AxisPolynomial Po
 /// matrix-free to <see cref="ActiveSetNnls"/>, with an L1 weight λ on s and an optional first-difference
 /// smoothness weight μ‖Ds‖².
 /// </summary>
-public sealed class UnfoldProblem : INormalEquations, INormalDiagonal, INormalPreconditioner
+public sealed class UnfoldProblem : INormalEquations, INormalRows, INormalDiagonal, INormalPreconditioner
 {
     private readonly CalibratedSweep[] _sweeps;
     private readonly SweepOperator[] _ops;
@@ -146,6 +146,60 @@ public sealed class UnfoldProblem : INormalEquations, INormalDiagonal, INormalPr
         _nonzero.Clear();
         for (var j = 0; j < n; j++)
             if (s[j] != 0) _nonzero.Add(j);
+        PeriodicProduct(x, result[n..]);
+
+        // Σ_k c_k · foldᵀ(w2_k), all sweeps in one pass over the grid
+        SweepOperator.FoldTransposeAll(_ops, _work2, _scales, result[..n]);
+
+        if (_mu > 0)
+        {
+            for (var j = 0; j < n; j++) result[j] += _mu * Difference(s, j);
+        }
+    }
+
+    /// <summary>Rows of G x for x zero outside <paramref name="support"/>: the same periodic products as
+    /// <see cref="Multiply"/> (O(support + M log M) per sweep), then only the listed rows are gathered, with the same sums
+    /// in the same order, instead of a pass over the whole grid.</summary>
+    public void MultiplyRows(ReadOnlySpan<double> x, IReadOnlyList<int> support, IReadOnlyList<int> rows, Span<double> result)
+    {
+        var n = Grid.Count;
+        var s = x[..n];
+        _nonzero.Clear();
+        foreach (var j in support)
+            if (j < n && s[j] != 0) _nonzero.Add(j);
+        _nonzero.Sort();
+        Span<double> background = stackalloc double[_sweeps.Length];
+        PeriodicProduct(x, background);
+        for (var r = 0; r < rows.Count; r++)
+        {
+            var i = rows[r];
+            if (i >= n)
+            {
+                result[r] = background[i - n];
+                continue;
+            }
+
+            var v = 0.0;
+            for (var k = 0; k < _ops.Length; k++) v += _scales[k] * _ops[k].Gather(_work2[k], i);
+            if (_mu > 0) v += _mu * Difference(s, i);
+            result[r] = v;
+        }
+    }
+
+    private static double Difference(ReadOnlySpan<double> s, int j)
+    {
+        var v = 0.0;
+        if (j > 0) v += s[j] - s[j - 1];
+        if (j < s.Length - 1) v += s[j] - s[j + 1];
+        return v;
+    }
+
+    /// <summary>The periodic part of G x for the bins listed in <see cref="_nonzero"/>: w2_k in <see cref="_work2"/>, the
+    /// scales in <see cref="_scales"/> and the background rows of G x in <paramref name="background"/>.</summary>
+    private void PeriodicProduct(ReadOnlySpan<double> x, Span<double> background)
+    {
+        var n = Grid.Count;
+        var s = x[..n];
         for (var k = 0; k < _sweeps.Length; k++)
         {
             var op = _ops[k];
@@ -157,7 +211,7 @@ public sealed class UnfoldProblem : INormalEquations, INormalDiagonal, INormalPr
             var w1 = _work1[k];
             var dot = 0.0;
             for (var a = 0; a < op.M; a++) dot += kst1[a] * w1[a];
-            result[n + k] = c * dot + _sweeps[k].Signal.Length * bg;
+            background[k] = c * dot + _sweeps[k].Signal.Length * bg;
             op.Convolve(_work1[k], _work2[k]);
             // bg·Sᵀ1 + c·SᵀS K fold(s) share one convolution below
             op.SampleNormal(_work2[k], _work1[k]);
@@ -166,20 +220,6 @@ public sealed class UnfoldProblem : INormalEquations, INormalDiagonal, INormalPr
             var w2 = _work2[k];
             for (var a = 0; a < op.M; a++) w2[a] = c * w2[a] + bg * kst1[a];
             _scales[k] = c;
-        }
-
-        // Σ_k c_k · foldᵀ(w2_k), all sweeps in one pass over the grid
-        SweepOperator.FoldTransposeAll(_ops, _work2, _scales, result[..n]);
-
-        if (_mu > 0)
-        {
-            for (var j = 0; j < n; j++)
-            {
-                var v = 0.0;
-                if (j > 0) v += s[j] - s[j - 1];
-                if (j < n - 1) v += s[j] - s[j + 1];
-                result[j] += _mu * v;
-            }
         }
     }
 
