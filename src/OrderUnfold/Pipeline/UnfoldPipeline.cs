@@ -190,6 +190,7 @@ public static class UnfoldPipeline
         // a grid fit this poor cannot be polished into a right answer: refuse before spending the refinement's budget
         RefuseMismatch(result, "grid");
         Analysis.RefinementDiagnostics? refinement = null;
+        var gridResult = result;
         if (solve.Refine)
         {
             progress?.Report("refining lines against the raw sweeps");
@@ -229,6 +230,7 @@ public static class UnfoldPipeline
                 LikelyCauses(result, instruments, calibrations, fsrRefinement is not null), setup.Path);
 
         RefuseMismatch(result, refinement is null ? "grid" : "line");
+        if (refinement is { FellBackToGrid: false }) RefuseWorseThanGrid(gridResult, result, setup.Path);
         // the cavity's transverse families fitted to the sweeps with the refined lines held (Analysis/FamilyFit.cs)
         if (refinement is not null) FitFamilies(calibrated, result, instruments, warnings, notes);
         result = FewerLines(result, solve.MinSnr, warnings);
@@ -253,6 +255,27 @@ public static class UnfoldPipeline
         };
     }
 
+
+    /// <summary>
+    /// A line fit that ends far worse than the grid it started from (a sweep's reduced χ² above
+    /// <see cref="PoorFitReducedChiSquare"/> and above twice the grid's for that sweep) has lost or misplaced lines the grid
+    /// explained — pruned as insignificant or moved to an alias — so its line list is not a measurement: refused, naming the
+    /// sweeps and both χ². (Found with a window several times wider than the unambiguous range: the grid fitted with
+    /// reduced χ² 1.2, the line fit kept 4 of 6 true lines at χ² 23–37, and nothing said so.)
+    /// </summary>
+    internal static void RefuseWorseThanGrid(UnfoldResult grid, UnfoldResult refined, string setupPath)
+    {
+        var worse = refined.Sweeps.Select(r => (r, g: grid.Sweeps.FirstOrDefault(g => g.Name == r.Name)))
+            .Where(t => t.g is not null && t.r.ReducedChiSquare > PoorFitReducedChiSquare && t.r.ReducedChiSquare > 2 * t.g!.ReducedChiSquare)
+            .ToList();
+        if (worse.Count == 0) return;
+        var wider = grid.OrdersResolved && grid.Grid.Count * grid.Grid.StepHz > grid.UnambiguousRangeHz * 1.01
+            ? $"; the window ({Quantity.FormatFrequency(grid.Grid.Count * grid.Grid.StepHz)}) is wider than the unambiguous range ({Quantity.FormatFrequency(grid.UnambiguousRangeHz)}), where lines and their aliases fit alike: a narrower window, or a third cavity, settles it"
+            : "";
+        throw new InputException(
+            $"the line fit ended far worse than the grid it started from ({string.Join(", ", worse.Select(t => $"{t.r.Name}: reduced χ² {t.r.ReducedChiSquare:F2} against {t.g!.ReducedChiSquare:F2}"))}; " +
+            $"{refined.Lines.Count} line(s) kept of the grid's {grid.Lines.Count}): lines the grid explained were lost or moved to an alias, so no line list is reported{wider}", setupPath);
+    }
 
     /// <summary>
     /// What to check when the model does not match the data, most suspect first, from the run's own evidence: an axis whose

@@ -115,6 +115,25 @@ public class ModelMismatchTests(ITestOutputHelper output)
         AssertRefused(Setup(t => t.Replace("length = \"93.7 mm\"", "length = \"95.574 mm\"").Replace("refine_fsr = false", $"refine_fsr = {refine}")),
             "reduced χ²", "stated FSR");
 
+    /// <summary>A window of ±100 GHz, eight times the demo's unambiguous range (24 GHz), where lines and their aliases fit
+    /// alike: the demo's six lines, or a refusal that names the cause; never a shorter line list that fits far worse than the
+    /// grid (found: the line fit kept 4 of 6 lines at reduced χ² 23–37 against the grid's 1.2, exit 0, no warning).</summary>
+    [Fact]
+    public void AWindowFarWiderThanTheUnambiguousRangeGivesTheLinesOrARefusal()
+    {
+        var path = Setup(t => t.Replace("[solve]", "[solve]\nwindow = [\"-100 GHz\", \"100 GHz\"]"));
+        try
+        {
+            AssertTrueLines(path);
+        }
+        catch (InputException e)
+        {
+            output.WriteLine(e.Message);
+            Assert.True(e.Message.Contains("far worse than the grid") || e.Message.Contains("ran out of its budget"), e.Message);
+            Assert.Contains("setup.toml", e.File ?? e.Message);
+        }
+    }
+
     /// <summary>Cavity B's stated length 10 % long: no ratio explains the data well; the run is refused, naming the reduced
     /// χ² and the stated FSR or the sweep assignment as the likely cause.</summary>
     [Fact]
