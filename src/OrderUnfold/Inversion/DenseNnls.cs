@@ -15,6 +15,13 @@ public interface INormalPreconditioner
     void Precondition(ReadOnlySpan<double> r, Span<double> z);
 }
 
+/// <summary>A preconditioner whose columns P e_j come cheaper than a general application.</summary>
+public interface INormalPreconditionerColumns
+{
+    /// <summary>z = P e_j (full length).</summary>
+    void Column(int j, Span<double> z);
+}
+
 /// <summary>
 /// NNLS for dense support: minimises ½ xᵀGx − bᵀx subject to x ≥ 0 on the constrained entries by gradient projection
 /// with conjugate gradients on the current face (Moré &amp; Toraldo, "On the solution of large quadratic programming

@@ -290,6 +290,62 @@ public static class ProjectedNewtonNnls
         };
     }
 
+    /// <summary>aᵀb (vectorised).</summary>
+    private static double Dot(ReadOnlySpan<double> a, ReadOnlySpan<double> b)
+    {
+        var vectors = System.Runtime.InteropServices.MemoryMarshal.Cast<double, System.Numerics.Vector<double>>(a);
+        var others = System.Runtime.InteropServices.MemoryMarshal.Cast<double, System.Numerics.Vector<double>>(b);
+        var acc = System.Numerics.Vector<double>.Zero;
+        for (var i = 0; i < vectors.Length; i++) acc += vectors[i] * others[i];
+        var sum = System.Numerics.Vector.Sum(acc);
+        for (var i = vectors.Length * System.Numerics.Vector<double>.Count; i < a.Length; i++) sum += a[i] * b[i];
+        return sum;
+    }
+
+    /// <summary>y += α x.</summary>
+    private static void Axpy(double alpha, ReadOnlySpan<double> x, Span<double> y)
+    {
+        var xs = System.Runtime.InteropServices.MemoryMarshal.Cast<double, System.Numerics.Vector<double>>(x);
+        var ys = System.Runtime.InteropServices.MemoryMarshal.Cast<double, System.Numerics.Vector<double>>(y[..x.Length]);
+        var va = new System.Numerics.Vector<double>(alpha);
+        for (var i = 0; i < xs.Length; i++) ys[i] += va * xs[i];
+        for (var i = xs.Length * System.Numerics.Vector<double>.Count; i < x.Length; i++) y[i] += alpha * x[i];
+    }
+
+    /// <summary>Deletes row and column k from the lower Cholesky factor L (row-major, row stride
+    /// <paramref name="stride"/>, size m → m − 1): the rows after k lose column k, and the trailing block takes the
+    /// deleted column's part l by the rank-one update L₂₂L₂₂ᵀ + l lᵀ with plane rotations.</summary>
+    internal static void DeleteFromFactor(double[] l, int stride, int m, int k, double[] work)
+    {
+        var len = m - k - 1;
+        for (var i = 0; i < len; i++) work[i] = l[(k + 1 + i) * stride + k];
+        for (var i = k + 1; i < m; i++)
+        {
+            var src = i * stride;
+            var dst = (i - 1) * stride;
+            if (k > 0) Array.Copy(l, src, l, dst, k);
+            Array.Copy(l, src + k + 1, l, dst + k, i - k);
+        }
+
+        for (var q = 0; q < len; q++)
+        {
+            var qq = (k + q) * stride + k + q;
+            var lqq = l[qq];
+            var w = work[q];
+            var rr = Math.Sqrt(lqq * lqq + w * w);
+            var c = rr / lqq;
+            var sn = w / lqq;
+            l[qq] = rr;
+            for (var i = q + 1; i < len; i++)
+            {
+                var idx = (k + i) * stride + k + q;
+                var v = (l[idx] + sn * work[i]) / c;
+                work[i] = c * work[i] - sn * v;
+                l[idx] = v;
+            }
+        }
+    }
+
     /// <summary>
     /// The preconditioner P ≈ G⁻¹ restricted to a face (the entries not bound at zero) without losing its quality: the
     /// inverse of the face block of P⁻¹ is P_FF − P_FB (P_BB)⁻¹ P_BF (the Schur-complement identity for a block of an
@@ -346,25 +402,53 @@ public static class ProjectedNewtonNnls
             {
                 if (_columns.ContainsKey(j)) continue;
                 var column = new double[n];
-                unit[j] = 1;
-                pre.Precondition(unit, column);
-                unit[j] = 0;
+                if (pre is INormalPreconditionerColumns columns) columns.Column(j, column);
+                else
+                {
+                    unit[j] = 1;
+                    pre.Precondition(unit, column);
+                    unit[j] = 0;
+                }
                 _columns[j] = column;
             }
 
             // Cholesky factor of P_BB (lower, row-major)
             var m = _set.Length;
+            var mOld = previous.Length;
+            // entries that left the bound set: their rows and columns are deleted from the previous factor by a rank-one
+            // update of the trailing block each (Golub & Van Loan, Matrix Computations, 4th ed., §6.5.4), O((m − k)²) per
+            // deleted position k, when that is cheaper than recomputing the rows after the first deleted one (O(m³ − k³))
+            if (keep < mOld)
+            {
+                var deleteCost = 0.0;
+                var kept = 0;
+                for (var a = 0; a < mOld; a++)
+                {
+                    if (bound[previous[a]]) kept++;
+                    else deleteCost += 3.0 * (mOld - a) * (mOld - a);
+                }
+
+                var recomputeCost = ((double)kept * kept * kept - (double)keep * keep * keep) / 6;
+                if (kept > keep && deleteCost < recomputeCost)
+                {
+                    var work = new double[mOld];
+                    var size = mOld;
+                    for (var a = mOld - 1; a >= 0; a--)
+                        if (!bound[previous[a]]) DeleteFromFactor(previousFactor, mOld, size--, a, work);
+                    keep = kept;
+                }
+            }
+
             _factor = new double[m * m];
             _u = new double[m];
-            var mOld = previous.Length;
             for (var a = 0; a < keep; a++) Array.Copy(previousFactor, a * mOld, _factor, a * m, a + 1);
             for (var a = keep; a < m; a++)
             {
                 var col = _columns[_set[a]];
                 for (var c = 0; c <= a; c++)
                 {
-                    var sum = 0.5 * (col[_set[c]] + _columns[_set[c]][_set[a]]);
-                    for (var q = 0; q < c; q++) sum -= _factor[a * m + q] * _factor[c * m + q];
+                    var sum = 0.5 * (col[_set[c]] + _columns[_set[c]][_set[a]])
+                        - Dot(_factor.AsSpan(a * m, c), _factor.AsSpan(c * m, c));
                     if (c == a)
                     {
                         if (!(sum > 0))
@@ -395,25 +479,20 @@ public static class ProjectedNewtonNnls
             for (var a = 0; a < m; a++) u[a] = z[_set[a]];
             // w = P_BB⁻¹ u by the two triangular solves
             for (var a = 0; a < m; a++)
-            {
-                var sum = u[a];
-                for (var q = 0; q < a; q++) sum -= _factor[a * m + q] * u[q];
-                u[a] = sum / _factor[a * m + a];
-            }
+                u[a] = (u[a] - Dot(_factor.AsSpan(a * m, a), u.AsSpan(0, a))) / _factor[a * m + a];
 
+            // the transposed solve by rows of the factor (contiguous): once u[a] is final, its part leaves the earlier ones
             for (var a = m - 1; a >= 0; a--)
             {
-                var sum = u[a];
-                for (var q = a + 1; q < m; q++) sum -= _factor[q * m + a] * u[q];
-                u[a] = sum / _factor[a * m + a];
+                u[a] /= _factor[a * m + a];
+                Axpy(-u[a], _factor.AsSpan(a * m, a), u.AsSpan(0, a));
             }
 
             for (var a = 0; a < m; a++)
             {
                 var w = u[a];
                 if (w == 0) continue;
-                var col = _columns[_set[a]];
-                for (var j = 0; j < z.Length; j++) z[j] -= w * col[j];
+                Axpy(-w, _columns[_set[a]], z);
             }
         }
     }

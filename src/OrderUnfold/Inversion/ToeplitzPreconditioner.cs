@@ -28,7 +28,7 @@ namespace OrderUnfold.Inversion;
 /// T. Chan's circulant left them spread over four decades. The set-up is O(n²), so the preconditioner is built only
 /// up to <see cref="MaxBins"/> grid bins.
 /// </summary>
-public sealed class ToeplitzPreconditioner : INormalPreconditioner
+public sealed class ToeplitzPreconditioner : INormalPreconditioner, INormalPreconditionerColumns
 {
     /// <summary>Largest grid for which the O(n²) set-up (Durbin's recursion) is done (about 0.3 s at this size).</summary>
     public const int MaxBins = 16384;
@@ -37,6 +37,8 @@ public sealed class ToeplitzPreconditioner : INormalPreconditioner
     private readonly int _count;
     private readonly int _length;
     private readonly double _x0;
+    private readonly double[] _x;
+    private readonly double[]?[] _anchors;
     private readonly double[] _xRe, _xIm, _yRe, _yIm;
     private readonly double[][] _coupling; // G[grid, background k]
     private readonly double[] _backgroundDiagonal;
@@ -48,6 +50,8 @@ public sealed class ToeplitzPreconditioner : INormalPreconditioner
         _count = count;
         Symbol = symbol;
         _x0 = x[0];
+        _x = x;
+        _anchors = new double[(n + AnchorSpacing - 1) / AnchorSpacing][];
         _length = 1 << (int)Math.Ceiling(Math.Log2(Math.Max(4, 2 * n)));
         _xRe = new double[_length];
         _xIm = new double[_length];
@@ -353,6 +357,81 @@ public sealed class ToeplitzPreconditioner : INormalPreconditioner
         Fft.Transform(re, im, forward: false);
         var inv = 1 / _x0;
         for (var i = 0; i < n; i++) z[i] = re[i] * inv;
+    }
+
+    /// <summary>Spacing of the columns of T⁻¹ computed by the Gohberg–Semencul product and kept, from which the other
+    /// columns are reached by the Trench recurrence.</summary>
+    private const int AnchorSpacing = 16;
+
+    private double[]? _unit;
+
+    /// <summary>
+    /// Column j of T⁻¹ (length n). From the Gohberg–Semencul formula, neighbouring entries along a diagonal of T⁻¹ differ
+    /// by a rank-two term: (T⁻¹)[i, j] = (T⁻¹)[i − 1, j − 1] + (x_i x_j − x̂_i x̂_j) / x₀ (W. F. Trench, "An algorithm for the
+    /// inversion of finite Toeplitz matrices", J. SIAM 12, 515–522, 1964; Golub &amp; Van Loan, 4th ed., §4.7.4), with the
+    /// first row x and the last row x reversed (T⁻¹ is symmetric and persymmetric). So a column follows from its neighbour
+    /// in O(n); it is walked from the nearest anchor column (every <see cref="AnchorSpacing"/>-th, computed once by the
+    /// four-FFT product and kept), at most half the spacing steps, instead of one O(n log n) product per column.
+    /// </summary>
+    internal void ToeplitzInverseColumn(int j, Span<double> c)
+    {
+        var n = _n;
+        var a = Math.Min((j + AnchorSpacing / 2) / AnchorSpacing, _anchors.Length - 1);
+        var anchor = _anchors[a];
+        if (anchor is null)
+        {
+            var unit = _unit ??= new double[n];
+            anchor = new double[n];
+            unit[a * AnchorSpacing] = 1;
+            ApplyToeplitzInverse(unit, anchor);
+            unit[a * AnchorSpacing] = 0;
+            _anchors[a] = anchor;
+        }
+
+        anchor.CopyTo(c);
+        var x = _x;
+        var inv = 1 / _x0;
+        // x̂_i = x_{n−i} for i ≥ 1, x̂₀ = 0
+        for (var k = a * AnchorSpacing; k < j; k++)
+        {
+            // column k → k + 1: c[i] ← c[i − 1] + (x_i x_{k+1} − x̂_i x̂_{k+1}) / x₀, c[0] = x_{k+1}
+            var xk = x[k + 1] * inv;
+            var xh = x[n - k - 1] * inv;
+            for (var i = n - 1; i >= 1; i--) c[i] = c[i - 1] + x[i] * xk - x[n - i] * xh;
+            c[0] = x[k + 1];
+        }
+
+        for (var k = a * AnchorSpacing; k > j; k--)
+        {
+            // column k → k − 1: c[i − 1] ← c[i] − (x_i x_k − x̂_i x̂_k) / x₀, c[n − 1] = (T⁻¹)[n − k, 0] = x_{n−k}
+            var xk = x[k] * inv;
+            var xh = x[n - k] * inv;
+            for (var i = 1; i < n; i++) c[i - 1] = c[i] - x[i] * xk + x[n - i] * xh;
+            c[n - 1] = x[n - k];
+        }
+    }
+
+    /// <summary>z = P e_j: the grid part T⁻¹ e_j (for a grid entry), the backgrounds by their elimination (as in
+    /// <see cref="Precondition"/>); for a background entry the general product.</summary>
+    public void Column(int j, Span<double> z)
+    {
+        var n = _n;
+        if (j >= n)
+        {
+            var e = new double[_count];
+            e[j] = 1;
+            Precondition(e, z);
+            return;
+        }
+
+        ToeplitzInverseColumn(j, z[..n]);
+        for (var k = 0; k < _coupling.Length; k++)
+        {
+            var col = _coupling[k];
+            var dot = 0.0;
+            for (var i = 0; i < n; i++) dot += col[i] * z[i];
+            z[n + k] = -dot / _backgroundDiagonal[k];
+        }
     }
 
     private double[]? _shifted;

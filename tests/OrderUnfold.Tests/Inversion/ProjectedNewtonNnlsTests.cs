@@ -86,6 +86,77 @@ public class ProjectedNewtonNnlsTests
     }
 
     [Fact]
+    public void PreconditionerColumnsByTheTrenchRecurrenceMatchTheFullProduct()
+    {
+        // columns P e_j walked from the anchor columns (Trench's recurrence) against the four-FFT product of a unit vector,
+        // at both ends, next to anchors and halfway between them (simulated dense-support case)
+        var problem = DenseSupportCase.Create(4000, 1000).Problem();
+        var pre = ToeplitzPreconditioner.TryCreate(problem, out var reason);
+        Assert.True(pre is not null, reason);
+        var count = problem.Count;
+        var n = problem.Grid.Count;
+        var unit = new double[count];
+        var expected = new double[count];
+        var got = new double[count];
+        foreach (var j in new[] { 0, 1, 7, 8, 9, 15, 16, 17, 24, 500, 503, 511, n - 9, n - 2, n - 1 })
+        {
+            unit[j] = 1;
+            pre!.Precondition(unit, expected);
+            unit[j] = 0;
+            pre.Column(j, got);
+            var scale = expected.Max(Math.Abs);
+            for (var i = 0; i < count; i++)
+                Assert.True(Math.Abs(got[i] - expected[i]) <= 1e-9 * scale, $"column {j}, entry {i}: {got[i]:R} against {expected[i]:R}");
+        }
+    }
+
+    [Fact]
+    public void DeletingFromACholeskyFactorGivesTheFactorOfTheReducedMatrix()
+    {
+        // a random symmetric positive definite matrix (simulated): delete rows/columns 0, 3 and the last from its factor
+        // one at a time, and compare L Lᵀ with the matrix without them
+        const int m = 9;
+        var rng = new Random(11);
+        var b = new double[m, m];
+        for (var i = 0; i < m; i++)
+        for (var j = 0; j < m; j++)
+            b[i, j] = rng.NextDouble() - 0.5;
+        var a = new double[m, m];
+        for (var i = 0; i < m; i++)
+        for (var j = 0; j < m; j++)
+        {
+            var s = i == j ? 0.1 : 0.0;
+            for (var k = 0; k < m; k++) s += b[i, k] * b[j, k];
+            a[i, j] = s;
+        }
+
+        var l = new double[m * m];
+        for (var i = 0; i < m; i++)
+        for (var j = 0; j <= i; j++)
+        {
+            var s = a[i, j];
+            for (var k = 0; k < j; k++) s -= l[i * m + k] * l[j * m + k];
+            l[i * m + j] = i == j ? Math.Sqrt(s) : s / l[j * m + j];
+        }
+
+        var keep = Enumerable.Range(0, m).ToList();
+        var work = new double[m];
+        var size = m;
+        foreach (var position in new[] { m - 1, 3, 0 })
+        {
+            ProjectedNewtonNnls.DeleteFromFactor(l, m, size--, position, work);
+            keep.RemoveAt(position);
+            for (var i = 0; i < size; i++)
+            for (var j = 0; j <= i; j++)
+            {
+                var s = 0.0;
+                for (var k = 0; k <= j; k++) s += l[i * m + k] * l[j * m + k];
+                Assert.Equal(a[keep[i], keep[j]], s, 1e-12);
+            }
+        }
+    }
+
+    [Fact]
     public void ToeplitzModelFollowsTheNormalMatrix()
     {
         // the grid block's Schur complement (backgrounds eliminated) in a middle column, against the Toeplitz entries
