@@ -367,7 +367,9 @@ public class WhyCasesTests(RobustnessFolder fx) : IClassFixture<RobustnessFolder
         var clock = Stopwatch.StartNew();
         var (code, _, err) = CliWith(cts.Token, "unfold", setup, "--out", Path.Combine(dir, "out"), "--no-plots", "--quiet");
         Assert.True(code is 0 or 2 or 130, err);
-        Assert.True(clock.Elapsed < TimeSpan.FromSeconds(6.5), $"took {clock.Elapsed.TotalSeconds:F1} s");
+        // minutes before the fix; the bound is loose because the wall clock of a shared machine is not a benchmark (a run
+        // under a load of 15 on two cores took 9.6 s here, an idle one about 1 s)
+        Assert.True(clock.Elapsed < TimeSpan.FromSeconds(30), $"took {clock.Elapsed.TotalSeconds:F1} s");
         if (code != 0) Assert.False(Directory.Exists(Path.Combine(dir, "out")));
     }
 
