@@ -357,21 +357,7 @@ public static class DenseNnls
 
         // KKT check on the returned point (the same definition as the active-set solver)
         Product(x, gx);
-        var kkt = 0.0;
-        var activeCount = 0;
-        for (var j = 0; j < n; j++)
-        {
-            var grad = b[j] - gx[j];
-            if (free[j] || x[j] > 0)
-            {
-                activeCount++;
-                kkt = Math.Max(kkt, Math.Abs(grad));
-            }
-            else
-            {
-                kkt = Math.Max(kkt, Math.Max(0, grad));
-            }
-        }
+        var (kkt, activeCount) = NnlsResult.KktViolationOf(b, gx, x, free);
 
         return new NnlsResult(x, iterations, 0, status, message, kkt, activeCount)
         {

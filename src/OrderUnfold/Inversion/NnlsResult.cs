@@ -41,6 +41,32 @@ public sealed record NnlsResult(double[] Solution, int Iterations, int Removals,
     /// <summary>True when the active-set solver stopped because its support grew past its limit (see
     /// <see cref="ActiveSetNnls.Options.MaxActiveCount"/>).</summary>
     public bool HandedOver { get; init; }
+
+    /// <summary>
+    /// The KKT violation of a point x of ½ xᵀGx − bᵀx subject to x ≥ 0 (free entries unconstrained), from its gradient
+    /// b − Gx: the largest |gradient| over free or positive entries and the largest positive gradient over entries at zero;
+    /// also the number of free or positive entries. One definition for every solver's final check.
+    /// </summary>
+    internal static (double Violation, int ActiveCount) KktViolationOf(ReadOnlySpan<double> b, ReadOnlySpan<double> gx, ReadOnlySpan<double> x, ReadOnlySpan<bool> free)
+    {
+        var kkt = 0.0;
+        var active = 0;
+        for (var j = 0; j < x.Length; j++)
+        {
+            var grad = b[j] - gx[j];
+            if (free[j] || x[j] > 0)
+            {
+                active++;
+                kkt = Math.Max(kkt, Math.Abs(grad));
+            }
+            else
+            {
+                kkt = Math.Max(kkt, Math.Max(0, grad));
+            }
+        }
+
+        return (kkt, active);
+    }
 }
 
 /// <summary>The NNLS solvers.</summary>
