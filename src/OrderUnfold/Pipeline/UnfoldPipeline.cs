@@ -286,6 +286,19 @@ public static class UnfoldPipeline
     internal static string LikelyCauses(UnfoldResult result, IReadOnlyDictionary<string, Instrument> instruments, IReadOnlyList<AxisCalibration> calibrations, bool fsrRefined)
     {
         var causes = new List<string>();
+        // families the calibration laser shows that the instrument response does not include: every source line carries them
+        foreach (var (name, inst) in instruments)
+        {
+            var unmodelled = calibrations.Where(c => c.Instrument == name && !c.FromRepeats && c.TransverseModes is not null)
+                .SelectMany(c => c.TransverseModes!.Families.Where(f => f.Count >= 2 && f.RelativeHeight >= 0.03))
+                .Where(f => !inst.Families.Any(k => Math.Min(Math.Abs(k.ApparentOffsetFsr - f.OffsetFsr), 1 - Math.Abs(k.ApparentOffsetFsr - f.OffsetFsr)) <= 0.01))
+                .GroupBy(f => Math.Round(f.OffsetFsr, 2)).Select(g => g.First()).ToList();
+            if (unmodelled.Count > 0)
+                causes.Add($"transverse families of '{name}' that its calibration sweeps show but the model does not include (" +
+                           string.Join(", ", unmodelled.Select(f => $"{f.OffsetFsr:F3} FSR after the main peaks, {100 * f.RelativeHeight:F0} %")) +
+                           "): every source line carries them; align the beam to the cavity, or state mirror_radius so that their offsets are placed");
+        }
+
         // the instruments of the sweeps that fit worst first
         var order = result.Sweeps.OrderByDescending(f => f.ReducedChiSquare).Select(f => f.Instrument).Distinct()
             .Concat(instruments.Keys).Distinct().Where(instruments.ContainsKey).ToList();

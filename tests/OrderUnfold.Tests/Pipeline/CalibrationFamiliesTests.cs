@@ -40,6 +40,13 @@ public sealed class CalibrationFamiliesTests(ITestOutputHelper output) : IDispos
         Assert.Contains(run.AllWarnings, w => w.Contains("interleaved groups"));
         Assert.All(run.Instruments, i => Assert.InRange(i.Finesse, 140, 160)); // simulated finesse 150
         Assert.All(run.Instruments, i => Assert.Contains(i.Families, f => f.N == 1 && Math.Abs(f.ApparentOffsetFsr - 0.468) < 0.005));
+        AssertSimulatedLines(run);
+    }
+
+    /// <summary>The simulated lines (truth.csv written by the simulator), each within a tenth of the 10 MHz linewidth (the
+    /// field-trace tolerance's 0.1 FWHM, shared/field-traces/README.md) and its intensity within 10 %; no other line.</summary>
+    private void AssertSimulatedLines(UnfoldRun run)
+    {
         var truth = File.ReadLines(Path.Combine(_dir, "truth.csv")).Where(l => l.Length > 0 && (char.IsAsciiDigit(l[0]) || l[0] == '-'))
             .Select(l => l.Split(',')).Select(f => (Hz: double.Parse(f[0], CultureInfo.InvariantCulture), I: double.Parse(f[1], CultureInfo.InvariantCulture))).ToList();
         Assert.Equal(truth.Count, run.Result.Lines.Count);
@@ -49,6 +56,34 @@ public sealed class CalibrationFamiliesTests(ITestOutputHelper output) : IDispos
             // a tenth of the 10 MHz linewidth (the field-trace tolerance's 0.1 FWHM, shared/field-traces/README.md)
             Assert.True(Math.Abs(nearest.FrequencyHz - hz) < 1e6, $"{hz / 1e9:F4} GHz: nearest {nearest.FrequencyHz / 1e9:F6} GHz");
             Assert.Equal(intensity, nearest.Intensity, 0.1 * intensity + 0.005);
+        }
+    }
+
+    /// <summary>
+    /// One family at 0.75 FSR after TEM00 (o = 0.25, 50 %), off the Gouy ladder and away from half the FSR, no mirror radii:
+    /// the calibration is right and reports it, but it is not part of the instrument response, so the unfold cannot fit the
+    /// sources; the refusal names that family first (it named the stated FSRs and the file assignment before).
+    /// </summary>
+    [Fact]
+    public void A_family_only_the_calibration_shows_is_named_when_the_run_is_refused()
+    {
+        var stdout = new StringWriter(CultureInfo.InvariantCulture);
+        var stderr = new StringWriter(CultureInfo.InvariantCulture);
+        var code = OrderUnfold.Cli.Cli.Run(["simulate", "--out", _dir, "--families", "0.25:0.5", "--seed", "11"], stdout, stderr);
+        Assert.True(code == 0, stderr.ToString());
+        try
+        {
+            var run = UnfoldPipeline.Run(Path.Combine(_dir, "setup.toml"));
+            // should the model one day include such a family, the lines must be the simulated ones (truth.csv)
+            AssertSimulatedLines(run);
+        }
+        catch (InputException e)
+        {
+            output.WriteLine(e.Message);
+            var first = e.Message.IndexOf("most suspect first: ", StringComparison.Ordinal);
+            Assert.True(first >= 0, e.Message);
+            Assert.StartsWith("transverse families of 'A' that its calibration sweeps show", e.Message[(first + "most suspect first: ".Length)..]);
+            Assert.Contains("0.750 FSR after the main peaks, 50 %", e.Message);
         }
     }
 
