@@ -191,6 +191,10 @@ public static class UnfoldPipeline
         RefuseMismatch(result, "grid");
         Analysis.RefinementDiagnostics? refinement = null;
         var gridResult = result;
+        // without the refinement nothing checks the orders: a window wider than the unambiguous range holds aliases
+        if (!solve.Refine && result.OrdersResolved && result.Grid.Count * result.Grid.StepHz > 1.01 * result.UnambiguousRangeHz)
+            warnings.Add($"the window ({Quantity.FormatFrequency(result.Grid.Count * result.Grid.StepHz)}) is wider than the unambiguous range ({Quantity.FormatFrequency(result.UnambiguousRangeHz)}) " +
+                         "and the line refinement is off, so no line's order was checked: lines about that range (or a multiple of it) apart may be aliases of one another (refine = true checks them)");
         if (solve.Refine)
         {
             progress?.Report("refining lines against the raw sweeps");

@@ -134,6 +134,15 @@ public class ModelMismatchTests(ITestOutputHelper output)
         }
     }
 
+    /// <summary>The same window with the refinement off: the grid's lines are reported, but a warning says that their orders
+    /// were not checked on a window eight times the unambiguous range (the grid reported 17 lines for six, silently).</summary>
+    [Fact]
+    public void AWideWindowWithoutRefinementWarnsThatOrdersAreUnchecked()
+    {
+        var run = UnfoldPipeline.Run(Setup(t => t.Replace("[solve]", "[solve]\nwindow = [\"-100 GHz\", \"100 GHz\"]").Replace("refine = true", "refine = false")));
+        Assert.Contains(run.AllWarnings, w => w.Contains("wider than the unambiguous range") && w.Contains("refinement is off"));
+    }
+
     /// <summary>Cavity B's stated length 10 % long: no ratio explains the data well; the run is refused, naming the reduced
     /// χ² and the stated FSR or the sweep assignment as the likely cause.</summary>
     [Fact]
