@@ -448,15 +448,16 @@ public sealed class LaserModesTests
     {
         // Simulated: spacing 2–100 GHz, one cavity of FSR 1–3 GHz, 5–9 modes, position noise 1 MHz. Cases where
         // two modes fold within 3 % of an FSR of each other (j·δ near a multiple of the FSR for j < n) are skipped,
-        // as one cavity cannot separate them, and so are modes spread evenly round the FSR (n·δ near a multiple of
-        // it), which any step δ·j describes as well. The folded step must come back within 4 standard errors (≥ 2 MHz), and a
+        // as one cavity cannot separate them, and so are modes spread evenly round the FSR (n·δ or (n + 1)·δ near a
+        // multiple of it: all slots filled, or all but one, e.g. 9 modes with 10·δ = FSR), which any step δ·j describes
+        // as well. The folded step must come back within 4 standard errors (≥ 2 MHz), and a
         // spacing below six FSRs must be among the listed candidates.
         Gen.Select(Gen.Double[2e9, 100e9], Gen.Double[1e9, 3e9], Gen.Int[5, 9], Gen.Int[0, 1_000_000]).Sample(t =>
         {
             var (d, fsr, n, seed) = t;
             var r = d % fsr;
             var delta = Math.Min(r, fsr - r);
-            for (var j = 1; j <= n; j++)
+            for (var j = 1; j <= n + 1; j++)
             {
                 var m = j * delta % fsr;
                 if (Math.Min(m, fsr - m) < 0.03 * fsr) return;
