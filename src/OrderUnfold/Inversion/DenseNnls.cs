@@ -151,13 +151,8 @@ public static class DenseNnls
         var dir = new double[n];
         var inFace = new bool[n];
 
-        double Violation()
-        {
-            var v = 0.0;
-            for (var j = 0; j < n; j++)
-                v = Math.Max(v, free[j] || x[j] > 0 ? Math.Abs(g[j]) : Math.Max(0, -g[j]));
-            return v;
-        }
+        // g = Gx − b is kept with gx, so the violation is the one every solver's final check uses
+        double Violation() => NnlsResult.KktViolationOf(b, gx, x, free).Violation;
 
         // projected search along d from x: xt = P(x + α d), Armijo on the objective; accepts into x, gx, g, q
         bool ProjectedSearch(double[] d, double alpha)

@@ -77,13 +77,8 @@ public static class ProjectedNewtonNnls
         var xt = new double[n];
         var gxt = new double[n];
 
-        double Violation()
-        {
-            var v = 0.0;
-            for (var j = 0; j < n; j++)
-                v = Math.Max(v, free[j] || x[j] > 0 ? Math.Abs(g[j]) : Math.Max(0, -g[j]));
-            return v;
-        }
+        // g = Gx − b is kept with gx, so the violation is the one every solver's final check uses
+        double Violation() => NnlsResult.KktViolationOf(b, gx, x, free).Violation;
 
         var face = new FacePreconditioner(pre, n);
         var status = SolverStatus.IterationLimit;

@@ -135,18 +135,26 @@ public sealed class SweepOperator
         {
             var v = s[j];
             if (v == 0) continue;
-            var a = _foldBin[j];
-            var t = _foldFrac[j];
-            periodic[a] += (1 - t) * v;
-            periodic[a + 1 == M ? 0 : a + 1] += t * v;
-            for (var q = 0; q < _famHeight.Length; q++)
-            {
-                var b = _famBin[q][j];
-                var u = _famFrac[q][j];
-                var w = _famHeight[q] * v;
-                periodic[b] += (1 - u) * w;
-                periodic[b + 1 == M ? 0 : b + 1] += u * w;
-            }
+            FoldBin(j, v, periodic);
+        }
+    }
+
+    /// <summary>Adds bin j of value v to the periodic grid: its TEM00 place and each family's, shared linearly between the two
+    /// nearest periodic bins.</summary>
+    [System.Runtime.CompilerServices.MethodImpl(System.Runtime.CompilerServices.MethodImplOptions.AggressiveInlining)]
+    private void FoldBin(int j, double v, double[] periodic)
+    {
+        var a = _foldBin[j];
+        var t = _foldFrac[j];
+        periodic[a] += (1 - t) * v;
+        periodic[a + 1 == M ? 0 : a + 1] += t * v;
+        for (var q = 0; q < _famHeight.Length; q++)
+        {
+            var b = _famBin[q][j];
+            var u = _famFrac[q][j];
+            var w = _famHeight[q] * v;
+            periodic[b] += (1 - u) * w;
+            periodic[b + 1 == M ? 0 : b + 1] += u * w;
         }
     }
 
@@ -158,18 +166,7 @@ public sealed class SweepOperator
         foreach (var j in nonzero)
         {
             var v = s[j];
-            var a = _foldBin[j];
-            var t = _foldFrac[j];
-            periodic[a] += (1 - t) * v;
-            periodic[a + 1 == M ? 0 : a + 1] += t * v;
-            for (var q = 0; q < _famHeight.Length; q++)
-            {
-                var b = _famBin[q][j];
-                var u = _famFrac[q][j];
-                var w = _famHeight[q] * v;
-                periodic[b] += (1 - u) * w;
-                periodic[b + 1 == M ? 0 : b + 1] += u * w;
-            }
+            FoldBin(j, v, periodic);
         }
     }
 

@@ -50,8 +50,8 @@ public static class FamilyResidue
             var found = false;
             foreach (var parent in kept.Where(p => p.Intensity > line.Intensity))
             {
-                var d = Frac((line.FrequencyHz - parent.FrequencyHz) / fsr);
-                var family = inst.Families.FirstOrDefault(f => Distance(d, f.ApparentOffsetFsr) <= tolerance[f.N] + (line.FrequencySigmaHz is double s && double.IsFinite(s) ? s : 0) / fsr &&
+                var d = CavityModeFamily.Frac((line.FrequencyHz - parent.FrequencyHz) / fsr);
+                var family = inst.Families.FirstOrDefault(f => PeriodDecider.CircularDistance(d, f.ApparentOffsetFsr) <= tolerance[f.N] + (line.FrequencySigmaHz is double s && double.IsFinite(s) ? s : 0) / fsr &&
                                                                line.Intensity <= f.RelativeHeight * parent.Intensity);
                 if (family is null) continue;
                 residue.Add((line, parent, family, d));
@@ -67,13 +67,5 @@ public static class FamilyResidue
                      string.Join(", ", residue.Select(r => $"{Quantity.FormatFrequency(r.Line.FrequencyHz)} (intensity {r.Line.Intensity:F4}, {r.Offset:F4} FSR above the line at {Quantity.FormatFrequency(r.Parent.FrequencyHz)}, " +
                                                              $"where its N={r.Family.N} family lies at {r.Family.ApparentOffsetFsr:F4} ± {tolerance[r.Family.N]:F4} FSR)")));
         return result with { Lines = result.Lines.Except(residue.Select(r => r.Line)).ToList() };
-    }
-
-    private static double Frac(double v) => v - Math.Floor(v);
-
-    private static double Distance(double a, double b)
-    {
-        var d = Math.Abs(Frac(a) - Frac(b));
-        return Math.Min(d, 1 - d);
     }
 }

@@ -295,7 +295,7 @@ public static class UnfoldPipeline
         {
             var unmodelled = calibrations.Where(c => c.Instrument == name && !c.FromRepeats && c.TransverseModes is not null)
                 .SelectMany(c => c.TransverseModes!.Families.Where(f => f.Count >= 2 && f.RelativeHeight >= 0.03))
-                .Where(f => !inst.Families.Any(k => Math.Min(Math.Abs(k.ApparentOffsetFsr - f.OffsetFsr), 1 - Math.Abs(k.ApparentOffsetFsr - f.OffsetFsr)) <= 0.01))
+                .Where(f => !inst.Families.Any(k => PeriodDecider.CircularDistance(k.ApparentOffsetFsr, f.OffsetFsr) <= 0.01))
                 .GroupBy(f => Math.Round(f.OffsetFsr, 2)).Select(g => g.First()).ToList();
             if (unmodelled.Count > 0)
                 causes.Add($"transverse families of '{name}' that its calibration sweeps show but the model does not include (" +
@@ -350,7 +350,7 @@ public static class UnfoldPipeline
             if (fit is null) continue;
             var lw = inst.LinewidthHz / inst.FsrHz;
             var measured = inst.Families;
-            var sane = fit.Families.Zip(measured).All(t => Distance(t.First.ApparentOffsetFsr, t.Second.ApparentOffsetFsr) <= lw &&
+            var sane = fit.Families.Zip(measured).All(t => PeriodDecider.CircularDistance(t.First.ApparentOffsetFsr, t.Second.ApparentOffsetFsr) <= lw &&
                                                               t.First.RelativeHeight > 0 && double.IsFinite(t.First.OffsetSigmaFsr));
             if (!fit.Converged || !(fit.ChiSquareAfter <= fit.ChiSquareBefore) || !sane)
             {
@@ -366,12 +366,6 @@ public static class UnfoldPipeline
             };
             notes.Add($"instrument '{name}': transverse families fitted to the sweeps with the refined lines (χ² {fit.ChiSquareBefore:G6} → {fit.ChiSquareAfter:G6}, {fit.Iterations} iterations): " +
                       string.Join(", ", fit.Families.Select(f => $"N={f.N} at {f.ApparentOffsetFsr:F5} ± {f.OffsetSigmaFsr:G2} FSR, {100 * f.RelativeHeight:F1} ± {100 * f.HeightSigma:G2} % (statistical σ)")));
-        }
-
-        static double Distance(double a, double b)
-        {
-            var d = Math.Abs(CavityModeFamily.Frac(a) - CavityModeFamily.Frac(b));
-            return Math.Min(d, 1 - d);
         }
     }
 
