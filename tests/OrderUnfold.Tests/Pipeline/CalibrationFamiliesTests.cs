@@ -30,10 +30,7 @@ public sealed class CalibrationFamiliesTests(ITestOutputHelper output) : IDispos
     [Fact]
     public void Interleaved_family_peaks_do_not_halve_the_calibration_period()
     {
-        var stdout = new StringWriter(CultureInfo.InvariantCulture);
-        var stderr = new StringWriter(CultureInfo.InvariantCulture);
-        var code = OrderUnfold.Cli.Cli.Run(["simulate", "--out", _dir, "--families", "0.532:0.6, 0.064:0.2", "--seed", "7"], stdout, stderr);
-        Assert.True(code == 0, stderr.ToString());
+        Simulate("0.532:0.6, 0.064:0.2", "7");
         var run = UnfoldPipeline.Run(Path.Combine(_dir, "setup.toml"));
         foreach (var i in run.Instruments) output.WriteLine(i.ToString());
         foreach (var w in run.AllWarnings) output.WriteLine($"warning: {w}");
@@ -41,6 +38,14 @@ public sealed class CalibrationFamiliesTests(ITestOutputHelper output) : IDispos
         Assert.All(run.Instruments, i => Assert.InRange(i.Finesse, 140, 160)); // simulated finesse 150
         Assert.All(run.Instruments, i => Assert.Contains(i.Families, f => f.N == 1 && Math.Abs(f.ApparentOffsetFsr - 0.468) < 0.005));
         AssertSimulatedLines(run);
+    }
+
+    /// <summary>Writes the demo scenario with the given transverse families into the test folder (<c>orderunfold simulate</c>).</summary>
+    private void Simulate(string families, string seed)
+    {
+        var stderr = new StringWriter(CultureInfo.InvariantCulture);
+        var code = OrderUnfold.Cli.Cli.Run(["simulate", "--out", _dir, "--families", families, "--seed", seed], new StringWriter(CultureInfo.InvariantCulture), stderr);
+        Assert.True(code == 0, stderr.ToString());
     }
 
     /// <summary>The simulated lines (truth.csv written by the simulator), each within a tenth of the 10 MHz linewidth (the
@@ -67,10 +72,7 @@ public sealed class CalibrationFamiliesTests(ITestOutputHelper output) : IDispos
     [Fact]
     public void A_family_only_the_calibration_shows_is_named_when_the_run_is_refused()
     {
-        var stdout = new StringWriter(CultureInfo.InvariantCulture);
-        var stderr = new StringWriter(CultureInfo.InvariantCulture);
-        var code = OrderUnfold.Cli.Cli.Run(["simulate", "--out", _dir, "--families", "0.25:0.5", "--seed", "11"], stdout, stderr);
-        Assert.True(code == 0, stderr.ToString());
+        Simulate("0.25:0.5", "11");
         try
         {
             var run = UnfoldPipeline.Run(Path.Combine(_dir, "setup.toml"));

@@ -177,42 +177,31 @@ public sealed class FieldTraceCalibrationTests(ITestOutputHelper output)
         Assert.Empty(inst.Families);
     }
 
+    // a confocal cavity's odd family coincides with the next order: no separate family
     [Fact]
-    public void Trace07_calibration_sweeps_give_the_period_and_the_cavity_finesse()
-    {
-        var folder = Folder("07_");
-        string F(string n) => Path.Combine(folder, n);
-        var set = Calibrate(FieldTraceSetups.TwoCavities(F), out _);
-        foreach (var cav in new[] { "cavA", "cavB" })
-        {
-            var options = Options($"{cav}_cal.csv");
-            // source: shared/field-traces/07_two_cavity_multiline/truth.json, order_spacings of the calibration sweep (FSR ± 1 %)
-            CheckOrderSpacings(set with { Axes = set.Axes.Where(a => !a.FromRepeats).ToList() }, cav, folder, $"{cav}_cal.csv", options, 0.01);
-            // source: same truth.json, cavity finesse (204 and 216, ± 15 %), measured on the calibration sweep
-            var inst = set.Instruments.Single(i => i.Name == cav);
-            Assert.True(inst.FinesseMeasured);
-            Assert.InRange(inst.Finesse, TruthFinesse(folder, cav) * 0.85, TruthFinesse(folder, cav) * 1.15);
-            // a confocal cavity's odd family coincides with the next order: no separate family
-            Assert.Empty(inst.Families);
-        }
-    }
+    public void Trace07_calibration_sweeps_give_the_period_and_the_cavity_finesse() =>
+        CalibrationSweepsOfTwoCavities("07_", FieldTraceSetups.TwoCavities, "cavA", "cavB");
 
+    // planar cavities: no transverse families; the comb's folded modes are source lines
     [Fact]
-    public void Trace08_calibration_sweeps_give_the_period_and_the_cavity_finesse()
+    public void Trace08_calibration_sweeps_give_the_period_and_the_cavity_finesse() =>
+        CalibrationSweepsOfTwoCavities("08_", FieldTraceSetups.DiodeComb, "cav10", "cav7p3");
+
+    /// <summary>Each cavity's calibration sweep against the trace's truth.json: the order spacings of the calibration sweep
+    /// (FSR ± 1 %) and the cavity finesse (± 15 %), measured; no transverse family.</summary>
+    private void CalibrationSweepsOfTwoCavities(string prefix, Func<Func<string, string>, string> setup, params string[] cavities)
     {
-        var folder = Folder("08_");
-        string F(string n) => Path.Combine(folder, n);
-        var set = Calibrate(FieldTraceSetups.DiodeComb(F), out _);
-        foreach (var cav in new[] { "cav10", "cav7p3" })
+        var folder = Folder(prefix);
+        var set = Calibrate(setup(n => Path.Combine(folder, n)), out _);
+        foreach (var cav in cavities)
         {
             var options = Options($"{cav}_cal.csv");
-            // source: shared/field-traces/08_diode_comb_two_cavity/truth.json, order_spacings of the calibration sweep (FSR ± 1 %)
+            // source: shared/field-traces/<trace>/truth.json, order_spacings of the calibration sweep (FSR ± 1 %)
             CheckOrderSpacings(set with { Axes = set.Axes.Where(a => !a.FromRepeats).ToList() }, cav, folder, $"{cav}_cal.csv", options, 0.01);
-            // source: same truth.json, cavity finesse (147 and 163, ± 15 %)
+            // source: same truth.json, cavity finesse (07: 204 and 216; 08: 147 and 163; ± 15 %), measured on the calibration sweep
             var inst = set.Instruments.Single(i => i.Name == cav);
             Assert.True(inst.FinesseMeasured);
             Assert.InRange(inst.Finesse, TruthFinesse(folder, cav) * 0.85, TruthFinesse(folder, cav) * 1.15);
-            // planar cavities: no transverse families; the comb's folded modes are source lines
             Assert.Empty(inst.Families);
         }
     }
