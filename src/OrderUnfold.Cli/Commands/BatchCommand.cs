@@ -1,3 +1,4 @@
+using OrderUnfold.Plotting;
 using System.Runtime.InteropServices;
 using OrderUnfold.Pipeline.Batch;
 
@@ -58,7 +59,7 @@ public sealed class BatchCommand : ICommand
             Shard = a.Value("shard") is string s ? ParseShard(s) : Shard.All,
             Setup = a.Value("setup"),
             Calibration = a.Value("calibration"),
-            Plots = a.Flag("plots"),
+            Figures = a.Flag("plots") ? new FigureWriter() : null,
             NoRefine = a.Flag("no-refine"),
             RetryFailed = a.Flag("retry-failed"),
             ToolVersion = Cli.Version,

@@ -1,3 +1,4 @@
+using OrderUnfold.Plotting;
 using OrderUnfold.Pipeline;
 using OrderUnfold.Simulation;
 using OrderUnfold.Units;
@@ -30,7 +31,7 @@ public sealed class DemoCommand : ICommand
         var run = UnfoldPipeline.Run(setup, new StderrProgress(stderr, a.Flag("quiet")));
         using (var staged = Io.StagedFolder.Create(outDir)) // complete or absent (Io/StagedFolder.cs)
         {
-            UnfoldOutputs.Write(run, staged.Path, plots: !a.Flag("no-plots"), toolVersion: Cli.Version);
+            UnfoldOutputs.Write(run, staged.Path, figures: a.Flag("no-plots") ? null : new FigureWriter(), toolVersion: Cli.Version);
             staged.Publish(OutputNames.Report);
         }
 
@@ -39,7 +40,7 @@ public sealed class DemoCommand : ICommand
         var truthPath = Path.Combine(dataDir, "truth.csv");
         if (File.Exists(truthPath))
         {
-            var truth = Scenarios.ReadTruth(truthPath);
+            var truth = SimulationFiles.ReadTruth(truthPath);
             stdout.WriteLine();
             stdout.WriteLine("found versus simulated truth (relative to the strongest line):");
             stdout.WriteLine("  true frequency     found frequency    difference    true int.  found int.");

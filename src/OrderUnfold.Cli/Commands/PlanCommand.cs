@@ -270,7 +270,7 @@ public sealed class PlanCommand : ICommand
         if (catalogue is not null && rangeGiven) throw new UsageException("plan: give candidates either as a range (--second-min/--second-max/--step) or as --catalogue, not both");
         if (catalogue is not null)
         {
-            var list = CandidateLengths.ReadCatalogue(catalogue);
+            var list = CandidateCatalogue.ReadCatalogue(catalogue);
             return new CandidateSet(list, $"{list.Count} length(s) from {catalogue}", false);
         }
 

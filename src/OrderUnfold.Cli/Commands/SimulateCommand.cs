@@ -100,7 +100,7 @@ public sealed class SimulateCommand : ICommand
         IReadOnlyList<string> files;
         using (var staged = Io.StagedFolder.Create(outDir)) // complete or absent (Io/StagedFolder.cs)
         {
-            var output = Scenarios.Write(spec, staged.Path);
+            var output = SimulationFiles.WriteScenario(spec, staged.Path);
             setupPath = staged.Final(output.SetupPath);
             files = output.Files;
             staged.Publish(Path.GetFileName(output.SetupPath));

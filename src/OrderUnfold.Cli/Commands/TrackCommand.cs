@@ -1,3 +1,4 @@
+using OrderUnfold.Plotting;
 using OrderUnfold.Pipeline.Batch;
 using OrderUnfold.Units;
 
@@ -39,7 +40,7 @@ public sealed class TrackCommand : ICommand
         };
         var tolerance = a.Quantity("tolerance", Dimension.Frequency) ?? 20e6;
         if (!(tolerance > 0)) throw new UsageException($"track: --tolerance must be a positive frequency but got '{a.Value("tolerance")}'");
-        var options = new TrackOptions { ToleranceHz = tolerance, Frame = frame, MaxGap = a.Int("max-gap", 0) ?? 10, Plots = !a.Flag("no-plots") };
+        var options = new TrackOptions { ToleranceHz = tolerance, Frame = frame, MaxGap = a.Int("max-gap", 0) ?? 10, Figures = a.Flag("no-plots") ? null : new FigureWriter() };
         TrackResult r;
         string outputs;
         using (var staged = Io.StagedFolder.Create(a.Value("out") ?? Path.Combine(dir, "track"))) // complete or absent

@@ -1,3 +1,4 @@
+using OrderUnfold.Plotting;
 using OrderUnfold.Pipeline;
 
 namespace OrderUnfold.Cli.Commands;
@@ -35,7 +36,7 @@ public sealed class UnfoldCommand : ICommand
         // outputs are complete or absent: written into a staging folder, published by rename (Io/StagedFolder.cs)
         using (var staged = Io.StagedFolder.Create(outDir))
         {
-            UnfoldOutputs.Write(run, staged.Path, plots: !a.Flag("no-plots"), toolVersion: Cli.Version);
+            UnfoldOutputs.Write(run, staged.Path, figures: a.Flag("no-plots") ? null : new FigureWriter(), toolVersion: Cli.Version);
             staged.Publish(OutputNames.Report);
         }
 

@@ -60,7 +60,7 @@ public class AxisUncertaintyTests(ITestOutputHelper output)
         // error of 1/√(2·300) ≈ 4 %, so the band ±15 % is about 3.7σ; the noise is small enough (10⁻⁴) that its own
         // contribution (about 0.1 kHz) does not matter next to the axis part (a few kHz)
         Line[] truth = [new(0.20e9, 1.0), new(0.55e9, 0.5)];
-        var spec = new SweepSpec(Cavity, 1500, 3, 0, NoiseSigma: 1e-4);
+        var spec = new FixtureSweep(Cavity, 1500, 3, 0, NoiseSigma: 1e-4);
         var chol = Matrix<double>.Build.Dense(3, 3, (i, j) => ShapeCovariance[i * 3 + j]).Cholesky().Factor;
         var rng = new Random(7);
         var errors = new List<double>();
@@ -90,7 +90,7 @@ public class AxisUncertaintyTests(ITestOutputHelper output)
     public void WithoutAnAxisUncertaintyNothingIsAdded()
     {
         Line[] truth = [new(0.20e9, 1.0), new(0.55e9, 0.5)];
-        var spec = new SweepSpec(Cavity, 1500, 3, 0);
+        var spec = new FixtureSweep(Cavity, 1500, 3, 0);
         var sweep = Simulate(new Random(3), [0, 0, 0], truth, spec.NoiseSigma) with { AxisUncertainty = null };
         var (result, _) = LineRefiner.Refine([sweep], Grid([sweep], [spec], truth, -0.5e9, 0.5e9, ordersResolved: false));
         Assert.All(result.Lines, l => Assert.Null(l.FrequencyAxisSigmaHz));

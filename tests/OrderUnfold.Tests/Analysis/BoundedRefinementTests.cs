@@ -21,8 +21,8 @@ public class BoundedRefinementTests(ITestOutputHelper output)
     /// <summary>Two cavities, three lines: two 15 linewidths apart in A (one group), one far from both in either cavity.</summary>
     private static (List<CalibratedSweep> Sweeps, UnfoldResult Grid, Line[] Truth) ThreeLines(int seed)
     {
-        var specA = new SweepSpec(CavityA, 3000, 3.2, 0.0, Background: 0.02, NoiseSigma: 0.01);
-        var specB = new SweepSpec(CavityB, 3000, 3.2, 0.31e9, Gain: 0.8, NoiseSigma: 0.01);
+        var specA = new FixtureSweep(CavityA, 3000, 3.2, 0.0, Background: 0.02, NoiseSigma: 0.01);
+        var specB = new FixtureSweep(CavityB, 3000, 3.2, 0.31e9, Gain: 0.8, NoiseSigma: 0.01);
         Line[] truth = [new(0.20e9, 1.0), new(0.35e9, 0.5), new(2.67e9, 0.4)];
         var rng = new Random(seed);
         List<CalibratedSweep> sweeps = [Sweep("A", specA, truth, rng), Sweep("B", specB, truth, rng)];

@@ -16,7 +16,7 @@ public class CandidateThresholdTests(ITestOutputHelper output)
     private static readonly Instrument Cavity = new("A", 1.0e9, 100);
 
     private static CalibratedSweep Sweep(int seed, double weak) =>
-        RefinerFixtures.Sweep("A", new RefinerFixtures.SweepSpec(Cavity, 2000, 3, 0), [new(0.2e9, 1.0), new(0.55e9, weak)], new Random(seed));
+        RefinerFixtures.Sweep("A", new RefinerFixtures.FixtureSweep(Cavity, 2000, 3, 0), [new(0.2e9, 1.0), new(0.55e9, weak)], new Random(seed));
 
     private static (int WeakFound, int Extra) Run(double weak, double gridMinSnr, int seeds)
     {

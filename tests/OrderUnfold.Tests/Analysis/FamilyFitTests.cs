@@ -20,7 +20,7 @@ public sealed class FamilyFitTests(ITestOutputHelper output)
         var truth = new Instrument("cav", 3e9, 500) { Families = [new CavityModeFamily(1, 0.4877, 0.35, "simulated"), new CavityModeFamily(2, 0.9755, 0.10, "simulated")] };
         var start = truth with { Families = [new CavityModeFamily(1, 0.4885, 0.30, "measured"), new CavityModeFamily(2, 0.9747, 0.12, "measured")] };
         var rng = new Random(11);
-        var specs = new[] { new RefinerFixtures.SweepSpec(start, 9000, 2.2, 1.1e8, 1.0, 0.02, 0.005), new RefinerFixtures.SweepSpec(start, 9000, 2.2, -4.0e8, 0.9, 0.03, 0.005) };
+        var specs = new[] { new RefinerFixtures.FixtureSweep(start, 9000, 2.2, 1.1e8, 1.0, 0.02, 0.005), new RefinerFixtures.FixtureSweep(start, 9000, 2.2, -4.0e8, 0.9, 0.03, 0.005) };
         var sweeps = specs.Select((s, k) =>
         {
             var scan = Enumerable.Range(0, s.Samples).Select(i => s.SpanFsr * s.Instrument.FsrHz * i / s.Samples).ToArray();

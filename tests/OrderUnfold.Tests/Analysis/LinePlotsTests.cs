@@ -18,8 +18,8 @@ public class LinePlotsTests
     {
         var a = new Instrument("A", 1.0e9, 100);
         var b = new Instrument("B", 1.10005e9, 110);
-        var specA = new SweepSpec(a, 4000, 3.2, 0.0, NoiseSigma: 0.01);
-        var specB = new SweepSpec(b, 4000, 3.2, 0.43e9, Gain: 0.9, NoiseSigma: 0.01);
+        var specA = new FixtureSweep(a, 4000, 3.2, 0.0, NoiseSigma: 0.01);
+        var specB = new FixtureSweep(b, 4000, 3.2, 0.43e9, Gain: 0.9, NoiseSigma: 0.01);
         Line[] truth = [new(0, 1.0), new(0.4e9, 0.1), new(0.43e9, 0.05), new(5.2e9, 0.3)];
         var rng = new Random(11);
         var sweeps = new List<CalibratedSweep> { Sweep("A", specA, truth, rng), Sweep("B", specB, truth, rng) };

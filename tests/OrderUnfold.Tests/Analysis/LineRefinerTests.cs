@@ -30,7 +30,7 @@ public class LineRefinerTests(ITestOutputHelper output)
     [Fact]
     public void OneSigmaIntervalsCoverTheTruth68PercentOfTheTime()
     {
-        var spec = new SweepSpec(CavityA, 1500, 3, 0.0, NoiseSigma: 0.02);
+        var spec = new FixtureSweep(CavityA, 1500, 3, 0.0, NoiseSigma: 0.02);
         Line[] truth = [new(0.20e9, 1.0), new(0.55e9, 0.3)];
         var (coverage, meanSigma, rms) = Coverage(1000, seed => ([Sweep("A", spec, truth, new Random(seed))], [spec]), truth, false);
         output.WriteLine($"one cavity: coverage {coverage:P1} (N = 1000), mean σ̂ {meanSigma / 1e3:F1} kHz, RMS error {rms / 1e3:F1} kHz");
@@ -43,8 +43,8 @@ public class LineRefinerTests(ITestOutputHelper output)
     public void OneSigmaCoverageHoldsWithTwoCavitiesAndFittedNuisances()
     {
         var b = new Instrument("B", 1.1e9, 110);
-        var specA = new SweepSpec(CavityA, 1500, 3.2, 0.0, Gain: 1.0, Background: 0.02, NoiseSigma: 0.02);
-        var specB = new SweepSpec(b, 1500, 3.2, 0.31e9, Gain: 0.8, Background: 0.05, NoiseSigma: 0.015);
+        var specA = new FixtureSweep(CavityA, 1500, 3.2, 0.0, Gain: 1.0, Background: 0.02, NoiseSigma: 0.02);
+        var specB = new FixtureSweep(b, 1500, 3.2, 0.31e9, Gain: 0.8, Background: 0.05, NoiseSigma: 0.015);
         Line[] truth = [new(0.20e9, 1.0), new(2.35e9, 0.3)];
         var (coverage, meanSigma, rms) = Coverage(400, seed =>
         {
@@ -55,7 +55,7 @@ public class LineRefinerTests(ITestOutputHelper output)
         Assert.InRange(coverage, 0.63, 0.73);
     }
 
-    private static (double Coverage, double MeanSigma, double Rms) Coverage(int n, Func<int, (List<CalibratedSweep>, List<SweepSpec>)> make,
+    private static (double Coverage, double MeanSigma, double Rms) Coverage(int n, Func<int, (List<CalibratedSweep>, List<FixtureSweep>)> make,
         Line[] truth, bool ordersResolved)
     {
         var hits = 0;
@@ -102,7 +102,7 @@ public class LineRefinerTests(ITestOutputHelper output)
         var inst = new Instrument("F300", 1.0e9, 300);
         const int n = 30000;
         const double sigma = 0.01;
-        var spec = new SweepSpec(inst, n, 3, 0.0, Background: 0.01, NoiseSigma: sigma);
+        var spec = new FixtureSweep(inst, n, 3, 0.0, Background: 0.01, NoiseSigma: sigma);
         Line[] lines = [new(0.25e9, 1.0), new(0.75e9, 0.5)];
         var sweeps = new List<CalibratedSweep> { Sweep("F300", spec, lines, new Random(5)) };
         var grid = Grid(sweeps, [spec], lines, -0.2e9, 1.2e9, false);
@@ -123,7 +123,7 @@ public class LineRefinerTests(ITestOutputHelper output)
     [Fact]
     public void IntrinsicWidthAndBootstrapErrors()
     {
-        var spec = new SweepSpec(CavityA, 3000, 3, 0.0, NoiseSigma: 0.01);
+        var spec = new FixtureSweep(CavityA, 3000, 3, 0.0, NoiseSigma: 0.01);
         Line[] truth = [new(0.2e9, 1.0), new(0.55e9, 0.4, 6e6)];
         var sweeps = new List<CalibratedSweep> { Sweep("A", spec, truth, new Random(21)) };
         var grid = Grid(sweeps, [spec], [new(0.2e9, 1.0), new(0.55e9, 0.4)], -0.2e9, 1.2e9, false);
@@ -148,7 +148,7 @@ public class LineRefinerTests(ITestOutputHelper output)
     [Fact]
     public void WeakLineIsKeptAboveTheThresholdAndDroppedBelowIt()
     {
-        var spec = new SweepSpec(CavityA, 3000, 3, 0.0, NoiseSigma: 0.01);
+        var spec = new FixtureSweep(CavityA, 3000, 3, 0.0, NoiseSigma: 0.01);
         var strong = new Line(0.2e9, 1.0);
         const double weakHz = 0.63e9;
         var sigmaA = AmplitudeSigma(spec, weakHz);
@@ -168,7 +168,7 @@ public class LineRefinerTests(ITestOutputHelper output)
         }
     }
 
-    private static double AmplitudeSigma(SweepSpec spec, double lineHz)
+    private static double AmplitudeSigma(FixtureSweep spec, double lineHz)
     {
         // Fisher matrix of (a, b) for y = a·T + b: [[ΣT², ΣT], [ΣT, n]] / σ²
         double stt = 0, st = 0;
@@ -191,8 +191,8 @@ public class LineRefinerTests(ITestOutputHelper output)
     public void WeakLineThroughTheUnfolderIsFoundAboveThresholdOnly()
     {
         var b = new Instrument("B", 1.1e9, 110);
-        var specA = new SweepSpec(CavityA, 4000, 3.2, 0.0, NoiseSigma: 0.01);
-        var specB = new SweepSpec(b, 4000, 3.2, 0.27e9, NoiseSigma: 0.01);
+        var specA = new FixtureSweep(CavityA, 4000, 3.2, 0.0, NoiseSigma: 0.01);
+        var specB = new FixtureSweep(b, 4000, 3.2, 0.27e9, NoiseSigma: 0.01);
         const double weakHz = 2.31e9;
         // expected SNR: amplitude information adds over the two sweeps
         var sA = AmplitudeSigma(specA, weakHz);
@@ -223,8 +223,8 @@ public class LineRefinerTests(ITestOutputHelper output)
     public void NoiseOnlySweepsYieldNoLines()
     {
         var b = new Instrument("B", 1.1e9, 110);
-        var specA = new SweepSpec(CavityA, 4000, 3.2, 0.0, NoiseSigma: 0.01);
-        var specB = new SweepSpec(b, 4000, 3.2, 0.0, NoiseSigma: 0.01);
+        var specA = new FixtureSweep(CavityA, 4000, 3.2, 0.0, NoiseSigma: 0.01);
+        var specB = new FixtureSweep(b, 4000, 3.2, 0.0, NoiseSigma: 0.01);
         var rng = new Random(3);
         var sweeps = new List<CalibratedSweep> { Sweep("A", specA, [], rng), Sweep("B", specB, [], rng) };
         var grid = Unfolder.Run(sweeps, new UnfoldOptions { WindowStartHz = -3e9, WindowEndHz = 6e9 });
@@ -240,7 +240,7 @@ public class LineRefinerTests(ITestOutputHelper output)
     [Fact]
     public void DetectionLimitMatchesTheDirectSum()
     {
-        var spec = new SweepSpec(CavityA, 3000, 3, 0.0, NoiseSigma: 0.01);
+        var spec = new FixtureSweep(CavityA, 3000, 3, 0.0, NoiseSigma: 0.01);
         var sweeps = new List<CalibratedSweep> { Sweep("A", spec, [new(0.2e9, 1.0)], new Random(2)) };
         var grid = Grid(sweeps, [spec], [new(0.2e9, 1.0)], -0.2e9, 1.2e9, false);
         const double threshold = 25;
@@ -265,8 +265,8 @@ public class LineRefinerTests(ITestOutputHelper output)
     public void AliasProneLineIsDoubtfulAndCleanCaseIsSecure()
     {
         var b = new Instrument("B", 1.10005e9, 110);
-        var specA = new SweepSpec(CavityA, 4000, 3.2, 0.0, NoiseSigma: 0.01);
-        var specB = new SweepSpec(b, 4000, 3.2, 0.43e9, Gain: 0.9, NoiseSigma: 0.01);
+        var specA = new FixtureSweep(CavityA, 4000, 3.2, 0.0, NoiseSigma: 0.01);
+        var specB = new FixtureSweep(b, 4000, 3.2, 0.43e9, Gain: 0.9, NoiseSigma: 0.01);
         Line[] truth = [new(0, 1.0), new(0.4e9, 0.1)];
         var rng = new Random(11);
         var sweeps = new List<CalibratedSweep> { Sweep("A", specA, truth, rng), Sweep("B", specB, truth, rng) };
@@ -312,7 +312,7 @@ public class LineRefinerTests(ITestOutputHelper output)
             Assert.InRange(LineRefiner.AiryAutocorrelation(inst, d) / numeric, 0.999, 1.001);
         }
 
-        var spec = new SweepSpec(inst, 5000, 3, 0.0, Gain: 0.7, NoiseSigma: 0.02);
+        var spec = new FixtureSweep(inst, 5000, 3, 0.0, Gain: 0.7, NoiseSigma: 0.02);
         var sweep = Sweep("B", spec, [], new Random(1), noise: false);
         var fits = new List<SweepFit> { new("B", "B", 0, 0.7, 0, 0.02, 0, 0, 0, 5000) };
         const double a = 0.3;
@@ -343,7 +343,7 @@ public class LineRefinerTests(ITestOutputHelper output)
     [Fact]
     public void LinesCloserThanHalfALinewidthAreMergedWithANote()
     {
-        var spec = new SweepSpec(CavityA, 3000, 3, 0.0, NoiseSigma: 0.002);
+        var spec = new FixtureSweep(CavityA, 3000, 3, 0.0, NoiseSigma: 0.002);
         var lw = CavityA.LinewidthHz;
         Line[] truth = [new(0.2e9, 1.0), new(0.61e9 - 0.15 * lw, 0.3), new(0.61e9 + 0.15 * lw, 0.3)];
         var sweeps = new List<CalibratedSweep> { Sweep("A", spec, truth, new Random(4)) };
@@ -364,7 +364,7 @@ public class LineRefinerTests(ITestOutputHelper output)
     [Fact]
     public void SpuriousClustersOnNoiseArePrunedToNoLine()
     {
-        var spec = new SweepSpec(CavityA, 3000, 3, 0.0, NoiseSigma: 0.01);
+        var spec = new FixtureSweep(CavityA, 3000, 3, 0.0, NoiseSigma: 0.01);
         var sweeps = new List<CalibratedSweep> { Sweep("A", spec, [], new Random(8)) };
         Line[] spurious = [new(0.13e9, 0.004), new(0.52e9, 0.003), new(0.8e9, 0.002)];
         var grid = Grid(sweeps, [spec], spurious, -0.2e9, 1.2e9, false);
@@ -380,7 +380,7 @@ public class LineRefinerTests(ITestOutputHelper output)
     [Fact]
     public void NonConvergenceKeepsTheGridResultWithNotes()
     {
-        var spec = new SweepSpec(CavityA, 3000, 3, 0.0, NoiseSigma: 0.01);
+        var spec = new FixtureSweep(CavityA, 3000, 3, 0.0, NoiseSigma: 0.01);
         Line[] truth = [new(0.2e9, 1.0), new(0.61e9, 0.4)];
         var sweeps = new List<CalibratedSweep> { Sweep("A", spec, truth, new Random(4)) };
         Line[] guesses = [new(0.2e9 + 3e6, 0.9), new(0.61e9 - 3e6, 0.5)];
@@ -402,7 +402,7 @@ public class LineRefinerTests(ITestOutputHelper output)
     [Fact]
     public void LineThatLeavesItsClusterIsPinnedAtTheGridValue()
     {
-        var spec = new SweepSpec(CavityA, 3000, 3, 0.0, NoiseSigma: 0.01);
+        var spec = new FixtureSweep(CavityA, 3000, 3, 0.0, NoiseSigma: 0.01);
         Line[] truth = [new(0.2e9, 1.0), new(0.61e9, 0.5)];
         var sweeps = new List<CalibratedSweep> { Sweep("A", spec, truth, new Random(9)) };
         var lw = CavityA.LinewidthHz;

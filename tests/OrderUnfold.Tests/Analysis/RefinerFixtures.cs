@@ -17,11 +17,11 @@ internal static class RefinerFixtures
     public sealed record Line(double FrequencyHz, double Intensity, double WidthHz = 0);
 
     /// <summary>How one simulated sweep is taken: instrument, samples, span in FSRs, its origin φ (Hz), gain, background, noise σ.</summary>
-    public sealed record SweepSpec(Instrument Instrument, int Samples, double SpanFsr, double OffsetHz, double Gain = 1, double Background = 0.05,
+    public sealed record FixtureSweep(Instrument Instrument, int Samples, double SpanFsr, double OffsetHz, double Gain = 1, double Background = 0.05,
         double NoiseSigma = 0.01);
 
     /// <summary>y_i = g·Σ_j a_j·T(ν_j − φ − f_i) + b + σ·N(0,1), with f_i evenly spaced over the span (simulated).</summary>
-    public static CalibratedSweep Sweep(string name, SweepSpec spec, IReadOnlyList<Line> lines, Random rng, bool noise = true)
+    public static CalibratedSweep Sweep(string name, FixtureSweep spec, IReadOnlyList<Line> lines, Random rng, bool noise = true)
     {
         var n = spec.Samples;
         var span = spec.SpanFsr * spec.Instrument.FsrHz;
@@ -49,7 +49,7 @@ internal static class RefinerFixtures
     /// A grid result as the unfolder would return it, built from (possibly perturbed) line guesses: frequencies relative
     /// to the strongest guess, sweep offsets and gains relative to the first sweep's gain, one bin per line.
     /// </summary>
-    public static UnfoldResult Grid(IReadOnlyList<CalibratedSweep> sweeps, IReadOnlyList<SweepSpec> specs, IReadOnlyList<Line> guesses,
+    public static UnfoldResult Grid(IReadOnlyList<CalibratedSweep> sweeps, IReadOnlyList<FixtureSweep> specs, IReadOnlyList<Line> guesses,
         double windowStartHz, double windowEndHz, bool ordersResolved)
     {
         var anchor = guesses.MaxBy(l => l.Intensity)!;

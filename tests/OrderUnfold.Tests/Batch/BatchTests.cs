@@ -290,7 +290,7 @@ public class BatchTests(BatchArchiveFixture fx, ITestOutputHelper output) : ICla
     public void TrackFindsTheModeHopAndTheDrift()
     {
         var outDir = fx.NewDir("track");
-        var r = LineTracker.Run(fx.ReferenceDir, outDir, new TrackOptions());
+        var r = LineTracker.Run(fx.ReferenceDir, outDir, new TrackOptions { Figures = new OrderUnfold.Plotting.FigureWriter() });
         foreach (var w in r.Warnings) output.WriteLine(w);
         foreach (var t in r.Tracks) output.WriteLine(t.ToString());
         var hop = Assert.Single(r.Hops);

@@ -59,7 +59,7 @@ public class AxisExtentTests(ITestOutputHelper output)
         // a straight axis over x ∈ [0, 4] with one FSR per unit of x: samples up to x = 9 lie up to five periods out
         var fsr = Cavity.FsrHz;
         var axis = AxisPolynomial.Fit([0.0, 1, 2, 3, 4], [0.0, fsr, 2 * fsr, 3 * fsr, 4 * fsr], 1);
-        var cal = new AxisCalibration("A", OrderUnfold.Io.RampDirection.Up, "cal", "test", axis, [0.0, 1, 2, 3, 4], [0.0, fsr, 2 * fsr, 3 * fsr, 4 * fsr],
+        var cal = new AxisCalibration("A", OrderUnfold.Data.RampDirection.Up, "cal", "test", axis, [0.0, 1, 2, 3, 4], [0.0, fsr, 2 * fsr, 3 * fsr, 4 * fsr],
             new double[5], 0, null, null, []);
         var x = Enumerable.Range(0, 901).Select(i => i / 100.0).ToArray();
         var extent = AxisExtent.Evaluate(cal, x, Cavity.LinewidthHz, fsr, new AxisExtentOptions { MaxMarginPeriods = 0.5 });

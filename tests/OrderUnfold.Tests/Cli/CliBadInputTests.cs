@@ -198,7 +198,7 @@ public class CliBadInputTests(CliTestFolder folder, ITestOutputHelper output) : 
     {
         // every record (source and calibration) spans 0.6 FSR: no axis can be calibrated, so nothing can be unfolded
         var dir = Path.Combine(folder.Root, "short-span");
-        Simulator.Write(CliTestFolder.Spec(spanFsr: 0.6, samples: 3000), dir);
+        SimulationFiles.Write(CliTestFolder.Spec(spanFsr: 0.6, samples: 3000), dir);
         var message = UnfoldFails(Path.Combine(dir, "setup.toml"), Path.Combine(dir, "out"));
         Assert.Contains(dir, message); // names a file of this case
         Assert.Contains(".csv", message);

@@ -7,7 +7,7 @@ namespace OrderUnfold.Tests.CommandLine;
 
 /// <summary>
 /// A temporary folder holding a small simulated measurement (two planar cavities, 100.0 mm and 93.7 mm, finesse 150,
-/// triangle ramp over 4 FSRs, 4 000 samples per record; SIMULATED DATA) written by <see cref="Simulator.Write"/>:
+/// triangle ramp over 4 FSRs, 4 000 samples per record; SIMULATED DATA) written by <see cref="SimulationFiles.Write"/>:
 /// A_source.csv, A_calibration.csv, B_source.csv, B_calibration.csv and setup.toml. Tests copy it and inject faults.
 /// </summary>
 public sealed class CliTestFolder : IDisposable
@@ -16,7 +16,7 @@ public sealed class CliTestFolder : IDisposable
     {
         Root = Path.Combine(Path.GetTempPath(), "orderunfold-cli-tests-" + Guid.NewGuid().ToString("N")[..12]);
         Base = Path.Combine(Root, "base");
-        Simulator.Write(Spec(spanFsr: 4, samples: 4000), Base);
+        SimulationFiles.Write(Spec(spanFsr: 4, samples: 4000), Base);
     }
 
     /// <summary>Root of everything this fixture wrote (deleted on dispose).</summary>

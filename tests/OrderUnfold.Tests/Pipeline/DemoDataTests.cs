@@ -23,7 +23,7 @@ public class DemoDataTests
         var tmp = Directory.CreateTempSubdirectory("ou-demo-").FullName;
         try
         {
-            var output = Scenarios.Write(Scenarios.Demo(), tmp);
+            var output = SimulationFiles.WriteScenario(Scenarios.Demo(), tmp);
             var demo = DemoDir();
             foreach (var file in output.Files)
             {

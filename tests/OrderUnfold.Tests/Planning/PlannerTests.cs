@@ -119,19 +119,19 @@ public class PlannerTests
     [Fact]
     public void CatalogueLinesAreParsedAndBadLinesPointAtTheirPlace()
     {
-        var list = CandidateLengths.ParseCatalogue("# spacers in stock\n93.7 mm, B-12\n\n  0.1071 m  # long one\n", "stock.txt");
+        var list = CandidateCatalogue.ParseCatalogue("# spacers in stock\n93.7 mm, B-12\n\n  0.1071 m  # long one\n", "stock.txt");
         Assert.Equal(2, list.Count);
         Assert.Equal(0.0937, list[0].LengthM, 12);
         Assert.Equal("B-12", list[0].Label);
         Assert.Equal(0.1071, list[1].LengthM, 12);
         Assert.Null(list[1].Label);
 
-        var e = Assert.Throws<InputException>(() => CandidateLengths.ParseCatalogue("93.7 mm\n  93.7, B-13\n", "stock.txt"));
+        var e = Assert.Throws<InputException>(() => CandidateCatalogue.ParseCatalogue("93.7 mm\n  93.7, B-13\n", "stock.txt"));
         Assert.Equal("stock.txt", e.File);
         Assert.Equal(2, e.Line);
         Assert.Equal(3, e.Column);
         Assert.Contains("no unit", e.Message);
-        Assert.Throws<InputException>(() => CandidateLengths.ParseCatalogue("# nothing\n", "empty.txt"));
+        Assert.Throws<InputException>(() => CandidateCatalogue.ParseCatalogue("# nothing\n", "empty.txt"));
         Assert.Throws<InputException>(() => CandidateLengths.Range(0.1, 0.08, 0.001));
     }
 

@@ -256,7 +256,7 @@ public sealed class FuzzTemplates : IDisposable
 
         // the pipeline case: a small two-cavity simulation (1 500 samples per record, SIMULATED DATA)
         PipelineFolder = Path.Combine(_cli.Root, "fuzz-pipeline");
-        Simulator.Write(CliTestFolder.Spec(spanFsr: 4, samples: 1500), PipelineFolder);
+        SimulationFiles.Write(CliTestFolder.Spec(spanFsr: 4, samples: 1500), PipelineFolder);
         PipelineSweep = File.ReadAllText(Path.Combine(PipelineFolder, "A_source.csv"));
     }
 

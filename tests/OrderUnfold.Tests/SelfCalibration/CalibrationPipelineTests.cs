@@ -65,7 +65,7 @@ public sealed class CalibrationPipelineTests(ITestOutputHelper output) : IDispos
         }
 
         // the same through a setup file: [[calibration]] wavelength and [solve] source_wavelength
-        var written = Scenarios.Write(spec with { Label = "SIMULATED DATA: wavelength transfer" }, _dir);
+        var written = SimulationFiles.WriteScenario(spec with { Label = "SIMULATED DATA: wavelength transfer" }, _dir);
         var setup = SetupReader.Read(written.SetupPath);
         Assert.Equal(780e-9, setup.Calibrations[0].WavelengthM!.Value, 12);
         var set = UnfoldPipeline.Calibrate(setup, null, out _);
@@ -173,7 +173,7 @@ public sealed class CalibrationPipelineTests(ITestOutputHelper output) : IDispos
     [Fact]
     public void Self_calibrate_never_without_calibration_sweeps_is_an_error_with_the_remedy()
     {
-        var written = Scenarios.Write(TwoCavities(calibrationSweeps: false), _dir, new SolveOptions { SelfCalibrate = SelfCalibrationMode.Never });
+        var written = SimulationFiles.WriteScenario(TwoCavities(calibrationSweeps: false), _dir, new SolveOptions { SelfCalibrate = SelfCalibrationMode.Never });
         var set = UnfoldPipeline.Calibrate(SetupReader.Read(written.SetupPath), null, out _);
         Assert.Empty(set.Axes);
         // nothing calibrated: the unfold stops at the first sweep with the remedy
@@ -186,7 +186,7 @@ public sealed class CalibrationPipelineTests(ITestOutputHelper output) : IDispos
     [Fact]
     public void Always_fits_the_source_repeats_jointly_with_the_calibration_peaks()
     {
-        var written = Scenarios.Write(TwoCavities(calibrationSweeps: true, seed: 43), _dir, new SolveOptions { SelfCalibrate = SelfCalibrationMode.Always });
+        var written = SimulationFiles.WriteScenario(TwoCavities(calibrationSweeps: true, seed: 43), _dir, new SolveOptions { SelfCalibrate = SelfCalibrationMode.Always });
         var set = UnfoldPipeline.Calibrate(SetupReader.Read(written.SetupPath), null, out var warnings);
         foreach (var a in set.Axes) output.WriteLine($"{a.Source}: {a.Method}");
         Assert.Equal(4, set.Axes.Count(a => a.FromRepeats));

@@ -41,10 +41,10 @@ public sealed class UnfoldWithSelfCalibrationTests(ITestOutputHelper output) : I
     public void Unfold_without_calibration_sweeps_self_calibrates_and_matches_the_unfold_on_the_true_axes()
     {
         var spec = Spec();
-        var written = Scenarios.Write(spec, _dir, new SolveOptions { WindowStartHz = Window.WindowStartHz, WindowEndHz = Window.WindowEndHz });
+        var written = SimulationFiles.WriteScenario(spec, _dir, new SolveOptions { WindowStartHz = Window.WindowStartHz, WindowEndHz = Window.WindowEndHz });
         var run = UnfoldPipeline.Run(written.SetupPath);
 
-        // the same traces on their true scan (Simulator.Write draws the records in cavity order, sources only)
+        // the same traces on their true scan (SimulationFiles.Write draws the records in cavity order, sources only)
         var rng = new Random(spec.Seed);
         var truthSweeps = new List<CalibratedSweep>();
         foreach (var cav in spec.Cavities)

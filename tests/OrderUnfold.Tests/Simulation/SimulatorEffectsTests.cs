@@ -163,7 +163,7 @@ public sealed class SimulatorEffectsTests : IDisposable
     {
         var cavity = new SimulatedCavity { Instrument = Instrument.FromLength("A", 0.1, CavityGeometry.Planar, 150), Samples = 2000 };
         var spec = Quiet(cavity) with { StatedFsrFactor = 1.02, StatedFinesseFactor = 1.0 / 3 };
-        var output = Simulator.Write(spec, _dir);
+        var output = SimulationFiles.Write(spec, _dir);
         var stated = Assert.Single(SetupReader.Read(output.SetupPath).Instruments);
         Assert.Equal(cavity.Instrument.FsrHz * 1.02, stated.FsrHz!.Value, 1e-9 * cavity.Instrument.FsrHz);
         Assert.Null(stated.LengthM);
@@ -176,8 +176,8 @@ public sealed class SimulatorEffectsTests : IDisposable
     {
         var cavity = new SimulatedCavity { Instrument = Cavity, SpanFsr = 3, Samples = 3000 };
         var spec = Quiet(cavity) with { Triangle = true, NoiseFraction = 0.004, Bits = 8, CalibrationSweeps = true };
-        var one = Simulator.Write(spec, Path.Combine(_dir, "one"));
-        var two = Simulator.Write(spec with { SplitChannels = true }, Path.Combine(_dir, "two"));
+        var one = SimulationFiles.Write(spec, Path.Combine(_dir, "one"));
+        var two = SimulationFiles.Write(spec with { SplitChannels = true }, Path.Combine(_dir, "two"));
         Assert.Equal(5, two.Files.Count); // signal and ramp for source and calibration, and the setup
         Assert.StartsWith("# ", File.ReadLines(two.Setup.Sweeps[0].File.Path).First());
 

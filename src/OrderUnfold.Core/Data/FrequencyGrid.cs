@@ -1,0 +1,35 @@
+namespace OrderUnfold.Data;
+
+/// <summary>Uniform frequency grid: bin j is at StartHz + j·StepHz (relative frequencies, Hz).</summary>
+public sealed record FrequencyGrid
+{
+    public FrequencyGrid(double startHz, double stepHz, int count)
+    {
+        if (!(stepHz > 0)) throw new ArgumentOutOfRangeException(nameof(stepHz), stepHz, "grid step must be positive");
+        if (count < 1) throw new ArgumentOutOfRangeException(nameof(count), count, "grid needs at least one bin");
+        StartHz = startHz;
+        StepHz = stepHz;
+        Count = count;
+    }
+
+    public double StartHz { get; }
+    public double StepHz { get; }
+    public int Count { get; }
+    public double EndHz => StartHz + (Count - 1) * StepHz;
+
+    public double this[int j] => StartHz + j * StepHz;
+
+    /// <summary>A grid covering [start, end] with the given step.</summary>
+    public static FrequencyGrid Covering(double startHz, double endHz, double stepHz)
+    {
+        var n = (int)Math.Ceiling((endHz - startHz) / stepHz) + 1;
+        return new FrequencyGrid(startHz, stepHz, Math.Max(1, n));
+    }
+
+    public double[] ToArray()
+    {
+        var a = new double[Count];
+        for (var j = 0; j < Count; j++) a[j] = this[j];
+        return a;
+    }
+}

@@ -1,0 +1,314 @@
+using OrderUnfold.Instruments;
+using OrderUnfold.Units;
+
+namespace OrderUnfold.Calibration;
+
+/// <summary>
+/// The calibration steps the pipeline runs besides the calibration-sweep axes: checks of calibration sweeps
+/// (Airy fit of the finesse, transverse modes), self-calibration of source sweeps that lack a calibration,
+/// and carrying refined FSRs into the instruments and axes.
+/// </summary>
+public static class CalibrationSteps
+{
+    /// <summary>
+    /// Fits the finesse of a calibration sweep's peaks (Airy fit, with uncertainty) and looks for transverse-mode
+    /// families; the fitted finesse replaces the width-based one when the peaks agree with each other.
+    /// </summary>
+    /// <param name="axis">The axis <see cref="AxisCalibrator.FromCalibrationSweep"/> made of <paramref name="sweep"/>.</param>
+    /// <param name="sweep">The calibration sweep segment.</param>
+    /// <param name="instrument">The cavity.</param>
+    /// <param name="wavelengthRatio">λ_calibration / λ_source.</param>
+    public static AxisCalibration DescribeCalibrationSweep(AxisCalibration axis, Sweep sweep, Instrument instrument, double wavelengthRatio = 1.0)
+    {
+        var period = instrument.FsrHz * wavelengthRatio;
+        var warnings = axis.Warnings.ToList();
+        var transverse = TransverseModes.Detect(sweep, axis.Axis, instrument, period, axis.Finesse);
+
+        // Numbering every peak as the next FSR fails when a transverse family adds peaks: with a strong half-FSR
+        // family the peaks alternate in height and the axis comes out at twice its scale without any irregular spacing.
+        // Then fit the axis to repeats one FSR apart, which pairs only peaks of the same family.
+        var suspicious = transverse.AlternationRatio is < 0.75 || axis.Warnings.Any(w => w.Contains("typical spacings apart", StringComparison.Ordinal));
+        if (suspicious && axis.PointCount >= 3)
+        {
+            try
+            {
+                var repeats = SelfCalibrator.Calibrate(sweep, instrument, new SelfCalibrationOptions { PeriodHz = period, FitFinesse = false }).Calibration;
+                var mid = 0.5 * (repeats.Axis.XMin + repeats.Axis.XMax);
+                var scale = repeats.Axis.Derivative(mid) / axis.Axis.Derivative(mid);
+                var useRepeats = repeats.ResidualRmsHz < 0.5 * axis.ResidualRmsHz;
+                if (Math.Abs(scale - 1) > 0.05)
+                {
+                    // two readings of the same peaks: every peak is one FSR (a confocal cavity showing both transverse
+                    // families, FSR = c/4L), or every second one is (an extra family). The finesse on each axis decides:
+                    // the wrong one scales the peak widths by the same factor.
+                    var fNumbered = FinesseFit.FromSweep(sweep, axis.Axis, period, instrument.Finesse)?.Finesse;
+                    var fRepeats = FinesseFit.FromSweep(sweep, repeats.Axis, period, instrument.Finesse)?.Finesse;
+                    double Off(double? f) => f is double v && v > 0 ? Math.Abs(Math.Log(v / instrument.Finesse)) : double.PositiveInfinity;
+                    useRepeats = Off(fRepeats) < Off(fNumbered);
+                    warnings.Add(useRepeats
+                        ? $"{sweep.Name}: not every calibration peak is the next FSR (extra peaks of another transverse family): fitted to repeats one FSR apart instead, which changes the axis scale by {100 * (scale - 1):+0.0;-0.0} % and gives finesse {fRepeats:F0} against the stated {instrument.Finesse:F0} (numbering every peak gives {fNumbered:F0})"
+                        : $"{sweep.Name}: the calibration peaks alternate in height; every peak was taken as the next FSR because that gives finesse {fNumbered:F0}, close to the stated {instrument.Finesse:F0} (taking every second peak would give {fRepeats:F0})");
+                }
+
+                if (useRepeats)
+                {
+                    warnings.AddRange(repeats.Warnings);
+                    axis = axis with
+                    {
+                        Method = "calibration sweep (repeats one FSR apart; extra peaks left out)",
+                        Axis = repeats.Axis,
+                        PointX = repeats.PointX,
+                        PointHz = repeats.PointHz,
+                        ResidualHz = repeats.ResidualHz,
+                        ResidualRmsHz = repeats.ResidualRmsHz,
+                        PairsUsed = repeats.PairsUsed,
+                        PairsRejected = repeats.PairsRejected,
+                        AxisSigmaHz = repeats.AxisSigmaHz,
+                        ShapeCovariance = repeats.ShapeCovariance,
+                        Finesse = null,
+                        FinesseSigma = null,
+                    };
+                }
+            }
+            catch (InputException e)
+            {
+                warnings.Add($"{sweep.Name}: the calibration peaks look like two transverse families, but fitting repeats one FSR apart failed too: {e.Message}");
+            }
+        }
+
+        // the period decision on the calibration sweep's own peak pattern (candidates, families) as evidence; kept when
+        // it agrees with the numbered axis (same period in Hz, scale within 5 %)
+        if (axis.PeriodDecision is null && axis.PointCount >= 2)
+        {
+            try
+            {
+                var check = SelfCalibrator.Calibrate(PrepareForPeakFinding(sweep, instrument), instrument,
+                    new SelfCalibrationOptions { PeriodHz = period, FitFinesse = false }).Calibration;
+                var mid = 0.5 * (axis.Axis.XMin + axis.Axis.XMax);
+                var scale = check.Axis.Derivative(mid) / axis.Axis.Derivative(mid);
+                // with few peaks the pattern can settle on a multiple of the spacing; the numbered axis (and the
+                // alternation check above) then stands, without this evidence
+                if (check.PeriodDecision is { } d && Math.Abs(d.PeriodHz / period - 1) < 1e-9 && Math.Abs(scale - 1) < 0.05)
+                    axis = axis with { PeriodDecision = d };
+            }
+            catch (InputException)
+            {
+                // the pattern alone does not decide here (too few peaks): the numbered axis stands on its own
+            }
+        }
+
+        var finesse = FinesseFit.FromSweep(sweep, axis.Axis, period, instrument.Finesse);
+        if (finesse is not null) warnings.AddRange(finesse.Warnings.Select(w => $"{sweep.Name}: {w}"));
+        var measured = finesse is { Consistent: true } ? finesse.Finesse : axis.Finesse;
+        transverse = TransverseModes.Detect(sweep, axis.Axis, instrument, period, measured);
+        warnings.AddRange(transverse.Warnings);
+        return axis with
+        {
+            Finesse = measured,
+            FinesseSigma = finesse is { Consistent: true } ? finesse.Sigma : axis.FinesseSigma,
+            FinesseDetail = finesse,
+            TransverseModes = transverse,
+            Warnings = warnings.Distinct().ToList(),
+        };
+    }
+
+    /// <summary>
+    /// Self-calibrates the source sweep segments that need it under the setup's <see cref="SolveOptions.SelfCalibrate"/>
+    /// mode and adds their axes (Source = the segment's name) to <paramref name="calibrations"/>, their warnings to
+    /// <paramref name="warnings"/>.
+    /// </summary>
+    /// <param name="setup">The setup.</param>
+    /// <param name="instruments">Instruments by name (as stated or calibrated so far).</param>
+    /// <param name="calibrations">Axes from calibration sweeps so far; self-calibrated axes are appended.</param>
+    /// <param name="warnings">Warnings of the run.</param>
+    /// <param name="progress">Progress messages.</param>
+    /// <param name="readSegments">Reads a file's segments the way the pipeline does (time relative to each segment's start).</param>
+    /// <exception cref="InputException">A segment cannot be self-calibrated and has no other calibration to fall back on.</exception>
+    public static void AddFromSources(Setup setup, IReadOnlyDictionary<string, Instrument> instruments, List<AxisCalibration> calibrations, List<string> warnings,
+        IProgress<string>? progress, Func<SweepFileOptions, IReadOnlyList<Sweep>> readSegments)
+    {
+        var mode = setup.Solve.SelfCalibrate;
+        if (mode == SelfCalibrationMode.Never) return;
+        var fromSweeps = calibrations.Where(c => !c.FromRepeats).ToList();
+        foreach (var spec in setup.Sweeps)
+        {
+            if (!instruments.TryGetValue(spec.Instrument, out var inst)) continue; // the pipeline reports the unknown name
+            var mine = fromSweeps.Where(c => c.Instrument == spec.Instrument).ToList();
+            var failed = new List<(Sweep Segment, InputException Error)>();
+            var done = new List<AxisCalibration>();
+            // ring-down: fast-swept peaks that ring are fitted with the swept-cavity model and the peak finding below sees
+            // each one as its static response at the resonance crossing; other sweeps pass unchanged (RingdownHandling.cs)
+            foreach (var ring in RingdownHandling.PrepareAll(readSegments(spec.File)))
+            {
+                var seg = ring.Sweep;
+                var exact = mine.FirstOrDefault(c => c.Direction == seg.Direction);
+                AxisCalibration? companion = null;
+                if (exact is not null)
+                {
+                    // a calibration sweep with enough peaks that fits them well stands alone; one with few peaks, or whose
+                    // polynomial cannot follow the piezo between them (residual above a twentieth of a linewidth), is
+                    // fitted jointly with the source's own repeats
+                    var wellPinned = exact.PointCount >= 4 && exact.ResidualRmsHz <= JointResidualLinewidths * inst.LinewidthHz;
+                    if (mode == SelfCalibrationMode.Auto && (wellPinned || exact.PointCount == 0)) continue;
+                    companion = exact.PointCount >= 2 ? exact : null;
+                }
+
+                progress?.Report($"self-calibrating {seg.Name} from its repeats one FSR apart");
+                // the place where a sweep's signal goes into peak finding: a signal filter (e.g. for ring-down) applies here
+                var prepared = PrepareForPeakFinding(seg, inst);
+                try
+                {
+                    var result = SelfCalibrator.Calibrate(prepared, inst, new SelfCalibrationOptions { Companion = companion });
+                    // finesse from the decay time when the peaks ring, with the FSR the period decision settled on (a cavity stated
+                    // as confocal that is not has twice the stated FSR, and F = π·FSR·τ)
+                    var fsrHz = result.Calibration.PeriodDecision?.PeriodHz ?? inst.FsrHz;
+                    var calibration = RingdownHandling.Annotate(result.Calibration, ring, fsrHz);
+                    calibrations.Add(calibration);
+                    done.Add(calibration);
+                    warnings.AddRange(calibration.Warnings);
+                }
+                catch (InputException e)
+                {
+                    var fallback = exact ?? mine.FirstOrDefault(c => c.Direction == RampDirection.Single || seg.Direction == RampDirection.Single);
+                    if (fallback is null)
+                    {
+                        failed.Add((seg, e));
+                        continue;
+                    }
+
+                    warnings.Add($"{seg.Name}: self-calibration failed, using the {fallback.Method} instead: {e.Message}");
+                }
+            }
+
+            // a segment that cannot be self-calibrated (often a partial ramp at the start or end of the record) uses the
+            // axis of another segment of the same ramp direction in the same file, with a warning naming why
+            foreach (var (seg, e) in failed)
+            {
+                var sibling = done.FirstOrDefault(c => c.Direction == seg.Direction);
+                if (sibling is null)
+                {
+                    var others = failed.Where(f => f.Segment.Direction == seg.Direction && !ReferenceEquals(f.Segment, seg)).Select(f => f.Error.Message).ToList();
+                    var also = others.Count == 0 ? "" : $"; the other {others.Count} segment(s) of that direction failed too: {string.Join(" | ", others)}";
+                    throw new InputException($"{e.Message} (no [[calibration]] sweep for instrument '{spec.Instrument}' and no other {seg.Direction.ToString().ToLowerInvariant()}-ramp segment of this file to fall back on{also})", e.File ?? spec.File.Path, e.Line, e.Column, e);
+                }
+                warnings.Add($"{seg.Name}: self-calibration failed, using the axis of {sibling.Source} (same ramp direction) instead: {e.Message}");
+            }
+        }
+    }
+
+    /// <summary>Calibration-sweep residual RMS (in linewidths) above which, with self_calibrate = "auto", the source's
+    /// repeats are fitted jointly with the calibration peaks.</summary>
+    public const double JointResidualLinewidths = 0.05;
+
+    /// <summary>
+    /// The one place where a sweep's signal is prepared before peak finding in the calibration flow, after the ring-down
+    /// preparation (Calibration/RingdownHandling.cs) that the callers apply to a file's segments together.
+    /// </summary>
+    public static Sweep PrepareForPeakFinding(Sweep sweep, Instrument instrument) => sweep;
+
+    /// <summary>
+    /// Carries what the calibrations measured about each cavity into its instrument: the period decided from the peak
+    /// pattern (the FSR, when the data show it is another multiple of the stated one), the transverse families (median
+    /// over the axes that found them; part of the instrument response from here on), and whether the finesse was
+    /// measured. Where it was not, warns, says which value is used and flags the instrument so the refinement can widen
+    /// its uncertainties.
+    /// </summary>
+    /// <exception cref="InputException">The axes of one instrument disagree on the period.</exception>
+    public static void ApplyCavityProperties(IDictionary<string, Instrument> instruments, List<AxisCalibration> calibrations, List<string> warnings,
+        Func<string, bool>? finesseFixed = null)
+    {
+        foreach (var name in instruments.Keys.ToList())
+        {
+            var inst = instruments[name];
+            var mine = calibrations.Where(c => c.Instrument == name).ToList();
+            var decided = mine.Where(c => c.PeriodDecision is not null).Select(c => c.PeriodDecision!).ToList();
+            // the period in Hz (c/4L or c/2L for a stated confocal cavity) is decided by the sweeps whose period explains
+            // every peak; a sweep whose pattern was explained only in part (noise, ring-down) follows them, its axis rescaled
+            var sure = decided.Where(d => d.Candidates.Any(c => c.Chosen && c.Consistent)).ToList();
+            var surePeriods = sure.Select(d => d.PeriodHz).Distinct().ToList();
+            if (surePeriods.Count == 1)
+            {
+                for (var i = 0; i < calibrations.Count; i++)
+                {
+                    var c = calibrations[i];
+                    if (c.Instrument != name || c.PeriodDecision is not { } d || sure.Contains(d) || d.PeriodHz == surePeriods[0]) continue;
+                    var f = surePeriods[0] / d.PeriodHz;
+                    warnings.Add($"{c.Source}: its peak pattern did not decide the FSR; it follows the sweeps that did ({Quantity.FormatFrequency(surePeriods[0])})");
+                    calibrations[i] = c.Scaled(f) with
+                    {
+                        PeriodDecision = d with { PeriodHz = surePeriods[0], Basis = d.Basis + $"; the FSR follows the sweeps that decided it ({Quantity.FormatFrequency(surePeriods[0])})" },
+                    };
+                }
+
+                mine = calibrations.Where(c => c.Instrument == name).ToList();
+                decided = mine.Where(c => c.PeriodDecision is not null).Select(c => c.PeriodDecision!).ToList();
+            }
+
+            var periods = decided.Select(d => d.PeriodHz).Distinct().ToList();
+            if (periods.Count > 1)
+                throw new InputException($"instrument '{name}': the sweeps disagree on the period: {string.Join(" vs ", decided.Select(d => $"{Quantity.FormatFrequency(d.PeriodHz)} ({d.Basis})"))}; " +
+                                         "a [[calibration]] sweep, the mirror radii (mirror_radius) or a stated interval would settle it");
+            if (periods.Count == 1 && Math.Abs(periods[0] / inst.FsrHz - 1) > 1e-9)
+            {
+                warnings.Add($"instrument '{name}': the data decide an FSR of {Quantity.FormatFrequency(periods[0])} instead of the stated {Quantity.FormatFrequency(inst.FsrHz)} ({decided[0].Basis})");
+                // axes not decided from the pattern (calibration sweeps) were made with the stated FSR
+                var factor = periods[0] / inst.FsrHz;
+                for (var i = 0; i < calibrations.Count; i++)
+                {
+                    var c = calibrations[i];
+                    if (c.Instrument != name || c.PeriodDecision is not null) continue;
+                    calibrations[i] = c.Scaled(factor);
+                }
+
+                inst = inst with { FsrHz = periods[0] };
+            }
+
+            // families: the median offset and height per family index over the axes that found them
+            var families = decided.SelectMany(d => d.Families).GroupBy(f => f.N).OrderBy(g => g.Key)
+                .Select(g =>
+                {
+                    var off = g.Select(f => f.GouyOffsetFsr).OrderBy(v => v).ElementAt(g.Count() / 2);
+                    var h = g.Select(f => f.RelativeHeight).OrderBy(v => v).ElementAt(g.Count() / 2);
+                    return new CavityModeFamily(g.Key, off, h, g.First().Basis);
+                }).ToList();
+            if (families.Count > 0)
+                warnings.Add($"instrument '{name}': transverse families of the cavity are part of its response (not source lines): " +
+                             string.Join(", ", families.Select(f => $"N={f.N} at {f.ApparentOffsetFsr:F4} FSR after TEM00, {100 * f.RelativeHeight:F0} % of its height")) +
+                             MirrorRadiusNote(inst, families));
+
+            var measured = mine.Any(c => c.Finesse is not null);
+            if (!measured && !(finesseFixed?.Invoke(name) ?? false))
+                warnings.Add($"instrument '{name}': the finesse could not be measured from the peaks (no isolated peak fitted the Airy profile consistently; see the warnings of its sweeps); the stated value {inst.Finesse:F0} is used and the line uncertainties are widened");
+            instruments[name] = inst with { Families = families, FinesseMeasured = measured };
+        }
+    }
+
+    /// <summary>What the measured N = 1 offset says about the mirrors, for two equal mirrors at the stated length (Gouy phase
+    /// inverted: g = cos(π·o₁), R = L/(1 − g)), beside the stated radius when there is one; empty without N = 1 or a length.</summary>
+    internal static string MirrorRadiusNote(Instrument inst, IReadOnlyList<CavityModeFamily> families)
+    {
+        var one = families.FirstOrDefault(f => f.N == 1);
+        if (one is null || inst.LengthM is not double length) return "";
+        var r = GouyPhase.EqualMirrorRadius(one.GouyOffsetFsr, length);
+        if (!double.IsFinite(r)) return "";
+        var stated = inst.MirrorRadiiM is { } radii ? $" (stated {Quantity.FormatLength(radii.R1)}{(radii.R2 != radii.R1 ? $" and {Quantity.FormatLength(radii.R2)}" : "")})" : "";
+        return $"; with the stated length {Quantity.FormatLength(length)}, the N=1 offset means mirrors of R = {Quantity.FormatLength(r)} if both are equal{stated}";
+    }
+
+    /// <summary>Carries refined FSRs into the instruments and scales the axes of those instruments with them.</summary>
+    public static void ApplyFsrRefinement(FsrRefinement refinement, IDictionary<string, Instrument> instruments, List<AxisCalibration> calibrations)
+    {
+        foreach (var s in refinement.Instruments)
+        {
+            if (!instruments.TryGetValue(s.Instrument, out var inst) || s.RelativeChange == 0) continue;
+            var factor = s.RefinedFsrHz / inst.FsrHz;
+            instruments[s.Instrument] = inst with { FsrHz = s.RefinedFsrHz };
+            for (var i = 0; i < calibrations.Count; i++)
+            {
+                var c = calibrations[i];
+                if (c.Instrument != s.Instrument) continue;
+                calibrations[i] = c.Scaled(factor) with { Method = c.Method + $"; FSR refined by {100 * (factor - 1):+0.000;-0.000} % ({s.Basis})" };
+            }
+        }
+    }
+}
