@@ -1,4 +1,3 @@
-using OrderUnfold.Analysis;
 using OrderUnfold.Instruments;
 
 namespace OrderUnfold.Inversion;
