@@ -6,6 +6,7 @@ namespace OrderUnfold;
 /// </summary>
 public sealed class InputException : Exception
 {
+    /// <summary>A problem with user input: <paramref name="message"/> says what was expected and what arrived; <paramref name="file"/>, <paramref name="line"/> and <paramref name="column"/> (1-based) say where, when known.</summary>
     public InputException(string message, string? file = null, int? line = null, int? column = null, Exception? inner = null)
         : base(Tidy(message), inner)
     {

@@ -3,6 +3,7 @@ namespace OrderUnfold.Data;
 /// <summary>Uniform frequency grid: bin j is at StartHz + j·StepHz (relative frequencies, Hz).</summary>
 public sealed record FrequencyGrid
 {
+    /// <summary>A grid of <paramref name="count"/> bins from <paramref name="startHz"/> in steps of <paramref name="stepHz"/> (positive), Hz.</summary>
     public FrequencyGrid(double startHz, double stepHz, int count)
     {
         if (!(stepHz > 0)) throw new ArgumentOutOfRangeException(nameof(stepHz), stepHz, "grid step must be positive");
@@ -12,11 +13,16 @@ public sealed record FrequencyGrid
         Count = count;
     }
 
+    /// <summary>Frequency of bin 0, Hz.</summary>
     public double StartHz { get; }
+    /// <summary>Spacing of the bins, Hz.</summary>
     public double StepHz { get; }
+    /// <summary>Number of bins.</summary>
     public int Count { get; }
+    /// <summary>Frequency of the last bin, Hz.</summary>
     public double EndHz => StartHz + (Count - 1) * StepHz;
 
+    /// <summary>Frequency of bin <paramref name="j"/>, Hz.</summary>
     public double this[int j] => StartHz + j * StepHz;
 
     /// <summary>A grid covering [start, end] with the given step.</summary>
@@ -26,6 +32,7 @@ public sealed record FrequencyGrid
         return new FrequencyGrid(startHz, stepHz, Math.Max(1, n));
     }
 
+    /// <summary>The frequencies of all bins, Hz.</summary>
     public double[] ToArray()
     {
         var a = new double[Count];

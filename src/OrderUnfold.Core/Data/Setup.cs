@@ -5,7 +5,9 @@ namespace OrderUnfold.Data;
 /// <summary>One instrument as described in a setup file (before calibration refines it).</summary>
 public sealed record InstrumentSpec
 {
+    /// <summary>Name the sweeps and calibrations refer to.</summary>
     public required string Name { get; init; }
+    /// <summary>Mirror geometry (sets the FSR law, c/2nL or c/4nL).</summary>
     public CavityGeometry Geometry { get; init; } = CavityGeometry.Planar;
 
     /// <summary>Mirror spacing in m, or null when <see cref="FsrHz"/> is given.</summary>
@@ -14,6 +16,7 @@ public sealed record InstrumentSpec
     /// <summary>FSR in Hz, or null when it follows from the length.</summary>
     public double? FsrHz { get; init; }
 
+    /// <summary>Refractive index of the medium between the mirrors (1 for air or vacuum, as an approximation).</summary>
     public double RefractiveIndex { get; init; } = 1.0;
 
     /// <summary>Finesse given directly, or null.</summary>
@@ -53,15 +56,20 @@ public sealed record InstrumentSpec
 /// <summary>A measured sweep file and the instrument it was taken with.</summary>
 public sealed record SweepSpec
 {
+    /// <summary>Name of the instrument the sweep was taken with.</summary>
     public required string Instrument { get; init; }
+    /// <summary>The file and how to read it.</summary>
     public required SweepFileOptions File { get; init; }
+    /// <summary>Line of the setup file that names this sweep (for messages); 0 when built in code.</summary>
     public int Line { get; init; }
 }
 
 /// <summary>A calibration sweep: a single-frequency laser through the same cavity and ramp.</summary>
 public sealed record CalibrationSpec
 {
+    /// <summary>Name of the instrument the calibration sweep was taken with.</summary>
     public required string Instrument { get; init; }
+    /// <summary>The file and how to read it.</summary>
     public required SweepFileOptions File { get; init; }
 
     /// <summary>Wavelength of the calibration laser in m, when it differs from the source (issue: reference laser).</summary>
@@ -70,6 +78,7 @@ public sealed record CalibrationSpec
     /// <summary>Polynomial degree of the axis; null chooses it from the data.</summary>
     public int? AxisDegree { get; init; }
 
+    /// <summary>Line of the setup file that names this calibration (for messages); 0 when built in code.</summary>
     public int Line { get; init; }
 }
 
@@ -78,6 +87,7 @@ public sealed record SolveOptions
 {
     /// <summary>Frequency window relative to the anchor, Hz; null chooses it from the instruments.</summary>
     public double? WindowStartHz { get; init; }
+    /// <summary>End of the frequency window relative to the anchor, Hz; null chooses it from the instruments.</summary>
     public double? WindowEndHz { get; init; }
 
     /// <summary>Grid step in Hz; null: a quarter of the narrowest linewidth.</summary>
@@ -146,9 +156,13 @@ public sealed record Setup
 {
     /// <summary>Path of the setup file itself (null when built in code).</summary>
     public string? Path { get; init; }
+    /// <summary>The instruments ([[instrument]] tables).</summary>
     public required IReadOnlyList<InstrumentSpec> Instruments { get; init; }
+    /// <summary>The source sweeps ([[sweep]] tables).</summary>
     public required IReadOnlyList<SweepSpec> Sweeps { get; init; }
+    /// <summary>The calibration sweeps ([[calibration]] tables); may be empty.</summary>
     public IReadOnlyList<CalibrationSpec> Calibrations { get; init; } = [];
+    /// <summary>The [solve] table.</summary>
     public SolveOptions Solve { get; init; } = new();
 }
 

@@ -15,15 +15,24 @@ public enum RampDirection
 {
     /// <summary>Only one direction is known to be present (single ramp, or no ramp record).</summary>
     Single,
+
+    /// <summary>The rising half of a triangle ramp.</summary>
     Up,
+
+    /// <summary>The falling half of a triangle ramp.</summary>
     Down,
 }
 
 /// <summary>Which halves of a triangle-ramp trace to use.</summary>
 public enum DirectionChoice
 {
+    /// <summary>Both halves, as separate sweeps.</summary>
     Both,
+
+    /// <summary>Only the rising halves.</summary>
     Up,
+
+    /// <summary>Only the falling halves.</summary>
     Down,
 }
 
@@ -82,8 +91,13 @@ public sealed record SweepFileOptions
 /// <summary>A trace as read from a file: all samples, in file order, with the source line of each sample.</summary>
 public sealed record RawTrace
 {
+    /// <summary>Path of the file the trace was read from.</summary>
     public required string Source { get; init; }
+
+    /// <summary>Scan coordinate of each sample (see <see cref="Scan"/>).</summary>
     public required double[] X { get; init; }
+
+    /// <summary>Detector signal of each sample.</summary>
     public required double[] Y { get; init; }
 
     /// <summary>Recorded ramp voltage per sample, when the file has one (equals X when the scan coordinate is the ramp).</summary>
@@ -95,6 +109,7 @@ public sealed record RawTrace
     /// <summary>The file the ramp came from when it is not <see cref="Source"/> (one channel per file), else null.</summary>
     public string? RampSource { get; init; }
 
+    /// <summary>What <see cref="X"/> is: time or ramp voltage.</summary>
     public ScanCoordinate Scan { get; init; }
 
     /// <summary>Human label of x, e.g. "time (s)" or "ramp (V)".</summary>
@@ -110,10 +125,19 @@ public sealed record Sweep
     /// <summary>Display name, e.g. "short_source.csv (up)".</summary>
     public required string Name { get; init; }
 
+    /// <summary>Path of the file the sweep was read from.</summary>
     public required string Source { get; init; }
+
+    /// <summary>Scan coordinate of each sample, monotonic within the segment (see <see cref="Scan"/>).</summary>
     public required double[] X { get; init; }
+
+    /// <summary>Detector signal of each sample.</summary>
     public required double[] Y { get; init; }
+
+    /// <summary>Which half of the ramp this segment is.</summary>
     public RampDirection Direction { get; init; } = RampDirection.Single;
+
+    /// <summary>What <see cref="X"/> is: time or ramp voltage.</summary>
     public ScanCoordinate Scan { get; init; }
 
     /// <summary>Index of the first sample of this segment in the original trace.</summary>
@@ -123,16 +147,17 @@ public sealed record Sweep
     /// The digitiser's quantisation step (LSB) of the signal, in signal units, when the values of the whole record sit
     /// on an evenly spaced grid (e.g. an 8-bit scope: every value is an offset plus a whole number of steps); null when
     /// they do not, or when there are too few distinct values to tell. A rounding error uniform over one step has
-    /// variance LSB²/12. Detected by <see cref="Digitiser.QuantisationStep"/>.
+    /// variance LSB²/12. Detected by the sweep reader (Workflow: Io/Digitiser).
     /// </summary>
     public double? QuantisationStep { get; init; }
 
     /// <summary>
     /// Indices (into <see cref="X"/> and <see cref="Y"/>, ascending) of samples that sit in a run at the record's
     /// full-scale value (its highest or lowest value) longer than noise or the peak's shape allows: the digitiser
-    /// clipped them, so they only bound the true signal. Empty when none. Detected by <see cref="Digitiser.ClippedSamples"/>.
+    /// clipped them, so they only bound the true signal. Empty when none. Detected by the sweep reader (Workflow: Io/Digitiser).
     /// </summary>
     public int[] ClippedSamples { get; init; } = [];
 
+    /// <summary>Number of samples.</summary>
     public int Count => X.Length;
 }

@@ -13,6 +13,7 @@ public sealed record CavityModeFamily(int N, double GouyOffsetFsr, double Relati
     /// <summary>Where the family appears after each TEM00 peak along increasing scan frequency: (−o_N mod 1) of an FSR.</summary>
     public double ApparentOffsetFsr => Frac(-GouyOffsetFsr);
 
+    /// <summary>The fractional part of <paramref name="v"/>, in [0, 1).</summary>
     public static double Frac(double v) => v - Math.Floor(v);
 }
 

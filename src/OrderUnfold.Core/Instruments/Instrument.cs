@@ -18,6 +18,7 @@ public enum CavityGeometry
 /// </summary>
 public sealed record Instrument
 {
+    /// <summary>An instrument; throws <see cref="InputException"/> for a missing name, a non-positive FSR, a finesse below 1 or a refractive index below 1.</summary>
     public Instrument(string name, double fsrHz, double finesse, CavityGeometry geometry = CavityGeometry.Planar,
         double? lengthM = null, double refractiveIndex = 1.0, double peakTransmission = 1.0)
     {
@@ -34,6 +35,7 @@ public sealed record Instrument
         PeakTransmission = peakTransmission;
     }
 
+    /// <summary>Name the setup and the outputs use.</summary>
     public string Name { get; init; }
 
     /// <summary>Free spectral range in Hz.</summary>
@@ -42,11 +44,13 @@ public sealed record Instrument
     /// <summary>Finesse 𝓕 (FSR / linewidth).</summary>
     public double Finesse { get; init; }
 
+    /// <summary>Mirror geometry (sets the FSR law).</summary>
     public CavityGeometry Geometry { get; init; }
 
     /// <summary>Mirror spacing in m when the FSR came from a length; null when the FSR was given directly.</summary>
     public double? LengthM { get; init; }
 
+    /// <summary>Refractive index between the mirrors.</summary>
     public double RefractiveIndex { get; init; }
 
     /// <summary>Tmax; the inversion absorbs it into the per-sweep gain.</summary>
@@ -92,6 +96,7 @@ public sealed record Instrument
         return t;
     }
 
+    /// <summary>Name, FSR, finesse and transverse families in one line.</summary>
     public override string ToString() => $"{Name}: FSR {Quantity.FormatFrequency(FsrHz)}, finesse {Finesse:F0}" +
         (Families.Count == 0 ? "" : "; transverse families " + string.Join(", ", Families.Select(f => $"N={f.N} {f.ApparentOffsetFsr:F4} FSR after TEM00 ({100 * f.RelativeHeight:F0} %)")));
 }

@@ -6,10 +6,15 @@ namespace OrderUnfold.Units;
 /// <summary>The physical dimension of a quantity written with a unit.</summary>
 public enum Dimension
 {
+    /// <summary>A frequency, Hz.</summary>
     Frequency,
+    /// <summary>A length, m.</summary>
     Length,
+    /// <summary>A time, s.</summary>
     Time,
+    /// <summary>A voltage, V.</summary>
     Voltage,
+    /// <summary>A power ratio in decibels, dB.</summary>
     Decibel,
 }
 
