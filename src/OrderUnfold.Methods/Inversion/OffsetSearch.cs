@@ -52,16 +52,11 @@ public static class OffsetSearch
     public static Result Run(IReadOnlyList<CalibratedSweep> sweeps, IReadOnlyList<double> gains, FrequencyGrid grid, double step,
         UnfoldOptions options, IProgress<string>? progress)
     {
-        var narrowest = sweeps.Min(s => s.Instrument.LinewidthHz);
         var offsets = new double[sweeps.Count];
         var folded = sweeps.Select(Unfolder.FoldedPeaks).ToArray();
         // reference sweep: its strongest folded peak is the provisional origin (it puts that line at ν = 0, the anchor)
         offsets[0] = folded[0].Count > 0 ? -folded[0][0] : 0;
         var trials = new List<OffsetTrial>();
-        var searchOptions = options with { Sparsity = Math.Max(options.Sparsity, 1) * SparsityFactor };
-        var cap = 4 * folded.Sum(f => f.Count) + 60;
-        var screenCap = Math.Min(cap, 2 * folded.Sum(f => f.Count) + 30);
-        var searchPeriodicStep = Math.Min(step, narrowest / 10);
         var profiles = new Dictionary<int, double[]>();
 
         double[] Profile(int k)
@@ -70,6 +65,8 @@ public static class OffsetSearch
             return p;
         }
 
+        var settings = new PairSettings(options, grid, step, sweeps.Min(s => s.Instrument.LinewidthHz), 4 * folded.Sum(f => f.Count) + 60,
+            Math.Min(4 * folded.Sum(f => f.Count) + 60, 2 * folded.Sum(f => f.Count) + 30));
         for (var k = 1; k < sweeps.Count; k++)
         {
             var sibling = Enumerable.Range(0, k).FirstOrDefault(r => SameInstrument(sweeps[r].Instrument, sweeps[k].Instrument), -1);
@@ -81,66 +78,121 @@ public static class OffsetSearch
                 continue;
             }
 
-            var inst = sweeps[k].Instrument;
-            var fsr = inst.FsrHz;
-            var lw = inst.LinewidthHz;
-            var (lo, hi) = SearchWindow([sweeps[0].Instrument, inst], grid, options.AliasThresholdLinewidths);
-            var searchGrid = FrequencyGrid.Covering(lo, hi, step * 2);
+            var pair = new PairSearch(sweeps[0], sweeps[k], offsets[0], gains[0], gains[k], settings);
+            var score = Score(Profile(0), sweeps[0].Instrument.FsrHz, offsets[0], Profile(k), sweeps[k].Instrument.FsrHz, pair.Lo, pair.Hi);
+            offsets[k] = pair.Find(score, folded[k], trials, progress);
+        }
 
-            // coarse: the score of every origin at once
-            var score = Score(Profile(0), sweeps[0].Instrument.FsrHz, offsets[0], Profile(k), fsr, lo, hi);
-            var ranked = Candidates(score, fsr, lw, folded[k].Take(options.OffsetCandidates).Select(u => -u), options.OffsetCandidates);
+        return new Result(offsets, trials);
+    }
+
+    /// <summary>What every pair search of one run shares: the unfold's options, grid and step, the narrowest linewidth,
+    /// and the iteration budgets of a whole and of a short (screening) pair solve.</summary>
+    private sealed record PairSettings(UnfoldOptions Options, FrequencyGrid Grid, double Step, double NarrowestLinewidthHz, int Cap, int ScreenCap);
+
+    /// <summary>The origin of one sweep against the reference sweep: coarse candidates from the score, pair solves of the
+    /// best-ranked ones, Gauss–Newton refinement of the winner.</summary>
+    private sealed class PairSearch
+    {
+        private readonly CalibratedSweep[] _pair;
+        private readonly double[] _pairGains;
+        private readonly double _referenceOffset;
+        private readonly PairSettings _settings;
+        private readonly UnfoldOptions _searchOptions;
+        private readonly FrequencyGrid _searchGrid;
+        private readonly double _periodicStep;
+        private (double Lambda, double Mu)? _weights;
+
+        public PairSearch(CalibratedSweep reference, CalibratedSweep sweep, double referenceOffset, double referenceGain, double gain, PairSettings settings)
+        {
+            _pair = [reference, sweep];
+            _pairGains = [referenceGain, gain];
+            _referenceOffset = referenceOffset;
+            _settings = settings;
+            _searchOptions = settings.Options with { Sparsity = Math.Max(settings.Options.Sparsity, 1) * SparsityFactor };
+            _periodicStep = Math.Min(settings.Step, settings.NarrowestLinewidthHz / 10);
+            (Lo, Hi) = SearchWindow([reference.Instrument, sweep.Instrument], settings.Grid, settings.Options.AliasThresholdLinewidths);
+            _searchGrid = FrequencyGrid.Covering(Lo, Hi, settings.Step * 2);
+        }
+
+        /// <summary>Lower end of the sub-window searched, Hz.</summary>
+        public double Lo { get; }
+
+        /// <summary>Upper end of the sub-window searched, Hz.</summary>
+        public double Hi { get; }
+
+        private CalibratedSweep Sweep => _pair[1];
+
+        /// <summary>The sweep's origin, with the trials behind it added to <paramref name="trials"/>.</summary>
+        public double Find(double[] score, IReadOnlyList<double> foldedPeaks, List<OffsetTrial> trials, IProgress<string>? progress)
+        {
+            var inst = Sweep.Instrument;
+            var count = _settings.Options.OffsetCandidates;
+            var ranked = Candidates(score, inst.FsrHz, inst.LinewidthHz, foldedPeaks.Take(count).Select(u => -u), count);
             var candidates = ranked.Select(c => c.Phi).ToList();
             if (candidates.Count == 0) candidates.Add(0);
+            var (best, full) = Screen(candidates, trials);
+            var (phiBest, chiBest) = Refine(best);
+            trials.Add(new OffsetTrial(Sweep.Name, phiBest, chiBest, true));
+            progress?.Report($"offset of {Sweep.Name}: {candidates.Count} candidate(s) ranked by the cross-correlation of folded profiles " +
+                             $"over {Units.Quantity.FormatFrequency(Hi - Lo)}, {full} given the whole pair solve");
+            return phiBest;
+        }
 
-            // fine: pair solves of the best-ranked candidates
-            var pair = new[] { sweeps[0], sweeps[k] };
-            var pairGains = new[] { gains[0], gains[k] };
-            (double Lambda, double Mu)? weights = null;
-
-            (double Chi, double[] X, UnfoldProblem P, bool Converged) Eval(double phi, double[]? start, int iterations)
+        /// <summary>One pair solve at origin <paramref name="phi"/>: χ², solution, problem, and whether it converged.</summary>
+        private (double Chi, double[] X, UnfoldProblem P, bool Converged) Eval(double phi, double[]? start, int iterations)
+        {
+            UnfoldProblem pr;
+            if (_weights is (double l, double mu)) pr = new UnfoldProblem(_pair, _searchGrid, [_referenceOffset, phi], _pairGains, l, mu, _periodicStep);
+            else
             {
-                UnfoldProblem pr;
-                if (weights is (double l, double mu)) pr = new UnfoldProblem(pair, searchGrid, [offsets[0], phi], pairGains, l, mu, searchPeriodicStep);
-                else
-                {
-                    pr = Unfolder.BuildProblem(pair, searchGrid, [offsets[0], phi], pairGains, searchOptions, searchPeriodicStep);
-                    weights = (pr.L1Weight, pr.SmoothnessWeight);
-                }
-
-                var r = ActiveSetNnls.Solve(pr, Unfolder.SolverOptions(pr) with { MaxIterations = iterations }, start);
-                return (Unfolder.ChiSquare(pr, r.Solution, pair), r.Solution, pr, r.Status == SolverStatus.Converged);
+                pr = Unfolder.BuildProblem(_pair, _searchGrid, [_referenceOffset, phi], _pairGains, _searchOptions, _periodicStep);
+                _weights = (pr.L1Weight, pr.SmoothnessWeight);
             }
 
+            var r = ActiveSetNnls.Solve(pr, Unfolder.SolverOptions(pr) with { MaxIterations = iterations }, start);
+            return (Unfolder.ChiSquare(pr, r.Solution, _pair), r.Solution, pr, r.Status == SolverStatus.Converged);
+        }
+
+        /// <summary>The best-ranked candidate gets the whole iteration budget; later ones a short solve first, and the whole
+        /// solve only when their χ² is then close to the best one's. Returns the best and how many got the whole solve.</summary>
+        private ((double Phi, double Chi, double[] X, UnfoldProblem P) Best, int Full) Screen(List<double> candidates, List<OffsetTrial> trials)
+        {
             (double Phi, double Chi, double[] X, UnfoldProblem P)? best = null;
             var full = 0;
             foreach (var phi in candidates)
             {
-                // the best-ranked candidate gets the whole iteration budget; later ones a short solve first
                 var first = best is null;
-                var r = Eval(phi, null, first ? cap : screenCap);
+                var r = Eval(phi, null, first ? _settings.Cap : _settings.ScreenCap);
                 if (first || r.Converged) full++;
                 else if (!r.Converged && r.Chi < ScreenChiSquareFactor * best!.Value.Chi)
                 {
-                    r = Eval(phi, r.X, cap); // close enough to the best to need the whole solve
+                    r = Eval(phi, r.X, _settings.Cap); // close enough to the best to need the whole solve
                     full++;
                 }
 
-                trials.Add(new OffsetTrial(sweeps[k].Name, phi, r.Chi, false));
+                trials.Add(new OffsetTrial(Sweep.Name, phi, r.Chi, false));
                 if (best is null || r.Chi < best.Value.Chi) best = (phi, r.Chi, r.X, r.P);
             }
 
-            // refine the winner: Gauss–Newton steps of its origin, the spectrum re-solved (warm) after each
-            var (phiBest, chiBest, x, problem) = best!.Value;
+            return (best!.Value, full);
+        }
+
+        /// <summary>Gauss–Newton steps of the winner's origin (at most a linewidth, then half), the spectrum re-solved (warm)
+        /// after each; a step that does not lower χ² is halved once, then the refinement stops.</summary>
+        private (double Phi, double Chi) Refine((double Phi, double Chi, double[] X, UnfoldProblem P) best)
+        {
+            var (phiBest, chiBest, x, problem) = best;
+            var lw = Sweep.Instrument.LinewidthHz;
             var limit = lw;
             for (var it = 0; it < RefineSteps; it++)
             {
                 var d = Math.Clamp(problem.OffsetStep(1, x), -limit, limit);
                 if (Math.Abs(d) < lw / 200) break;
-                var next = Eval(phiBest + d, x, cap);
+                var next = Eval(phiBest + d, x, _settings.Cap);
                 if (!(next.Chi < chiBest))
                 {
-                    next = Eval(phiBest + d / 2, x, cap);
+                    next = Eval(phiBest + d / 2, x, _settings.Cap);
                     if (!(next.Chi < chiBest)) break;
                     d /= 2;
                 }
@@ -152,13 +204,8 @@ public static class OffsetSearch
                 limit = lw / 2;
             }
 
-            offsets[k] = phiBest;
-            trials.Add(new OffsetTrial(sweeps[k].Name, phiBest, chiBest, true));
-            progress?.Report($"offset of {sweeps[k].Name}: {candidates.Count} candidate(s) ranked by the cross-correlation of folded profiles " +
-                             $"over {Units.Quantity.FormatFrequency(hi - lo)}, {full} given the whole pair solve");
+            return (phiBest, chiBest);
         }
-
-        return new Result(offsets, trials);
     }
 
     /// <summary>Alias margin (linewidths) below which the pair cannot tell two shifts apart at all: the search's sub-window

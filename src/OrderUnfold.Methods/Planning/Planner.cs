@@ -121,63 +121,10 @@ public static class Planner
         var nominalSet = cavities.Select(c => c.Instrument).ToList();
         var (from, to) = Range(nominalSet, settings);
         var nominal = AliasMargin.LowestAlias(nominalSet, from, to, buffer);
-
-        // tolerance bands: P_k lengths per toleranced cavity, spaced so a length anywhere in the band is within
-        // ε_k/(P_k − 1) (relative) of a sample; a relative FSR change δ moves misfit_k by at most span·δ/linewidth_k
-        var samples = new int[cavities.Count];
-        var bound = 0.0;
-        for (var k = 0; k < cavities.Count; k++)
-        {
-            var eps = cavities[k].RelativeTolerance;
-            if (eps <= 0)
-            {
-                samples[k] = 1;
-                continue;
-            }
-
-            var lw = cavities[k].Instrument.LinewidthHz;
-            var need = 1 + (int)Math.Min(int.MaxValue - 2, Math.Ceiling(to * eps / (settings.ToleranceResolutionLinewidths * lw)));
-            samples[k] = Math.Clamp(need, 3, settings.MaxToleranceSamples);
-            bound = Math.Max(bound, to * eps / ((samples[k] - 1) * lw));
-        }
-
-        var robust = nominal;
-        var robustSet = nominalSet;
-        if (samples.Any(s => s > 1))
-        {
-            var current = nominalSet.ToArray();
-            void Visit(int k)
-            {
-                if (k == cavities.Count)
-                {
-                    var m = AliasMargin.LowestAlias(current, from, to, buffer);
-                    if (m.MarginLinewidths < robust.MarginLinewidths)
-                    {
-                        robust = m;
-                        robustSet = current.ToList();
-                    }
-
-                    return;
-                }
-
-                if (samples[k] == 1)
-                {
-                    current[k] = cavities[k].Instrument;
-                    Visit(k + 1);
-                    return;
-                }
-
-                var eps = cavities[k].RelativeTolerance;
-                for (var j = 0; j < samples[k]; j++)
-                {
-                    var t = -eps + 2 * eps * j / (samples[k] - 1);
-                    current[k] = cavities[k].AtRelativeLength(t);
-                    Visit(k + 1);
-                }
-            }
-
-            Visit(0);
-        }
+        var (samples, bound) = ToleranceSamples(cavities, settings, to);
+        var (robust, robustSet) = samples.Any(s => s > 1)
+            ? WorstWithinTolerance(cavities, samples, nominal, nominalSet, from, to, buffer)
+            : (nominal, nominalSet);
 
         var firstAlias = AliasMargin.FirstBelow(nominalSet, settings.ThresholdLinewidths, from, to);
         var f1 = nominalSet[0].FsrHz;
@@ -212,5 +159,74 @@ public static class Planner
             RequiredPeakSnr = snr,
             Verdict = verdict,
         };
+    }
+
+    /// <summary>
+    /// Tolerance bands: P_k lengths per toleranced cavity, spaced so a length anywhere in the band is within ε_k/(P_k − 1)
+    /// (relative) of a sample; a relative FSR change δ moves misfit_k by at most span·δ/linewidth_k. Returns P_k per cavity
+    /// (1 for an exact one) and that bound, linewidths.
+    /// </summary>
+    private static (int[] Samples, double Bound) ToleranceSamples(IReadOnlyList<DesignCavity> cavities, PlanSettings settings, double to)
+    {
+        var samples = new int[cavities.Count];
+        var bound = 0.0;
+        for (var k = 0; k < cavities.Count; k++)
+        {
+            var eps = cavities[k].RelativeTolerance;
+            if (eps <= 0)
+            {
+                samples[k] = 1;
+                continue;
+            }
+
+            var lw = cavities[k].Instrument.LinewidthHz;
+            var need = 1 + (int)Math.Min(int.MaxValue - 2, Math.Ceiling(to * eps / (settings.ToleranceResolutionLinewidths * lw)));
+            samples[k] = Math.Clamp(need, 3, settings.MaxToleranceSamples);
+            bound = Math.Max(bound, to * eps / ((samples[k] - 1) * lw));
+        }
+
+        return (samples, bound);
+    }
+
+    /// <summary>The lowest alias margin over every combination of sampled lengths (the grid of tolerance samples), and the
+    /// cavities that give it; the nominal design when no combination is worse.</summary>
+    private static (MarginPoint Robust, List<Instrument> RobustSet) WorstWithinTolerance(IReadOnlyList<DesignCavity> cavities, int[] samples,
+        MarginPoint nominal, List<Instrument> nominalSet, double from, double to, List<double> buffer)
+    {
+        var robust = nominal;
+        var robustSet = nominalSet;
+        var current = nominalSet.ToArray();
+        void Visit(int k)
+        {
+            if (k == cavities.Count)
+            {
+                var m = AliasMargin.LowestAlias(current, from, to, buffer);
+                if (m.MarginLinewidths < robust.MarginLinewidths)
+                {
+                    robust = m;
+                    robustSet = current.ToList();
+                }
+
+                return;
+            }
+
+            if (samples[k] == 1)
+            {
+                current[k] = cavities[k].Instrument;
+                Visit(k + 1);
+                return;
+            }
+
+            var eps = cavities[k].RelativeTolerance;
+            for (var j = 0; j < samples[k]; j++)
+            {
+                var t = -eps + 2 * eps * j / (samples[k] - 1);
+                current[k] = cavities[k].AtRelativeLength(t);
+                Visit(k + 1);
+            }
+        }
+
+        Visit(0);
+        return (robust, robustSet);
     }
 }

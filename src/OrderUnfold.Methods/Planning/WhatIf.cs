@@ -99,18 +99,7 @@ public static class WhatIf
         IProgress<string>? progress = null)
     {
         options ??= new WhatIfOptions();
-        if (instruments.Count == 0) throw new InputException("the what-if needs at least one cavity");
-        if (lines.Count == 0) throw new InputException("the what-if needs at least one line in the source");
-        foreach (var l in lines)
-        {
-            if (!double.IsFinite(l.FrequencyHz)) throw new InputException($"a source line has no finite frequency ({l.FrequencyHz} Hz)");
-            if (!(l.Intensity > 0) || !double.IsFinite(l.Intensity)) throw new InputException($"a source line needs a positive intensity but got {l.Intensity}");
-        }
-
-        if (!(options.NoiseFraction >= 0) || !double.IsFinite(options.NoiseFraction))
-            throw new InputException($"the noise level must be zero or a positive fraction of the peak signal but got {options.NoiseFraction}");
-        if (options.Samples < 100) throw new InputException($"the simulated records need at least 100 samples but got {options.Samples}");
-        if (!(options.SpanFsr >= 1.1)) throw new InputException($"each sweep must cover more than one FSR but got {options.SpanFsr} FSR");
+        Validate(instruments, lines, options);
 
         var strongest = lines.MaxBy(l => l.Intensity)!;
         var rel = lines.Select(l => (Hz: l.FrequencyHz - strongest.FrequencyHz, I: l.Intensity / strongest.Intensity)).ToList();
@@ -121,28 +110,8 @@ public static class WhatIf
         var end = options.WindowEndHz ?? hi + pad;
         if (!(end > start)) throw new InputException($"the what-if window is empty ({start} Hz to {end} Hz)");
 
-        var spec = new SimulationSpec
-        {
-            Lines = lines,
-            Cavities = instruments.Select(i => new SimulatedCavity { Instrument = i, Samples = options.Samples, SpanFsr = options.SpanFsr }).ToList(),
-            NoiseFraction = options.NoiseFraction,
-            Bits = options.Bits,
-            Seed = options.Seed,
-            CalibrationSweeps = false,
-        };
         progress?.Report("simulating sweeps");
-        var sweeps = new List<CalibratedSweep>();
-        var rng = new Random(spec.Seed);
-        foreach (var cav in spec.Cavities)
-        {
-            var trace = Simulator.Trace(spec, cav, false, rng);
-            var half = trace.Signal.Length / 2;
-            foreach (var (a, b, dir) in new[] { (0, half, "up"), (half, trace.Signal.Length, "down") })
-            {
-                var y = trace.Signal[a..b];
-                sweeps.Add(new CalibratedSweep($"{cav.Instrument.Name} ({dir})", cav.Instrument, trace.TrueScanHz[a..b], y, PeakFinder.NoiseSigma(y)));
-            }
-        }
+        var sweeps = SimulateSweeps(instruments, lines, options);
 
         var unfoldOptions = (options.Unfold ?? new UnfoldOptions()) with { WindowStartHz = start, WindowEndHz = end };
         progress?.Report("unfolding");
@@ -150,18 +119,7 @@ public static class WhatIf
 
         var tol = options.MatchToleranceHz ?? instruments.Min(i => i.LinewidthHz);
         var found = result.Lines;
-        // the common shift that matches the most lines (the two lists may be relative to different anchors)
-        var shifts = new List<double> { 0 };
-        foreach (var f in found)
-        foreach (var r in rel)
-            shifts.Add(f.FrequencyHz - r.Hz);
-        var best = (Count: -1, Shift: 0.0, Error: double.PositiveInfinity);
-        foreach (var s in shifts)
-        {
-            var (count, err, _) = Match(rel.Select(r => r.Hz + s).ToList(), found, tol);
-            if (count > best.Count || (count == best.Count && (err < best.Error - 1e-9 || (Math.Abs(err - best.Error) <= 1e-9 && Math.Abs(s) < Math.Abs(best.Shift)))))
-                best = (count, s, err);
-        }
+        var best = BestShift(rel, found, tol);
 
         var (_, _, assignment) = Match(rel.Select(r => r.Hz + best.Shift).ToList(), found, tol);
         var outcomes = new List<LineOutcome>();
@@ -186,6 +144,69 @@ public static class WhatIf
             WindowEndHz = end,
             Unfold = result,
         };
+    }
+
+    private static void Validate(IReadOnlyList<Instrument> instruments, IReadOnlyList<SimulatedLine> lines, WhatIfOptions options)
+    {
+        if (instruments.Count == 0) throw new InputException("the what-if needs at least one cavity");
+        if (lines.Count == 0) throw new InputException("the what-if needs at least one line in the source");
+        foreach (var l in lines)
+        {
+            if (!double.IsFinite(l.FrequencyHz)) throw new InputException($"a source line has no finite frequency ({l.FrequencyHz} Hz)");
+            if (!(l.Intensity > 0) || !double.IsFinite(l.Intensity)) throw new InputException($"a source line needs a positive intensity but got {l.Intensity}");
+        }
+
+        if (!(options.NoiseFraction >= 0) || !double.IsFinite(options.NoiseFraction))
+            throw new InputException($"the noise level must be zero or a positive fraction of the peak signal but got {options.NoiseFraction}");
+        if (options.Samples < 100) throw new InputException($"the simulated records need at least 100 samples but got {options.Samples}");
+        if (!(options.SpanFsr >= 1.1)) throw new InputException($"each sweep must cover more than one FSR but got {options.SpanFsr} FSR");
+    }
+
+    /// <summary>One triangle-ramp record per cavity, split into its up and down halves, on the true scan axis.</summary>
+    private static List<CalibratedSweep> SimulateSweeps(IReadOnlyList<Instrument> instruments, IReadOnlyList<SimulatedLine> lines, WhatIfOptions options)
+    {
+        var spec = new SimulationSpec
+        {
+            Lines = lines,
+            Cavities = instruments.Select(i => new SimulatedCavity { Instrument = i, Samples = options.Samples, SpanFsr = options.SpanFsr }).ToList(),
+            NoiseFraction = options.NoiseFraction,
+            Bits = options.Bits,
+            Seed = options.Seed,
+            CalibrationSweeps = false,
+        };
+        var sweeps = new List<CalibratedSweep>();
+        var rng = new Random(spec.Seed);
+        foreach (var cav in spec.Cavities)
+        {
+            var trace = Simulator.Trace(spec, cav, false, rng);
+            var half = trace.Signal.Length / 2;
+            foreach (var (a, b, dir) in new[] { (0, half, "up"), (half, trace.Signal.Length, "down") })
+            {
+                var y = trace.Signal[a..b];
+                sweeps.Add(new CalibratedSweep($"{cav.Instrument.Name} ({dir})", cav.Instrument, trace.TrueScanHz[a..b], y, PeakFinder.NoiseSigma(y)));
+            }
+        }
+
+        return sweeps;
+    }
+
+    /// <summary>The common shift that matches the most lines (the two lists may be relative to different anchors); ties go
+    /// to the smaller summed error, then to the smaller shift.</summary>
+    private static (int Count, double Shift, double Error) BestShift(List<(double Hz, double I)> rel, IReadOnlyList<UnfoldedLine> found, double tol)
+    {
+        var shifts = new List<double> { 0 };
+        foreach (var f in found)
+        foreach (var r in rel)
+            shifts.Add(f.FrequencyHz - r.Hz);
+        var best = (Count: -1, Shift: 0.0, Error: double.PositiveInfinity);
+        foreach (var s in shifts)
+        {
+            var (count, err, _) = Match(rel.Select(r => r.Hz + s).ToList(), found, tol);
+            if (count > best.Count || (count == best.Count && (err < best.Error - 1e-9 || (Math.Abs(err - best.Error) <= 1e-9 && Math.Abs(s) < Math.Abs(best.Shift)))))
+                best = (count, s, err);
+        }
+
+        return best;
     }
 
     /// <summary>Greedy one-to-one matching, closest pairs first: (matched count, summed |error|, recovered index per target or −1).</summary>

@@ -162,55 +162,46 @@ public static class SweepReader
         int n = trace.X.Length;
         if (trace.Y.Length != n || trace.Lines.Length != n || (trace.Ramp is not null && trace.Ramp.Length != n))
             throw new ArgumentException("trace arrays X, Y, Lines (and Ramp) must have the same length", nameof(trace));
-        var file = trace.Source;
-        var name = Path.GetFileName(file);
-        if (n < 2) throw new InputException($"needs at least {MinSamples} samples but got {n}", file);
+        if (n < 2) throw new InputException($"needs at least {MinSamples} samples but got {n}", trace.Source);
         var lsb = Digitiser.QuantisationStep(trace.Y);
         var clipped = Digitiser.ClippedSamples(trace.Y, lsb);
-        int[] ClippedIn(int start, int count) =>
-            clipped.Where(i => i >= start && i < start + count).Select(i => i - start).ToArray();
+        return trace.Ramp is null ? [WholeTrace(trace, lsb, clipped)] : SplitAtRampTurns(trace, trace.Ramp, directions, lsb, clipped);
+    }
 
-        if (trace.Ramp is null)
+    /// <summary>A trace without a ramp is one sweep; its x must be strictly monotone.</summary>
+    private static Sweep WholeTrace(RawTrace trace, double? lsb, int[] clipped)
+    {
+        var file = trace.Source;
+        CheckFinite(trace.X, trace.Lines, file, "x");
+        double sign = Math.Sign(trace.X[1] - trace.X[0]);
+        for (int i = 1; i < trace.X.Length; i++)
         {
-            CheckFinite(trace.X, trace.Lines, file, "x");
-            double sign = Math.Sign(trace.X[1] - trace.X[0]);
-            for (int i = 1; i < n; i++)
-            {
-                if (!(sign * (trace.X[i] - trace.X[i - 1]) > 0))
-                    throw new InputException(
-                        $"x is not monotonic at line {trace.Lines[i]}; name a ramp column to split a triangle ramp",
-                        file, trace.Lines[i]);
-            }
-            return [new Sweep
-            {
-                Name = name,
-                Source = file,
-                X = (double[])trace.X.Clone(),
-                Y = (double[])trace.Y.Clone(),
-                Direction = RampDirection.Single,
-                Scan = trace.Scan,
-                FirstSample = 0,
-                QuantisationStep = lsb,
-                ClippedSamples = clipped,
-            }];
+            if (!(sign * (trace.X[i] - trace.X[i - 1]) > 0))
+                throw new InputException(
+                    $"x is not monotonic at line {trace.Lines[i]}; name a ramp column to split a triangle ramp",
+                    file, trace.Lines[i]);
         }
 
-        var ramp = trace.Ramp;
+        return new Sweep
+        {
+            Name = Path.GetFileName(file),
+            Source = file,
+            X = (double[])trace.X.Clone(),
+            Y = (double[])trace.Y.Clone(),
+            Direction = RampDirection.Single,
+            Scan = trace.Scan,
+            FirstSample = 0,
+            QuantisationStep = lsb,
+            ClippedSamples = clipped,
+        };
+    }
+
+    /// <summary>The trace cut at the ramp's turning points, one sweep per wanted segment.</summary>
+    private static List<Sweep> SplitAtRampTurns(RawTrace trace, double[] ramp, DirectionChoice directions, double? lsb, int[] clipped)
+    {
+        var file = trace.Source;
         CheckFinite(ramp, trace.Lines, file, "the ramp");
-        List<RampSegment> segments;
-        try
-        {
-            segments = RampSegments.Find(ramp);
-        }
-        catch (RampConstantException e)
-        {
-            var detail = e.Noise > 0
-                ? $" (it moves by {Fmt(e.Span)} V, within its noise of {Fmt(e.Noise)} V)"
-                : $" (all samples are {Fmt(ramp[0])} V)";
-            var from = trace.RampSource is null ? "" : $" (read from {trace.RampSource})";
-            throw new InputException("ramp" + from + " is constant" + detail + "; a sweep needs a moving ramp", file);
-        }
-
+        var segments = FindSegments(trace, ramp);
         var sweeps = new List<Sweep>();
         int ups = 0, downs = 0;
         foreach (var seg in segments)
@@ -219,33 +210,18 @@ public static class SweepReader
             bool wanted = directions == DirectionChoice.Both ||
                           (directions == DirectionChoice.Up) == (seg.Direction == RampDirection.Up);
             if (!wanted) continue;
-
-            double[] x = trace.X.AsSpan(seg.Start, seg.Count).ToArray();
-            if (trace.Scan == ScanCoordinate.Ramp)
-            {
-                double sign = seg.Direction == RampDirection.Up ? 1 : -1;
-                if (!RampSegments.IsStrictlyMonotone(x, sign))
-                {
-                    x = RampSegments.MonotoneFit(x, seg.Direction)
-                        ?? throw new InputException(
-                            $"the ramp between lines {trace.Lines[seg.Start]} and {trace.Lines[seg.End - 1]} does not go " +
-                            $"{(sign > 0 ? "up" : "down")} steadily enough to be used as the scan coordinate",
-                            file, trace.Lines[seg.Start]);
-                }
-            }
-
             var label = seg.Direction == RampDirection.Up ? "up" : "down";
             sweeps.Add(new Sweep
             {
-                Name = $"{name} ({label} #{number})",
+                Name = $"{Path.GetFileName(file)} ({label} #{number})",
                 Source = file,
-                X = x,
+                X = SegmentX(trace, seg),
                 Y = trace.Y.AsSpan(seg.Start, seg.Count).ToArray(),
                 Direction = seg.Direction,
                 Scan = trace.Scan,
                 FirstSample = seg.Start,
                 QuantisationStep = lsb,
-                ClippedSamples = ClippedIn(seg.Start, seg.Count),
+                ClippedSamples = clipped.Where(i => i >= seg.Start && i < seg.Start + seg.Count).Select(i => i - seg.Start).ToArray(),
             });
         }
 
@@ -259,6 +235,38 @@ public static class SweepReader
                 file);
         }
         return sweeps;
+    }
+
+    /// <summary>The ramp's segments; a constant ramp is bad input, with how much it moved.</summary>
+    private static List<RampSegment> FindSegments(RawTrace trace, double[] ramp)
+    {
+        try
+        {
+            return RampSegments.Find(ramp);
+        }
+        catch (RampConstantException e)
+        {
+            var detail = e.Noise > 0
+                ? $" (it moves by {Fmt(e.Span)} V, within its noise of {Fmt(e.Noise)} V)"
+                : $" (all samples are {Fmt(ramp[0])} V)";
+            var from = trace.RampSource is null ? "" : $" (read from {trace.RampSource})";
+            throw new InputException("ramp" + from + " is constant" + detail + "; a sweep needs a moving ramp", trace.Source);
+        }
+    }
+
+    /// <summary>A segment's scan coordinate; a recorded ramp that is not strictly monotone over it is replaced by a
+    /// monotone fit against the sample index.</summary>
+    private static double[] SegmentX(RawTrace trace, RampSegment seg)
+    {
+        double[] x = trace.X.AsSpan(seg.Start, seg.Count).ToArray();
+        if (trace.Scan != ScanCoordinate.Ramp) return x;
+        double sign = seg.Direction == RampDirection.Up ? 1 : -1;
+        if (RampSegments.IsStrictlyMonotone(x, sign)) return x;
+        return RampSegments.MonotoneFit(x, seg.Direction)
+               ?? throw new InputException(
+                   $"the ramp between lines {trace.Lines[seg.Start]} and {trace.Lines[seg.End - 1]} does not go " +
+                   $"{(sign > 0 ? "up" : "down")} steadily enough to be used as the scan coordinate",
+                   trace.Source, trace.Lines[seg.Start]);
     }
 
     /// <summary>Read and split in one call.</summary>

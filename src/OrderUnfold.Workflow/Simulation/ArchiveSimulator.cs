@@ -183,36 +183,7 @@ public static class ArchiveSimulator
             var stamp = spec.Start.AddSeconds(t).ToString("yyyy-MM-dd'T'HH:mm:ss'Z'", CultureInfo.InvariantCulture);
             // every item draws the same amount of noise so that a defect does not change the items after it
             var signal = Signal(spec, scan, modes, rng);
-            switch (defect)
-            {
-                case ArchiveDefect.EmptyFile:
-                    AtomicFile.WriteAllText(file, "");
-                    break;
-                case ArchiveDefect.HeaderOnly:
-                    var full = Csv(spec, id, signal);
-                    AtomicFile.WriteAllText(file, full[..(full.IndexOf("time_s,signal_V\n", StringComparison.Ordinal) + "time_s,signal_V\n".Length)]);
-                    break;
-                case ArchiveDefect.Garbage:
-                    var bytes = new byte[40_000];
-                    new Random(spec.Seed + k).NextBytes(bytes);
-                    AtomicFile.WriteAllBytes(file, bytes);
-                    break;
-                case ArchiveDefect.MissingFile:
-                    if (File.Exists(file)) File.Delete(file);
-                    break;
-                case ArchiveDefect.LaserOff:
-                    var dark = Signal(spec, scan, modes.Select(m => (m.Position, 0.0)).ToArray(), new Random(spec.Seed + k), noiseScale: signal.Scale);
-                    AtomicFile.WriteAllText(file, Csv(spec, id, dark));
-                    break;
-                case ArchiveDefect.BadTimestamp:
-                    stamp = "14/03/2025 09:" + (k * spec.IntervalS / 60).ToString("F0", CultureInfo.InvariantCulture) + " h";
-                    AtomicFile.WriteAllText(file, Csv(spec, id, signal));
-                    break;
-                default:
-                    AtomicFile.WriteAllText(file, Csv(spec, id, signal));
-                    break;
-            }
-
+            stamp = WriteItem(spec, k, id, file, stamp, defect, signal, scan, modes);
             items.Add(new ArchiveItem(id, file, stamp, t, lasingPosition, lasing, smsr, defect));
         }
 
@@ -230,6 +201,42 @@ public static class ArchiveSimulator
         var truthPath = Path.Combine(root, "truth.csv");
         AtomicFile.WriteAllText(truthPath, TruthCsv(spec, items));
         return new ArchiveOutput(setup, setup.Path, calPath, truthPath, items);
+    }
+
+    /// <summary>Writes one item's sweep file, with its defect (an empty, truncated, garbage or missing file, a dark
+    /// record, or a time stamp in another format); returns the item's time stamp as the archive lists it.</summary>
+    private static string WriteItem(ArchiveSpec spec, int k, string id, string file, string stamp, ArchiveDefect defect, Trace signal,
+        double[] scan, (double Position, double Intensity)[] modes)
+    {
+        switch (defect)
+        {
+            case ArchiveDefect.EmptyFile:
+                AtomicFile.WriteAllText(file, "");
+                return stamp;
+            case ArchiveDefect.HeaderOnly:
+                var full = Csv(spec, id, signal);
+                AtomicFile.WriteAllText(file, full[..(full.IndexOf("time_s,signal_V\n", StringComparison.Ordinal) + "time_s,signal_V\n".Length)]);
+                return stamp;
+            case ArchiveDefect.Garbage:
+                var bytes = new byte[40_000];
+                new Random(spec.Seed + k).NextBytes(bytes);
+                AtomicFile.WriteAllBytes(file, bytes);
+                return stamp;
+            case ArchiveDefect.MissingFile:
+                if (File.Exists(file)) File.Delete(file);
+                return stamp;
+            case ArchiveDefect.LaserOff:
+                var dark = Signal(spec, scan, modes.Select(m => (m.Position, 0.0)).ToArray(), new Random(spec.Seed + k), noiseScale: signal.Scale);
+                AtomicFile.WriteAllText(file, Csv(spec, id, dark));
+                return stamp;
+            case ArchiveDefect.BadTimestamp:
+                stamp = "14/03/2025 09:" + (k * spec.IntervalS / 60).ToString("F0", CultureInfo.InvariantCulture) + " h";
+                AtomicFile.WriteAllText(file, Csv(spec, id, signal));
+                return stamp;
+            default:
+                AtomicFile.WriteAllText(file, Csv(spec, id, signal));
+                return stamp;
+        }
     }
 
     /// <summary>truth.csv: id, time, lasing mode, its true scan position, the true SMSR and the defect of every item.</summary>
