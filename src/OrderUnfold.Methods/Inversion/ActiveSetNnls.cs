@@ -6,11 +6,13 @@ namespace OrderUnfold.Inversion;
 /// </summary>
 public interface INormalEquations
 {
+    /// <summary>Number of unknowns (grid bins, then free entries).</summary>
     int Count { get; }
 
     /// <summary>b = Aᵀy − λw.</summary>
     ReadOnlySpan<double> RightHandSide { get; }
 
+    /// <summary>True when entry <paramref name="j"/> is unconstrained (e.g. a background), false when it must stay ≥ 0.</summary>
     bool IsFree(int j);
 
     /// <summary>G x (full vector).</summary>
@@ -43,8 +45,10 @@ public interface INormalRows
 /// </summary>
 public static class ActiveSetNnls
 {
+    /// <summary>Limits and tolerances of the active-set solver.</summary>
     public sealed record Options
     {
+        /// <summary>Most outer iterations (entries added) before the solver stops with <see cref="SolverStatus.IterationLimit"/>.</summary>
         public int MaxIterations { get; init; } = 5000;
 
         /// <summary>Gradient tolerance for adding a column (absolute, in units of b).</summary>
@@ -73,231 +77,294 @@ public static class ActiveSetNnls
     /// (its positive entries form the first active set; useful when the problem changed a little).</summary>
     public static NnlsResult Solve(INormalEquations eq, Options? options = null, ReadOnlySpan<double> start = default)
     {
-        options ??= new Options();
-        var n = eq.Count;
-        var b = eq.RightHandSide.ToArray();
-        var x = new double[n];
-        var inSet = new bool[n];
-        var active = new List<int>();
-        var chol = new IncrementalCholesky();
-        var blocked = new bool[n];
-        var free = new bool[n]; // IsFree once, not once per entry and iteration
-        for (var j = 0; j < n; j++) free[j] = eq.IsFree(j);
-        var gx = new double[n];
-        var column = new double[n + 1];
-        var removals = 0;
-        var handedOver = false;
+        var run = new Run(eq, options ?? new Options());
+        run.Start(start);
+        return run.Iterate();
+    }
 
-        bool TryAdd(int j)
+    /// <summary>The state of one solve: the iterate, the active set with its Cholesky factor, the entries blocked as
+    /// numerically dependent, and the working set of rows looked at between whole passes.</summary>
+    private sealed class Run
+    {
+        private readonly INormalEquations _eq;
+        private readonly Options _options;
+        private readonly int _n;
+        private readonly double[] _b;
+        private readonly double[] _x;
+        private readonly bool[] _inSet;
+        private readonly List<int> _active = [];
+        private readonly IncrementalCholesky _chol = new();
+        private readonly bool[] _blocked;
+        private readonly bool[] _free; // IsFree once, not once per entry and iteration
+        private readonly double[] _gx;
+        private readonly double[] _column;
+        private readonly INormalRows? _rowProduct;
+        private readonly bool[] _everActive;
+        private readonly int[] _histogram = new int[256];
+        private int _removals;
+        private List<int>? _working; // rows looked at between whole passes; null: the next pass is a whole one
+        private double[] _workingGx = [];
+        private double _floor; // the working set held every violator down to this gradient
+
+        public Run(INormalEquations eq, Options options)
         {
-            var col = column.AsSpan(0, active.Count);
-            eq.Column(j, active, col, out var d);
-            if (!chol.TryAdd(col, d * (1 + options.Ridge) + 1e-300)) return false;
-            active.Add(j);
-            inSet[j] = true;
+            _eq = eq;
+            _options = options;
+            _n = eq.Count;
+            _b = eq.RightHandSide.ToArray();
+            _x = new double[_n];
+            _inSet = new bool[_n];
+            _blocked = new bool[_n];
+            _free = new bool[_n];
+            for (var j = 0; j < _n; j++) _free[j] = eq.IsFree(j);
+            _gx = new double[_n];
+            _column = new double[_n + 1];
+            _everActive = new bool[_n];
+            _floor = options.Tolerance;
+            _rowProduct = options.WorkingSetFraction > 0 && _n >= options.WorkingSetMinEntries ? eq as INormalRows : null;
+        }
+
+        /// <summary>Free entries first, then the warm-start set, made feasible.</summary>
+        public void Start(ReadOnlySpan<double> start)
+        {
+            for (var j = 0; j < _n; j++)
+                if (_eq.IsFree(j)) TryAdd(j);
+            if (start.Length == _n)
+            {
+                for (var j = 0; j < _n; j++)
+                {
+                    if (_eq.IsFree(j) || !(start[j] > 0)) continue;
+                    if (TryAdd(j)) _x[j] = start[j];
+                }
+            }
+
+            if (_active.Count > 0) MakeFeasible();
+            foreach (var j in _active) _everActive[j] = true;
+        }
+
+        /// <summary>Lawson–Hanson's outer loop: the entry with the largest positive gradient enters, then the iterate is
+        /// made feasible again; until no gradient is above the tolerance, or a limit is reached.</summary>
+        public NnlsResult Iterate()
+        {
+            var iterations = 0;
+            var status = SolverStatus.IterationLimit;
+            var message = "";
+            var handedOver = false;
+            while (iterations < _options.MaxIterations)
+            {
+                Cancellation.ThrowIfRequested(); // Ctrl-C / SIGTERM (Cancellation.cs)
+                var bestValue = _options.Tolerance;
+                int best;
+                if (_working is null)
+                {
+                    best = WholePass(ref bestValue);
+                }
+                else
+                {
+                    best = WorkingPass(ref bestValue);
+                    if ((best < 0 || bestValue < _floor) && double.IsFinite(bestValue))
+                    {
+                        // nothing left in the working set above the level it was cut at: look at every entry again
+                        _working = null;
+                        continue;
+                    }
+                }
+
+                if (!double.IsFinite(bestValue))
+                {
+                    status = SolverStatus.InvalidValues;
+                    message = "gradient has non-finite values";
+                    break;
+                }
+
+                if (best < 0)
+                {
+                    status = SolverStatus.Converged;
+                    message = "KKT conditions hold";
+                    break;
+                }
+
+                if (_active.Count >= _options.MaxActiveCount)
+                {
+                    handedOver = true;
+                    message = $"active set passed {_options.MaxActiveCount} entries";
+                    break;
+                }
+
+                iterations++;
+                _everActive[best] = true;
+                if (!TryAdd(best))
+                {
+                    _blocked[best] = true; // numerically dependent on the active columns
+                    continue;
+                }
+
+                Array.Clear(_blocked);
+                MakeFeasible();
+            }
+
+            if (status == SolverStatus.IterationLimit && !handedOver) message = $"stopped after {iterations} iterations (limit {_options.MaxIterations})";
+            return Finish(iterations, status, message, handedOver);
+        }
+
+        /// <summary>The whole gradient: the entry with the largest violation, and (with row products) a new working set.</summary>
+        private int WholePass(ref double bestValue)
+        {
+            var best = -1;
+            _eq.Multiply(_x, _gx);
+            for (var j = 0; j < _n; j++)
+            {
+                if (_inSet[j] || _blocked[j] || _free[j]) continue;
+                var g = _b[j] - _gx[j];
+                if (g > bestValue)
+                {
+                    bestValue = g;
+                    best = j;
+                }
+            }
+
+            if (_rowProduct is not null && best >= 0 && double.IsFinite(bestValue)) BuildWorkingSet(bestValue);
+            return best;
+        }
+
+        private static int Octave(double g) => (int)(BitConverter.DoubleToInt64Bits(g) >> 50);
+
+        /// <summary>The largest violators, about `limit` of them, in quarter-octave steps below the largest (the exponent and
+        /// the two leading mantissa bits of a positive double grow with its value), plus every entry that was ever active.</summary>
+        private void BuildWorkingSet(double bestValue)
+        {
+            var tolerance = _options.Tolerance;
+            var limit = Math.Max(256, (int)(_options.WorkingSetFraction * _n));
+            var bestKey = Octave(bestValue);
+            Array.Clear(_histogram);
+            for (var j = 0; j < _n; j++)
+            {
+                if (_inSet[j] || _blocked[j] || _free[j]) continue;
+                var g = _b[j] - _gx[j];
+                if (g > tolerance) _histogram[Math.Clamp(bestKey - Octave(g), 0, _histogram.Length - 1)]++;
+            }
+
+            var depth = 0;
+            var total = _histogram[0];
+            while (depth + 1 < _histogram.Length && total + _histogram[depth + 1] <= limit) total += _histogram[++depth];
+            var all = depth == _histogram.Length - 1 || _histogram.AsSpan(depth + 1).IndexOfAnyExcept(0) < 0;
+            _floor = all ? tolerance : Math.Max(tolerance, BitConverter.Int64BitsToDouble((long)(bestKey - depth) << 50));
+            _working = [];
+            for (var j = 0; j < _n; j++)
+                if (!_free[j] && (_everActive[j] || _b[j] - _gx[j] >= _floor && _b[j] - _gx[j] > tolerance)) _working.Add(j);
+            if (_workingGx.Length < _working.Count) _workingGx = new double[Math.Max(_working.Count, 2 * _workingGx.Length)];
+        }
+
+        /// <summary>The gradient on the working set's rows only: the entry with the largest violation among them.</summary>
+        private int WorkingPass(ref double bestValue)
+        {
+            var working = _working!;
+            var best = -1;
+            _rowProduct!.MultiplyRows(_x, _active, working, _workingGx);
+            for (var r = 0; r < working.Count; r++)
+            {
+                var j = working[r];
+                if (_inSet[j] || _blocked[j]) continue;
+                var g = _b[j] - _workingGx[r];
+                if (g > bestValue)
+                {
+                    bestValue = g;
+                    best = j;
+                }
+            }
+
+            return best;
+        }
+
+        private bool TryAdd(int j)
+        {
+            var col = _column.AsSpan(0, _active.Count);
+            _eq.Column(j, _active, col, out var d);
+            if (!_chol.TryAdd(col, d * (1 + _options.Ridge) + 1e-300)) return false;
+            _active.Add(j);
+            _inSet[j] = true;
             return true;
         }
 
-        void RemoveAt(int position)
+        private void RemoveAt(int position)
         {
-            var j = active[position];
-            chol.Remove(position);
-            active.RemoveAt(position);
-            inSet[j] = false;
-            x[j] = 0;
-            removals++;
+            var j = _active[position];
+            _chol.Remove(position);
+            _active.RemoveAt(position);
+            _inSet[j] = false;
+            _x[j] = 0;
+            _removals++;
         }
 
-        double[] SolveActive()
+        private double[] SolveActive()
         {
-            var rhs = new double[active.Count];
-            for (var k = 0; k < active.Count; k++) rhs[k] = b[active[k]];
-            return chol.Solve(rhs);
+            var rhs = new double[_active.Count];
+            for (var k = 0; k < _active.Count; k++) rhs[k] = _b[_active[k]];
+            return _chol.Solve(rhs);
         }
 
-        void MakeFeasible()
+        /// <summary>Lawson–Hanson's inner loop: step towards the unconstrained solution on the active set as far as
+        /// feasibility allows, drop the entries that reach zero, repeat until the solution is feasible.</summary>
+        private void MakeFeasible()
         {
-            for (var inner = 0; inner < 10 * n + 10; inner++)
+            for (var inner = 0; inner < 10 * _n + 10; inner++)
             {
                 var z = SolveActive();
                 var alpha = double.PositiveInfinity;
-                for (var k = 0; k < active.Count; k++)
+                for (var k = 0; k < _active.Count; k++)
                 {
-                    var j = active[k];
-                    if (eq.IsFree(j) || z[k] > 0) continue;
-                    var denom = x[j] - z[k];
-                    var a = denom > 0 ? x[j] / denom : 0;
+                    var j = _active[k];
+                    if (_eq.IsFree(j) || z[k] > 0) continue;
+                    var denom = _x[j] - z[k];
+                    var a = denom > 0 ? _x[j] / denom : 0;
                     if (a < alpha) alpha = a;
                 }
 
                 if (double.IsPositiveInfinity(alpha))
                 {
-                    for (var k = 0; k < active.Count; k++) x[active[k]] = z[k];
+                    for (var k = 0; k < _active.Count; k++) _x[_active[k]] = z[k];
                     return;
                 }
 
-                for (var k = 0; k < active.Count; k++)
+                for (var k = 0; k < _active.Count; k++)
                 {
-                    var j = active[k];
-                    x[j] += alpha * (z[k] - x[j]);
+                    var j = _active[k];
+                    _x[j] += alpha * (z[k] - _x[j]);
                 }
 
-                for (var k = active.Count - 1; k >= 0; k--)
+                for (var k = _active.Count - 1; k >= 0; k--)
                 {
-                    var j = active[k];
-                    if (!eq.IsFree(j) && x[j] <= 1e-14 * (Math.Abs(z[k]) + 1e-300))
+                    var j = _active[k];
+                    if (!_eq.IsFree(j) && _x[j] <= 1e-14 * (Math.Abs(z[k]) + 1e-300))
                         RemoveAt(k);
-                    else if (!eq.IsFree(j) && x[j] <= 0)
+                    else if (!_eq.IsFree(j) && _x[j] <= 0)
                         RemoveAt(k);
                 }
             }
         }
 
-        // free entries first, then the warm-start set
-        for (var j = 0; j < n; j++)
-            if (eq.IsFree(j)) TryAdd(j);
-        if (start.Length == n)
+        /// <summary>The KKT check with a fresh product, and the result.</summary>
+        private NnlsResult Finish(int iterations, SolverStatus status, string message, bool handedOver)
         {
-            for (var j = 0; j < n; j++)
+            _eq.Multiply(_x, _gx);
+            var violation = 0.0;
+            var activeCount = 0;
+            for (var j = 0; j < _n; j++)
             {
-                if (eq.IsFree(j) || !(start[j] > 0)) continue;
-                if (TryAdd(j)) x[j] = start[j];
+                var g = _b[j] - _gx[j];
+                if (_eq.IsFree(j) || _x[j] > 0)
+                {
+                    activeCount++;
+                    violation = Math.Max(violation, Math.Abs(g));
+                }
+                else
+                {
+                    violation = Math.Max(violation, Math.Max(0, g));
+                }
             }
+
+            return new NnlsResult(_x, iterations, _removals, status, message, violation, activeCount) { HandedOver = handedOver, Tolerance = _options.Tolerance };
         }
-
-        if (active.Count > 0) MakeFeasible();
-
-        var iterations = 0;
-        var status = SolverStatus.IterationLimit;
-        var message = "";
-        var rowProduct = options.WorkingSetFraction > 0 && n >= options.WorkingSetMinEntries ? eq as INormalRows : null;
-        List<int>? working = null; // rows looked at between whole passes; null: the next pass is a whole one
-        var everActive = new bool[n];
-        var workingGx = Array.Empty<double>();
-        var histogram = new int[256];
-        var floor = options.Tolerance; // the working set held every violator down to this gradient
-        static int Octave(double g) => (int)(BitConverter.DoubleToInt64Bits(g) >> 50);
-        foreach (var j in active) everActive[j] = true;
-        while (iterations < options.MaxIterations)
-        {
-            Cancellation.ThrowIfRequested(); // Ctrl-C / SIGTERM (Cancellation.cs)
-            var best = -1;
-            var bestValue = options.Tolerance;
-            if (working is null)
-            {
-                eq.Multiply(x, gx);
-                for (var j = 0; j < n; j++)
-                {
-                    if (inSet[j] || blocked[j] || free[j]) continue;
-                    var g = b[j] - gx[j];
-                    if (g > bestValue)
-                    {
-                        bestValue = g;
-                        best = j;
-                    }
-                }
-
-                if (rowProduct is not null && best >= 0 && double.IsFinite(bestValue))
-                {
-                    // the largest violators, about `limit` of them, in quarter-octave steps below the largest: the exponent and
-                    // the two leading mantissa bits of a positive double grow with its value
-                    var limit = Math.Max(256, (int)(options.WorkingSetFraction * n));
-                    var bestKey = Octave(bestValue);
-                    Array.Clear(histogram);
-                    for (var j = 0; j < n; j++)
-                    {
-                        if (inSet[j] || blocked[j] || free[j]) continue;
-                        var g = b[j] - gx[j];
-                        if (g > options.Tolerance) histogram[Math.Clamp(bestKey - Octave(g), 0, histogram.Length - 1)]++;
-                    }
-
-                    var depth = 0;
-                    var total = histogram[0];
-                    while (depth + 1 < histogram.Length && total + histogram[depth + 1] <= limit) total += histogram[++depth];
-                    var all = depth == histogram.Length - 1 || histogram.AsSpan(depth + 1).IndexOfAnyExcept(0) < 0;
-                    floor = all ? options.Tolerance : Math.Max(options.Tolerance, BitConverter.Int64BitsToDouble((long)(bestKey - depth) << 50));
-                    working = [];
-                    for (var j = 0; j < n; j++)
-                        if (!free[j] && (everActive[j] || b[j] - gx[j] >= floor && b[j] - gx[j] > options.Tolerance)) working.Add(j);
-                    if (workingGx.Length < working.Count) workingGx = new double[Math.Max(working.Count, 2 * workingGx.Length)];
-                }
-            }
-            else
-            {
-                rowProduct!.MultiplyRows(x, active, working, workingGx);
-                for (var r = 0; r < working.Count; r++)
-                {
-                    var j = working[r];
-                    if (inSet[j] || blocked[j]) continue;
-                    var g = b[j] - workingGx[r];
-                    if (g > bestValue)
-                    {
-                        bestValue = g;
-                        best = j;
-                    }
-                }
-
-                if ((best < 0 || bestValue < floor) && double.IsFinite(bestValue))
-                {
-                    // nothing left in the working set above the level it was cut at: look at every entry again
-                    working = null;
-                    continue;
-                }
-            }
-
-            if (!double.IsFinite(bestValue))
-            {
-                status = SolverStatus.InvalidValues;
-                message = "gradient has non-finite values";
-                break;
-            }
-
-            if (best < 0)
-            {
-                status = SolverStatus.Converged;
-                message = "KKT conditions hold";
-                break;
-            }
-
-            if (active.Count >= options.MaxActiveCount)
-            {
-                handedOver = true;
-                message = $"active set passed {options.MaxActiveCount} entries";
-                break;
-            }
-
-            iterations++;
-            everActive[best] = true;
-            if (!TryAdd(best))
-            {
-                blocked[best] = true; // numerically dependent on the active columns
-                continue;
-            }
-
-            Array.Clear(blocked);
-            MakeFeasible();
-        }
-
-        // KKT check
-        eq.Multiply(x, gx);
-        var violation = 0.0;
-        var activeCount = 0;
-        for (var j = 0; j < n; j++)
-        {
-            var g = b[j] - gx[j];
-            if (eq.IsFree(j) || x[j] > 0)
-            {
-                activeCount++;
-                violation = Math.Max(violation, Math.Abs(g));
-            }
-            else
-            {
-                violation = Math.Max(violation, Math.Max(0, g));
-            }
-        }
-
-        if (status == SolverStatus.IterationLimit && !handedOver) message = $"stopped after {iterations} iterations (limit {options.MaxIterations})";
-        return new NnlsResult(x, iterations, removals, status, message, violation, activeCount) { HandedOver = handedOver, Tolerance = options.Tolerance };
     }
 }
 
@@ -306,6 +373,7 @@ public sealed class IncrementalCholesky
 {
     private readonly List<double[]> _rows = []; // row i has i+1 entries
 
+    /// <summary>Size of the factored matrix (the number of active entries).</summary>
     public int Size => _rows.Count;
 
     /// <summary>Appends a row/column with off-diagonal entries g (against existing) and diagonal d.</summary>

@@ -63,7 +63,9 @@ public sealed class SweepOperator
         SetOffset(offsetHz);
     }
 
+    /// <summary>The cavity the sweep was taken with.</summary>
     public Instrument Instrument { get; }
+    /// <summary>The unfold's frequency grid.</summary>
     public FrequencyGrid Grid { get; }
 
     /// <summary>Points of the periodic grid over one FSR (a power of two).</summary>
@@ -72,7 +74,9 @@ public sealed class SweepOperator
     /// <summary>Step of the periodic grid, Hz.</summary>
     public double StepHz { get; }
 
+    /// <summary>Number of samples of the sweep.</summary>
     public int SampleCount { get; }
+    /// <summary>The sweep's frequency origin φ, Hz.</summary>
     public double OffsetHz { get; private set; }
 
     /// <summary>Diagonal of SᵀS on the periodic grid.</summary>
@@ -158,7 +162,7 @@ public sealed class SweepOperator
         }
     }
 
-    /// <summary><see cref="Fold"/> of a spectrum whose nonzero bins are listed (ascending) in <paramref name="nonzero"/>:
+    /// <summary><see cref="Fold(ReadOnlySpan{double}, double[])"/> of a spectrum whose nonzero bins are listed (ascending) in <paramref name="nonzero"/>:
     /// O(nonzero) instead of O(n), with the same sums in the same order.</summary>
     public void Fold(ReadOnlySpan<double> s, List<int> nonzero, double[] periodic)
     {
@@ -213,7 +217,7 @@ public sealed class SweepOperator
         }
     }
 
-    /// <summary>Transpose of <see cref="Fold"/>: periodic grid (M) → grid (n), added into <paramref name="result"/> times <paramref name="scale"/>.</summary>
+    /// <summary>Transpose of <see cref="Fold(ReadOnlySpan{double}, double[])"/>: periodic grid (M) → grid (n), added into <paramref name="result"/> times <paramref name="scale"/>.</summary>
     public void FoldTransposeAdd(double[] periodic, Span<double> result, double scale)
     {
         for (var j = 0; j < result.Length; j++)
@@ -374,6 +378,7 @@ public sealed class SweepOperator
         return q;
     }
 
+    /// <summary><paramref name="a"/> modulo <paramref name="m"/>, in [0, m).</summary>
     public static double PositiveMod(double a, double m)
     {
         var r = a % m;

@@ -22,6 +22,7 @@ public sealed class UnfoldProblem : INormalEquations, INormalRows, INormalDiagon
     private readonly double[][] _work2;
     private readonly double[][] _colCache;
 
+    /// <summary>The problem of <paramref name="sweeps"/> on <paramref name="grid"/> at fixed origins and gains, with L1 weight λ = <paramref name="l1Weight"/> and smoothness weight μ = <paramref name="smoothness"/> (whitened units), the fold on a periodic grid of step <paramref name="periodicStepHz"/>.</summary>
     public UnfoldProblem(IReadOnlyList<CalibratedSweep> sweeps, FrequencyGrid grid, IReadOnlyList<double> offsetsHz,
         IReadOnlyList<double> gains, double l1Weight, double smoothness, double periodicStepHz)
     {
@@ -92,11 +93,17 @@ public sealed class UnfoldProblem : INormalEquations, INormalRows, INormalDiagon
         _scales = new double[source._scales.Length];
     }
 
+    /// <summary>The frequency grid of the spectrum.</summary>
     public FrequencyGrid Grid { get; }
+    /// <summary>Number of unknowns: grid bins, then one background per sweep.</summary>
     public int Count { get; }
+    /// <summary>Number of sweeps.</summary>
     public int SweepCount => _sweeps.Length;
+    /// <summary>The per-sweep operators A_k.</summary>
     public IReadOnlyList<SweepOperator> Operators => _ops;
+    /// <summary>b = Aᵀy − λw, whitened.</summary>
     public ReadOnlySpan<double> RightHandSide => _rhs;
+    /// <summary>L1 weight λ in whitened units.</summary>
     public double L1Weight => _lambda;
 
     /// <summary>Smoothness weight μ in whitened units.</summary>
@@ -105,8 +112,10 @@ public sealed class UnfoldProblem : INormalEquations, INormalRows, INormalDiagon
     /// <summary>Row scale of sweep s in whitened units: gain / σ.</summary>
     public double Scale(int s) => _gains[s] / _sweeps[s].NoiseSigma;
 
+    /// <summary>The backgrounds (entries after the grid) are free; the spectrum bins are ≥ 0.</summary>
     public bool IsFree(int j) => j >= Grid.Count;
 
+    /// <summary>G x, matrix-free (fold, convolution, sampling per sweep).</summary>
     public void Multiply(ReadOnlySpan<double> x, Span<double> result)
     {
         var n = Grid.Count;
@@ -195,6 +204,7 @@ public sealed class UnfoldProblem : INormalEquations, INormalRows, INormalDiagon
     private readonly List<int> _nonzero = [];
     private readonly double[] _scales;
 
+    /// <summary>Entries G[rows, j] and the diagonal G[j, j].</summary>
     public void Column(int j, IReadOnlyList<int> rows, Span<double> result, out double diagonal)
     {
         var n = Grid.Count;

@@ -5,6 +5,7 @@ public sealed record UnfoldOptions
 {
     /// <summary>Window relative to the anchor, Hz; null: the unambiguous range of the instruments.</summary>
     public double? WindowStartHz { get; init; }
+    /// <summary>End of the window relative to the anchor, Hz; null: the unambiguous range of the instruments.</summary>
     public double? WindowEndHz { get; init; }
 
     /// <summary>Grid step, Hz; null: a quarter of the narrowest linewidth.</summary>
@@ -75,6 +76,7 @@ public sealed record UnfoldedLine(double FrequencyHz, double Intensity, double R
     /// <summary>Fitted intrinsic Lorentzian FWHM, Hz (when widths are fitted).</summary>
     public double? WidthHz { get; init; }
 
+    /// <summary>Standard uncertainty of <see cref="WidthHz"/>, Hz.</summary>
     public double? WidthSigmaHz { get; init; }
 
     /// <summary>Shift to the best alternative placement tried (a near-alias), Hz.</summary>
@@ -120,8 +122,11 @@ public sealed record UnfoldResult
     /// <summary>Recovered intensity per grid bin, relative to the strongest line's summed intensity.</summary>
     public required double[] Spectrum { get; init; }
 
+    /// <summary>The lines found, strongest-relative intensities, frequencies relative to the anchor.</summary>
     public required IReadOnlyList<UnfoldedLine> Lines { get; init; }
+    /// <summary>Each sweep's fit: origin, gain, background, χ².</summary>
     public required IReadOnlyList<SweepFit> Sweeps { get; init; }
+    /// <summary>The joint NNLS solve and its diagnostics.</summary>
     public required NnlsResult Solver { get; init; }
 
     /// <summary>L1 weight used, in whitened units.</summary>
@@ -136,6 +141,7 @@ public sealed record UnfoldResult
     /// <summary>Offset candidates tried and their χ² (for the report).</summary>
     public IReadOnlyList<OffsetTrial> OffsetTrials { get; init; } = [];
 
+    /// <summary>What a user must know about this result (doubts, fallbacks, limits reached).</summary>
     public IReadOnlyList<string> Warnings { get; init; } = [];
 
     /// <summary>Smallest relative intensity that would have been detected at each grid bin, when computed.</summary>

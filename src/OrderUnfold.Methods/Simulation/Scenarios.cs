@@ -7,6 +7,7 @@ namespace OrderUnfold.Simulation;
 /// <summary>Built-in simulated scenarios (invented for the demo, the tests and the docs).</summary>
 public static class Scenarios
 {
+    /// <summary>Names of the built-in scenarios.</summary>
     public static IReadOnlyList<string> Names { get; } = ["demo", "caesium", "single"];
 
     /// <summary>
@@ -58,6 +59,7 @@ public static class Scenarios
         Seed = 11,
     };
 
+    /// <summary>The scenario called <paramref name="name"/> (case-insensitive); unknown names are bad input.</summary>
     public static SimulationSpec ByName(string name) => name.ToLowerInvariant() switch
     {
         "demo" => Demo(),

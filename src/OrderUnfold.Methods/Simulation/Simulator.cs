@@ -21,6 +21,7 @@ public sealed record TransverseFamily(double OffsetFsr, double RelativeHeight);
 /// <summary>How one cavity is swept in the simulation.</summary>
 public sealed record SimulatedCavity
 {
+    /// <summary>The simulated cavity (its true FSR and finesse).</summary>
     public required Instrument Instrument { get; init; }
 
     /// <summary>Sweep span in FSRs for one ramp direction.</summary>
@@ -51,7 +52,9 @@ public sealed record SimulatedCavity
 /// <summary>What to simulate.</summary>
 public sealed record SimulationSpec
 {
+    /// <summary>The source's lines (absolute frequencies on any origin, intensities).</summary>
     public required IReadOnlyList<SimulatedLine> Lines { get; init; }
+    /// <summary>The cavities, one record (and calibration record) each.</summary>
     public required IReadOnlyList<SimulatedCavity> Cavities { get; init; }
 
     /// <summary>Gaussian noise σ as a fraction of the largest noiseless signal.</summary>
@@ -118,6 +121,7 @@ public sealed record SimulatedTrace(double[] TimeS, double[] RampV, double[] Sig
 /// </summary>
 public static class Simulator
 {
+    /// <summary>Peak of the simulated piezo ramp monitor, V.</summary>
     public const double RampMaxV = 10.0;
 
     /// <summary>Simulates one record of a cavity. Calibration records see a single line at the origin.</summary>
