@@ -113,53 +113,10 @@ public static class PlanReport
     }
 
     /// <summary>
-    /// CSV of the designs in the order given: one row per design, SI units named in the headers, the planned
-    /// cavities in numbered column groups (cavity2_…, cavity3_…).
+    /// plan.csv of the designs in the order given: one row per design, SI units named in the headers, the planned
+    /// cavities in numbered column groups (cavity2_…, cavity3_…). The columns are <see cref="PlanTable"/>'s.
     /// </summary>
-    public static string Csv(IReadOnlyList<DesignEvaluation> designs)
-    {
-        var maxAdded = designs.Count == 0 ? 1 : designs.Max(d => d.Added.Count);
-        var header = new List<string> { "rank", "cavities" };
-        for (var k = 0; k < maxAdded; k++)
-        {
-            var p = $"cavity{k + 2}_";
-            header.AddRange([p + "length_m", p + "fsr_hz", p + "finesse", p + "geometry", p + "tolerance_m", p + "label"]);
-        }
-
-        header.AddRange([
-            "worst_margin_linewidths", "worst_delta_hz", "nominal_margin_linewidths", "nominal_delta_hz", "sampling_error_bound_linewidths",
-            "first_alias_hz", "repeat_fsr1_multiple", "repeat_hz", "required_peak_snr", "verdict",
-        ]);
-        var sb = new StringBuilder();
-        sb.AppendLine(string.Join(",", header));
-        for (var i = 0; i < designs.Count; i++)
-        {
-            var d = designs[i];
-            var row = new List<string> { (i + 1).ToString(C), d.Cavities.Count.ToString(C) };
-            for (var k = 0; k < maxAdded; k++)
-            {
-                if (k < d.Added.Count)
-                {
-                    var a = d.Added[k];
-                    row.AddRange([Num(a.Instrument.LengthM), Num(a.Instrument.FsrHz), Num(a.Instrument.Finesse), a.Instrument.Geometry.ToString().ToLowerInvariant(),
-                        Num(a.LengthToleranceM), Quote(a.Label)]);
-                }
-                else
-                {
-                    row.AddRange(["", "", "", "", "", ""]);
-                }
-            }
-
-            row.AddRange([
-                Num(d.Robust.MarginLinewidths), Num(d.Robust.DeltaHz), Num(d.Nominal.MarginLinewidths), Num(d.Nominal.DeltaHz), Num(d.SamplingErrorBoundLinewidths),
-                Num(d.FirstAliasHz), d.Repeat is null ? "" : d.Repeat.Multiple.ToString(C), Num(d.Repeat?.RepeatHz),
-                double.IsFinite(d.RequiredPeakSnr) ? Num(d.RequiredPeakSnr) : "inf", d.VerdictText,
-            ]);
-            sb.AppendLine(string.Join(",", row));
-        }
-
-        return sb.ToString();
-    }
+    public static string Csv(IReadOnlyList<DesignEvaluation> designs) => PlanTable.Text(PlanTable.Rows(designs));
 
     /// <summary>"1000·FSR₁ = 1.499 THz", or "none up to …".</summary>
     public static string RepeatText(DesignEvaluation d, bool detailed = false)
@@ -177,10 +134,6 @@ public static class PlanReport
     private static string Linewidths(double v) => double.IsFinite(v) ? v.ToString("0.00", C) : "n/a";
 
     private static string Snr(double v) => double.IsPositiveInfinity(v) ? "∞" : v >= 100 ? v.ToString("0", C) : v.ToString("0.0#", C);
-
-    private static string Num(double? v) => v is double x ? x.ToString("R", C) : "";
-
-    private static string Quote(string? s) => Io.CsvCell.Text(s); // quoting and the formula guard (CSV injection)
 
     private static string Align(List<string[]> rows, int[] rightAligned)
     {

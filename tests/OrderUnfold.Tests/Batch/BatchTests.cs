@@ -64,7 +64,8 @@ public sealed class BatchArchiveFixture : IDisposable
 
 public class BatchTests(BatchArchiveFixture fx, ITestOutputHelper output) : IClassFixture<BatchArchiveFixture>
 {
-    private static string[] NoTiming(IEnumerable<string> lines) => lines.Select(SummaryTable.WithoutTiming).ToArray();
+    /// <summary>The summary's rows without the timing column (the one column that differs between identical runs).</summary>
+    private static SummaryRow[] NoTiming(string summaryPath) => SummaryTable.Read(summaryPath).Select(r => r.WithoutTiming()).ToArray();
 
     [Fact]
     public void ReferenceRunReportsCorruptItemsAndFinishesTheRest()
@@ -101,6 +102,10 @@ public class BatchTests(BatchArchiveFixture fx, ITestOutputHelper output) : ICla
         Assert.True(rows.Count(r => r.ModeSpacingHz is not null) >= rows.Count(r => r.Status == ItemStatus.Ok) / 2,
             "the mode analysis should give a spacing for most items");
 
+        // a rejected row's stand-in id is guarded against formula injection in the file and reads back as its folder name
+        Assert.Contains(fx.ReferenceSummary, l => l.StartsWith("'@line-0000028,failed,", StringComparison.Ordinal));
+        Assert.True(Directory.Exists(BatchLayout.Item(fx.ReferenceDir, "@line-0000028")));
+
         // a failed item holds only its record
         Assert.Equal(new[] { BatchLayout.DoneFile }, Directory.GetFiles(BatchLayout.Item(fx.ReferenceDir, "sweep-0009")).Select(Path.GetFileName));
         Assert.False(Directory.Exists(Path.Combine(fx.ReferenceDir, BatchLayout.StagingFolder, "all")));
@@ -128,7 +133,7 @@ public class BatchTests(BatchArchiveFixture fx, ITestOutputHelper output) : ICla
     {
         var dir = fx.NewDir("jobs2");
         var r = BatchRunner.Run(fx.Archive.ManifestPath, dir, new BatchOptions { Jobs = 2 });
-        Assert.Equal(NoTiming(fx.ReferenceSummary), NoTiming(File.ReadAllLines(r.SummaryPath)));
+        Assert.Equal(NoTiming(fx.Reference.SummaryPath), NoTiming(r.SummaryPath));
         foreach (var item in Directory.GetDirectories(BatchLayout.Items(fx.ReferenceDir)))
         {
             var id = Path.GetFileName(item);
@@ -173,7 +178,7 @@ public class BatchTests(BatchArchiveFixture fx, ITestOutputHelper output) : ICla
         var second = BatchRunner.Run(fx.Archive.ManifestPath, dir, new BatchOptions { Jobs = 1 });
         Assert.True(second.Complete);
         Assert.Equal(partial.Length - 1, second.Skipped);
-        Assert.Equal(NoTiming(fx.ReferenceSummary), NoTiming(File.ReadAllLines(second.SummaryPath)));
+        Assert.Equal(NoTiming(fx.Reference.SummaryPath), NoTiming(second.SummaryPath));
         Assert.False(Directory.Exists(stale));
         Assert.True(File.Exists(Path.Combine(unfinished, BatchLayout.DoneFile)));
 
@@ -228,7 +233,7 @@ public class BatchTests(BatchArchiveFixture fx, ITestOutputHelper output) : ICla
         // the same folder without --no-refine: every item that ran is run again (failed rows fail before refinement matters, but their key changes too)
         var full = BatchRunner.Run(fx.Archive.ManifestPath, dir, new BatchOptions { Jobs = 2 });
         Assert.Equal(0, full.Skipped);
-        Assert.Equal(NoTiming(fx.ReferenceSummary), NoTiming(File.ReadAllLines(full.SummaryPath)));
+        Assert.Equal(NoTiming(fx.Reference.SummaryPath), NoTiming(full.SummaryPath));
     }
 
     [Fact]
@@ -241,17 +246,17 @@ public class BatchTests(BatchArchiveFixture fx, ITestOutputHelper output) : ICla
         {
             var r = BatchRunner.Run(fx.Archive.ManifestPath, dir, new BatchOptions { Jobs = 2, Shard = new Shard(i, k) });
             Assert.EndsWith($"shard-{i}-of-{k}.csv", r.SummaryPath);
-            var ids = File.ReadLines(r.SummaryPath).Skip(1).Select(SummaryTable.IdOf).ToList();
+            var ids = SummaryTable.Read(r.SummaryPath).Select(row => row.Id).ToList();
             Assert.NotEmpty(ids);
             Assert.Empty(seen.Intersect(ids));
             seen.AddRange(ids);
         }
 
-        Assert.Equal(fx.ReferenceSummary.Skip(1).Select(SummaryTable.IdOf).Order(StringComparer.Ordinal), seen.Order(StringComparer.Ordinal));
+        Assert.Equal(SummaryTable.Read(fx.Reference.SummaryPath).Select(r => r.Id).Order(StringComparer.Ordinal), seen.Order(StringComparer.Ordinal));
         Assert.False(File.Exists(Path.Combine(dir, BatchLayout.SummaryFile)));
         var merged = BatchMerge.Run([dir]);
         Assert.Equal(fx.ReferenceSummary.Length - 1, merged.Rows);
-        Assert.Equal(NoTiming(fx.ReferenceSummary), NoTiming(File.ReadAllLines(merged.SummaryPath)));
+        Assert.Equal(NoTiming(fx.Reference.SummaryPath), NoTiming(merged.SummaryPath));
 
         // the same merge from shards in separate folders copies the items
         var separate = Enumerable.Range(0, k).Select(i => fx.NewDir($"shard{i}")).ToList();
@@ -259,7 +264,7 @@ public class BatchTests(BatchArchiveFixture fx, ITestOutputHelper output) : ICla
             BatchRunner.Run(fx.Archive.ManifestPath, separate[i], new BatchOptions { Jobs = 2, Shard = new Shard(i, k) });
         var outDir = fx.NewDir("merged");
         var m2 = BatchMerge.Run(separate, outDir);
-        Assert.Equal(NoTiming(fx.ReferenceSummary), NoTiming(File.ReadAllLines(m2.SummaryPath)));
+        Assert.Equal(NoTiming(fx.Reference.SummaryPath), NoTiming(m2.SummaryPath));
         Assert.Equal(fx.ReferenceSummary.Length - 1, m2.CopiedItems);
         Assert.True(File.Exists(Path.Combine(BatchLayout.Item(outDir, "sweep-0001"), OutputNames.Lines)));
 
@@ -303,6 +308,12 @@ public class BatchTests(BatchArchiveFixture fx, ITestOutputHelper output) : ICla
         Assert.InRange(main.DriftHzPerS!.Value, 0, 60e3);
         foreach (var name in new[] { "track.csv", "tracks.csv", "hops.csv", "series.csv", "track.png", "smsr.png" })
             Assert.True(File.Exists(Path.Combine(outDir, name)), name);
+        // the track files read back, through the same row types, as the records the run returned
+        Assert.Equal(r.Points, OrderUnfold.Io.CsvTable.Read<TrackPoint>(Path.Combine(outDir, "track.csv"), "track table"));
+        Assert.Equal(r.Tracks, OrderUnfold.Io.CsvTable.Read<TrackSummary>(Path.Combine(outDir, "tracks.csv"), "track list"));
+        Assert.Equal(r.Hops, OrderUnfold.Io.CsvTable.Read<ModeHop>(Path.Combine(outDir, "hops.csv"), "hop list"));
+        Assert.Equal(r.Series, OrderUnfold.Io.CsvTable.Read<SeriesPoint>(Path.Combine(outDir, "series.csv"), "series table"));
+        Assert.StartsWith("time_s,timestamp,id,lines,strongest_hz,smsr_db,smsr_source,mode_spacing_hz,hop\n", File.ReadAllText(Path.Combine(outDir, "series.csv")));
         // SMSR falls towards the hop (the simulated neighbour grows)
         var smsr = r.Series.Where(s => s.SmsrDb is not null).ToDictionary(s => s.Id, s => s.SmsrDb!.Value);
         Assert.True(smsr["sweep-0014"] < smsr["sweep-0002"] - 8, $"{smsr["sweep-0014"]} vs {smsr["sweep-0002"]}");

@@ -44,6 +44,14 @@ public sealed class PlanCommandTests : IDisposable
         Assert.Equal(402, csv.Length);
         Assert.StartsWith("rank,cavities,cavity2_length_m", csv[0]);
         Assert.EndsWith(",ok", csv[1]);
+        // read back through the same column groups
+        var rows = OrderUnfold.Planning.PlanTable.Read(Path.Combine(outDir, "plan.csv"));
+        Assert.Equal(401, rows.Count);
+        Assert.Equal("ok", rows[0].Margins.Verdict);
+        Assert.Equal(1, rows[0].Rank.Rank);
+        var first = Assert.Single(rows[0].Cavities);
+        Assert.InRange(first!.LengthM!.Value, 0.08, 0.12);
+        Assert.Equal(0.05e-3, first.ToleranceM!.Value, 12);
         foreach (var png in new[] { "margin.png", "candidates.png" })
         {
             var bytes = File.ReadAllBytes(Path.Combine(outDir, png));

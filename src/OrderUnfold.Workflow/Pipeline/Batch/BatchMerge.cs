@@ -1,4 +1,3 @@
-using System.Text;
 using OrderUnfold.Io;
 
 namespace OrderUnfold.Pipeline.Batch;
@@ -21,6 +20,9 @@ public sealed record MergeResult(int Shards, long Rows, long Ok, long Failed, lo
 /// </summary>
 public static class BatchMerge
 {
+    /// <summary>One shard's output: its status, the folder it wrote into, its summary and its status file.</summary>
+    private sealed record ShardOutput(BatchStatus Status, string Dir, string Summary, string StatusPath);
+
     /// <summary>Merges the shards found under <c>shards/</c> in each of <paramref name="inputDirectories"/> into <paramref name="outDirectory"/>.</summary>
     public static MergeResult Run(IReadOnlyList<string> inputDirectories, string? outDirectory = null)
     {
@@ -28,8 +30,49 @@ public static class BatchMerge
         var inputs = inputDirectories.Select(Path.GetFullPath).Distinct().ToList();
         var outDir = Path.GetFullPath(outDirectory ?? inputs[0]);
         var warnings = new List<string>();
+        var shards = CheckedShards(FindShards(inputs), inputs, warnings);
+        var n = shards[0].Status.Shard.Count;
 
-        var shards = new List<(BatchStatus Status, string Dir, string Summary, string StatusPath)>();
+        Directory.CreateDirectory(BatchLayout.Items(outDir));
+        var staging = Path.Combine(outDir, BatchLayout.StagingFolder, "merge");
+        if (Directory.Exists(staging)) Directory.Delete(staging, recursive: true);
+        Directory.CreateDirectory(staging);
+
+        long rows = 0, ok = 0, failed = 0, copied = 0;
+        IEnumerable<SummaryRow> Merged()
+        {
+            foreach (var (row, k) in MergedRows(shards, n))
+            {
+                rows++;
+                if (row.Status == ItemStatus.Ok) ok++;
+                else failed++;
+                if (shards[k].Dir != outDir && CopyItem(shards[k].Dir, outDir, row.Id, staging)) copied++;
+                yield return row;
+            }
+        }
+
+        var summaryPath = Path.Combine(outDir, BatchLayout.SummaryFile);
+        SummaryTable.Write(summaryPath, Merged());
+
+        var first = shards[0].Status;
+        new BatchStatus(Shard.All, true, first.Manifest, first.ManifestSha256, first.Tool, shards.Sum(s => s.Status.Rows), ok, failed,
+            shards.Sum(s => s.Status.Skipped)).Write(Path.Combine(outDir, BatchLayout.StatusFile));
+        try
+        {
+            Directory.Delete(staging, recursive: true);
+        }
+        catch (IOException)
+        {
+            // removed by the next merge
+        }
+
+        return new MergeResult(n, rows, ok, failed, copied, summaryPath, warnings);
+    }
+
+    /// <summary>The status files under <c>shards/</c> of each folder, in name order.</summary>
+    private static List<ShardOutput> FindShards(List<string> inputs)
+    {
+        var shards = new List<ShardOutput>();
         foreach (var dir in inputs)
         {
             if (!Directory.Exists(dir)) throw new InputException($"folder not found: {dir}", dir);
@@ -38,10 +81,16 @@ public static class BatchMerge
             foreach (var statusPath in Directory.EnumerateFiles(folder, "shard-*-of-*.json").Order(StringComparer.Ordinal))
             {
                 var status = BatchStatus.Read(statusPath);
-                shards.Add((status, dir, BatchLayout.Summary(dir, status.Shard), statusPath));
+                shards.Add(new ShardOutput(status, dir, BatchLayout.Summary(dir, status.Shard), statusPath));
             }
         }
 
+        return shards;
+    }
+
+    /// <summary>The shards of one split, each once, all finished, of one manifest, in shard order; InputException otherwise.</summary>
+    private static List<ShardOutput> CheckedShards(List<ShardOutput> shards, List<string> inputs, List<string> warnings)
+    {
         if (shards.Count == 0)
             throw new InputException($"no shard outputs (shards/shard-i-of-N.json) in {string.Join(", ", inputs)}; run 'orderunfold batch ... --shard i/N' first");
         var counts = shards.Select(s => s.Status.Shard.Count).Distinct().ToList();
@@ -60,81 +109,44 @@ public static class BatchMerge
             throw new InputException("the shards ran different manifests (their manifest SHA-256 differ); merge the shards of one batch only");
         if (shards.Select(s => s.Status.Tool).Distinct().Count() > 1)
             warnings.Add($"the shards were run by different tool builds ({string.Join(", ", shards.Select(s => s.Status.Tool).Distinct())})");
-        shards = shards.OrderBy(s => s.Status.Shard.Index).ToList();
+        return shards.OrderBy(s => s.Status.Shard.Index).ToList();
+    }
 
-        Directory.CreateDirectory(BatchLayout.Items(outDir));
-        var staging = Path.Combine(outDir, BatchLayout.StagingFolder, "merge");
-        if (Directory.Exists(staging)) Directory.Delete(staging, recursive: true);
-        Directory.CreateDirectory(staging);
-
-        long rows = 0, ok = 0, failed = 0, copied = 0;
-        var summaryPath = Path.Combine(outDir, BatchLayout.SummaryFile);
-        AtomicFile.Write(summaryPath, stream =>
-        {
-            using var w = new StreamWriter(stream, new UTF8Encoding(false), 1 << 16, leaveOpen: true) { NewLine = "\n" };
-            w.WriteLine(SummaryTable.Header);
-            var readers = new List<IEnumerator<string>>();
-            try
-            {
-                var queue = new PriorityQueue<int, string>(ItemId.Order);
-                for (var k = 0; k < shards.Count; k++)
-                {
-                    if (!File.Exists(shards[k].Summary)) throw new InputException($"shard summary not found: {shards[k].Summary}", shards[k].StatusPath);
-                    var e = File.ReadLines(shards[k].Summary).GetEnumerator();
-                    readers.Add(e);
-                    if (!e.MoveNext() || e.Current.TrimStart('\uFEFF') != SummaryTable.Header)
-                        throw new InputException($"not a batch summary: expected the header \"{SummaryTable.Header}\"", shards[k].Summary, 1);
-                    Advance(k);
-                }
-
-                string? previous = null;
-                var previousShard = -1;
-                while (queue.TryDequeue(out var k, out var id))
-                {
-                    var line = readers[k].Current;
-                    if (previous is not null && ItemId.Order.Compare(previous, id) >= 0)
-                        throw new InputException(previous == id
-                            ? $"item \"{id}\" is in shard {previousShard}/{n} and shard {k}/{n}: the shards are not disjoint"
-                            : $"the summary of shard {k}/{n} is not sorted by id (\"{id}\" after \"{previous}\")", shards[k].Summary);
-                    w.WriteLine(line);
-                    rows++;
-                    if (line.Length > id.Length + 3 && line.AsSpan(id.Length + 1).StartsWith("ok,")) ok++;
-                    else failed++;
-                    if (shards[k].Dir != outDir && CopyItem(shards[k].Dir, outDir, id, staging)) copied++;
-                    previous = id;
-                    previousShard = k;
-                    Advance(k);
-                }
-
-                void Advance(int k)
-                {
-                    while (readers[k].MoveNext())
-                    {
-                        if (readers[k].Current.Length == 0) continue;
-                        queue.Enqueue(k, SummaryTable.IdOf(readers[k].Current));
-                        return;
-                    }
-                }
-            }
-            finally
-            {
-                foreach (var r in readers) r.Dispose();
-            }
-        });
-
-        var first = shards[0].Status;
-        new BatchStatus(Shard.All, true, first.Manifest, first.ManifestSha256, first.Tool, shards.Sum(s => s.Status.Rows), ok, failed,
-            shards.Sum(s => s.Status.Skipped)).Write(Path.Combine(outDir, BatchLayout.StatusFile));
+    /// <summary>
+    /// The rows of the shard summaries (each sorted by id) in id order, with the shard each came from: one streaming
+    /// k-way merge. A shard summary out of order, or an id in two shards, is an InputException.
+    /// </summary>
+    private static IEnumerable<(SummaryRow Row, int Shard)> MergedRows(List<ShardOutput> shards, int n)
+    {
+        var readers = new List<IEnumerator<SummaryRow>>();
         try
         {
-            Directory.Delete(staging, recursive: true);
-        }
-        catch (IOException)
-        {
-            // removed by the next merge
-        }
+            var queue = new PriorityQueue<int, string>(ItemId.Order);
+            for (var k = 0; k < shards.Count; k++)
+            {
+                if (!File.Exists(shards[k].Summary)) throw new InputException($"shard summary not found: {shards[k].Summary}", shards[k].StatusPath);
+                readers.Add(SummaryTable.Read(shards[k].Summary).GetEnumerator());
+                if (readers[k].MoveNext()) queue.Enqueue(k, readers[k].Current.Id);
+            }
 
-        return new MergeResult(n, rows, ok, failed, copied, summaryPath, warnings);
+            string? previous = null;
+            var previousShard = -1;
+            while (queue.TryDequeue(out var k, out var id))
+            {
+                if (previous is not null && ItemId.Order.Compare(previous, id) >= 0)
+                    throw new InputException(previous == id
+                        ? $"item \"{id}\" is in shard {previousShard}/{n} and shard {k}/{n}: the shards are not disjoint"
+                        : $"the summary of shard {k}/{n} is not sorted by id (\"{id}\" after \"{previous}\")", shards[k].Summary);
+                yield return (readers[k].Current, k);
+                previous = id;
+                previousShard = k;
+                if (readers[k].MoveNext()) queue.Enqueue(k, readers[k].Current.Id);
+            }
+        }
+        finally
+        {
+            foreach (var r in readers) r.Dispose();
+        }
     }
 
     /// <summary>Copies one item folder into the output folder unless the same record is there already.</summary>
@@ -153,7 +165,7 @@ public static class BatchMerge
         foreach (var file in Directory.EnumerateFiles(source).Where(f => Path.GetFileName(f) != BatchLayout.DoneFile))
             File.Copy(file, Path.Combine(stage, Path.GetFileName(file)));
         File.Copy(Path.Combine(source, BatchLayout.DoneFile), Path.Combine(stage, BatchLayout.DoneFile));
-        BatchRunner.Publish(stage, target, staging);
+        BatchPublisher.Publish(stage, target, staging);
         return true;
     }
 }

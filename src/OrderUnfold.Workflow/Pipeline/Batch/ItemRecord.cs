@@ -1,4 +1,3 @@
-using System.Globalization;
 using System.Text.Json;
 using System.Text.Json.Nodes;
 using OrderUnfold.Io;
@@ -50,7 +49,8 @@ public sealed record ItemRecord
     /// <summary>True when orders were resolved (two or more cavities); false: frequencies are folded into one FSR.</summary>
     public bool? OrdersResolved { get; init; }
 
-    public double? ReducedChiSquare { get; init; }
+    /// <summary>Reduced χ² over all sweeps of the item.</summary>
+    public double? ReducedChi2 { get; init; }
 
     /// <summary>Number of warnings of the run.</summary>
     public int Warnings { get; init; }
@@ -82,7 +82,7 @@ public sealed record ItemRecord
             ["strongest_line_hz"] = Finite(StrongestLineHz),
             ["frame_fsr_hz"] = Finite(FrameFsrHz),
             ["orders_resolved"] = OrdersResolved,
-            ["reduced_chi2"] = Finite(ReducedChiSquare),
+            ["reduced_chi2"] = Finite(ReducedChi2),
             ["warnings"] = Warnings,
             ["seconds"] = Math.Round(Seconds, 4),
             ["error"] = Error,
@@ -128,7 +128,7 @@ public sealed record ItemRecord
             StrongestLineHz = (double?)o["strongest_line_hz"],
             FrameFsrHz = (double?)o["frame_fsr_hz"],
             OrdersResolved = (bool?)o["orders_resolved"],
-            ReducedChiSquare = (double?)o["reduced_chi2"],
+            ReducedChi2 = (double?)o["reduced_chi2"],
             Warnings = (int?)o["warnings"] ?? 0,
             Seconds = (double?)o["seconds"] ?? 0,
             Error = (string?)o["error"],
@@ -137,6 +137,4 @@ public sealed record ItemRecord
     }
 
     private static double? Finite(double? v) => v is double d && double.IsFinite(d) ? d : null;
-
-    internal static string F(double? v) => v is double d && double.IsFinite(d) ? d.ToString("R", CultureInfo.InvariantCulture) : "";
 }
