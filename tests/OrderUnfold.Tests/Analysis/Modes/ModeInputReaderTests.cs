@@ -150,6 +150,8 @@ public sealed class ModeInputReaderTests : IDisposable
     [InlineData("{\"orders_resolved\": false}", "folding_fsr_hz")]
     [InlineData("{\"folding_fsr_hz\": -1}", "positive")]
     [InlineData("[1, 2]", "JSON object")]
+    [InlineData("{\"schema_version\": 3}", "newer version")]
+    [InlineData("{\"lines\": [{\"order_verdict\": \"sure\"}]}", "lines[0].order_verdict")]
     [InlineData("{\"detection_limit\": 0.1,", "not valid JSON")]
     public void BadReports_AreInputErrors(string json, string fragment)
     {
