@@ -8,12 +8,12 @@ namespace OrderUnfold.Outputs;
 /// the same fields and are still read.
 /// </summary>
 public sealed record CalibrationFileRecord(
-    [property: JsonRequired] string Format,
+    string? Format,
     int? SchemaVersion,
     [property: JsonIgnore(Condition = JsonIgnoreCondition.WhenWritingNull)] int? Version,
     string? Source,
-    [property: JsonRequired] IReadOnlyList<SavedInstrument> Instruments,
-    [property: JsonRequired] IReadOnlyList<SavedAxis> Axes)
+    IReadOnlyList<SavedInstrument>? Instruments,
+    IReadOnlyList<SavedAxis>? Axes)
 {
     /// <summary>The value of <c>format</c>.</summary>
     public const string FormatName = "orderunfold-calibration";

@@ -48,6 +48,8 @@ public static class CalibrationRecords
         var version = record.SchemaVersion ?? (record.Version == CalibrationFileRecord.LegacyVersion ? record.Version : null);
         if (version is not (CalibrationFileRecord.CurrentSchemaVersion or CalibrationFileRecord.LegacyVersion))
             throw new InputException($"calibration file schema_version {record.SchemaVersion?.ToString(CultureInfo.InvariantCulture) ?? record.Version?.ToString(CultureInfo.InvariantCulture) ?? "(none)"} is not supported (this build reads {CalibrationFileRecord.CurrentSchemaVersion}, and version {CalibrationFileRecord.LegacyVersion} files)", path);
+        if (record.Instruments is null || record.Axes is null)
+            throw new InputException($"damaged calibration file: it has no \"{(record.Instruments is null ? "instruments" : "axes")}\" list", path);
         try
         {
             var instruments = record.Instruments.Select(n => new Instrument(n.Name, n.FsrHz, n.Finesse, n.Geometry, n.LengthM, n.RefractiveIndex ?? 1.0)

@@ -115,7 +115,7 @@ public static class OutputJson
     {
         var message = e.Message;
         if (message.Contains("missing required properties", StringComparison.Ordinal))
-            return $"the {what} lacks a required field: {FirstSentence(message)}";
+            return $"the {what} lacks a required field at \"{(path.StartsWith("$.", StringComparison.Ordinal) ? path[2..] : "the top")}\": {FirstSentence(message)}";
         if (!message.Contains("could not be converted", StringComparison.Ordinal))
             return $"the {what} is not valid JSON: {FirstSentence(message)}";
         if (path == "$") return $"expected a JSON object ({{ ... }}) at the top of the {what}";

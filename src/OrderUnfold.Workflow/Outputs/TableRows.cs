@@ -1,36 +1,16 @@
 using System.Globalization;
 using CsvHelper;
-using OrderUnfold.Analysis;
 using OrderUnfold.Io;
 
 namespace OrderUnfold.Outputs;
 
-/// <summary>One row of lines.csv: a line, frequencies relative to the anchor (strongest) line.</summary>
-public sealed record LineRow(
-    double? FrequencyHz,
-    double? FrequencySigmaHz,
-    double? FrequencyCrbHz,
-    double? FrequencyAxisSigmaHz,
-    double? Intensity,
-    double? IntensitySigma,
-    double? Snr,
-    double? FwhmHz,
-    double? FwhmSigmaHz,
-    OrderVerdict OrderVerdict,
-    double? AliasShiftHz,
-    double? AliasDeltaChi2,
-    double? AbsoluteFrequencyHz)
-{
-    /// <summary>The row of a report line (the same values).</summary>
-    public static LineRow Of(ReportLine l) => new(l.FrequencyHz, l.FrequencySigmaHz, l.FrequencyCrbHz, l.FrequencyAxisSigmaHz, l.Intensity,
-        l.IntensitySigma, l.Snr, l.FwhmHz, l.FwhmSigmaHz, l.OrderVerdict, l.AliasShiftHz, l.AliasDeltaChi2, l.AbsoluteFrequencyHz);
-}
-
-/// <summary>Columns of lines.csv: the fwhm columns only when widths were fitted, absolute_frequency_hz only with an anchor.</summary>
-public sealed class LineRowColumns : TableColumns<LineRow>
+/// <summary>Columns of lines.csv, one row per <see cref="ReportLine"/> (the values of report.json's lines): the fwhm columns
+/// only when widths were fitted, absolute_frequency_hz only with an anchor; frequency_bootstrap_sigma_hz and note are in
+/// report.json only.</summary>
+public sealed class LineColumns : TableColumns<ReportLine>
 {
     /// <summary>The columns of a table with or without the optional ones.</summary>
-    public LineRowColumns(bool widths, bool absolute)
+    public LineColumns(bool widths, bool absolute)
     {
         Number("frequency_hz", m => m.FrequencyHz);
         Number("frequency_sigma_hz", m => m.FrequencySigmaHz);

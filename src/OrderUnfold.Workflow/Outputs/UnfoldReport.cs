@@ -121,7 +121,7 @@ public sealed record RefinementRecord(
     string? UnambiguousStatement,
     string Uncertainties);
 
-/// <summary>One line of report.json (lines.csv holds the same values, see <see cref="LineRow"/>).</summary>
+/// <summary>One line of report.json (lines.csv holds the same values, see <see cref="LineColumns"/>).</summary>
 public sealed record ReportLine(
     double? FrequencyHz,
     double? FrequencySigmaHz,

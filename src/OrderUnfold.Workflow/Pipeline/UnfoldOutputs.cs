@@ -42,12 +42,12 @@ public static class UnfoldOutputs
     }
 
     /// <summary>lines.csv: one row per line, frequencies relative to the anchor (strongest line); the same values as the
-    /// report's lines (<see cref="LineRow"/>, columns by <see cref="LineRowMap"/>).</summary>
+    /// report's lines (<see cref="UnfoldReport.Lines"/>, columns by <see cref="LineColumns"/>).</summary>
     public static string LinesCsv(UnfoldRun run) => LinesCsv(run, Report(run));
 
     private static string LinesCsv(UnfoldRun run, UnfoldReport report) => OutputCsv.Write(
-        report.Lines.Select(LineRow.Of),
-        new LineRowColumns(widths: run.Result.Lines.Any(l => l.WidthHz is not null), absolute: run.Setup.Solve.AnchorFrequencyHz is not null));
+        report.Lines,
+        new LineColumns(widths: run.Result.Lines.Any(l => l.WidthHz is not null), absolute: run.Setup.Solve.AnchorFrequencyHz is not null));
 
     /// <summary>
     /// The unambiguous range in one wording for the console and the plots: the window's alias-free width from the

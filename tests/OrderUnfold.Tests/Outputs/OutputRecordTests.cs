@@ -58,15 +58,15 @@ public sealed class OutputRecordTests : IDisposable
     [Fact]
     public void LinesCsv_HasOptionalColumnsOnlyWhenTheyApply_AndRoundTripNumbers()
     {
-        var rows = new[] { LineRow.Of(Line(0, OrderVerdict.Secure)), LineRow.Of(Line(-2.87e9, OrderVerdict.Doubtful) with { FrequencySigmaHz = double.NaN }) };
-        var plain = OutputCsv.Write(rows, new LineRowColumns(widths: false, absolute: false)).Split('\n');
+        var rows = new[] { Line(0, OrderVerdict.Secure), Line(-2.87e9, OrderVerdict.Doubtful) with { FrequencySigmaHz = double.NaN } };
+        var plain = OutputCsv.Write(rows, new LineColumns(widths: false, absolute: false)).Split('\n');
         Assert.Equal("frequency_hz,frequency_sigma_hz,frequency_crb_hz,frequency_axis_sigma_hz,intensity,intensity_sigma,snr,order_verdict,alias_shift_hz,alias_delta_chi2", plain[0]);
         Assert.Equal("0,15000,12000,,0.30000000000000004,0.001,250,secure,-1500000000,32000", plain[1]);
         Assert.Equal("-2870000000,,12000,,0.30000000000000004,0.001,250,doubtful,-1500000000,32000", plain[2]);
         Assert.Equal("", plain[3]);
         Assert.Equal(0.1 + 0.2, double.Parse(plain[1].Split(',')[4], System.Globalization.CultureInfo.InvariantCulture));
 
-        var full = OutputCsv.Write(rows, new LineRowColumns(widths: true, absolute: true)).Split('\n')[0];
+        var full = OutputCsv.Write(rows, new LineColumns(widths: true, absolute: true)).Split('\n')[0];
         Assert.Equal("frequency_hz,frequency_sigma_hz,frequency_crb_hz,frequency_axis_sigma_hz,intensity,intensity_sigma,snr,fwhm_hz,fwhm_sigma_hz,order_verdict,alias_shift_hz,alias_delta_chi2,absolute_frequency_hz", full);
     }
 
@@ -120,6 +120,14 @@ public sealed class OutputRecordTests : IDisposable
         var v3 = Path.Combine(_dir, "v3.json");
         File.WriteAllText(v3, text.Replace("\"schema_version\": 2", "\"schema_version\": 3"));
         Assert.Contains("not supported", Assert.Throws<InputException>(() => CalibrationFile.Read(v3)).Message);
+
+        var report = Path.Combine(_dir, "report.json");
+        File.WriteAllText(report, "{\"schema_version\": 2, \"tool\": \"orderunfold\", \"lines\": []}");
+        Assert.StartsWith("not an OrderUnfold calibration file", Assert.Throws<InputException>(() => CalibrationFile.Read(report)).Message);
+
+        var noFsr = Path.Combine(_dir, "nofsr.json");
+        File.WriteAllText(noFsr, text.Replace("\"fsr_hz\": 1500000000,", ""));
+        Assert.Contains("lacks a required field", Assert.Throws<InputException>(() => CalibrationFile.Read(noFsr)).Message);
 
         var bad = Path.Combine(_dir, "bad.json");
         File.WriteAllText(bad, text.Replace("\"fsr_hz\": 1500000000", "\"fsr_hz\": \"1.5 GHz\""));
