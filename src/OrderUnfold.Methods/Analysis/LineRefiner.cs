@@ -64,6 +64,9 @@ public enum OrderVerdict
 
     /// <summary>One instrument only, or no refinement: orders are not determined.</summary>
     Unknown,
+
+    /// <summary>Orders are resolved but the line was not refined, so no alternative placement was tried.</summary>
+    Unchecked,
 }
 
 /// <summary>Diagnostics of one refinement.</summary>
@@ -600,7 +603,6 @@ public static class LineRefiner
                 {
                     AliasShiftHz = Finite(shift),
                     AliasDeltaChiSquare = Finite(dchi),
-                    Doubtful = doubtful,
                     Verdict = doubtful ? OrderVerdict.Doubtful : OrderVerdict.Secure,
                 };
                 if (doubtful)

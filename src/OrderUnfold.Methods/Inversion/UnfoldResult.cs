@@ -61,8 +61,9 @@ public sealed record UnfoldedLine(double FrequencyHz, double Intensity, double R
     /// (null when no axis uncertainty was known).</summary>
     public double? FrequencyAxisSigmaHz { get; init; }
 
-    /// <summary>True when the order of this line is not securely pinned (a near-alias fits almost as well).</summary>
-    public bool Doubtful { get; init; }
+    /// <summary>True when the order of this line is not securely pinned (a near-alias fits almost as well): read from
+    /// <see cref="Verdict"/>, the one source of the verdict.</summary>
+    public bool Doubtful => Verdict == Analysis.OrderVerdict.Doubtful;
 
     /// <summary>Cramér–Rao bound of the frequency (relative to the anchor), Hz: the unscaled covariance at the fit.</summary>
     public double? FrequencyCrbHz { get; init; }
@@ -149,6 +150,14 @@ public sealed record UnfoldResult
 
     /// <summary>True when the lines were refined off-grid against the raw sweeps.</summary>
     public bool Refined { get; init; }
+
+    /// <summary>The order verdict the outputs give a line of this result: unknown with one instrument; unchecked when the
+    /// orders are resolved but no alternative placement was tried for it (no refinement, or the refinement's order check
+    /// stopped before it: its own verdict is then unknown); else the line's own (secure or doubtful).</summary>
+    public Analysis.OrderVerdict OrderVerdictOf(UnfoldedLine line) =>
+        !OrdersResolved ? Analysis.OrderVerdict.Unknown
+        : !Refined || line.Verdict is Analysis.OrderVerdict.Unknown or Analysis.OrderVerdict.Unchecked ? Analysis.OrderVerdict.Unchecked
+        : line.Verdict;
 
     /// <summary>Reduced χ² over all sweeps.</summary>
     public double ReducedChiSquare { get; init; }

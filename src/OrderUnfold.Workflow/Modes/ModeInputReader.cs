@@ -1,7 +1,6 @@
 using System.Globalization;
-using System.Text;
-using System.Text.Json;
 using OrderUnfold.Io;
+using OrderUnfold.Outputs;
 
 namespace OrderUnfold.Analysis.Modes;
 
@@ -15,9 +14,10 @@ namespace OrderUnfold.Analysis.Modes;
 /// optional and may hold empty cells. Numbers use a decimal point.
 /// </para>
 /// <para>
-/// <c>report.json</c>: a JSON object; the top-level fields <c>detection_limit</c> (number),
-/// <c>orders_resolved</c> (true/false, default true), <c>folding_fsr_hz</c> (number) and
-/// <c>anchor_frequency_hz</c> (number) are read when present (null counts as absent); other fields are ignored.
+/// <c>report.json</c>: read into <see cref="UnfoldReport"/>, the record the unfold writes it from (a value of the wrong type
+/// anywhere is an error; unknown fields are ignored); of it this analysis uses <c>detection_limit</c> (number),
+/// <c>orders_resolved</c> (true/false, default true), <c>folding_fsr_hz</c> (number) and <c>anchor_frequency_hz</c>
+/// (number), each when present (null counts as absent).
 /// </para>
 /// </summary>
 public static class ModeInputReader
@@ -43,9 +43,9 @@ public static class ModeInputReader
 
         var linesText = InputLimits.ReadAllText(linesPath, LinesFileName);
         var reportPath = Path.Combine(dir, ReportFileName);
-        // lines.csv written by an unfold (it has the "order" column) without its report.json is the output of a run that
+        // lines.csv written by an unfold (it has the "order_verdict" column, "order" before schema 2) without its report.json is the output of a run that
         // did not finish: whether its orders are resolved is unknown, so no spacing is reported from it
-        if (!File.Exists(reportPath) && linesText.Split('\n', 2)[0].Split(',').Any(h => h.Trim() == "order"))
+        if (!File.Exists(reportPath) && linesText.Split('\n', 2)[0].Split(',').Any(h => h.Trim() is "order_verdict" or "order"))
             throw new InputException($"{LinesFileName} has no {ReportFileName} beside it: the unfold that wrote this folder did not finish, so whether its orders are resolved is unknown; run the unfold again", dir);
         var lines = ReadLines(linesPath, linesText);
         var report = File.Exists(reportPath) ? ReadReport(reportPath, System.Text.Encoding.UTF8.GetBytes(InputLimits.ReadAllText(reportPath, ReportFileName))) : new ReportFields();
@@ -147,116 +147,26 @@ public static class ModeInputReader
         double? AnchorHz = null,
         (int Line, int Column)? OrdersResolvedAt = null);
 
-    /// <summary>Reads the known top-level fields of a report; every other field is skipped.</summary>
+    /// <summary>Reads the report into the <see cref="UnfoldReport"/> record (the type the unfold writes it from) and checks the
+    /// fields this analysis uses; an error names the file, line and column.</summary>
     internal static ReportFields ReadReport(string file, byte[] json)
     {
-        var fields = new ReportFields();
-        var reader = new Utf8JsonReader(json, new JsonReaderOptions { CommentHandling = JsonCommentHandling.Skip, AllowTrailingCommas = true });
-        try
-        {
-            if (!reader.Read() || reader.TokenType != JsonTokenType.StartObject)
-            {
-                var (l, c) = Position(json, reader.TokenStartIndex);
-                throw new InputException("expected a JSON object ({ ... }) at the top of the report", file, l, c);
-            }
-
-            while (reader.Read())
-            {
-                if (reader.TokenType == JsonTokenType.EndObject && reader.CurrentDepth == 0) break;
-                if (reader.TokenType != JsonTokenType.PropertyName) continue;
-                var name = reader.GetString();
-                reader.Read();
-                var at = Position(json, reader.TokenStartIndex);
-                switch (name)
-                {
-                    case "detection_limit":
-                        fields = fields with { DetectionLimit = Number(ref reader, file, name, at) };
-                        if (fields.DetectionLimit is { } d && !(d > 0 && d <= 1))
-                            throw new InputException($"\"detection_limit\" is a relative intensity and must lie in (0, 1] but got {d.ToString(CultureInfo.InvariantCulture)}", file, at.Line, at.Column);
-                        break;
-                    case "folding_fsr_hz":
-                        fields = fields with { FoldingFsrHz = Number(ref reader, file, name, at) };
-                        if (fields.FoldingFsrHz is { } f && !(f > 0))
-                            throw new InputException($"\"folding_fsr_hz\" must be a positive frequency in Hz but got {f.ToString(CultureInfo.InvariantCulture)}", file, at.Line, at.Column);
-                        break;
-                    case "anchor_frequency_hz":
-                        fields = fields with { AnchorHz = Number(ref reader, file, name, at) };
-                        break;
-                    case "orders_resolved":
-                        fields = reader.TokenType switch
-                        {
-                            JsonTokenType.True => fields with { OrdersResolved = true, OrdersResolvedAt = at },
-                            JsonTokenType.False => fields with { OrdersResolved = false, OrdersResolvedAt = at },
-                            JsonTokenType.Null => fields,
-                            _ => throw new InputException($"expected true or false for \"orders_resolved\" but got {Describe(ref reader)}", file, at.Line, at.Column),
-                        };
-                        break;
-                    default:
-                        reader.Skip();
-                        break;
-                }
-            }
-        }
-        catch (JsonException e)
-        {
-            throw new InputException($"the report is not valid JSON: {FirstSentence(e.Message)}", file,
-                (int)(e.LineNumber ?? 0) + 1, (int)(e.BytePositionInLine ?? 0) + 1, e);
-        }
-
-        return fields;
+        var report = OutputJson.Deserialize(file, json, c => c.UnfoldReport, "report");
+        if (report.SchemaVersion > UnfoldReport.CurrentSchemaVersion)
+            throw At(file, json, "schema_version",
+                $"the report has schema_version {report.SchemaVersion}; this build reads up to {UnfoldReport.CurrentSchemaVersion} (it was written by a newer version)");
+        if (report.DetectionLimit is { } d && !(d > 0 && d <= 1) || report.DetectionLimit is { } nd && !double.IsFinite(nd))
+            throw At(file, json, "detection_limit",
+                $"\"detection_limit\" is a relative intensity and must lie in (0, 1] but got {report.DetectionLimit.Value.ToString(CultureInfo.InvariantCulture)}");
+        if (report.FoldingFsrHz is { } f && !(f > 0 && double.IsFinite(f)))
+            throw At(file, json, "folding_fsr_hz", $"\"folding_fsr_hz\" must be a positive frequency in Hz but got {f.ToString(CultureInfo.InvariantCulture)}");
+        return new ReportFields(report.DetectionLimit, report.OrdersResolved, report.FoldingFsrHz, report.AnchorFrequencyHz,
+            report.OrdersResolved is null ? null : OutputJson.ValuePosition(json, "orders_resolved"));
     }
 
-    private static double? Number(ref Utf8JsonReader reader, string file, string name, (int Line, int Column) at)
+    private static InputException At(string file, byte[] json, string field, string message)
     {
-        if (reader.TokenType == JsonTokenType.Null) return null;
-        if (reader.TokenType != JsonTokenType.Number)
-        {
-            var got = reader.TokenType switch
-            {
-                JsonTokenType.String => $"the string \"{reader.GetString()}\"",
-                JsonTokenType.True or JsonTokenType.False => reader.TokenType.ToString().ToLowerInvariant(),
-                JsonTokenType.StartObject => "an object",
-                JsonTokenType.StartArray => "an array",
-                _ => reader.TokenType.ToString(),
-            };
-            throw new InputException($"expected a number for \"{name}\" but got {got}", file, at.Line, at.Column);
-        }
-
-        var v = reader.GetDouble();
-        if (!double.IsFinite(v)) throw new InputException($"expected a finite number for \"{name}\"", file, at.Line, at.Column);
-        return v;
-    }
-
-    private static string Describe(ref Utf8JsonReader reader) => reader.TokenType switch
-    {
-        JsonTokenType.String => $"the string \"{reader.GetString()}\"",
-        JsonTokenType.Number => $"the number {Encoding.UTF8.GetString(reader.ValueSpan)}",
-        JsonTokenType.StartObject => "an object",
-        JsonTokenType.StartArray => "an array",
-        _ => reader.TokenType.ToString(),
-    };
-
-    /// <summary>1-based line and column (in characters) of a byte offset.</summary>
-    private static (int Line, int Column) Position(byte[] bytes, long offset)
-    {
-        var line = 1;
-        var lineStart = 0;
-        var end = (int)Math.Min(offset, bytes.Length);
-        for (var i = 0; i < end; i++)
-        {
-            if (bytes[i] == (byte)'\n')
-            {
-                line++;
-                lineStart = i + 1;
-            }
-        }
-
-        return (line, Encoding.UTF8.GetCharCount(bytes, lineStart, end - lineStart) + 1);
-    }
-
-    private static string FirstSentence(string message)
-    {
-        var cut = message.IndexOf(" Path:", StringComparison.Ordinal);
-        return (cut > 0 ? message[..cut] : message).TrimEnd();
+        var at = OutputJson.ValuePosition(json, field);
+        return new InputException(message, file, at?.Line, at?.Column);
     }
 }

@@ -40,7 +40,7 @@ public sealed class ModeInputReaderTests : IDisposable
               "detection_limit": 1e-3,
               "orders_resolved": true,
               "anchor_frequency_hz": 473.612e12,
-              "lines": [1, 2, 3]
+              "notes": ["written by hand"]
             }
             """);
         var input = ModeInputReader.FromResultDirectory(_dir);
@@ -140,7 +140,7 @@ public sealed class ModeInputReaderTests : IDisposable
         Assert.Equal(Path.Combine(_dir, "report.json"), e.File);
         Assert.Equal(2, e.Line);
         Assert.Equal(22, e.Column);
-        Assert.Equal("expected a number for \"detection_limit\" but got the string \"1e-3\"", e.Message);
+        Assert.Equal("expected a number for \"detection_limit\"", e.Message);
     }
 
     [Theory]
@@ -150,6 +150,8 @@ public sealed class ModeInputReaderTests : IDisposable
     [InlineData("{\"orders_resolved\": false}", "folding_fsr_hz")]
     [InlineData("{\"folding_fsr_hz\": -1}", "positive")]
     [InlineData("[1, 2]", "JSON object")]
+    [InlineData("{\"schema_version\": 3}", "newer version")]
+    [InlineData("{\"lines\": [{\"order_verdict\": \"sure\"}]}", "lines[0].order_verdict")]
     [InlineData("{\"detection_limit\": 0.1,", "not valid JSON")]
     public void BadReports_AreInputErrors(string json, string fragment)
     {
