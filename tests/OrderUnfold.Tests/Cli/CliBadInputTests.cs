@@ -255,7 +255,7 @@ public class CliBadInputTests(CliTestFolder folder, ITestOutputHelper output) : 
         Assert.Equal(2, Run().Code); // no command at all is a usage error (help is printed)
         var usage = Run("help", "unfold");
         Assert.Equal(0, usage.Code);
-        Assert.Contains("orderunfold unfold SETUP", usage.Out);
+        Assert.Contains("orderunfold unfold <SETUP>", usage.Out); // the generated usage line
         Assert.Equal(0, Run("unfold", "--help").Code);
     }
 
