@@ -32,6 +32,12 @@ internal abstract class VerbCommand : Command
     /// </summary>
     protected abstract int Run(ParseResult parse);
 
+    /// <summary>Adds the command's options, in the order its help lists them.</summary>
+    protected void AddOptions(IEnumerable<Option> options)
+    {
+        foreach (var option in options) Add(option);
+    }
+
     /// <summary>A required argument (a path) with its description.</summary>
     protected static Argument<string> PathArgument(string name, string description) => new(name) { Description = description };
 }

@@ -41,8 +41,7 @@ internal sealed class BatchCommand : VerbCommand
     public BatchCommand(CliContext cli) : base("batch", "unfold every item of a manifest (parallel, resumable, shardable) into one summary", cli)
     {
         Add(_manifest);
-        foreach (var option in new Option[] { _out, _jobs, _shard, _setup, _calibration, _plots, _noPlots, _noRefine, _retryFailed, _quiet })
-            Add(option);
+        AddOptions([_out, _jobs, _shard, _setup, _calibration, _plots, _noPlots, _noRefine, _retryFailed, _quiet]);
     }
 
     public override string Details => """

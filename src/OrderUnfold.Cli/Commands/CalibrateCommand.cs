@@ -25,12 +25,7 @@ internal sealed class CalibrateCommand : VerbCommand
         : base("calibrate", "calibrate sweep axes and instruments (also from the sweeps themselves) and save the calibration", cli)
     {
         Add(_setup);
-        Add(_out);
-        Add(_selfCalibrate);
-        Add(_knownInterval);
-        Add(_refineFsr);
-        Add(_noPlots);
-        Add(_quiet);
+        AddOptions([_out, _selfCalibrate, _knownInterval, _refineFsr, _noPlots, _quiet]);
     }
 
     public override string Details => """

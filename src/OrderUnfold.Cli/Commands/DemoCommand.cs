@@ -16,10 +16,7 @@ internal sealed class DemoCommand : VerbCommand
 
     public DemoCommand(CliContext cli) : base("demo", "run the whole job on the built-in demo (simulated data) and compare with the truth", cli)
     {
-        Add(_out);
-        Add(_data);
-        Add(_noPlots);
-        Add(_quiet);
+        AddOptions([_out, _data, _noPlots, _quiet]);
     }
 
     public override string Details => """

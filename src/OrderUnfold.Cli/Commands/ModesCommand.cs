@@ -36,8 +36,7 @@ internal sealed class ModesCommand : VerbCommand
     public ModesCommand(CliContext cli) : base("modes", "laser modes: spacing, count, side-mode suppression, envelope; PASS/FAIL", cli)
     {
         Add(_target);
-        foreach (var option in new Option[] { _out, _within, _groupIndex, _requireSmsr, _requireMaxModes, _minModesForComb, _combTolerance, _spacingMin, _spacingMax, _noPlots })
-            Add(option);
+        AddOptions([_out, _within, _groupIndex, _requireSmsr, _requireMaxModes, _minModesForComb, _combTolerance, _spacingMin, _spacingMax, _noPlots]);
     }
 
     public override string Details => """

@@ -18,7 +18,7 @@ internal sealed class PlanCommand : VerbCommand
 
     public PlanCommand(CliContext cli) : base("plan", "choose cavity lengths that keep aliases away over the source's span", cli)
     {
-        foreach (var option in _options.All) Add(option);
+        AddOptions(_options.All);
     }
 
     public override string Details => """

@@ -17,10 +17,7 @@ internal sealed class SimulateArchiveCommand : VerbCommand
 
     public SimulateArchiveCommand(CliContext cli) : base("simulate-archive", "write a simulated archive of sweeps (demo for batch, merge and track)", cli)
     {
-        Add(_out);
-        Add(_items);
-        Add(_seed);
-        Add(_noHop);
+        AddOptions([_out, _items, _seed, _noHop]);
     }
 
     public override string Details => $"""

@@ -37,12 +37,12 @@ internal sealed class SimulateCommand : VerbCommand
 
     public SimulateCommand(CliContext cli) : base("simulate", "write simulated sweeps and a matching setup for a described source", cli)
     {
-        foreach (var option in new Option[]
-                 {
-                     _out, _scenario, _lines, _lengths, _fsr, _geometry, _finesse, _spanFsr, _samples, _noise, _bits, _seed, _singleRamp,
-                     _noCalibration, _sampleInterval, _families, _ringDown, _fullScale, _statedFsrFactor, _statedFinesseFactor, _splitChannels,
-                 })
-            Add(option);
+        AddOptions(
+        [
+            _out, _scenario, _lines, _lengths, _fsr, _geometry, _finesse, _spanFsr, _samples, _noise, _bits, _seed,
+            _singleRamp, _noCalibration, _sampleInterval, _families, _ringDown, _fullScale, _statedFsrFactor,
+            _statedFinesseFactor, _splitChannels,
+        ]);
     }
 
     public override string Details => """

@@ -21,11 +21,7 @@ internal sealed class TrackCommand : VerbCommand
     public TrackCommand(CliContext cli) : base("track", "follow lines through a time-ordered batch: drift, mode hops, SMSR over time", cli)
     {
         Add(_folder);
-        Add(_out);
-        Add(_tolerance);
-        Add(_frame);
-        Add(_maxGap);
-        Add(_noPlots);
+        AddOptions([_out, _tolerance, _frame, _maxGap, _noPlots]);
     }
 
     public override string Details => """

@@ -18,10 +18,7 @@ internal sealed class UnfoldCommand : VerbCommand
     public UnfoldCommand(CliContext cli) : base("unfold", "solve for the spectrum from the sweeps a setup file names", cli)
     {
         Add(_setup);
-        Add(_out);
-        Add(_calibration);
-        Add(_noPlots);
-        Add(_quiet);
+        AddOptions([_out, _calibration, _noPlots, _quiet]);
     }
 
     public override string Details => """

@@ -1,4 +1,3 @@
-using System.Globalization;
 using Xunit;
 
 // Namespace deliberately not OrderUnfold.Tests.Cli: a namespace named Cli under OrderUnfold.Tests would hide the
@@ -7,26 +6,14 @@ namespace OrderUnfold.Tests.CommandLine;
 
 /// <summary>
 /// The command line itself (System.CommandLine under the project's messages): help, version, the options every
-/// command shares, and parse errors mapped to one message and exit code 2. Nothing here reads data; the few
-/// commands that run write into a temporary folder.
+/// command shares, and parse errors mapped to one message and exit code 2. Nothing here reads data or writes files.
 /// </summary>
-public sealed class CommandLineTests : IDisposable
+public sealed class CommandLineTests
 {
-    private readonly string _dir = Directory.CreateTempSubdirectory("orderunfold-cli-line-").FullName;
+    /// <summary>A folder no test creates: every command line here fails (or prints) before writing anything.</summary>
+    private readonly string _dir = Path.Combine(Path.GetTempPath(), "orderunfold-cli-line-" + Guid.NewGuid().ToString("N"));
 
-    public void Dispose()
-    {
-        try { Directory.Delete(_dir, recursive: true); }
-        catch (IOException) { }
-    }
-
-    private static (int Code, string Out, string Err) Run(params string[] args)
-    {
-        var stdout = new StringWriter(CultureInfo.InvariantCulture);
-        var stderr = new StringWriter(CultureInfo.InvariantCulture);
-        var code = OrderUnfold.Cli.Cli.Run(args, stdout, stderr);
-        return (code, stdout.ToString(), stderr.ToString());
-    }
+    private static (int Code, string Out, string Err) Run(params string[] args) => CliRun.Run(args);
 
     /// <summary>A parse error: exit code 2, nothing on standard output, a message naming the command, no stack trace.</summary>
     private static string UsageError(params string[] args)
@@ -131,7 +118,7 @@ public sealed class CommandLineTests : IDisposable
             : ["plan", "--first-length", "100 mm", "--finesse", "150", "--span", "20 GHz", "--second-length", "93.7 mm", "--simulate", "--lines", "0 GHz, 3.2 GHz@0.5"];
         var message = UsageError(args);
         Assert.Contains("--lines: entry \"3.2 GHz@0.5\": the relative intensity follows ':', not '@': write \"3.2 GHz:0.5\"", message);
-        Assert.False(Directory.Exists(Path.Combine(_dir, "sim")));
+        Assert.False(Directory.Exists(_dir));
     }
 
     [Fact]
