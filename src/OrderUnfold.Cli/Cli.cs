@@ -24,7 +24,7 @@ public static class Cli
         var tree = new CommandTree(new CliContext(stdout, stderr, services ?? CliServices.Default));
         var parse = tree.Root.Parse(argv, CommandTree.Parsing);
         var command = parse.CommandResult.Command;
-        if (ParseErrorMessage.Of(parse, tree.Root, tree.Verbs) is { } problem)
+        if (ParseErrorMessage.Of(parse, argv, tree.Root, tree.Verbs) is { } problem)
         {
             stderr.WriteLine(problem);
             if (command != tree.Root) stderr.WriteLine($"(see '{Hint.Command("help " + command.Name)}')");

@@ -24,4 +24,4 @@ public sealed record CliServices
 /// <param name="Out">Results and summaries.</param>
 /// <param name="Error">Progress, warnings and error messages.</param>
 /// <param name="Services">Dependencies of the commands.</param>
-public sealed record CliContext(TextWriter Out, TextWriter Error, CliServices Services);
+internal sealed record CliContext(TextWriter Out, TextWriter Error, CliServices Services);

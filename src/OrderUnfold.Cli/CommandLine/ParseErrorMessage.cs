@@ -10,13 +10,15 @@ namespace OrderUnfold.Cli.CommandLine;
 internal static class ParseErrorMessage
 {
     /// <summary>The message for the first problem of <paramref name="parse"/>, or null when it parsed cleanly.</summary>
-    public static string? Of(ParseResult parse, Command root, IReadOnlyList<Command> verbs)
+    public static string? Of(ParseResult parse, IReadOnlyList<string> argv, Command root, IReadOnlyList<Command> verbs)
     {
         var command = parse.CommandResult.Command;
         var unknown = OptionTakenAsArgument(parse, command) ?? parse.UnmatchedTokens.FirstOrDefault();
-        if (parse.Errors.Count == 0 && unknown is null) return null;
+        var flag = FlagGivenAValue(argv, command, root);
+        if (parse.Errors.Count == 0 && unknown is null && flag is null) return null;
         var isRoot = command == root;
         var prefix = isRoot ? "orderunfold: " : $"orderunfold {command.Name}: ";
+        if (flag is not null) return prefix + $"{flag} is a flag and takes no value";
         if (unknown is not null) return prefix + Unmatched(unknown, command, isRoot, verbs);
         var error = parse.Errors[0];
         return prefix + error.SymbolResult switch
@@ -38,6 +40,16 @@ internal static class ParseErrorMessage
         command.Arguments.Select(a => parse.GetResult(a)).OfType<ArgumentResult>()
             .SelectMany(r => r.Tokens).Select(t => t.Value)
             .FirstOrDefault(v => v.Length > 2 && v.StartsWith("--", StringComparison.Ordinal));
+
+    /// <summary>A flag written with a value (<c>--quiet=yes</c>), which System.CommandLine would split into the flag and an argument.</summary>
+    private static string? FlagGivenAValue(IReadOnlyList<string> argv, Command command, Command root)
+    {
+        var flags = command.Options.Concat(root.Options.Where(o => o.Recursive)).Where(o => o.ValueType == typeof(bool)).Select(o => o.Name).ToHashSet();
+        return argv.TakeWhile(a => a != "--")
+            .Where(a => a.StartsWith("--", StringComparison.Ordinal) && a.Contains('='))
+            .Select(a => a[..a.IndexOf('=')])
+            .FirstOrDefault(flags.Contains);
+    }
 
     private static string Unmatched(string token, Command command, bool isRoot, IReadOnlyList<Command> verbs)
     {

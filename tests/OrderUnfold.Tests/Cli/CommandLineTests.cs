@@ -90,6 +90,7 @@ public sealed class CommandLineTests
         Assert.Contains("unexpected argument 'b.toml'", UsageError("unfold", setup, "b.toml"));
         Assert.Contains("--out needs a value", UsageError("unfold", setup, "--out"));
         Assert.Contains("--out is given more than once", UsageError("unfold", setup, "--out", "a", "--out", "b"));
+        Assert.Contains("--quiet is a flag and takes no value", UsageError("unfold", "--quiet=yes", setup));
         Assert.Contains("--out DIR is required", UsageError("simulate"));
         Assert.Contains("--jobs expects a whole number ≥ 1 but got '0'", UsageError("batch", "m.csv", "--out", _dir, "--jobs", "0"));
         Assert.Contains("--frame expects scan or anchor but got 'sideways'", UsageError("track", _dir, "--frame", "sideways"));
