@@ -11,15 +11,9 @@ namespace OrderUnfold.Tests.CommandLine;
 /// The batch command runs the item analysis it is given (<see cref="CliServices.BatchItemAnalysis"/>), not one set in
 /// a static: two runs in one process with different analyses do not see each other's. Data: a small simulated archive.
 /// </summary>
-public sealed class CliServicesTests : IDisposable
+public sealed class CliServicesTests(CliTestFolder folder) : IClassFixture<CliTestFolder>
 {
-    private readonly string _dir = Directory.CreateTempSubdirectory("orderunfold-cli-services-").FullName;
-
-    public void Dispose()
-    {
-        try { Directory.Delete(_dir, recursive: true); }
-        catch (IOException) { }
-    }
+    private readonly string _dir = Path.Combine(folder.Root, "services");
 
     /// <summary>Counts the items it is asked about and fills the mode-spacing column with a marker.</summary>
     private sealed class Marking(string marker) : IItemAnalysis
