@@ -1,33 +1,37 @@
+using System.CommandLine;
+using OrderUnfold.Cli.CommandLine;
 using OrderUnfold.Io;
 
 namespace OrderUnfold.Cli.Commands;
 
 /// <summary><c>orderunfold init [PATH]</c>: writes the commented setup template.</summary>
-public sealed class InitCommand : ICommand
+internal sealed class InitCommand : VerbCommand
 {
-    public string Name => "init";
-    public string Summary => "write a commented setup template to edit";
+    private readonly Argument<string?> _path = new("PATH") { Arity = ArgumentArity.ZeroOrOne, Description = "where the template goes (default: setup.toml)" };
+    private readonly Option<bool> _force = ValueOptions.Flag("--force", "overwrite an existing file");
 
-    public string Usage => """
-        orderunfold init [PATH] [--force]
+    public InitCommand(CliContext cli) : base("init", "write a commented setup template to edit", cli)
+    {
+        Add(_path);
+        Add(_force);
+    }
 
-        Writes a commented setup template (default PATH: setup.toml). Every key is explained in the
-        template and in docs/setup.md. An existing file is not overwritten unless --force is given.
+    public override string Details => """
+        Every key is explained in the template and in docs/setup.md. An existing file is not overwritten
+        unless --force is given (exit code 2).
         """;
 
-    public int Run(string[] args, TextWriter stdout, TextWriter stderr)
+    protected override int Run(ParseResult parse)
     {
-        var a = new Args(Name, args, [], ["force"]);
-        var path = a.Positionals.Count > 0 ? a.Positionals[0] : "setup.toml";
-        a.NoMorePositionals(1);
-        if (File.Exists(path) && !a.Flag("force"))
+        var path = parse.GetValue(_path) ?? "setup.toml";
+        if (File.Exists(path) && !parse.GetValue(_force))
         {
-            stderr.WriteLine($"{path}: exists already; use --force to overwrite it");
+            Error.WriteLine($"{path}: exists already; use --force to overwrite it");
             return ExitCodes.BadInput;
         }
 
         AtomicFile.WriteAllText(path, SetupReader.Template());
-        stdout.WriteLine($"wrote {Path.GetFullPath(path)}: edit the instruments and the sweep files, then run '{Hint.Command("unfold " + Hint.Quote(path))}'");
+        Out.WriteLine($"wrote {Path.GetFullPath(path)}: edit the instruments and the sweep files, then run '{Hint.Command("unfold " + Hint.Quote(path))}'");
         return ExitCodes.Ok;
     }
 }

@@ -14,13 +14,7 @@ namespace OrderUnfold.Tests.CommandLine;
 /// </summary>
 public class CliBadInputTests(CliTestFolder folder, ITestOutputHelper output) : IClassFixture<CliTestFolder>
 {
-    private static (int Code, string Out, string Err) Run(params string[] args)
-    {
-        var stdout = new StringWriter(CultureInfo.InvariantCulture);
-        var stderr = new StringWriter(CultureInfo.InvariantCulture);
-        var code = OrderUnfold.Cli.Cli.Run(args, stdout, stderr);
-        return (code, stdout.ToString(), stderr.ToString());
-    }
+    private static (int Code, string Out, string Err) Run(params string[] args) => CliRun.Run(args);
 
     /// <summary>Runs unfold on a setup and checks the common contract; returns the single message.</summary>
     private string UnfoldFails(string setup, string outDir)
@@ -255,7 +249,7 @@ public class CliBadInputTests(CliTestFolder folder, ITestOutputHelper output) : 
         Assert.Equal(2, Run().Code); // no command at all is a usage error (help is printed)
         var usage = Run("help", "unfold");
         Assert.Equal(0, usage.Code);
-        Assert.Contains("orderunfold unfold SETUP", usage.Out);
+        Assert.Contains("orderunfold unfold <SETUP>", usage.Out); // the generated usage line
         Assert.Equal(0, Run("unfold", "--help").Code);
     }
 

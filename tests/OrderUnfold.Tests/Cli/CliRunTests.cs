@@ -26,13 +26,7 @@ public sealed class CliRunTests(ITestOutputHelper output) : IDisposable
         }
     }
 
-    private static (int Code, string Out, string Err) Run(params string[] args)
-    {
-        var stdout = new StringWriter(CultureInfo.InvariantCulture);
-        var stderr = new StringWriter(CultureInfo.InvariantCulture);
-        var code = OrderUnfold.Cli.Cli.Run(args, stdout, stderr);
-        return (code, stdout.ToString(), stderr.ToString());
-    }
+    private static (int Code, string Out, string Err) Run(params string[] args) => CliRun.Run(args);
 
     private static string Sha256(string path) => Convert.ToHexString(SHA256.HashData(File.ReadAllBytes(path)));
 

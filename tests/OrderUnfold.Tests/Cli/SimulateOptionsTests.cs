@@ -1,4 +1,3 @@
-using System.Globalization;
 using OrderUnfold.Io;
 using Xunit;
 
@@ -15,13 +14,7 @@ public sealed class SimulateOptionsTests : IDisposable
         catch (IOException) { }
     }
 
-    private static (int Code, string Out, string Err) Run(params string[] args)
-    {
-        var stdout = new StringWriter(CultureInfo.InvariantCulture);
-        var stderr = new StringWriter(CultureInfo.InvariantCulture);
-        var code = OrderUnfold.Cli.Cli.Run(args, stdout, stderr);
-        return (code, stdout.ToString(), stderr.ToString());
-    }
+    private static (int Code, string Out, string Err) Run(params string[] args) => CliRun.Run(args);
 
     [Fact]
     public void Help_lists_every_new_option()

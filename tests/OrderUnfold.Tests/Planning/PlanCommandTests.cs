@@ -106,7 +106,7 @@ public sealed class PlanCommandTests : IDisposable
         File.WriteAllText(cat, "# spacers in stock (invented)\n150 mm, A-1\n92.9 mm, B-7\n75 mm, C-3\n");
         var outDir = Path.Combine(_dir, "cat");
         var (code, stdout, stderr) = Run("--first-length", "100 mm", "--finesse", "100", "--span", "3 GHz", "--catalogue", cat, "--out", outDir,
-            "--simulate", "--lines", "0 GHz, 0.41 GHz@0.6", "--samples", "2000");
+            "--simulate", "--lines", "0 GHz, 0.41 GHz:0.6", "--samples", "2000");
         Assert.True(code == 0, stderr + stdout);
         Assert.Contains("B-7", stdout);
         Assert.Contains("every line came back, no ghosts", stdout);

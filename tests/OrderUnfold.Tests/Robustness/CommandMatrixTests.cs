@@ -107,7 +107,7 @@ public class CommandMatrixTests(RobustnessFolder fx) : IClassFixture<RobustnessF
         Assert.Equal(0, RunCli("unfold", Path.Combine(dir, "setup.toml"), "--out", unfolded, "--quiet", "--no-plots").Code);
 
         // modes writes beside the unfold's outputs
-        var modes = RunCli(["modes", unfolded, .. plots ? Array.Empty<string>() : ["--no-plot"]]);
+        var modes = RunCli(["modes", unfolded, .. plots ? Array.Empty<string>() : ["--no-plots"]]);
         Assert.True(modes.Code == 0, modes.Err);
         Assert.True(File.Exists(Path.Combine(unfolded, "modes.json")));
         Assert.Equal(2, RunCli("modes", Path.Combine(root, "no-such-folder")).Code);

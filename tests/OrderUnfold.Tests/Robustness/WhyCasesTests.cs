@@ -379,7 +379,7 @@ public class WhyCasesTests(RobustnessFolder fx) : IClassFixture<RobustnessFolder
         // a design that meets the alias margin, and a what-if whose weakest line drowns in the noise (simulated)
         var output = fx.NewPath("plan-whatif");
         var (code, stdout, err) = RunCli("plan", "--first-length", "100 mm", "--finesse", "150", "--second-length", "93.7 mm", "--span", "10 GHz",
-            "--simulate", "--lines", "0 GHz, 3.2 GHz@0.5, 7.9 GHz@0.02", "--noise", "0.05", "--out", output);
+            "--simulate", "--lines", "0 GHz, 3.2 GHz:0.5, 7.9 GHz:0.02", "--noise", "0.05", "--out", output);
         Assert.Equal(1, code);
         Assert.DoesNotContain("verdict: ok", stdout);
         Assert.Contains("verdict: not confirmed", stdout);

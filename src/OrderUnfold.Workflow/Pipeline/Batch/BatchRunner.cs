@@ -37,8 +37,8 @@ public sealed record BatchOptions
     /// <summary>Tool version written into the reports and the item keys.</summary>
     public string ToolVersion { get; init; } = typeof(BatchRunner).Assembly.GetName().Version?.ToString(3) ?? "0.0.0";
 
-    /// <summary>Per-item analysis for the summary's mode columns; null: <see cref="ItemAnalysisRegistry.Default"/>.</summary>
-    public IItemAnalysis? Analysis { get; init; }
+    /// <summary>Per-item analysis for the summary's mode columns (the batch command passes its own; <see cref="NoItemAnalysis"/> leaves them empty).</summary>
+    public IItemAnalysis Analysis { get; init; } = ModeItemAnalysis.Instance;
 }
 
 /// <summary>Counts so far, reported after each item.</summary>
@@ -304,7 +304,7 @@ internal sealed class BatchContext(BatchOptions options, string manifest, string
     public string? DefaultCalibration { get; } = calibration;
     public string OutDir { get; } = outDir;
     public string Staging { get; } = staging;
-    public IItemAnalysis Analysis { get; } = options.Analysis ?? ItemAnalysisRegistry.Default;
+    public IItemAnalysis Analysis { get; } = options.Analysis;
 
     /// <summary>Tool version plus the library's build id: a rebuilt library with other code re-runs finished items.</summary>
     public string Tool { get; } = $"{options.ToolVersion}+{typeof(BatchRunner).Assembly.ManifestModule.ModuleVersionId:N}";

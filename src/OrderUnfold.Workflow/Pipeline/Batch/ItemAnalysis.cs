@@ -23,19 +23,3 @@ public sealed class NoItemAnalysis : IItemAnalysis
 
     public IReadOnlyDictionary<string, string> Analyse(UnfoldRun run) => new Dictionary<string, string>();
 }
-
-/// <summary>
-/// Where the laser-mode analysis is plugged in: set <see cref="Default"/> once at start-up (before any batch
-/// runs) and every batch whose <see cref="BatchOptions.Analysis"/> is not set uses it.
-/// </summary>
-public static class ItemAnalysisRegistry
-{
-    private static IItemAnalysis _default = ModeItemAnalysis.Instance;
-
-    /// <summary>The analysis used by batches that do not name one.</summary>
-    public static IItemAnalysis Default
-    {
-        get => Volatile.Read(ref _default);
-        set => Volatile.Write(ref _default, value ?? throw new ArgumentNullException(nameof(value)));
-    }
-}

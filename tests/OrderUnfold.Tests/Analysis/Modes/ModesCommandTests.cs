@@ -1,7 +1,7 @@
 using System.Globalization;
 using System.Text.Json;
 using OrderUnfold.Analysis.Modes;
-using OrderUnfold.Cli.Commands;
+using OrderUnfold.Cli;
 using Xunit;
 
 namespace OrderUnfold.Tests.Analysis.Modes;
@@ -121,7 +121,7 @@ public sealed class ModesCommandTests : IDisposable
     {
         var dir = Laser(sideDb: -20);
         var outDir = Path.Combine(_dir, "elsewhere", "out");
-        var (code, stdout, _) = Run("modes", dir, "--out", outDir, "--group-index", "3.5", "--no-plot");
+        var (code, stdout, _) = Run("modes", dir, "--out", outDir, "--group-index", "3.5", "--no-plots");
         Assert.Equal(0, code);
         Assert.DoesNotContain("PASS", stdout);
         Assert.DoesNotContain("FAIL", stdout);
@@ -165,37 +165,34 @@ public sealed class ModesCommandTests : IDisposable
     }
 
     [Fact]
-    public void SetupFile_NeedsTheUnfoldDelegate()
+    public void SetupFile_IsUnfoldedByTheServiceTheProgramIsGiven()
     {
         var setup = Path.Combine(_dir, "setup.toml");
         File.WriteAllText(setup, "# simulated setup\n");
-        var previous = ModesCommand.UnfoldSetup;
-        try
-        {
-            ModesCommand.UnfoldSetup = null;
-            var r = Run("modes", setup);
-            Assert.Equal(2, r.Code);
-            Assert.Contains("running the unfold from a setup is not available in this build; run '", r.Err);
-            Assert.Contains(" unfold ", r.Err);
-            Assert.Contains(" modes DIR'", r.Err);
 
-            // With the delegate wired, the setup's line list is analysed (simulated: two lines 40 dB apart).
-            string? seen = null;
-            ModesCommand.UnfoldSetup = path =>
+        // The unfold is passed in (CliServices), not set in a static: here a stand-in returning a simulated line
+        // list (two lines 40 dB apart) records the path it was asked for.
+        string? seen = null;
+        var services = new CliServices
+        {
+            UnfoldForModes = path =>
             {
                 seen = path;
                 return new ModeInput([new(0, 1e6, 1, 0.01, null), new(3e10, 1e6, 1e-4, 1e-5, null)], 1e-5, true, null, null);
-            };
-            var outDir = Path.Combine(_dir, "from-setup");
-            r = Run("modes", setup, "--out", outDir, "--require-smsr", "30dB");
-            Assert.Equal(0, r.Code);
-            Assert.Equal(setup, seen);
-            Assert.True(File.Exists(Path.Combine(outDir, "modes.json")));
-        }
-        finally
-        {
-            ModesCommand.UnfoldSetup = previous;
-        }
+            },
+        };
+        var outDir = Path.Combine(_dir, "from-setup");
+        var o = new StringWriter();
+        var e = new StringWriter();
+        var code = OrderUnfold.Cli.Cli.Run(["modes", setup, "--out", outDir, "--require-smsr", "30dB"], o, e, services: services);
+        Assert.True(code == 0, e.ToString());
+        Assert.Equal(setup, seen);
+        Assert.True(File.Exists(Path.Combine(outDir, "modes.json")));
+
+        // A setup path that does not exist is bad input before any unfold.
+        seen = null;
+        Assert.Equal(2, OrderUnfold.Cli.Cli.Run(["modes", Path.Combine(_dir, "gone.toml")], o, e, services: services));
+        Assert.Null(seen);
     }
 
     [Fact]

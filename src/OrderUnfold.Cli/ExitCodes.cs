@@ -1,19 +1,4 @@
-namespace OrderUnfold.Cli.Commands;
-
-/// <summary>One CLI verb: parses its options, calls the library, prints, returns an exit code.</summary>
-public interface ICommand
-{
-    string Name { get; }
-
-    /// <summary>One line for the command list.</summary>
-    string Summary { get; }
-
-    /// <summary>Full usage text for <c>orderunfold help NAME</c>.</summary>
-    string Usage { get; }
-
-    /// <summary>Runs the command; throw <see cref="UsageException"/> or <see cref="InputException"/> for bad input.</summary>
-    int Run(string[] args, TextWriter stdout, TextWriter stderr);
-}
+namespace OrderUnfold.Cli;
 
 /// <summary>Exit codes, decided in one place.</summary>
 public static class ExitCodes
