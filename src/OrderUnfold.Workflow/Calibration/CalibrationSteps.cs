@@ -12,7 +12,8 @@ public static class CalibrationSteps
 {
     /// <summary>
     /// Fits the finesse of a calibration sweep's peaks (Airy fit, with uncertainty) and looks for transverse-mode
-    /// families; the fitted finesse replaces the width-based one when the peaks agree with each other.
+    /// families; the fitted finesse replaces the width-based one when the peaks agree with each other. The Airy fit runs
+    /// once on the axis finally chosen (the check of two readings of the peaks below fits both and keeps the chosen one's).
     /// </summary>
     /// <param name="axis">The axis <see cref="AxisCalibrator.FromCalibrationSweep"/> made of <paramref name="sweep"/>.</param>
     /// <param name="sweep">The calibration sweep segment.</param>
@@ -28,76 +29,12 @@ public static class CalibrationSteps
         // family the peaks alternate in height and the axis comes out at twice its scale without any irregular spacing.
         // Then fit the axis to repeats one FSR apart, which pairs only peaks of the same family.
         var suspicious = transverse.AlternationRatio is < 0.75 || axis.Warnings.Any(w => w.Contains("typical spacings apart", StringComparison.Ordinal));
-        if (suspicious && axis.PointCount >= 3)
-        {
-            try
-            {
-                var repeats = SelfCalibrator.Calibrate(sweep, instrument, new SelfCalibrationOptions { PeriodHz = period, FitFinesse = false }).Calibration;
-                var mid = 0.5 * (repeats.Axis.XMin + repeats.Axis.XMax);
-                var scale = repeats.Axis.Derivative(mid) / axis.Axis.Derivative(mid);
-                var useRepeats = repeats.ResidualRmsHz < 0.5 * axis.ResidualRmsHz;
-                if (Math.Abs(scale - 1) > 0.05)
-                {
-                    // two readings of the same peaks: every peak is one FSR (a confocal cavity showing both transverse
-                    // families, FSR = c/4L), or every second one is (an extra family). The finesse on each axis decides:
-                    // the wrong one scales the peak widths by the same factor.
-                    var fNumbered = FinesseFit.FromSweep(sweep, axis.Axis, period, instrument.Finesse)?.Finesse;
-                    var fRepeats = FinesseFit.FromSweep(sweep, repeats.Axis, period, instrument.Finesse)?.Finesse;
-                    double Off(double? f) => f is double v && v > 0 ? Math.Abs(Math.Log(v / instrument.Finesse)) : double.PositiveInfinity;
-                    useRepeats = Off(fRepeats) < Off(fNumbered);
-                    warnings.Add(useRepeats
-                        ? $"{sweep.Name}: not every calibration peak is the next FSR (extra peaks of another transverse family): fitted to repeats one FSR apart instead, which changes the axis scale by {100 * (scale - 1):+0.0;-0.0} % and gives finesse {fRepeats:F0} against the stated {instrument.Finesse:F0} (numbering every peak gives {fNumbered:F0})"
-                        : $"{sweep.Name}: the calibration peaks alternate in height; every peak was taken as the next FSR because that gives finesse {fNumbered:F0}, close to the stated {instrument.Finesse:F0} (taking every second peak would give {fRepeats:F0})");
-                }
+        var finesse = (FinesseEstimate?)null;
+        var fitted = false;
+        if (suspicious && axis.PointCount >= 3) (axis, finesse, fitted) = CheckTwoReadings(axis, sweep, instrument, period, warnings);
+        axis = WithPeriodEvidence(axis, sweep, instrument, period);
 
-                if (useRepeats)
-                {
-                    warnings.AddRange(repeats.Warnings);
-                    axis = axis with
-                    {
-                        Method = "calibration sweep (repeats one FSR apart; extra peaks left out)",
-                        Axis = repeats.Axis,
-                        PointX = repeats.PointX,
-                        PointHz = repeats.PointHz,
-                        ResidualHz = repeats.ResidualHz,
-                        ResidualRmsHz = repeats.ResidualRmsHz,
-                        PairsUsed = repeats.PairsUsed,
-                        PairsRejected = repeats.PairsRejected,
-                        AxisSigmaHz = repeats.AxisSigmaHz,
-                        ShapeCovariance = repeats.ShapeCovariance,
-                        Finesse = null,
-                        FinesseSigma = null,
-                    };
-                }
-            }
-            catch (InputException e)
-            {
-                warnings.Add($"{sweep.Name}: the calibration peaks look like two transverse families, but fitting repeats one FSR apart failed too: {e.Message}");
-            }
-        }
-
-        // the period decision on the calibration sweep's own peak pattern (candidates, families) as evidence; kept when
-        // it agrees with the numbered axis (same period in Hz, scale within 5 %)
-        if (axis.PeriodDecision is null && axis.PointCount >= 2)
-        {
-            try
-            {
-                var check = SelfCalibrator.Calibrate(PrepareForPeakFinding(sweep, instrument), instrument,
-                    new SelfCalibrationOptions { PeriodHz = period, FitFinesse = false }).Calibration;
-                var mid = 0.5 * (axis.Axis.XMin + axis.Axis.XMax);
-                var scale = check.Axis.Derivative(mid) / axis.Axis.Derivative(mid);
-                // with few peaks the pattern can settle on a multiple of the spacing; the numbered axis (and the
-                // alternation check above) then stands, without this evidence
-                if (check.PeriodDecision is { } d && Math.Abs(d.PeriodHz / period - 1) < 1e-9 && Math.Abs(scale - 1) < 0.05)
-                    axis = axis with { PeriodDecision = d };
-            }
-            catch (InputException)
-            {
-                // the pattern alone does not decide here (too few peaks): the numbered axis stands on its own
-            }
-        }
-
-        var finesse = FinesseFit.FromSweep(sweep, axis.Axis, period, instrument.Finesse);
+        if (!fitted) finesse = FinesseFit.FromSweep(sweep, axis.Axis, period, instrument.Finesse);
         if (finesse is not null) warnings.AddRange(finesse.Warnings.Select(w => $"{sweep.Name}: {w}"));
         var measured = finesse is { Consistent: true } ? finesse.Finesse : axis.Finesse;
         transverse = TransverseModes.Detect(sweep, axis.Axis, instrument, period, measured);
@@ -110,6 +47,85 @@ public static class CalibrationSteps
             TransverseModes = transverse,
             Warnings = warnings.Distinct().ToList(),
         };
+    }
+
+    /// <summary>
+    /// Peaks that alternate in height may be two transverse families: the axis fitted to repeats one FSR apart is compared
+    /// with the numbered one, and where their scales differ by more than 5 % the finesse on each decides (the wrong reading
+    /// scales the peak widths by the same factor). Returns the axis kept and, when both readings were fitted, the Airy fit
+    /// on the kept one (<c>Fitted</c> true; the caller does not fit it again).
+    /// </summary>
+    private static (AxisCalibration Axis, FinesseEstimate? Finesse, bool Fitted) CheckTwoReadings(AxisCalibration axis, Sweep sweep, Instrument instrument,
+        double period, List<string> warnings)
+    {
+        try
+        {
+            var repeats = SelfCalibrator.Calibrate(sweep, instrument, new SelfCalibrationOptions { PeriodHz = period, FitFinesse = false }).Calibration;
+            var mid = 0.5 * (repeats.Axis.XMin + repeats.Axis.XMax);
+            var scale = repeats.Axis.Derivative(mid) / axis.Axis.Derivative(mid);
+            var useRepeats = repeats.ResidualRmsHz < 0.5 * axis.ResidualRmsHz;
+            (FinesseEstimate? Numbered, FinesseEstimate? Repeats)? fits = null;
+            if (Math.Abs(scale - 1) > 0.05)
+            {
+                // two readings of the same peaks: every peak is one FSR (a confocal cavity showing both transverse
+                // families, FSR = c/4L), or every second one is (an extra family)
+                fits = (FinesseFit.FromSweep(sweep, axis.Axis, period, instrument.Finesse), FinesseFit.FromSweep(sweep, repeats.Axis, period, instrument.Finesse));
+                var (fNumbered, fRepeats) = (fits.Value.Numbered?.Finesse, fits.Value.Repeats?.Finesse);
+                double Off(double? f) => f is double v && v > 0 ? Math.Abs(Math.Log(v / instrument.Finesse)) : double.PositiveInfinity;
+                useRepeats = Off(fRepeats) < Off(fNumbered);
+                warnings.Add(useRepeats
+                    ? $"{sweep.Name}: not every calibration peak is the next FSR (extra peaks of another transverse family): fitted to repeats one FSR apart instead, which changes the axis scale by {100 * (scale - 1):+0.0;-0.0} % and gives finesse {fRepeats:F0} against the stated {instrument.Finesse:F0} (numbering every peak gives {fNumbered:F0})"
+                    : $"{sweep.Name}: the calibration peaks alternate in height; every peak was taken as the next FSR because that gives finesse {fNumbered:F0}, close to the stated {instrument.Finesse:F0} (taking every second peak would give {fRepeats:F0})");
+            }
+
+            var kept = fits is { } f2 ? (useRepeats ? f2.Repeats : f2.Numbered) : null;
+            if (!useRepeats) return (axis, kept, fits is not null);
+            warnings.AddRange(repeats.Warnings);
+            return (axis with
+            {
+                Method = "calibration sweep (repeats one FSR apart; extra peaks left out)",
+                Axis = repeats.Axis,
+                PointX = repeats.PointX,
+                PointHz = repeats.PointHz,
+                ResidualHz = repeats.ResidualHz,
+                ResidualRmsHz = repeats.ResidualRmsHz,
+                PairsUsed = repeats.PairsUsed,
+                PairsRejected = repeats.PairsRejected,
+                AxisSigmaHz = repeats.AxisSigmaHz,
+                ShapeCovariance = repeats.ShapeCovariance,
+                Finesse = null,
+                FinesseSigma = null,
+            }, kept, fits is not null);
+        }
+        catch (InputException e)
+        {
+            warnings.Add($"{sweep.Name}: the calibration peaks look like two transverse families, but fitting repeats one FSR apart failed too: {e.Message}");
+            return (axis, null, false);
+        }
+    }
+
+    /// <summary>The period decision on the calibration sweep's own peak pattern (candidates, families) as evidence; kept when
+    /// it agrees with the numbered axis (same period in Hz, scale within 5 %).</summary>
+    private static AxisCalibration WithPeriodEvidence(AxisCalibration axis, Sweep sweep, Instrument instrument, double period)
+    {
+        if (axis.PeriodDecision is not null || axis.PointCount < 2) return axis;
+        try
+        {
+            var check = SelfCalibrator.Calibrate(PrepareForPeakFinding(sweep, instrument), instrument,
+                new SelfCalibrationOptions { PeriodHz = period, FitFinesse = false }).Calibration;
+            var mid = 0.5 * (axis.Axis.XMin + axis.Axis.XMax);
+            var scale = check.Axis.Derivative(mid) / axis.Axis.Derivative(mid);
+            // with few peaks the pattern can settle on a multiple of the spacing; the numbered axis (and the
+            // alternation check above) then stands, without this evidence
+            if (check.PeriodDecision is { } d && Math.Abs(d.PeriodHz / period - 1) < 1e-9 && Math.Abs(scale - 1) < 0.05)
+                return axis with { PeriodDecision = d };
+        }
+        catch (InputException)
+        {
+            // the pattern alone does not decide here (too few peaks): the numbered axis stands on its own
+        }
+
+        return axis;
     }
 
     /// <summary>Axes a calibration step made (for self-calibrated ones, Source = the segment's name) and the warnings they gave.</summary>
