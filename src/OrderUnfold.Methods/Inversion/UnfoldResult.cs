@@ -39,6 +39,9 @@ public sealed record UnfoldOptions
 
     /// <summary>Most memory the unfold may need (estimated by <see cref="UnfoldMemory"/> before solving), bytes. Default 4 GB.</summary>
     public long MaxMemoryBytes { get; init; } = 4_000_000_000;
+
+    /// <summary>The fixed numbers of the unfold's stages (grid sampling, stopping rules, warnings); see <see cref="UnfoldThresholds"/>.</summary>
+    public UnfoldThresholds Thresholds { get; init; } = new();
 }
 
 /// <summary>A line: a cluster of nonzero grid bins.</summary>

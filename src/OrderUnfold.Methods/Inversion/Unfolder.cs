@@ -10,11 +10,55 @@ namespace OrderUnfold.Inversion;
 /// </summary>
 public static class Unfolder
 {
+    /// <summary>
+    /// Unfolds <paramref name="sweeps"/> in named stages: the checks of the input (<see cref="CheckSweeps"/>), the grid and
+    /// its memory estimate (<see cref="LayOutGrid"/>), the first gains (<see cref="InitialGains"/>), the sweep origins
+    /// (<see cref="OffsetSearch"/>), the joint solve with its gain and offset rounds (<see cref="JointSolve"/>), the fit of
+    /// each sweep (<see cref="FitSweeps"/>) and the lines relative to the strongest (<see cref="AnchorLines"/>).
+    /// </summary>
     public static UnfoldResult Run(IReadOnlyList<CalibratedSweep> sweeps, UnfoldOptions? options = null, IProgress<string>? progress = null)
     {
         options ??= new UnfoldOptions();
-        if (sweeps.Count == 0) throw new InputException("no sweeps to unfold");
+        CheckSweeps(sweeps);
         var warnings = new List<string>();
+        var layout = LayOutGrid(sweeps, options);
+        if (layout.Warning is { } single) warnings.Add(single);
+        progress?.Report($"grid of {layout.Grid.Count} bins; estimated memory {UnfoldMemory.Format(layout.MemoryBytes)}");
+
+        var gains = InitialGains(sweeps, options.Thresholds);
+        // origins of the sweeps, coarse to fine (OffsetSearch): the cross-correlation of folded profiles scores every
+        // origin at once, pair solves on a bounded sub-window check the best few
+        progress?.Report("finding sweep offsets");
+        var search = OffsetSearch.Run(sweeps, gains, layout.Grid, layout.StepHz, options, progress);
+
+        progress?.Report("solving NNLS on all sweeps");
+        var joint = JointSolve.Run(sweeps, layout, search.OffsetsHz, gains, options, progress);
+        var nnls = joint.Nnls;
+        if (nnls.Status != SolverStatus.Converged) warnings.Add($"NNLS did not converge: {nnls.Message} (KKT violation {nnls.KktViolation:G3})");
+
+        var fits = FitSweeps(sweeps, joint, options.Thresholds, warnings);
+        var spectrum = nnls.Solution[..layout.Grid.Count];
+        var anchored = AnchorLines(ExtractLines(joint.Problem, spectrum, options.MinSnr), layout.Grid, options.Thresholds, warnings);
+        return new UnfoldResult
+        {
+            Grid = new FrequencyGrid(layout.Grid.StartHz - anchored.AnchorHz, layout.Grid.StepHz, layout.Grid.Count),
+            Spectrum = spectrum.Select(v => v / anchored.Scale).ToArray(),
+            Lines = anchored.Lines,
+            Sweeps = fits.Fits.Select(f => f with { OffsetHz = f.OffsetHz - anchored.AnchorHz }).ToList(),
+            Solver = nnls,
+            L1Weight = joint.Problem.L1Weight,
+            OrdersResolved = layout.OrdersResolved,
+            UnambiguousRangeHz = layout.UnambiguousHz,
+            OffsetTrials = search.Trials.Select(t => t with { OffsetHz = t.OffsetHz - anchored.AnchorHz }).ToList(),
+            Warnings = warnings,
+            ReducedChiSquare = fits.ChiSquare / Math.Max(1, fits.Samples - nnls.ActiveCount - 2 * sweeps.Count),
+        };
+    }
+
+    /// <summary>Refuses sweeps that cannot be unfolded: fewer than two samples, less than one FSR, or a constant signal.</summary>
+    private static void CheckSweeps(IReadOnlyList<CalibratedSweep> sweeps)
+    {
+        if (sweeps.Count == 0) throw new InputException("no sweeps to unfold");
         foreach (var s in sweeps)
         {
             if (s.ScanHz.Length != s.Signal.Length) throw new ArgumentException($"{s.Name}: scan and signal lengths differ");
@@ -24,26 +68,30 @@ public static class Unfolder
                 throw new InputException($"sweep covers {span / s.Instrument.FsrHz:F2} FSR of '{s.Instrument.Name}'; it must cover at least one full FSR ({Units.Quantity.FormatFrequency(s.Instrument.FsrHz)}) to be unfolded", s.Name);
             if (!(s.NoiseSigma > 0)) throw new InputException("the signal is constant (no noise or signal level could be measured)", s.Name);
         }
+    }
 
+    /// <summary>
+    /// The grid of the unfold: its step (given, or the narrowest linewidth over <see cref="UnfoldThresholds.GridBinsPerLinewidth"/>),
+    /// its window (given, or the unambiguous range of the instruments; one FSR for one instrument) and the memory the
+    /// unfold will need, which must stay under <see cref="UnfoldOptions.MaxMemoryBytes"/>.
+    /// </summary>
+    internal static GridLayout LayOutGrid(IReadOnlyList<CalibratedSweep> sweeps, UnfoldOptions options)
+    {
+        var thresholds = options.Thresholds;
         var instruments = sweeps.Select(s => s.Instrument).DistinctBy(i => i.FsrHz).ToList();
         var narrowest = sweeps.Min(s => s.Instrument.LinewidthHz);
-        var step = options.GridStepHz ?? narrowest / 4;
+        var step = options.GridStepHz ?? narrowest / thresholds.GridBinsPerLinewidth;
         var ordersResolved = instruments.Count > 1;
-        double unambiguous;
-        double start, end;
-        if (ordersResolved)
+        var unambiguous = ordersResolved
+            ? AliasMargin.FirstAlias(instruments, options.AliasThresholdLinewidths, options.MaxGridBins * step)
+            : instruments[0].FsrHz;
+        var start = options.WindowStartHz ?? -unambiguous / 2;
+        var end = options.WindowEndHz ?? unambiguous / 2;
+        string? warning = null;
+        if (!ordersResolved)
         {
-            unambiguous = AliasMargin.FirstAlias(instruments, options.AliasThresholdLinewidths, options.MaxGridBins * step);
-            start = options.WindowStartHz ?? -unambiguous / 2;
-            end = options.WindowEndHz ?? unambiguous / 2;
-        }
-        else
-        {
-            unambiguous = instruments[0].FsrHz;
-            start = options.WindowStartHz ?? -unambiguous / 2;
-            end = options.WindowEndHz ?? unambiguous / 2;
             if (end - start > unambiguous) end = start + unambiguous - step;
-            warnings.Add($"only one instrument (FSR {Units.Quantity.FormatFrequency(unambiguous)}): the spectrum is folded into one FSR and the orders of the lines are unknown");
+            warning = $"only one instrument (FSR {Units.Quantity.FormatFrequency(unambiguous)}): the spectrum is folded into one FSR and the orders of the lines are unknown";
         }
 
         if (!(end > start))
@@ -57,87 +105,34 @@ public static class Unfolder
                 $"grid_step {Units.Quantity.FormatFrequency(step)} over the window {Units.Quantity.FormatFrequency(start)} to {Units.Quantity.FormatFrequency(end)} needs {binsNeeded:G4} grid bins; " +
                 $"an unfold of this size needs about {UnfoldMemory.Format(memory)} of memory, more than the limit of {UnfoldMemory.Format(options.MaxMemoryBytes)}: " +
                 "enlarge grid_step or narrow window in [solve], or raise max_memory_gb in [solve]");
-        var grid = FrequencyGrid.Covering(start, end, step);
-        progress?.Report($"grid of {grid.Count} bins; estimated memory {UnfoldMemory.Format(memory)}");
-        var periodicStep = Math.Min(step / 2, narrowest / 20);
+        var periodicStep = Math.Min(step / thresholds.PeriodicStepsPerGridStep, narrowest / thresholds.PeriodicStepsPerLinewidth);
+        return new GridLayout(FrequencyGrid.Covering(start, end, step), step, periodicStep, ordersResolved, unambiguous, memory, warning);
+    }
 
-        // initial gains from the sweep means: the mean Airy transmission over whole FSRs is Tmax/√(1+F)
+    /// <summary>First gains from the sweep means, relative to the first sweep: the mean Airy transmission over whole FSRs is
+    /// Tmax/√(1+F), so the level above the baseline times √(1+F) estimates the gain.</summary>
+    internal static double[] InitialGains(IReadOnlyList<CalibratedSweep> sweeps, UnfoldThresholds thresholds)
+    {
         var gains = new double[sweeps.Count];
         for (var k = 0; k < sweeps.Count; k++)
         {
             var y = sweeps[k].Signal;
-            var level = y.Average() - PeakFinder.Percentile(y, 0.02);
+            var level = y.Average() - PeakFinder.Percentile(y, thresholds.BaselineQuantile);
             gains[k] = Math.Max(level, 1e-300) * Math.Sqrt(1 + Airy.CoefficientOfFinesse(sweeps[k].Instrument.Finesse));
         }
 
         var g0 = gains[0];
         for (var k = 0; k < gains.Length; k++) gains[k] /= g0;
+        return gains;
+    }
 
-        // origins of the sweeps, coarse to fine (OffsetSearch): the cross-correlation of folded profiles scores every
-        // origin at once, pair solves on a bounded sub-window check the best few
-        progress?.Report("finding sweep offsets");
-        var search = OffsetSearch.Run(sweeps, gains, grid, step, options, progress);
-        var offsets = search.OffsetsHz;
-        var trials = search.Trials;
-
-        // joint solve: alternate NNLS (warm-started) with Gauss–Newton offset steps and gain refits
-        progress?.Report("solving NNLS on all sweeps");
-        UnfoldProblem problem = null!;
-        NnlsResult nnls = null!;
-        // one sweep has no relative gain or offset to refine: a single solve is the answer
-        var rounds = sweeps.Count == 1 ? 0 : Math.Max(1, options.GainRounds);
-        (double Lambda, double Mu, double[] Gains)? jointWeights = null;
-        for (var round = 0; round <= rounds; round++)
-        {
-            // the L1 and smoothness weights are set once from the first round's column norms, rescaled when gains move
-            if (jointWeights is (double l0, double mu0, double[] g0s))
-            {
-                var ratio = Math.Sqrt(gains.Zip(g0s, (g, h) => (g / h) * (g / h)).Average());
-                problem = new UnfoldProblem(sweeps, grid, offsets, gains, l0 * ratio, mu0 * ratio * ratio, periodicStep);
-            }
-            else
-            {
-                problem = BuildProblem(sweeps, grid, offsets, gains, options, periodicStep);
-                jointWeights = (problem.L1Weight, problem.SmoothnessWeight, gains.ToArray());
-            }
-
-            nnls = NnlsSolver.Solve(problem, options.Solver, SolverOptions(problem), problem.L1Weight, problem.SmoothnessWeight,
-                round == 0 ? default : nnls.Solution);
-            progress?.Report($"NNLS round {round + 1}: {nnls.ActiveCount} active entries after {nnls.Iterations} iterations ({nnls.Status})");
-            if (round == rounds) break;
-            var s = nnls.Solution.AsSpan(0, grid.Count);
-            var moved = 0.0;
-            for (var k = 1; k < sweeps.Count; k++)
-            {
-                var lw = sweeps[k].Instrument.LinewidthHz;
-                var d = Math.Clamp(problem.OffsetStep(k, nnls.Solution), -lw / 2, lw / 2);
-                offsets[k] += d;
-                moved = Math.Max(moved, Math.Abs(d) / lw);
-            }
-
-            var newGains = new double[sweeps.Count];
-            for (var k = 0; k < sweeps.Count; k++)
-            {
-                var a = problem.ForwardUnscaled(k, s);
-                newGains[k] = RegressGain(a, sweeps[k].Signal, gains[k]);
-            }
-
-            var n0 = newGains[0];
-            var gainChange = 0.0;
-            for (var k = 0; k < gains.Length; k++)
-            {
-                var g = newGains[k] / n0;
-                gainChange = Math.Max(gainChange, Math.Abs(g / gains[k] - 1));
-                gains[k] = g;
-            }
-
-            if (moved < 0.005 && gainChange < 0.002) rounds = round + 1;
-        }
-
-        if (nnls.Status != SolverStatus.Converged) warnings.Add($"NNLS did not converge: {nnls.Message} (KKT violation {nnls.KktViolation:G3})");
-
-        // sweep fits
-        var models = problem.Model(nnls.Solution);
+    /// <summary>Each sweep's fit with the joint solution (χ², reduced χ², residual RMS, model); a sweep the model fits
+    /// poorly (reduced χ² above <see cref="UnfoldThresholds.PoorFitReducedChiSquare"/>) is named in a warning.</summary>
+    private static SweepFits FitSweeps(IReadOnlyList<CalibratedSweep> sweeps, JointSolution joint, UnfoldThresholds thresholds, List<string> warnings)
+    {
+        var nnls = joint.Nnls;
+        var gridCount = joint.Problem.Grid.Count;
+        var models = joint.Problem.Model(nnls.Solution);
         var fits = new List<SweepFit>();
         double chiTotal = 0;
         var samples = 0;
@@ -156,15 +151,19 @@ public static class Unfolder
             var dof = Math.Max(1, y.Length - 2 - nnls.ActiveCount / sweeps.Count);
             chiTotal += chi;
             samples += y.Length;
-            fits.Add(new SweepFit(sweeps[k].Name, sweeps[k].Instrument.Name, offsets[k], gains[k],
-                nnls.Solution[grid.Count + k] * sweeps[k].NoiseSigma, sweeps[k].NoiseSigma, chi, chi / dof, Math.Sqrt(ss / y.Length), y.Length) { Model = m });
-            if (chi / dof > 3)
+            fits.Add(new SweepFit(sweeps[k].Name, sweeps[k].Instrument.Name, joint.OffsetsHz[k], joint.Gains[k],
+                nnls.Solution[gridCount + k] * sweeps[k].NoiseSigma, sweeps[k].NoiseSigma, chi, chi / dof, Math.Sqrt(ss / y.Length), y.Length) { Model = m });
+            if (chi / dof > thresholds.PoorFitReducedChiSquare)
                 warnings.Add($"{sweeps[k].Name}: the model does not fit well (reduced χ² = {chi / dof:F2}); check the axis calibration, the finesse and the offsets");
         }
 
-        // lines
-        var spectrum = nnls.Solution[..grid.Count];
-        var lines = ExtractLines(problem, spectrum, options.MinSnr);
+        return new SweepFits(fits, chiTotal, samples);
+    }
+
+    /// <summary>The lines relative to the strongest (the anchor: frequency 0, intensity 1), in frequency order; lines at the
+    /// window's edge and an empty line list are named in warnings.</summary>
+    private static AnchoredLines AnchorLines(List<UnfoldedLine> lines, FrequencyGrid grid, UnfoldThresholds thresholds, List<string> warnings)
+    {
         var anchorHz = 0.0;
         var scale = 1.0;
         if (lines.Count > 0)
@@ -174,32 +173,31 @@ public static class Unfolder
             scale = strongest.RawIntensity;
         }
 
-        var shiftedGrid = new FrequencyGrid(grid.StartHz - anchorHz, grid.StepHz, grid.Count);
-        var finalLines = lines.Select(l => l with { FrequencyHz = l.FrequencyHz - anchorHz, Intensity = l.RawIntensity / scale })
+        var anchored = lines.Select(l => l with { FrequencyHz = l.FrequencyHz - anchorHz, Intensity = l.RawIntensity / scale })
             .OrderBy(l => l.FrequencyHz).ToList();
-        foreach (var l in finalLines)
+        foreach (var l in anchored)
         {
-            if (l.FirstBin <= 1 || l.LastBin >= grid.Count - 2)
+            if (l.FirstBin < thresholds.EdgeBins || l.LastBin >= grid.Count - thresholds.EdgeBins)
                 warnings.Add($"line at {Units.Quantity.FormatFrequency(l.FrequencyHz)} sits at the edge of the frequency window; it may belong outside it");
         }
 
         if (lines.Count == 0) warnings.Add("no line above the detection threshold was found");
-        var fitsShifted = fits.Select(f => f with { OffsetHz = f.OffsetHz - anchorHz }).ToList();
-        return new UnfoldResult
-        {
-            Grid = shiftedGrid,
-            Spectrum = spectrum.Select(v => v / scale).ToArray(),
-            Lines = finalLines,
-            Sweeps = fitsShifted,
-            Solver = nnls,
-            L1Weight = problem.L1Weight,
-            OrdersResolved = ordersResolved,
-            UnambiguousRangeHz = unambiguous,
-            OffsetTrials = trials.Select(t => t with { OffsetHz = t.OffsetHz - anchorHz }).ToList(),
-            Warnings = warnings,
-            ReducedChiSquare = chiTotal / Math.Max(1, samples - nnls.ActiveCount - 2 * sweeps.Count),
-        };
+        return new AnchoredLines(anchored, anchorHz, scale);
     }
+
+    /// <summary>The grid stage's result.</summary>
+    /// <param name="Grid">Grid of the unfold (not yet relative to the anchor).</param>
+    /// <param name="StepHz">Grid step, Hz.</param>
+    /// <param name="PeriodicStepHz">Step of the sweep operators' periodic response table, Hz.</param>
+    /// <param name="OrdersResolved">True with two or more instruments of different FSR.</param>
+    /// <param name="UnambiguousHz">The instruments' unambiguous range (one FSR for one instrument), Hz.</param>
+    /// <param name="MemoryBytes">Estimated memory of the unfold.</param>
+    /// <param name="Warning">The single-instrument warning, when there is one instrument.</param>
+    internal sealed record GridLayout(FrequencyGrid Grid, double StepHz, double PeriodicStepHz, bool OrdersResolved, double UnambiguousHz, long MemoryBytes, string? Warning);
+
+    private sealed record SweepFits(List<SweepFit> Fits, double ChiSquare, int Samples);
+
+    private sealed record AnchoredLines(List<UnfoldedLine> Lines, double AnchorHz, double Scale);
 
     /// <summary>Folded positions (Hz within one FSR) of a sweep's peaks, strongest first, merged across repeats.</summary>
     public static List<double> FoldedPeaks(CalibratedSweep sweep)
@@ -224,13 +222,15 @@ public static class Unfolder
         return list.Select(q => q.u).ToList();
     }
 
+    /// <summary>The weighted problem: the L1 and smoothness weights are set from the median squared column norm of the
+    /// unweighted one (<see cref="UnfoldOptions.Sparsity"/>, <see cref="UnfoldOptions.Smoothness"/>).</summary>
     public static UnfoldProblem BuildProblem(IReadOnlyList<CalibratedSweep> sweeps, FrequencyGrid grid, IReadOnlyList<double> offsets,
         IReadOnlyList<double> gains, UnfoldOptions options, double periodicStep)
     {
         // first pass without penalties to measure the typical column norm, then the weighted problem
         var probe = new UnfoldProblem(sweeps, grid, offsets, gains, 0, 0, periodicStep);
         var norms = new List<double>();
-        var count = Math.Min(33, grid.Count);
+        var count = Math.Min(options.Thresholds.ColumnNormProbes, grid.Count);
         for (var i = 0; i < count; i++)
         {
             var j = (int)((long)i * (grid.Count - 1) / Math.Max(1, count - 1));
@@ -244,14 +244,17 @@ public static class Unfolder
         return probe.WithPenalties(lambda, mu);
     }
 
-    public static ActiveSetNnls.Options SolverOptions(UnfoldProblem problem)
+    /// <summary>The active-set solver's tolerance and iteration cap for <paramref name="problem"/> (see
+    /// <see cref="UnfoldThresholds.SolverMaxIterations"/> for why the cap).</summary>
+    public static ActiveSetNnls.Options SolverOptions(UnfoldProblem problem, UnfoldThresholds? thresholds = null)
     {
-        var tol = Math.Max(1e-3 * problem.L1Weight, 1e-9);
-        // The active set of a line spectrum stays far below this; a model that does not fit the data (wrong axis, wrong
-        // instrument) keeps adding bins, and this bound keeps the cost finite: the result then says it did not converge.
-        return new ActiveSetNnls.Options { Tolerance = tol, MaxIterations = Math.Min(2500, Math.Max(500, problem.Grid.Count / 4)) };
+        thresholds ??= new UnfoldThresholds();
+        var tol = Math.Max(thresholds.SolverToleranceRelative * problem.L1Weight, thresholds.SolverToleranceFloor);
+        var iterations = Math.Min(thresholds.SolverMaxIterations, Math.Max(thresholds.SolverMinIterations, problem.Grid.Count / thresholds.BinsPerSolverIteration));
+        return new ActiveSetNnls.Options { Tolerance = tol, MaxIterations = iterations };
     }
 
+    /// <summary>Σ((y − model)/σ)² over all sweeps of <paramref name="problem"/> at <paramref name="solution"/>.</summary>
     public static double ChiSquare(UnfoldProblem problem, double[] solution, IReadOnlyList<CalibratedSweep> sweeps)
     {
         var models = problem.Model(solution);
@@ -269,9 +272,6 @@ public static class Unfolder
 
         return chi;
     }
-
-    private static double RegressGain(double[] a, double[] y, double fallback) =>
-        GainFit.TryFit(a, y, out var g, out _) && g > 0 && double.IsFinite(g) ? g : fallback;
 
     private static List<UnfoldedLine> ExtractLines(UnfoldProblem problem, double[] s, double minSnr)
     {

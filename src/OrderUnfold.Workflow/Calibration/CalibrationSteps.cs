@@ -6,13 +6,14 @@ namespace OrderUnfold.Calibration;
 /// <summary>
 /// The calibration steps the pipeline runs besides the calibration-sweep axes: checks of calibration sweeps
 /// (Airy fit of the finesse, transverse modes), self-calibration of source sweeps that lack a calibration,
-/// and carrying refined FSRs into the instruments and axes.
+/// and what the calibrations measured about each cavity (period, transverse families, whether the finesse was measured).
 /// </summary>
 public static class CalibrationSteps
 {
     /// <summary>
     /// Fits the finesse of a calibration sweep's peaks (Airy fit, with uncertainty) and looks for transverse-mode
-    /// families; the fitted finesse replaces the width-based one when the peaks agree with each other.
+    /// families; the fitted finesse replaces the width-based one when the peaks agree with each other. The Airy fit runs
+    /// once on the axis finally chosen (the check of two readings of the peaks below fits both and keeps the chosen one's).
     /// </summary>
     /// <param name="axis">The axis <see cref="AxisCalibrator.FromCalibrationSweep"/> made of <paramref name="sweep"/>.</param>
     /// <param name="sweep">The calibration sweep segment.</param>
@@ -28,76 +29,12 @@ public static class CalibrationSteps
         // family the peaks alternate in height and the axis comes out at twice its scale without any irregular spacing.
         // Then fit the axis to repeats one FSR apart, which pairs only peaks of the same family.
         var suspicious = transverse.AlternationRatio is < 0.75 || axis.Warnings.Any(w => w.Contains("typical spacings apart", StringComparison.Ordinal));
-        if (suspicious && axis.PointCount >= 3)
-        {
-            try
-            {
-                var repeats = SelfCalibrator.Calibrate(sweep, instrument, new SelfCalibrationOptions { PeriodHz = period, FitFinesse = false }).Calibration;
-                var mid = 0.5 * (repeats.Axis.XMin + repeats.Axis.XMax);
-                var scale = repeats.Axis.Derivative(mid) / axis.Axis.Derivative(mid);
-                var useRepeats = repeats.ResidualRmsHz < 0.5 * axis.ResidualRmsHz;
-                if (Math.Abs(scale - 1) > 0.05)
-                {
-                    // two readings of the same peaks: every peak is one FSR (a confocal cavity showing both transverse
-                    // families, FSR = c/4L), or every second one is (an extra family). The finesse on each axis decides:
-                    // the wrong one scales the peak widths by the same factor.
-                    var fNumbered = FinesseFit.FromSweep(sweep, axis.Axis, period, instrument.Finesse)?.Finesse;
-                    var fRepeats = FinesseFit.FromSweep(sweep, repeats.Axis, period, instrument.Finesse)?.Finesse;
-                    double Off(double? f) => f is double v && v > 0 ? Math.Abs(Math.Log(v / instrument.Finesse)) : double.PositiveInfinity;
-                    useRepeats = Off(fRepeats) < Off(fNumbered);
-                    warnings.Add(useRepeats
-                        ? $"{sweep.Name}: not every calibration peak is the next FSR (extra peaks of another transverse family): fitted to repeats one FSR apart instead, which changes the axis scale by {100 * (scale - 1):+0.0;-0.0} % and gives finesse {fRepeats:F0} against the stated {instrument.Finesse:F0} (numbering every peak gives {fNumbered:F0})"
-                        : $"{sweep.Name}: the calibration peaks alternate in height; every peak was taken as the next FSR because that gives finesse {fNumbered:F0}, close to the stated {instrument.Finesse:F0} (taking every second peak would give {fRepeats:F0})");
-                }
+        var finesse = (FinesseEstimate?)null;
+        var fitted = false;
+        if (suspicious && axis.PointCount >= 3) (axis, finesse, fitted) = CheckTwoReadings(axis, sweep, instrument, period, warnings);
+        axis = WithPeriodEvidence(axis, sweep, instrument, period);
 
-                if (useRepeats)
-                {
-                    warnings.AddRange(repeats.Warnings);
-                    axis = axis with
-                    {
-                        Method = "calibration sweep (repeats one FSR apart; extra peaks left out)",
-                        Axis = repeats.Axis,
-                        PointX = repeats.PointX,
-                        PointHz = repeats.PointHz,
-                        ResidualHz = repeats.ResidualHz,
-                        ResidualRmsHz = repeats.ResidualRmsHz,
-                        PairsUsed = repeats.PairsUsed,
-                        PairsRejected = repeats.PairsRejected,
-                        AxisSigmaHz = repeats.AxisSigmaHz,
-                        ShapeCovariance = repeats.ShapeCovariance,
-                        Finesse = null,
-                        FinesseSigma = null,
-                    };
-                }
-            }
-            catch (InputException e)
-            {
-                warnings.Add($"{sweep.Name}: the calibration peaks look like two transverse families, but fitting repeats one FSR apart failed too: {e.Message}");
-            }
-        }
-
-        // the period decision on the calibration sweep's own peak pattern (candidates, families) as evidence; kept when
-        // it agrees with the numbered axis (same period in Hz, scale within 5 %)
-        if (axis.PeriodDecision is null && axis.PointCount >= 2)
-        {
-            try
-            {
-                var check = SelfCalibrator.Calibrate(PrepareForPeakFinding(sweep, instrument), instrument,
-                    new SelfCalibrationOptions { PeriodHz = period, FitFinesse = false }).Calibration;
-                var mid = 0.5 * (axis.Axis.XMin + axis.Axis.XMax);
-                var scale = check.Axis.Derivative(mid) / axis.Axis.Derivative(mid);
-                // with few peaks the pattern can settle on a multiple of the spacing; the numbered axis (and the
-                // alternation check above) then stands, without this evidence
-                if (check.PeriodDecision is { } d && Math.Abs(d.PeriodHz / period - 1) < 1e-9 && Math.Abs(scale - 1) < 0.05)
-                    axis = axis with { PeriodDecision = d };
-            }
-            catch (InputException)
-            {
-                // the pattern alone does not decide here (too few peaks): the numbered axis stands on its own
-            }
-        }
-
-        var finesse = FinesseFit.FromSweep(sweep, axis.Axis, period, instrument.Finesse);
+        if (!fitted) finesse = FinesseFit.FromSweep(sweep, axis.Axis, period, instrument.Finesse);
         if (finesse is not null) warnings.AddRange(finesse.Warnings.Select(w => $"{sweep.Name}: {w}"));
         var measured = finesse is { Consistent: true } ? finesse.Finesse : axis.Finesse;
         transverse = TransverseModes.Detect(sweep, axis.Axis, instrument, period, measured);
@@ -113,87 +50,179 @@ public static class CalibrationSteps
     }
 
     /// <summary>
+    /// Peaks that alternate in height may be two transverse families: the axis fitted to repeats one FSR apart is compared
+    /// with the numbered one, and where their scales differ by more than 5 % the finesse on each decides (the wrong reading
+    /// scales the peak widths by the same factor). Returns the axis kept and, when both readings were fitted, the Airy fit
+    /// on the kept one (<c>Fitted</c> true; the caller does not fit it again).
+    /// </summary>
+    private static (AxisCalibration Axis, FinesseEstimate? Finesse, bool Fitted) CheckTwoReadings(AxisCalibration axis, Sweep sweep, Instrument instrument,
+        double period, List<string> warnings)
+    {
+        try
+        {
+            var repeats = SelfCalibrator.Calibrate(sweep, instrument, new SelfCalibrationOptions { PeriodHz = period, FitFinesse = false }).Calibration;
+            var mid = 0.5 * (repeats.Axis.XMin + repeats.Axis.XMax);
+            var scale = repeats.Axis.Derivative(mid) / axis.Axis.Derivative(mid);
+            var useRepeats = repeats.ResidualRmsHz < 0.5 * axis.ResidualRmsHz;
+            (FinesseEstimate? Numbered, FinesseEstimate? Repeats)? fits = null;
+            if (Math.Abs(scale - 1) > 0.05)
+            {
+                // two readings of the same peaks: every peak is one FSR (a confocal cavity showing both transverse
+                // families, FSR = c/4L), or every second one is (an extra family)
+                fits = (FinesseFit.FromSweep(sweep, axis.Axis, period, instrument.Finesse), FinesseFit.FromSweep(sweep, repeats.Axis, period, instrument.Finesse));
+                var (fNumbered, fRepeats) = (fits.Value.Numbered?.Finesse, fits.Value.Repeats?.Finesse);
+                double Off(double? f) => f is double v && v > 0 ? Math.Abs(Math.Log(v / instrument.Finesse)) : double.PositiveInfinity;
+                useRepeats = Off(fRepeats) < Off(fNumbered);
+                warnings.Add(useRepeats
+                    ? $"{sweep.Name}: not every calibration peak is the next FSR (extra peaks of another transverse family): fitted to repeats one FSR apart instead, which changes the axis scale by {100 * (scale - 1):+0.0;-0.0} % and gives finesse {fRepeats:F0} against the stated {instrument.Finesse:F0} (numbering every peak gives {fNumbered:F0})"
+                    : $"{sweep.Name}: the calibration peaks alternate in height; every peak was taken as the next FSR because that gives finesse {fNumbered:F0}, close to the stated {instrument.Finesse:F0} (taking every second peak would give {fRepeats:F0})");
+            }
+
+            var kept = fits is { } f2 ? (useRepeats ? f2.Repeats : f2.Numbered) : null;
+            if (!useRepeats) return (axis, kept, fits is not null);
+            warnings.AddRange(repeats.Warnings);
+            return (axis with
+            {
+                Method = "calibration sweep (repeats one FSR apart; extra peaks left out)",
+                Axis = repeats.Axis,
+                PointX = repeats.PointX,
+                PointHz = repeats.PointHz,
+                ResidualHz = repeats.ResidualHz,
+                ResidualRmsHz = repeats.ResidualRmsHz,
+                PairsUsed = repeats.PairsUsed,
+                PairsRejected = repeats.PairsRejected,
+                AxisSigmaHz = repeats.AxisSigmaHz,
+                ShapeCovariance = repeats.ShapeCovariance,
+                Finesse = null,
+                FinesseSigma = null,
+            }, kept, fits is not null);
+        }
+        catch (InputException e)
+        {
+            warnings.Add($"{sweep.Name}: the calibration peaks look like two transverse families, but fitting repeats one FSR apart failed too: {e.Message}");
+            return (axis, null, false);
+        }
+    }
+
+    /// <summary>The period decision on the calibration sweep's own peak pattern (candidates, families) as evidence; kept when
+    /// it agrees with the numbered axis (same period in Hz, scale within 5 %).</summary>
+    private static AxisCalibration WithPeriodEvidence(AxisCalibration axis, Sweep sweep, Instrument instrument, double period)
+    {
+        if (axis.PeriodDecision is not null || axis.PointCount < 2) return axis;
+        try
+        {
+            var check = SelfCalibrator.Calibrate(PrepareForPeakFinding(sweep, instrument), instrument,
+                new SelfCalibrationOptions { PeriodHz = period, FitFinesse = false }).Calibration;
+            var mid = 0.5 * (axis.Axis.XMin + axis.Axis.XMax);
+            var scale = check.Axis.Derivative(mid) / axis.Axis.Derivative(mid);
+            // with few peaks the pattern can settle on a multiple of the spacing; the numbered axis (and the
+            // alternation check above) then stands, without this evidence
+            if (check.PeriodDecision is { } d && Math.Abs(d.PeriodHz / period - 1) < 1e-9 && Math.Abs(scale - 1) < 0.05)
+                return axis with { PeriodDecision = d };
+        }
+        catch (InputException)
+        {
+            // the pattern alone does not decide here (too few peaks): the numbered axis stands on its own
+        }
+
+        return axis;
+    }
+
+    /// <summary>Axes a calibration step made (for self-calibrated ones, Source = the segment's name) and the warnings they gave.</summary>
+    public sealed record CalibrationAxes(IReadOnlyList<AxisCalibration> Axes, IReadOnlyList<string> Warnings);
+
+    /// <summary>
     /// Self-calibrates the source sweep segments that need it under the setup's <see cref="SolveOptions.SelfCalibrate"/>
-    /// mode and adds their axes (Source = the segment's name) to <paramref name="calibrations"/>, their warnings to
-    /// <paramref name="warnings"/>.
+    /// mode and returns their axes (Source = the segment's name) with their warnings.
     /// </summary>
     /// <param name="setup">The setup.</param>
     /// <param name="instruments">Instruments by name (as stated or calibrated so far).</param>
-    /// <param name="calibrations">Axes from calibration sweeps so far; self-calibrated axes are appended.</param>
-    /// <param name="warnings">Warnings of the run.</param>
+    /// <param name="calibrations">Axes from calibration sweeps so far (companions and fallbacks of the source sweeps).</param>
     /// <param name="progress">Progress messages.</param>
     /// <param name="readSegments">Reads a file's segments the way the pipeline does (time relative to each segment's start).</param>
     /// <exception cref="InputException">A segment cannot be self-calibrated and has no other calibration to fall back on.</exception>
-    public static void AddFromSources(Setup setup, IReadOnlyDictionary<string, Instrument> instruments, List<AxisCalibration> calibrations, List<string> warnings,
+    public static CalibrationAxes FromSources(Setup setup, IReadOnlyDictionary<string, Instrument> instruments, IReadOnlyList<AxisCalibration> calibrations,
         IProgress<string>? progress, Func<SweepFileOptions, IReadOnlyList<Sweep>> readSegments)
     {
-        var mode = setup.Solve.SelfCalibrate;
-        if (mode == SelfCalibrationMode.Never) return;
+        var axes = new List<AxisCalibration>();
+        var warnings = new List<string>();
+        if (setup.Solve.SelfCalibrate == SelfCalibrationMode.Never) return new CalibrationAxes(axes, warnings);
         var fromSweeps = calibrations.Where(c => !c.FromRepeats).ToList();
         foreach (var spec in setup.Sweeps)
         {
             if (!instruments.TryGetValue(spec.Instrument, out var inst)) continue; // the pipeline reports the unknown name
-            var mine = fromSweeps.Where(c => c.Instrument == spec.Instrument).ToList();
-            var failed = new List<(Sweep Segment, InputException Error)>();
-            var done = new List<AxisCalibration>();
-            // ring-down: fast-swept peaks that ring are fitted with the swept-cavity model and the peak finding below sees
-            // each one as its static response at the resonance crossing; other sweeps pass unchanged (RingdownHandling.cs)
-            foreach (var ring in RingdownHandling.PrepareAll(readSegments(spec.File)))
+            var file = FromSourceFile(spec, inst, fromSweeps.Where(c => c.Instrument == spec.Instrument).ToList(), setup.Solve.SelfCalibrate, progress, readSegments);
+            axes.AddRange(file.Axes);
+            warnings.AddRange(file.Warnings);
+        }
+
+        return new CalibrationAxes(axes, warnings);
+    }
+
+    /// <summary>The self-calibrated axes of one source file's segments; a segment that fails uses a calibration sweep's axis
+    /// or that of another segment of the same ramp direction, with a warning naming why.</summary>
+    private static CalibrationAxes FromSourceFile(SweepSpec spec, Instrument inst, List<AxisCalibration> mine, SelfCalibrationMode mode,
+        IProgress<string>? progress, Func<SweepFileOptions, IReadOnlyList<Sweep>> readSegments)
+    {
+        var warnings = new List<string>();
+        var failed = new List<(Sweep Segment, InputException Error)>();
+        var done = new List<AxisCalibration>();
+        // ring-down: fast-swept peaks that ring are fitted with the swept-cavity model and the peak finding below sees
+        // each one as its static response at the resonance crossing; other sweeps pass unchanged (RingdownHandling.cs)
+        foreach (var ring in RingdownHandling.PrepareAll(readSegments(spec.File)))
+        {
+            var seg = ring.Sweep;
+            var exact = mine.FirstOrDefault(c => c.Direction == seg.Direction);
+            AxisCalibration? companion = null;
+            if (exact is not null)
             {
-                var seg = ring.Sweep;
-                var exact = mine.FirstOrDefault(c => c.Direction == seg.Direction);
-                AxisCalibration? companion = null;
-                if (exact is not null)
-                {
-                    // a calibration sweep with enough peaks that fits them well stands alone; one with few peaks, or whose
-                    // polynomial cannot follow the piezo between them (residual above a twentieth of a linewidth), is
-                    // fitted jointly with the source's own repeats
-                    var wellPinned = exact.PointCount >= 4 && exact.ResidualRmsHz <= JointResidualLinewidths * inst.LinewidthHz;
-                    if (mode == SelfCalibrationMode.Auto && (wellPinned || exact.PointCount == 0)) continue;
-                    companion = exact.PointCount >= 2 ? exact : null;
-                }
-
-                progress?.Report($"self-calibrating {seg.Name} from its repeats one FSR apart");
-                // the place where a sweep's signal goes into peak finding: a signal filter (e.g. for ring-down) applies here
-                var prepared = PrepareForPeakFinding(seg, inst);
-                try
-                {
-                    var result = SelfCalibrator.Calibrate(prepared, inst, new SelfCalibrationOptions { Companion = companion });
-                    // finesse from the decay time when the peaks ring, with the FSR the period decision settled on (a cavity stated
-                    // as confocal that is not has twice the stated FSR, and F = π·FSR·τ)
-                    var fsrHz = result.Calibration.PeriodDecision?.PeriodHz ?? inst.FsrHz;
-                    var calibration = RingdownHandling.Annotate(result.Calibration, ring, fsrHz);
-                    calibrations.Add(calibration);
-                    done.Add(calibration);
-                    warnings.AddRange(calibration.Warnings);
-                }
-                catch (InputException e)
-                {
-                    var fallback = exact ?? mine.FirstOrDefault(c => c.Direction == RampDirection.Single || seg.Direction == RampDirection.Single);
-                    if (fallback is null)
-                    {
-                        failed.Add((seg, e));
-                        continue;
-                    }
-
-                    warnings.Add($"{seg.Name}: self-calibration failed, using the {fallback.Method} instead: {e.Message}");
-                }
+                // a calibration sweep with enough peaks that fits them well stands alone; one with few peaks, or whose
+                // polynomial cannot follow the piezo between them (residual above a twentieth of a linewidth), is
+                // fitted jointly with the source's own repeats
+                var wellPinned = exact.PointCount >= 4 && exact.ResidualRmsHz <= JointResidualLinewidths * inst.LinewidthHz;
+                if (mode == SelfCalibrationMode.Auto && (wellPinned || exact.PointCount == 0)) continue;
+                companion = exact.PointCount >= 2 ? exact : null;
             }
 
-            // a segment that cannot be self-calibrated (often a partial ramp at the start or end of the record) uses the
-            // axis of another segment of the same ramp direction in the same file, with a warning naming why
-            foreach (var (seg, e) in failed)
+            progress?.Report($"self-calibrating {seg.Name} from its repeats one FSR apart");
+            // the place where a sweep's signal goes into peak finding: a signal filter (e.g. for ring-down) applies here
+            var prepared = PrepareForPeakFinding(seg, inst);
+            try
             {
-                var sibling = done.FirstOrDefault(c => c.Direction == seg.Direction);
-                if (sibling is null)
-                {
-                    var others = failed.Where(f => f.Segment.Direction == seg.Direction && !ReferenceEquals(f.Segment, seg)).Select(f => f.Error.Message).ToList();
-                    var also = others.Count == 0 ? "" : $"; the other {others.Count} segment(s) of that direction failed too: {string.Join(" | ", others)}";
-                    throw new InputException($"{e.Message} (no [[calibration]] sweep for instrument '{spec.Instrument}' and no other {seg.Direction.ToString().ToLowerInvariant()}-ramp segment of this file to fall back on{also})", e.File ?? spec.File.Path, e.Line, e.Column, e);
-                }
-                warnings.Add($"{seg.Name}: self-calibration failed, using the axis of {sibling.Source} (same ramp direction) instead: {e.Message}");
+                var result = SelfCalibrator.Calibrate(prepared, inst, new SelfCalibrationOptions { Companion = companion });
+                // finesse from the decay time when the peaks ring, with the FSR the period decision settled on (a cavity stated
+                // as confocal that is not has twice the stated FSR, and F = π·FSR·τ)
+                var fsrHz = result.Calibration.PeriodDecision?.PeriodHz ?? inst.FsrHz;
+                var calibration = RingdownHandling.Annotate(result.Calibration, ring, fsrHz);
+                done.Add(calibration);
+                warnings.AddRange(calibration.Warnings);
+            }
+            catch (InputException e)
+            {
+                var fallback = exact ?? mine.FirstOrDefault(c => c.Direction == RampDirection.Single || seg.Direction == RampDirection.Single);
+                if (fallback is null) failed.Add((seg, e));
+                else warnings.Add($"{seg.Name}: self-calibration failed, using the {fallback.Method} instead: {e.Message}");
             }
         }
+
+        warnings.AddRange(failed.Select(f => SiblingFallback(spec, f.Segment, f.Error, failed, done)));
+        return new CalibrationAxes(done, warnings);
+    }
+
+    /// <summary>A segment that cannot be self-calibrated (often a partial ramp at the start or end of the record) uses the
+    /// axis of another segment of the same ramp direction in the same file: the warning that says so, or the refusal when
+    /// there is none.</summary>
+    private static string SiblingFallback(SweepSpec spec, Sweep seg, InputException e, List<(Sweep Segment, InputException Error)> failed, List<AxisCalibration> done)
+    {
+        var sibling = done.FirstOrDefault(c => c.Direction == seg.Direction);
+        if (sibling is null)
+        {
+            var others = failed.Where(f => f.Segment.Direction == seg.Direction && !ReferenceEquals(f.Segment, seg)).Select(f => f.Error.Message).ToList();
+            var also = others.Count == 0 ? "" : $"; the other {others.Count} segment(s) of that direction failed too: {string.Join(" | ", others)}";
+            throw new InputException($"{e.Message} (no [[calibration]] sweep for instrument '{spec.Instrument}' and no other {seg.Direction.ToString().ToLowerInvariant()}-ramp segment of this file to fall back on{also})", e.File ?? spec.File.Path, e.Line, e.Column, e);
+        }
+
+        return $"{seg.Name}: self-calibration failed, using the axis of {sibling.Source} (same ramp direction) instead: {e.Message}";
     }
 
     /// <summary>Calibration-sweep residual RMS (in linewidths) above which, with self_calibrate = "auto", the source's
@@ -206,63 +235,30 @@ public static class CalibrationSteps
     /// </summary>
     public static Sweep PrepareForPeakFinding(Sweep sweep, Instrument instrument) => sweep;
 
+    /// <summary>Instruments and axes with what the calibrations measured about each cavity, and the warnings that say so.</summary>
+    public sealed record CavitySettlement(IReadOnlyDictionary<string, Instrument> Instruments, IReadOnlyList<AxisCalibration> Calibrations, IReadOnlyList<string> Warnings);
+
     /// <summary>
     /// Carries what the calibrations measured about each cavity into its instrument: the period decided from the peak
     /// pattern (the FSR, when the data show it is another multiple of the stated one), the transverse families (median
     /// over the axes that found them; part of the instrument response from here on), and whether the finesse was
     /// measured. Where it was not, warns, says which value is used and flags the instrument so the refinement can widen
-    /// its uncertainties.
+    /// its uncertainties. Axes made with another FSR than the decided one are rebuilt at the decided FSR.
     /// </summary>
     /// <exception cref="InputException">The axes of one instrument disagree on the period.</exception>
-    public static void ApplyCavityProperties(IDictionary<string, Instrument> instruments, List<AxisCalibration> calibrations, List<string> warnings,
+    public static CavitySettlement SettleCavityProperties(IReadOnlyDictionary<string, Instrument> instruments, IReadOnlyList<AxisCalibration> calibrations,
         Func<string, bool>? finesseFixed = null)
     {
-        foreach (var name in instruments.Keys.ToList())
+        var settled = instruments.ToDictionary(p => p.Key, p => p.Value);
+        var axes = calibrations.ToList();
+        var warnings = new List<string>();
+        foreach (var name in settled.Keys.ToList())
         {
-            var inst = instruments[name];
-            var mine = calibrations.Where(c => c.Instrument == name).ToList();
+            var inst = settled[name];
+            var period = SettlePeriod(name, inst, axes, warnings);
+            if (period is double fsr) inst = inst with { FsrHz = fsr };
+            var mine = axes.Where(c => c.Instrument == name).ToList();
             var decided = mine.Where(c => c.PeriodDecision is not null).Select(c => c.PeriodDecision!).ToList();
-            // the period in Hz (c/4L or c/2L for a stated confocal cavity) is decided by the sweeps whose period explains
-            // every peak; a sweep whose pattern was explained only in part (noise, ring-down) follows them, its axis rescaled
-            var sure = decided.Where(d => d.Candidates.Any(c => c.Chosen && c.Consistent)).ToList();
-            var surePeriods = sure.Select(d => d.PeriodHz).Distinct().ToList();
-            if (surePeriods.Count == 1)
-            {
-                for (var i = 0; i < calibrations.Count; i++)
-                {
-                    var c = calibrations[i];
-                    if (c.Instrument != name || c.PeriodDecision is not { } d || sure.Contains(d) || d.PeriodHz == surePeriods[0]) continue;
-                    var f = surePeriods[0] / d.PeriodHz;
-                    warnings.Add($"{c.Source}: its peak pattern did not decide the FSR; it follows the sweeps that did ({Quantity.FormatFrequency(surePeriods[0])})");
-                    calibrations[i] = c.Scaled(f) with
-                    {
-                        PeriodDecision = d with { PeriodHz = surePeriods[0], Basis = d.Basis + $"; the FSR follows the sweeps that decided it ({Quantity.FormatFrequency(surePeriods[0])})" },
-                    };
-                }
-
-                mine = calibrations.Where(c => c.Instrument == name).ToList();
-                decided = mine.Where(c => c.PeriodDecision is not null).Select(c => c.PeriodDecision!).ToList();
-            }
-
-            var periods = decided.Select(d => d.PeriodHz).Distinct().ToList();
-            if (periods.Count > 1)
-                throw new InputException($"instrument '{name}': the sweeps disagree on the period: {string.Join(" vs ", decided.Select(d => $"{Quantity.FormatFrequency(d.PeriodHz)} ({d.Basis})"))}; " +
-                                         "a [[calibration]] sweep, the mirror radii (mirror_radius) or a stated interval would settle it");
-            if (periods.Count == 1 && Math.Abs(periods[0] / inst.FsrHz - 1) > 1e-9)
-            {
-                warnings.Add($"instrument '{name}': the data decide an FSR of {Quantity.FormatFrequency(periods[0])} instead of the stated {Quantity.FormatFrequency(inst.FsrHz)} ({decided[0].Basis})");
-                // axes not decided from the pattern (calibration sweeps) were made with the stated FSR
-                var factor = periods[0] / inst.FsrHz;
-                for (var i = 0; i < calibrations.Count; i++)
-                {
-                    var c = calibrations[i];
-                    if (c.Instrument != name || c.PeriodDecision is not null) continue;
-                    calibrations[i] = c.Scaled(factor);
-                }
-
-                inst = inst with { FsrHz = periods[0] };
-            }
-
             // families: the median offset and height per family index over the axes that found them
             var families = decided.SelectMany(d => d.Families).GroupBy(f => f.N).OrderBy(g => g.Key)
                 .Select(g =>
@@ -279,8 +275,57 @@ public static class CalibrationSteps
             var measured = mine.Any(c => c.Finesse is not null);
             if (!measured && !(finesseFixed?.Invoke(name) ?? false))
                 warnings.Add($"instrument '{name}': the finesse could not be measured from the peaks (no isolated peak fitted the Airy profile consistently; see the warnings of its sweeps); the stated value {inst.Finesse:F0} is used and the line uncertainties are widened");
-            instruments[name] = inst with { Families = families, FinesseMeasured = measured };
+            settled[name] = inst with { Families = families, FinesseMeasured = measured };
         }
+
+        return new CavitySettlement(settled, axes, warnings);
+    }
+
+    /// <summary>
+    /// The period (FSR in Hz) of one instrument that its axes decided from their peak patterns, or null when it stays as
+    /// stated. The sweeps whose period explains every peak decide (c/4L or c/2L for a stated confocal cavity); a sweep whose
+    /// pattern was explained only in part (noise, ring-down) follows them, its axis rescaled; axes not decided from the
+    /// pattern (calibration sweeps, made with the stated FSR) are rescaled to the decided period. Works on this stage's own
+    /// copy of the axes, <paramref name="axes"/>.
+    /// </summary>
+    private static double? SettlePeriod(string name, Instrument inst, List<AxisCalibration> axes, List<string> warnings)
+    {
+        var decided = axes.Where(c => c.Instrument == name && c.PeriodDecision is not null).Select(c => c.PeriodDecision!).ToList();
+        var sure = decided.Where(d => d.Candidates.Any(c => c.Chosen && c.Consistent)).ToList();
+        var surePeriods = sure.Select(d => d.PeriodHz).Distinct().ToList();
+        if (surePeriods.Count == 1)
+        {
+            for (var i = 0; i < axes.Count; i++)
+            {
+                var c = axes[i];
+                if (c.Instrument != name || c.PeriodDecision is not { } d || sure.Contains(d) || d.PeriodHz == surePeriods[0]) continue;
+                var f = surePeriods[0] / d.PeriodHz;
+                warnings.Add($"{c.Source}: its peak pattern did not decide the FSR; it follows the sweeps that did ({Quantity.FormatFrequency(surePeriods[0])})");
+                axes[i] = c.Scaled(f) with
+                {
+                    PeriodDecision = d with { PeriodHz = surePeriods[0], Basis = d.Basis + $"; the FSR follows the sweeps that decided it ({Quantity.FormatFrequency(surePeriods[0])})" },
+                };
+            }
+
+            decided = axes.Where(c => c.Instrument == name && c.PeriodDecision is not null).Select(c => c.PeriodDecision!).ToList();
+        }
+
+        var periods = decided.Select(d => d.PeriodHz).Distinct().ToList();
+        if (periods.Count > 1)
+            throw new InputException($"instrument '{name}': the sweeps disagree on the period: {string.Join(" vs ", decided.Select(d => $"{Quantity.FormatFrequency(d.PeriodHz)} ({d.Basis})"))}; " +
+                                     "a [[calibration]] sweep, the mirror radii (mirror_radius) or a stated interval would settle it");
+        if (periods.Count != 1 || !(Math.Abs(periods[0] / inst.FsrHz - 1) > 1e-9)) return null;
+        warnings.Add($"instrument '{name}': the data decide an FSR of {Quantity.FormatFrequency(periods[0])} instead of the stated {Quantity.FormatFrequency(inst.FsrHz)} ({decided[0].Basis})");
+        // axes not decided from the pattern (calibration sweeps) were made with the stated FSR
+        var factor = periods[0] / inst.FsrHz;
+        for (var i = 0; i < axes.Count; i++)
+        {
+            var c = axes[i];
+            if (c.Instrument != name || c.PeriodDecision is not null) continue;
+            axes[i] = c.Scaled(factor);
+        }
+
+        return periods[0];
     }
 
     /// <summary>What the measured N = 1 offset says about the mirrors, for two equal mirrors at the stated length (Gouy phase
@@ -293,22 +338,5 @@ public static class CalibrationSteps
         if (!double.IsFinite(r)) return "";
         var stated = inst.MirrorRadiiM is { } radii ? $" (stated {Quantity.FormatLength(radii.R1)}{(radii.R2 != radii.R1 ? $" and {Quantity.FormatLength(radii.R2)}" : "")})" : "";
         return $"; with the stated length {Quantity.FormatLength(length)}, the N=1 offset means mirrors of R = {Quantity.FormatLength(r)} if both are equal{stated}";
-    }
-
-    /// <summary>Carries refined FSRs into the instruments and scales the axes of those instruments with them.</summary>
-    public static void ApplyFsrRefinement(FsrRefinement refinement, IDictionary<string, Instrument> instruments, List<AxisCalibration> calibrations)
-    {
-        foreach (var s in refinement.Instruments)
-        {
-            if (!instruments.TryGetValue(s.Instrument, out var inst) || s.RelativeChange == 0) continue;
-            var factor = s.RefinedFsrHz / inst.FsrHz;
-            instruments[s.Instrument] = inst with { FsrHz = s.RefinedFsrHz };
-            for (var i = 0; i < calibrations.Count; i++)
-            {
-                var c = calibrations[i];
-                if (c.Instrument != s.Instrument) continue;
-                calibrations[i] = c.Scaled(factor) with { Method = c.Method + $"; FSR refined by {100 * (factor - 1):+0.000;-0.000} % ({s.Basis})" };
-            }
-        }
     }
 }

@@ -24,13 +24,13 @@ public static class FamilyResidue
     /// <param name="result">The unfold result (lines relative to the anchor).</param>
     /// <param name="instruments">The instruments of the sweeps (with their families).</param>
     /// <param name="calibrations">The axes (their period decisions carry each axis's measured family offsets).</param>
-    /// <param name="warnings">Receives one warning naming the lines left out.</param>
-    public static UnfoldResult Apply(UnfoldResult result, IReadOnlyList<Instrument> instruments, IReadOnlyList<AxisCalibration> calibrations, List<string> warnings)
+    /// <returns>The result without the residue lines, and the warning naming them (null when none was left out).</returns>
+    public static (UnfoldResult Result, string? Warning) Apply(UnfoldResult result, IReadOnlyList<Instrument> instruments, IReadOnlyList<AxisCalibration> calibrations)
     {
         var distinct = instruments.Select(i => i.Name).Distinct().ToList();
-        if (distinct.Count != 1 || result.Lines.Count < 2) return result;
+        if (distinct.Count != 1 || result.Lines.Count < 2) return (result, null);
         var inst = instruments.First();
-        if (inst.Families.Count == 0) return result;
+        if (inst.Families.Count == 0) return (result, null);
         var fsr = inst.FsrHz;
         var mine = calibrations.Where(c => c.Instrument == inst.Name).ToList();
         var axisSigma = mine.Select(c => c.AxisSigmaHz ?? 0).Where(double.IsFinite).DefaultIfEmpty(0).Max();
@@ -62,10 +62,10 @@ public static class FamilyResidue
             if (!found) kept.Add(line);
         }
 
-        if (residue.Count == 0) return result;
-        warnings.Add($"{residue.Count} weak line(s) left out as residue of the cavity's transverse families (with one cavity their peaks lie on a family's peaks of a stronger line in every sweep and cannot be told from a small misfit of that family): " +
+        if (residue.Count == 0) return (result, null);
+        var warning = $"{residue.Count} weak line(s) left out as residue of the cavity's transverse families (with one cavity their peaks lie on a family's peaks of a stronger line in every sweep and cannot be told from a small misfit of that family): " +
                      string.Join(", ", residue.Select(r => $"{Quantity.FormatFrequency(r.Line.FrequencyHz)} (intensity {r.Line.Intensity:F4}, {r.Offset:F4} FSR above the line at {Quantity.FormatFrequency(r.Parent.FrequencyHz)}, " +
-                                                             $"where its N={r.Family.N} family lies at {r.Family.ApparentOffsetFsr:F4} ± {tolerance[r.Family.N]:F4} FSR)")));
-        return result with { Lines = result.Lines.Except(residue.Select(r => r.Line)).ToList() };
+                                                             $"where its N={r.Family.N} family lies at {r.Family.ApparentOffsetFsr:F4} ± {tolerance[r.Family.N]:F4} FSR)"));
+        return (result with { Lines = result.Lines.Except(residue.Select(r => r.Line)).ToList() }, warning);
     }
 }

@@ -89,25 +89,20 @@ public static class FewestLines
         var a = FoldedLines(sweeps[first], grid.Sweeps[first].OffsetHz, options, progress);
         var b = FoldedLines(sweeps[second], grid.Sweeps[second].OffsetHz, options, progress);
         if (a.Count == 0 || b.Count == 0 || a.Count > MaxFoldedLines || b.Count > MaxFoldedLines) return null;
-        var f1 = fsrs[0];
-        var f2 = fsrs[1];
         var tol = PairToleranceLinewidths * sweeps.Max(s => s.Instrument.LinewidthHz);
+        var (pairs, centre) = PairGreedily(a, b, fsrs[0], fsrs[1], tol, halfWidthHz, options.MinSnr);
+        if (pairs.Count == 0 || centre is not double anchor) return null;
+        return AsResult(grid, pairs, a, b, anchor, halfWidthHz);
+    }
 
-        // the frequency ν ≡ a (mod f1) nearest to `centre` within ±half that folds onto b (mod f2) best, and its mismatch
-        (double Nu, double Miss) Candidate(double pa, double pb, double centre, double half)
-        {
-            var best = (Nu: double.NaN, Miss: double.PositiveInfinity);
-            var n0 = Math.Ceiling((centre - half - pa) / f1);
-            for (var n = n0; pa + n * f1 <= centre + half; n++)
-            {
-                var nu = pa + n * f1;
-                var miss = Math.Abs(Wrap(nu - pb, f2));
-                if (miss < best.Miss - 1e-9 * f2 || (Math.Abs(miss - best.Miss) <= 1e-9 * f2 && Math.Abs(nu - centre) < Math.Abs(best.Nu - centre))) best = (nu, miss);
-            }
-
-            return best;
-        }
-
+    /// <summary>
+    /// Pairs the folded lines of the two cavities greedily, the largest shared amount first: a pair takes a clear share of
+    /// both folded lines, lies within <paramref name="tol"/> of folding onto both, and its frequency is the candidate
+    /// nearest the first pair's (the frame). Also returns that first frequency (null when nothing pairs).
+    /// </summary>
+    private static (List<(int I, int J, double Nu, double Amount)> Pairs, double? Centre) PairGreedily(List<Folded> a, List<Folded> b, double f1, double f2,
+        double tol, double halfWidthHz, double minSnr)
+    {
         var ra = a.Select(x => x.Weight).ToArray();
         var rb = b.Select(x => x.Weight).ToArray();
         // the strongest pair sets the frame: its candidate nearest the grid's anchor (any representative would do)
@@ -126,8 +121,8 @@ public static class FewestLines
                 if (!(amount > 0)) continue;
                 // a pair takes a clear share of both folded lines (or the rest of one of them, when that rest is clear)
                 if (amount < LeftoverFraction * a[i].Weight || amount < LeftoverFraction * b[j].Weight) continue;
-                if (amount < options.MinSnr * Math.Max(a[i].Sigma, b[j].Sigma)) continue;
-                var (nu, miss) = centre is double c ? Candidate(a[i].PositionHz, b[j].PositionHz, c, halfWidthHz) : Candidate(a[i].PositionHz, b[j].PositionHz, 0, firstRange);
+                if (amount < minSnr * Math.Max(a[i].Sigma, b[j].Sigma)) continue;
+                var (nu, miss) = centre is double c ? Candidate(a[i].PositionHz, b[j].PositionHz, c, halfWidthHz, f1, f2) : Candidate(a[i].PositionHz, b[j].PositionHz, 0, firstRange, f1, f2);
                 if (!(miss <= tol)) continue;
                 if (pick is null || amount > pick.Value.Amount + 1e-12 || (Math.Abs(amount - pick.Value.Amount) <= 1e-12 && miss < pick.Value.Miss))
                     pick = (i, j, nu, amount, miss);
@@ -141,7 +136,28 @@ public static class FewestLines
             if (pairs.Count > a.Count + b.Count) break;
         }
 
-        if (pairs.Count == 0 || centre is not double anchor) return null;
+        return (pairs, centre);
+    }
+
+    /// <summary>The frequency ν ≡ <paramref name="pa"/> (mod f1) nearest to <paramref name="centre"/> within ±<paramref name="half"/>
+    /// that folds onto <paramref name="pb"/> (mod f2) best, and its mismatch.</summary>
+    private static (double Nu, double Miss) Candidate(double pa, double pb, double centre, double half, double f1, double f2)
+    {
+        var best = (Nu: double.NaN, Miss: double.PositiveInfinity);
+        var n0 = Math.Ceiling((centre - half - pa) / f1);
+        for (var n = n0; pa + n * f1 <= centre + half; n++)
+        {
+            var nu = pa + n * f1;
+            var miss = Math.Abs(Wrap(nu - pb, f2));
+            if (miss < best.Miss - 1e-9 * f2 || (Math.Abs(miss - best.Miss) <= 1e-9 * f2 && Math.Abs(nu - centre) < Math.Abs(best.Nu - centre))) best = (nu, miss);
+        }
+
+        return best;
+    }
+
+    /// <summary>The paired lines as a grid-like result in the frame of <paramref name="anchor"/>.</summary>
+    private static UnfoldResult AsResult(UnfoldResult grid, List<(int I, int J, double Nu, double Amount)> pairs, List<Folded> a, List<Folded> b, double anchor, double halfWidthHz)
+    {
         // the folded intensities are relative to their sums; the grid's raw intensity scale comes from its strongest line
         var rawScale = grid.Lines.Count > 0 ? grid.Lines.Max(l => l.RawIntensity) : 1;
         var top = pairs.Max(q => q.Amount);

@@ -30,13 +30,14 @@ public static class SourceLineWidth
     /// <summary>Relative broadening below which the cavity response is kept.</summary>
     public const double MinRelativeBroadening = 0.05;
 
-    /// <summary>Fits the source peaks per instrument and, where they are broader, replaces the sweeps' instrument by the
-    /// broadened one. <paramref name="segments"/> holds, per calibrated sweep, its raw segment and its axis.</summary>
-    public static IReadOnlyList<SourceWidthFinding> Apply(List<CalibratedSweep> sweeps, IReadOnlyList<(Sweep Segment, AxisCalibration Axis)> segments,
-        IReadOnlyList<AxisCalibration> calibrations, ISet<string> fixedFinesse)
+    /// <summary>Fits the source peaks per instrument and, where they are broader, returns the sweeps with the broadened
+    /// instrument in place of the cavity's. <paramref name="segments"/> holds, per calibrated sweep, its raw segment and its axis.</summary>
+    public static (IReadOnlyList<CalibratedSweep> Sweeps, IReadOnlyList<SourceWidthFinding> Findings) Apply(IReadOnlyList<CalibratedSweep> calibrated,
+        IReadOnlyList<(Sweep Segment, AxisCalibration Axis)> segments, IReadOnlyList<AxisCalibration> calibrations, ISet<string> fixedFinesse)
     {
+        var sweeps = calibrated.ToArray();
         var findings = new List<SourceWidthFinding>();
-        foreach (var group in Enumerable.Range(0, sweeps.Count).GroupBy(k => sweeps[k].Instrument.Name))
+        foreach (var group in Enumerable.Range(0, sweeps.Length).GroupBy(k => sweeps[k].Instrument.Name))
         {
             var name = group.Key;
             var inst = sweeps[group.First()].Instrument;
@@ -54,6 +55,6 @@ public static class SourceLineWidth
             findings.Add(new SourceWidthFinding(name, inst.Finesse, apparent, sigma, inst.FsrHz / apparent - inst.FsrHz / inst.Finesse, estimates.Sum(e => e.Peaks.Count)));
         }
 
-        return findings;
+        return (sweeps, findings);
     }
 }

@@ -11,18 +11,26 @@ public sealed record InputFile(string Role, string Path, long Bytes, string Sha2
 /// <summary>Everything one unfold run used and produced (inputs, calibrations, sweeps, result).</summary>
 public sealed record UnfoldRun
 {
+    /// <summary>The setup that was run.</summary>
     public required Setup Setup { get; init; }
+
+    /// <summary>The files read (setup, calibration sweeps, source sweeps, ramps), each once.</summary>
     public required IReadOnlyList<InputFile> Inputs { get; init; }
 
-    /// <summary>Instruments as used (finesse possibly measured by the calibration).</summary>
+    /// <summary>Instruments as settled (finesse and FSR as the calibration evidence and the FSR refinement decided them,
+    /// transverse families as fitted; see <see cref="InstrumentSettlement"/>).</summary>
     public required IReadOnlyList<Instrument> Instruments { get; init; }
 
+    /// <summary>The axes, at the settled FSRs.</summary>
     public required IReadOnlyList<AxisCalibration> Calibrations { get; init; }
+
+    /// <summary>The sweeps as unfolded (at the refined FSRs when the FSR refinement ran).</summary>
     public required IReadOnlyList<CalibratedSweep> Sweeps { get; init; }
 
     /// <summary>Raw sweeps in the same order as <see cref="Sweeps"/> (scan coordinate for plots and reports).</summary>
     public required IReadOnlyList<Sweep> RawSweeps { get; init; }
 
+    /// <summary>The final result (lines, spectrum, sweep fits, warnings of the solve).</summary>
     public required UnfoldResult Result { get; init; }
 
     /// <summary>Diagnostics of the off-grid line refinement, when it ran.</summary>

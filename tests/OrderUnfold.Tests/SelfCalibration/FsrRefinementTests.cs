@@ -72,7 +72,7 @@ public sealed class FsrRefinementTests(ITestOutputHelper output)
         var (sweeps, trueA, _, _) = Scenario();
         var options = new UnfoldOptions { WindowStartHz = -6e9, WindowEndHz = 6e9 };
         // B's stated FSR is right: take it as the reference, so A's error shows as a ratio error
-        var scan = FsrRefiner.Prescan(sweeps, options, new FsrRefineOptions { ReferenceInstrument = "B" }, ratio: true);
+        var scan = FsrPrescan.Run(sweeps, options, new FsrRefineOptions { ReferenceInstrument = "B" }, ratio: true);
         foreach (var n in scan.Notes.Concat(scan.Warnings)) output.WriteLine(n);
         Assert.True(scan.Scales.ContainsKey("A"));
         var statedA = sweeps.First(s => s.Instrument.Name == "A").Instrument.FsrHz;
@@ -87,7 +87,7 @@ public sealed class FsrRefinementTests(ITestOutputHelper output)
     public void Known_interval_alone_prescans_each_instrument_on_its_own()
     {
         var (sweeps, trueA, trueB, _) = Scenario();
-        var scan = FsrRefiner.Prescan(sweeps, new UnfoldOptions(), new FsrRefineOptions { KnownIntervalHz = Rf }, ratio: false);
+        var scan = FsrPrescan.Run(sweeps, new UnfoldOptions(), new FsrRefineOptions { KnownIntervalHz = Rf }, ratio: false);
         var statedA = sweeps.First(s => s.Instrument.Name == "A").Instrument.FsrHz;
         var statedB = sweeps.First(s => s.Instrument.Name == "B").Instrument.FsrHz;
         var errA = statedA * scan.Scales["A"] / trueA.FsrHz - 1;
@@ -101,7 +101,7 @@ public sealed class FsrRefinementTests(ITestOutputHelper output)
     public void No_pair_at_the_known_interval_leaves_the_stated_FSRs_for_the_prescan()
     {
         var (sweeps, _, _, _) = Scenario();
-        var scan = FsrRefiner.Prescan(sweeps, new UnfoldOptions(), new FsrRefineOptions { KnownIntervalHz = 0.777e9 }, ratio: false);
+        var scan = FsrPrescan.Run(sweeps, new UnfoldOptions(), new FsrRefineOptions { KnownIntervalHz = 0.777e9 }, ratio: false);
         Assert.Empty(scan.Scales);
     }
 }

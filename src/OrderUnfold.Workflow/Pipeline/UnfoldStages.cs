@@ -1,0 +1,99 @@
+using OrderUnfold.Analysis;
+using OrderUnfold.Calibration;
+using OrderUnfold.Inversion;
+using OrderUnfold.Io;
+using OrderUnfold.Units;
+
+namespace OrderUnfold.Pipeline;
+
+/// <summary>The grid stage's result.</summary>
+/// <param name="Sweeps">The sweeps the grid was solved with (rescaled to the refined FSRs when the FSR refinement ran).</param>
+/// <param name="Result">The grid unfold.</param>
+/// <param name="FsrRefinement">The FSR refinement, when it ran.</param>
+/// <param name="Window">The window check, when the window was widened.</param>
+/// <param name="Warnings">The FSR refinement's warnings.</param>
+internal sealed record GridStage(IReadOnlyList<CalibratedSweep> Sweeps, UnfoldResult Result, FsrRefinement? FsrRefinement, WindowFinding? Window, IReadOnlyList<string> Warnings);
+
+/// <summary>The line stage's result.</summary>
+/// <param name="Result">The refined result (the grid's when the refinement is off).</param>
+/// <param name="Refinement">Diagnostics of the off-grid refinement, when it ran.</param>
+/// <param name="Warnings">The stage's warnings (orders unchecked, a fewest-lines explanation not kept).</param>
+internal sealed record LineStage(UnfoldResult Result, RefinementDiagnostics? Refinement, IReadOnlyList<string> Warnings);
+
+/// <summary>The solving stages of an unfold: the options from [solve], the grid solve (with the FSR refinement or the window
+/// check), and the off-grid line refinement (with the fewest-lines explanation on a widened two-cavity window).</summary>
+internal static class UnfoldStages
+{
+    /// <summary>The unfold's options from the setup's [solve] table.</summary>
+    public static UnfoldOptions OptionsFor(SolveOptions solve) => new()
+    {
+        WindowStartHz = solve.WindowStartHz,
+        WindowEndHz = solve.WindowEndHz,
+        GridStepHz = solve.GridStepHz,
+        Sparsity = solve.Sparsity,
+        Smoothness = solve.Smoothness,
+        Solver = solve.Solver,
+        MaxMemoryBytes = (long)(solve.MaxMemoryGb * 1e9),
+        // with the refinement on, the grid stage only proposes candidates and the refinement's significance test
+        // decides (see LineRefiner.CandidateMinSnr); without it the grid is the answer
+        MinSnr = solve.Refine ? LineRefiner.CandidateMinSnr(solve.MinSnr, solve.Sparsity) : solve.MinSnr,
+    };
+
+    /// <summary>
+    /// The grid unfold. With refine_fsr or a known interval, the FSRs are refined from the lines (Calibration/FsrRefiner.cs:
+    /// Vernier ratio and/or the known interval) and the sweeps come back at the refined FSRs; otherwise a source wider than
+    /// the default window is caught and the window widened (Pipeline/WindowWidening.cs).
+    /// </summary>
+    public static GridStage SolveOnGrid(IReadOnlyList<CalibratedSweep> sweeps, UnfoldOptions options, SolveOptions solve, IProgress<string>? progress)
+    {
+        if (solve.RefineFsr || solve.KnownIntervalHz is not null)
+        {
+            progress?.Report("refining the FSRs from the lines");
+            var (refined, result, fsrRefinement) = FsrRefiner.UnfoldWithRefinement(sweeps, options,
+                new FsrRefineOptions { RefineRatio = solve.RefineFsr, KnownIntervalHz = solve.KnownIntervalHz }, progress);
+            return new GridStage(refined, result, fsrRefinement, null, fsrRefinement.Warnings);
+        }
+
+        var (widened, window) = WindowWidening.Run(o => Unfolder.Run(sweeps, o, progress), options, sweeps.Select(c => c.Instrument).ToList(), progress);
+        return new GridStage(sweeps, widened, null, window, []);
+    }
+
+    /// <summary>
+    /// The off-grid line refinement against the raw sweeps when refine = true. On a widened two-cavity window the grid's
+    /// L1 cannot tell the true lines from mixtures of them, so the explanation with the fewest lines is tried first and kept
+    /// when it fits as well (Pipeline/FewestLines.cs). Without the refinement nothing checks the orders: a window wider
+    /// than the unambiguous range holds aliases, which a warning says.
+    /// </summary>
+    public static LineStage RefineLines(GridStage grid, UnfoldOptions options, SolveOptions solve, IProgress<string>? progress)
+    {
+        var result = grid.Result;
+        var warnings = new List<string>();
+        if (!solve.Refine)
+        {
+            if (result.OrdersResolved && result.Grid.Count * result.Grid.StepHz > 1.01 * result.UnambiguousRangeHz)
+                warnings.Add($"the window ({Quantity.FormatFrequency(result.Grid.Count * result.Grid.StepHz)}) is wider than the unambiguous range ({Quantity.FormatFrequency(result.UnambiguousRangeHz)}) " +
+                             "and the line refinement is off, so no line's order was checked: lines about that range (or a multiple of it) apart may be aliases of one another (refine = true checks them)");
+            return new LineStage(result, null, warnings);
+        }
+
+        progress?.Report("refining lines against the raw sweeps");
+        var refineOptions = new RefineOptions
+        {
+            FitWidths = solve.FitWidths,
+            Bootstrap = solve.Bootstrap,
+            MinSnr = solve.MinSnr,
+            DoubtfulDeltaChiSquare = solve.DoubtfulDeltaChiSquare,
+        };
+        if (FewestLines.Applies(grid.Sweeps, result, grid.Window))
+        {
+            var (fewest, fewestRefinement, finding) = FewestLines.Run(grid.Sweeps, result, options, grid.Window!.HalfWidthHz, refineOptions, progress);
+            progress?.Report($"fewest lines: {(finding.Kept ? "kept" : "not kept")}: {finding.Reason}");
+            if (finding.Kept && fewestRefinement is not null) return new LineStage(fewest, fewestRefinement, warnings);
+            if (finding.Kept) result = fewest;
+            else warnings.Add($"a fewest-lines explanation of the widened window ({finding.Proposed} line(s)) was tried and not kept: {finding.Reason}");
+        }
+
+        var (refined, refinement) = LineRefiner.Refine(grid.Sweeps, result, refineOptions, progress);
+        return new LineStage(refined, refinement, warnings);
+    }
+}

@@ -1,0 +1,57 @@
+using OrderUnfold.Calibration;
+using OrderUnfold.Instruments;
+using OrderUnfold.Io;
+using OrderUnfold.Pipeline;
+using Xunit;
+
+namespace OrderUnfold.Tests.Pipeline;
+
+/// <summary>
+/// The settlement stage hands on new instruments and axes and leaves what it was given as it was (hand-built instruments
+/// and axes; simulated numbers: a 3 GHz cavity of finesse 600 whose FSR the refinement moves by +0.5 %).
+/// </summary>
+public sealed class InstrumentSettlementTests
+{
+    private const double Fsr = 3e9;
+
+    private static AxisCalibration Axis(string instrument) =>
+        new(instrument, RampDirection.Up, "s", "calibration sweep", new AxisPolynomial([0, Fsr], 0, 1, -1, 1), [], [], [], 0, null, null, []);
+
+    private static FsrRefinement Refinement(params InstrumentScale[] scales) => new(scales, [], 1, 1, 1, [], [], []);
+
+    [Fact]
+    public void The_refined_FSR_gives_new_instruments_and_axes_and_leaves_the_settled_ones_unchanged()
+    {
+        var cavity = new Instrument("cav", Fsr, 600);
+        var other = new Instrument("other", 2 * Fsr, 600);
+        var axes = new List<AxisCalibration> { Axis("cav"), Axis("other") };
+        var settled = new SettledInstruments(new Dictionary<string, Instrument> { ["cav"] = cavity, ["other"] = other }, axes, []);
+        var refined = InstrumentSettlement.WithRefinedFsr(settled, Refinement(
+            new InstrumentScale("cav", Fsr, 1.005 * Fsr, 1e5, 0.005, "known interval"),
+            new InstrumentScale("other", 2 * Fsr, 2 * Fsr, 0, 0, "reference (stated FSR)")));
+
+        Assert.Equal(1.005 * Fsr, refined.Instruments["cav"].FsrHz, 1e-6);
+        Assert.Same(other, refined.Instruments["other"]);
+        // the axis of the refined cavity is built at the refined FSR: its slope (Hz per unit x) scales with it
+        Assert.Equal(1.005 * Fsr, refined.Calibrations[0].Axis.Derivative(0.5), 1e-3);
+        Assert.Contains("FSR refined by +0.500 %", refined.Calibrations[0].Method, StringComparison.Ordinal);
+        Assert.Same(axes[1], refined.Calibrations[1]);
+        // nothing handed in was changed
+        Assert.Same(cavity, settled.Instruments["cav"]);
+        Assert.Equal(Fsr, axes[0].Axis.Derivative(0.5), 1e-3);
+        Assert.Equal("calibration sweep", axes[0].Method);
+    }
+
+    [Fact]
+    public void Cavity_properties_are_returned_without_touching_the_axes_handed_in()
+    {
+        var axes = new List<AxisCalibration> { Axis("cav") };
+        var instruments = new Dictionary<string, Instrument> { ["cav"] = new Instrument("cav", Fsr, 600) };
+        var cavity = CalibrationSteps.SettleCavityProperties(instruments, axes);
+        Assert.False(cavity.Instruments["cav"].FinesseMeasured);
+        Assert.Contains(cavity.Warnings, w => w.Contains("the finesse could not be measured", StringComparison.Ordinal));
+        Assert.Equal(600, instruments["cav"].Finesse);
+        Assert.Single(axes);
+        Assert.Same(axes[0], cavity.Calibrations[0]);
+    }
+}
