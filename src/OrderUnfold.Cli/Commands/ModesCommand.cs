@@ -103,7 +103,7 @@ public sealed class ModesCommand : ICommand
                 : "no such folder or file; expected a result folder (holding lines.csv) or a setup file ending in .toml", target);
         }
 
-        var analysis = LaserModes.Analyze(input, options);
+        var analysis = LaserModes.Analyse(input, options);
         var verdict = ModeCheck.Check(analysis, requirements);
 
         Directory.CreateDirectory(outDir);
