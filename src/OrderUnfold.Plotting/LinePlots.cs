@@ -13,7 +13,7 @@ namespace OrderUnfold.Plotting;
 /// <summary>
 /// Plots of a refined line list: the spectrum on a dB scale with error bars, the order verdicts and the detection-limit
 /// curve (<see cref="SpectrumDbFile"/>), and one zoom panel per group of nearby lines (<see cref="LineGroupsFile"/>).
-/// Rendered like <see cref="Plots"/>: OxyPlot models to PNG with the SkiaSharp exporter, written atomically.
+/// Built and rendered with <see cref="Figure"/> (PNG in memory, written atomically); the zoom panels are <see cref="LineGroupPanels"/>.
 /// </summary>
 public static class LinePlots
 {

@@ -11,7 +11,7 @@ namespace OrderUnfold.Plotting;
 /// <summary>
 /// The laser-mode picture: every line as a stem on a dB scale relative to the strongest, the fitted gain
 /// envelope, the side-mode suppression ratio marked beside the strongest mode, and the detection-limit floor.
-/// Rendered like <see cref="Plots"/>: OxyPlot model, SkiaSharp PNG in memory, written atomically.
+/// Built and rendered with <see cref="Figure"/> (PNG in memory, written atomically).
 /// </summary>
 public static class ModePlots
 {

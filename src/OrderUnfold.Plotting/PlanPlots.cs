@@ -52,7 +52,7 @@ public sealed record CandidateMapInput(
 
 /// <summary>
 /// Plots of the measurement planner: the alias margin against the shift for a design, and the map of the worst
-/// margin against candidate length. Rendered like <see cref="Plots"/> (SkiaSharp PNG in memory, then written
+/// margin against candidate length. Built and rendered with <see cref="Figure"/> (PNG in memory, then written
 /// atomically, DejaVu Sans).
 /// </summary>
 public static class PlanPlots
