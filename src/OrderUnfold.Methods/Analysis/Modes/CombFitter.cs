@@ -19,24 +19,7 @@ internal static class CombFitter
     /// <summary>Fits the comb of <paramref name="m"/>; notes what was filled in or taken off.</summary>
     public static (CombFit, CombState) Fit(CombMatch m, List<CombPoint> pts, double? fold, ModeAnalysisOptions o, List<string> notes)
     {
-        var k = (int[])m.K.Clone();
-        var step = m.Step;
-        var origin = m.Origin;
-        if (fold is { } f)
-        {
-            // Canonical folded step in (0, F/2]: a step s and F − s describe the same points with k reversed.
-            var s = FoldArithmetic.Mod(step, f);
-            if (s > f / 2)
-            {
-                s = f - s;
-                for (var i = 0; i < k.Length; i++)
-                    if (k[i] != CombSearch.NotMember) k[i] = -k[i];
-            }
-
-            step = s;
-            origin = FoldArithmetic.Mod(origin, f);
-        }
-
+        var (k, step, origin) = CanonicalForm(m, fold);
         var seed = Array.IndexOf(k, 0);
         List<int> members;
         double[] kx, y;
@@ -88,6 +71,23 @@ internal static class CombFitter
             tolerances[tolerances.Length / 2]);
         var state = new CombState(k, residual, fit.Cov(0, 0) ?? double.NaN, fit.Cov(1, 1) ?? double.NaN, fit.Cov(0, 1) ?? double.NaN);
         return (comb, state);
+    }
+
+    /// <summary>The match's mode indices, step and origin; folded, in canonical form: the step in (0, F/2] and the origin
+    /// in [0, F) (a step s and F − s describe the same points with k reversed).</summary>
+    private static (int[] K, double Step, double Origin) CanonicalForm(CombMatch m, double? fold)
+    {
+        var k = (int[])m.K.Clone();
+        if (fold is not { } f) return (k, m.Step, m.Origin);
+        var s = FoldArithmetic.Mod(m.Step, f);
+        if (s > f / 2)
+        {
+            s = f - s;
+            for (var i = 0; i < k.Length; i++)
+                if (k[i] != CombSearch.NotMember) k[i] = -k[i];
+        }
+
+        return (k, s, FoldArithmetic.Mod(m.Origin, f));
     }
 
     /// <summary>
