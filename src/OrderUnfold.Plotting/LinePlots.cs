@@ -1,4 +1,3 @@
-using System.Globalization;
 using System.Text;
 using OrderUnfold.Analysis;
 using OrderUnfold.Inversion;
@@ -7,16 +6,14 @@ using OrderUnfold.Units;
 using OxyPlot;
 using OxyPlot.Annotations;
 using OxyPlot.Axes;
-using OxyPlot.Legends;
 using OxyPlot.Series;
-using SkiaSharp;
 
 namespace OrderUnfold.Plotting;
 
 /// <summary>
 /// Plots of a refined line list: the spectrum on a dB scale with error bars, the order verdicts and the detection-limit
 /// curve (<see cref="SpectrumDbFile"/>), and one zoom panel per group of nearby lines (<see cref="LineGroupsFile"/>).
-/// Rendered like <see cref="Plots"/>: OxyPlot models to PNG with the SkiaSharp exporter, written atomically.
+/// Built and rendered with <see cref="Figure"/> (PNG in memory, written atomically); the zoom panels are <see cref="LineGroupPanels"/>.
 /// </summary>
 public static class LinePlots
 {
@@ -38,11 +35,11 @@ public static class LinePlots
     /// <summary>Most zoom panels drawn (the strongest groups); more would not be readable.</summary>
     public const int MaxPanels = 12;
 
-    private static readonly OxyColor SecureColor = Palette.Crimson;
-    private static readonly OxyColor DoubtfulColor = Palette.Ochre;
-    private static readonly OxyColor UnknownColor = Palette.Charcoal;
-    private static readonly OxyColor GridSpectrumColor = Palette.Blue;
-    private static readonly OxyColor LimitColor = OxyColor.FromRgb(0x30, 0x30, 0x30);
+    private static readonly OxyColor SecureColour = Palette.Crimson;
+    internal static readonly OxyColor DoubtfulColour = Palette.Ochre;
+    private static readonly OxyColor UnknownColour = Palette.Charcoal;
+    internal static readonly OxyColor GridSpectrumColour = Palette.Blue;
+    private static readonly OxyColor LimitColour = OxyColor.FromRgb(0x30, 0x30, 0x30);
 
     /// <summary>
     /// Writes <see cref="SpectrumDbFile"/> and <see cref="LineGroupsFile"/> (the latter only when there is at least one
@@ -58,12 +55,12 @@ public static class LinePlots
         Directory.CreateDirectory(directory);
         var written = new List<string>();
         var db = Path.Combine(directory, SpectrumDbFile);
-        AtomicFile.WriteAllBytes(db, Plots.RenderPng(BuildSpectrumDb(result, statement), SpectrumDbSize.Width, SpectrumDbSize.Height));
+        AtomicFile.WriteAllBytes(db, Figure.RenderPng(BuildSpectrumDb(result, statement), SpectrumDbSize.Width, SpectrumDbSize.Height));
         written.Add(db);
         if (result.Lines.Count > 0)
         {
             var groups = Path.Combine(directory, LineGroupsFile);
-            AtomicFile.WriteAllBytes(groups, RenderGroups(result, linewidthHz));
+            AtomicFile.WriteAllBytes(groups, LineGroupPanels.Render(result, linewidthHz));
             written.Add(groups);
         }
 
@@ -82,48 +79,24 @@ public static class LinePlots
         var span = FrequencyAxisScale.SpanHz(new[] { grid.StartHz, grid.EndHz }.Concat(lines.Select(l => l.FrequencyHz)));
         var scale = FrequencyAxisScale.For(span);
         var limit = r.DetectionLimit;
+        var floor = DbFloor(lines, limit);
 
-        // vertical range: from below the lowest line or limit to just above 0 dB
-        var lows = lines.Select(l => Db(l.Intensity - Err(l))).Concat(lines.Select(l => Db(l.Intensity)))
-            .Concat(limit is null ? [] : limit.Select(Db)).Where(double.IsFinite).ToList();
-        // room below the lowest line or limit for the labels, which stand upright along the stems
-        var floor = lows.Count > 0 ? Math.Floor((lows.Min() - 9) / 10) * 10 : -40;
-        floor = Math.Max(floor, -120);
-
-        var doubtfulCount = lines.Count(l => l.Verdict == OrderVerdict.Doubtful);
-        var subtitle = lines.Count == 0
-            ? "no line found"
-            : $"{lines.Count} line{(lines.Count == 1 ? "" : "s")}" + (doubtfulCount > 0 ? $", {doubtfulCount} with a doubtful order" : "") +
-              " · error bars ±1σ of the intensity";
-        if (limit is not null) subtitle += " · dashed: smallest intensity that would have been detected (SNR ≥ threshold)";
-        if (!string.IsNullOrWhiteSpace(statement)) subtitle += "\n" + Wrap(statement, 150);
-
-        var model = Plots.NewModel("Line spectrum (dB relative to the strongest line)", subtitle);
-        model.Axes.Add(Palette.Gridded(new LinearAxis
-        {
-            Position = AxisPosition.Bottom,
-            Title = scale.Title("frequency relative to anchor"),
-            StringFormat = scale.TickFormat(span),
-            Minimum = scale.FromHertz(grid.StartHz),
-            Maximum = scale.FromHertz(grid.EndHz),
-            MinimumPadding = 0.02,
-            MaximumPadding = 0.02,
-        }, axisLine: false));
-        model.Axes.Add(Palette.Gridded(new LinearAxis
-        {
-            Position = AxisPosition.Left,
-            Title = "intensity relative to strongest line (dB)",
-            Minimum = floor,
-            Maximum = 5,
-            MajorStep = floor < -60 ? 20 : 10,
-        }, axisLine: false));
+        var model = Figure.NewModel("Line spectrum (dB relative to the strongest line)", DbSubtitle(lines, limit is not null, statement));
+        var xAxis = Figure.Axis(AxisPosition.Bottom, scale.Title("frequency relative to anchor"),
+            scale.FromHertz(grid.StartHz), scale.FromHertz(grid.EndHz), scale.TickFormat(span), axisLine: false);
+        xAxis.MinimumPadding = 0.02;
+        xAxis.MaximumPadding = 0.02;
+        model.Axes.Add(xAxis);
+        var yAxis = Figure.Axis(AxisPosition.Left, "intensity relative to strongest line (dB)", floor, 5, axisLine: false);
+        yAxis.MajorStep = floor < -60 ? 20 : 10;
+        model.Axes.Add(yAxis);
 
         if (limit is not null)
         {
             var curve = new LineSeries
             {
                 Title = "detection limit",
-                Color = LimitColor,
+                Color = LimitColour,
                 StrokeThickness = 1.3,
                 LineStyle = LineStyle.Dash,
             };
@@ -136,32 +109,59 @@ public static class LinePlots
             model.Series.Add(curve);
         }
 
-        foreach (var verdict in new[] { OrderVerdict.Secure, OrderVerdict.Unknown, OrderVerdict.Doubtful })
-        {
-            var mine = lines.Where(l => l.Verdict == verdict && double.IsFinite(Db(l.Intensity))).ToList();
-            if (mine.Count == 0) continue;
-            var (color, title, marker, fill) = Style(verdict, r.Refined);
-            var stems = new StemSeries { Color = color, StrokeThickness = 1.4, Base = floor, RenderInLegend = false };
-            if (verdict == OrderVerdict.Doubtful) stems.LineStyle = LineStyle.Dot;
-            var marks = LineMarks(title, marker, fill, color, 5.5, 1.8);
-            foreach (var l in mine)
-            {
-                var x = scale.FromHertz(l.FrequencyHz);
-                var y = Db(l.Intensity);
-                stems.Points.Add(new DataPoint(x, y));
-                // a ±σ interval in dB is asymmetric; the bar shows the larger half so that it is never understated
-                var lo = Db(l.Intensity - Err(l));
-                var hi = Db(l.Intensity + Err(l));
-                var ey = double.IsFinite(lo) ? Math.Max(y - lo, hi - y) : double.IsFinite(hi) ? hi - y : 0;
-                marks.Points.Add(new ScatterErrorPoint(x, y, 0, double.IsFinite(ey) ? ey : 0));
-            }
-
-            model.Series.Add(stems);
-            model.Series.Add(marks);
-        }
-
+        foreach (var verdict in VerdictOrder)
+            AddVerdictStems(model, lines.Where(l => l.Verdict == verdict && double.IsFinite(Db(l.Intensity))).ToList(), verdict, r.Refined, scale, floor);
         AddLabels(model, lines, scale, floor);
         return model;
+    }
+
+    /// <summary>The verdicts in drawing order (doubtful lines last, on top).</summary>
+    internal static readonly OrderVerdict[] VerdictOrder = [OrderVerdict.Secure, OrderVerdict.Unknown, OrderVerdict.Doubtful];
+
+    /// <summary>Bottom of the dB axis: 10 dB steps below the lowest line, error bar or limit, with room for the labels,
+    /// which stand upright along the stems; at least −120 dB.</summary>
+    private static double DbFloor(IReadOnlyList<UnfoldedLine> lines, double[]? limit)
+    {
+        var lows = lines.Select(l => Db(l.Intensity - Err(l))).Concat(lines.Select(l => Db(l.Intensity)))
+            .Concat(limit is null ? [] : limit.Select(Db)).Where(double.IsFinite).ToList();
+        var floor = lows.Count > 0 ? Math.Floor((lows.Min() - 9) / 10) * 10 : -40;
+        return Math.Max(floor, -120);
+    }
+
+    private static string DbSubtitle(IReadOnlyList<UnfoldedLine> lines, bool withLimit, string? statement)
+    {
+        var doubtfulCount = lines.Count(l => l.Verdict == OrderVerdict.Doubtful);
+        var subtitle = lines.Count == 0
+            ? "no line found"
+            : PlotFormat.Count(lines.Count, "line") + (doubtfulCount > 0 ? $", {doubtfulCount} with a doubtful order" : "") +
+              " · error bars ±1σ of the intensity";
+        if (withLimit) subtitle += " · dashed: smallest intensity that would have been detected (SNR ≥ threshold)";
+        if (!string.IsNullOrWhiteSpace(statement)) subtitle += "\n" + Wrap(statement, 150);
+        return subtitle;
+    }
+
+    /// <summary>The lines of one verdict as stems from the floor with markers and ±σ bars (in dB).</summary>
+    private static void AddVerdictStems(PlotModel model, List<UnfoldedLine> mine, OrderVerdict verdict, bool refined, FrequencyAxisScale scale, double floor)
+    {
+        if (mine.Count == 0) return;
+        var (colour, title, marker, fill) = Style(verdict, refined);
+        var stems = new StemSeries { Color = colour, StrokeThickness = 1.4, Base = floor, RenderInLegend = false };
+        if (verdict == OrderVerdict.Doubtful) stems.LineStyle = LineStyle.Dot;
+        var marks = LineMarks(title, marker, fill, colour, 5.5, 1.8);
+        foreach (var l in mine)
+        {
+            var x = scale.FromHertz(l.FrequencyHz);
+            var y = Db(l.Intensity);
+            stems.Points.Add(new DataPoint(x, y));
+            // a ±σ interval in dB is asymmetric; the bar shows the larger half so that it is never understated
+            var lo = Db(l.Intensity - Err(l));
+            var hi = Db(l.Intensity + Err(l));
+            var ey = double.IsFinite(lo) ? Math.Max(y - lo, hi - y) : double.IsFinite(hi) ? hi - y : 0;
+            marks.Points.Add(new ScatterErrorPoint(x, y, 0, double.IsFinite(ey) ? ey : 0));
+        }
+
+        model.Series.Add(stems);
+        model.Series.Add(marks);
     }
 
     /// <summary>Breaks <paramref name="text"/> into lines of at most <paramref name="width"/> characters at spaces.</summary>
@@ -193,27 +193,27 @@ public static class LinePlots
         return string.Join("\n", lines);
     }
 
-    private static double Err(UnfoldedLine l) => double.IsFinite(l.IntensityError) ? l.IntensityError : 0;
+    internal static double Err(UnfoldedLine l) => double.IsFinite(l.IntensityError) ? l.IntensityError : 0;
 
     /// <summary>Markers with ±σ bars for refined lines, in one verdict's colour.</summary>
-    private static ScatterErrorSeries LineMarks(string title, MarkerType marker, OxyColor fill, OxyColor color, double size, double stroke) => new()
+    internal static ScatterErrorSeries LineMarks(string title, MarkerType marker, OxyColor fill, OxyColor colour, double size, double stroke) => new()
     {
         Title = title,
         MarkerType = marker,
         MarkerSize = size,
         MarkerFill = fill,
-        MarkerStroke = color,
+        MarkerStroke = colour,
         MarkerStrokeThickness = stroke,
-        ErrorBarColor = color,
+        ErrorBarColor = colour,
         ErrorBarStrokeThickness = 1.3,
         ErrorBarStopWidth = 4,
     };
 
-    private static (OxyColor Color, string Title, MarkerType Marker, OxyColor Fill) Style(OrderVerdict v, bool refined) => v switch
+    internal static (OxyColor Colour, string Title, MarkerType Marker, OxyColor Fill) Style(OrderVerdict v, bool refined) => v switch
     {
-        OrderVerdict.Secure => (SecureColor, "line, order secure", MarkerType.Circle, SecureColor),
-        OrderVerdict.Doubtful => (DoubtfulColor, "line, order doubtful (hollow)", MarkerType.Diamond, OxyColors.White),
-        _ => (UnknownColor, refined ? "line, order not determined" : "line (unrefined)", MarkerType.Square, UnknownColor),
+        OrderVerdict.Secure => (SecureColour, "line, order secure", MarkerType.Circle, SecureColour),
+        OrderVerdict.Doubtful => (DoubtfulColour, "line, order doubtful (hollow)", MarkerType.Diamond, OxyColors.White),
+        _ => (UnknownColour, refined ? "line, order not determined" : "line (unrefined)", MarkerType.Square, UnknownColour),
     };
 
     /// <summary>Frequency labels written upright beside each stem, just above the floor of the plot, where they cannot
@@ -234,183 +234,8 @@ public static class LinePlots
                 Stroke = OxyColors.Transparent,
                 Background = OxyColor.FromAColor(0xD0, OxyColors.White),
                 FontSize = 10.5,
-                TextColor = l.Verdict == OrderVerdict.Doubtful ? DoubtfulColor : OxyColor.FromRgb(0x20, 0x20, 0x20),
+                TextColor = l.Verdict == OrderVerdict.Doubtful ? DoubtfulColour : OxyColor.FromRgb(0x20, 0x20, 0x20),
             });
         }
-    }
-
-    // ---------------------------------------------------------------- zoom panels
-
-    /// <summary>Groups of lines (indices into <paramref name="lines"/>, sorted by frequency) whose neighbours are closer than <see cref="GroupGapHz"/>.</summary>
-    internal static List<List<UnfoldedLine>> Groups(IReadOnlyList<UnfoldedLine> lines)
-    {
-        var groups = new List<List<UnfoldedLine>>();
-        foreach (var l in lines.Where(l => double.IsFinite(l.FrequencyHz)).OrderBy(l => l.FrequencyHz))
-        {
-            if (groups.Count > 0 && l.FrequencyHz - groups[^1][^1].FrequencyHz < GroupGapHz) groups[^1].Add(l);
-            else groups.Add([l]);
-        }
-
-        return groups;
-    }
-
-    internal static PlotModel BuildGroupPanel(UnfoldResult r, List<UnfoldedLine> group, int index, double linewidthHz)
-    {
-        var origin = group[0].FrequencyHz;
-        var margin = Math.Max(3 * linewidthHz, 0.08 * (group[^1].FrequencyHz - origin));
-        var lo = origin - margin;
-        var hi = group[^1].FrequencyHz + margin;
-        double X(double hz) => (hz - origin) / 1e6;
-
-        var title = group.Count == 1
-            ? $"{index}: line at {Quantity.FormatFrequency(origin, 6)}"
-            : $"{index}: {group.Count} lines from {Quantity.FormatFrequency(origin, 6)}";
-        var model = Plots.NewModel(title, null);
-        model.TitleFontSize = 13;
-        model.DefaultFontSize = 11;
-        model.IsLegendVisible = false; // the legend is in the header of the composed image
-        model.Padding = new OxyThickness(6, 4, 12, 4);
-        model.Axes.Add(Palette.Gridded(new LinearAxis
-        {
-            Position = AxisPosition.Bottom,
-            Title = $"offset from {Quantity.FormatFrequency(origin, 6)} (MHz)",
-            Minimum = X(lo),
-            Maximum = X(hi),
-            MaximumPadding = 0,
-            MinimumPadding = 0,
-        }, axisLine: false));
-
-        var stems = new StemSeries { Title = "grid spectrum", Color = GridSpectrumColor, StrokeThickness = 1.6, Base = 0 };
-        var yMax = 0.0;
-        var g = r.Grid;
-        var first = Math.Max(0, (int)Math.Floor((lo - g.StartHz) / g.StepHz));
-        var last = Math.Min(g.Count - 1, (int)Math.Ceiling((hi - g.StartHz) / g.StepHz));
-        for (var j = first; j <= last; j++)
-        {
-            var v = r.Spectrum[j];
-            if (!(v > 0) || !double.IsFinite(v)) continue;
-            stems.Points.Add(new DataPoint(X(g[j]), v));
-            yMax = Math.Max(yMax, v);
-        }
-
-        if (stems.Points.Count > 0) model.Series.Add(stems);
-
-        foreach (var verdict in new[] { OrderVerdict.Secure, OrderVerdict.Unknown, OrderVerdict.Doubtful })
-        {
-            var mine = group.Where(l => l.Verdict == verdict).ToList();
-            if (mine.Count == 0) continue;
-            var (color, name, marker, fill) = Style(verdict, r.Refined);
-            var s = LineMarks(r.Refined ? name.Replace("line,", "refined line ±σ,", StringComparison.Ordinal) : name, marker, fill, color, 5, 1.6);
-            foreach (var l in mine)
-            {
-                var ex = l.FrequencySigmaHz is double sx && double.IsFinite(sx) ? sx / 1e6 : 0;
-                s.Points.Add(new ScatterErrorPoint(X(l.FrequencyHz), l.Intensity, ex, Err(l)));
-                yMax = Math.Max(yMax, l.Intensity + Err(l));
-            }
-
-            model.Series.Add(s);
-        }
-
-        // each marker gets its number; the subtitle lists number: offset ± σ (σ is usually far below the panel's
-        // resolution, so it is written out). Numbers of neighbouring markers are staggered in height.
-        var entries = new List<string>();
-        for (var k = 0; k < group.Count; k++)
-        {
-            var l = group[k];
-            var sigma = l.FrequencySigmaHz is double sx && double.IsFinite(sx) && sx > 0 ? " ± " + Quantity.FormatFrequency(sx, 2) : "";
-            var flag = l.Verdict == OrderVerdict.Doubtful ? " (doubtful)" : "";
-            entries.Add($"{k + 1}: {FormatOffsetMhz(l.FrequencyHz - origin)} MHz{sigma}{flag}");
-            model.Annotations.Add(new TextAnnotation
-            {
-                Text = (k + 1).ToString(CultureInfo.InvariantCulture),
-                TextPosition = new DataPoint(X(l.FrequencyHz), l.Intensity + Err(l)),
-                Offset = new ScreenVector(0, -7 - 13 * (k % 2)),
-                TextVerticalAlignment = VerticalAlignment.Bottom,
-                TextHorizontalAlignment = HorizontalAlignment.Center,
-                Stroke = OxyColors.Transparent,
-                FontSize = 10.5,
-                FontWeight = FontWeights.Bold,
-                TextColor = l.Verdict == OrderVerdict.Doubtful ? DoubtfulColor : OxyColor.FromRgb(0x20, 0x20, 0x20),
-            });
-        }
-
-        const int shownEntries = 6;
-        var list = string.Join(" · ", entries.Take(shownEntries)) + (entries.Count > shownEntries ? $" · … {entries.Count - shownEntries} more" : "");
-        model.Subtitle = Wrap(list, 80);
-        model.SubtitleFontSize = 10.5;
-
-        model.Axes.Add(Palette.Gridded(new LinearAxis
-        {
-            Position = AxisPosition.Left,
-            Title = "intensity (rel. to strongest)",
-            Minimum = 0,
-            Maximum = (yMax > 0 ? yMax : 1) * 1.35,
-        }, axisLine: false));
-        return model;
-    }
-
-    private static string FormatOffsetMhz(double hz)
-    {
-        var mhz = hz / 1e6;
-        var text = Math.Abs(mhz) < 0.0005 ? "0" : mhz.ToString(Math.Abs(mhz) >= 100 ? "F2" : "F3", CultureInfo.InvariantCulture);
-        return mhz > 0.0005 ? "+" + text : text;
-    }
-
-    /// <summary>Renders up to <see cref="MaxPanels"/> group panels (strongest groups first, shown in frequency order) on a
-    /// grid of at most three columns under a header line, composed with SkiaSharp.</summary>
-    internal static byte[] RenderGroups(UnfoldResult r, double linewidthHz)
-    {
-        var groups = Groups(r.Lines);
-        var shown = groups.OrderByDescending(g => g.Max(l => l.Intensity)).Take(MaxPanels).OrderBy(g => g[0].FrequencyHz).ToList();
-        var cols = Math.Min(3, shown.Count);
-        var rows = (shown.Count + cols - 1) / cols;
-        var sub = groups.Count > shown.Count
-            ? $"{groups.Count} groups (lines within {Quantity.FormatFrequency(GroupGapHz)} of each other); the {shown.Count} strongest are shown"
-            : $"{groups.Count} group{(groups.Count == 1 ? "" : "s")} (lines within {Quantity.FormatFrequency(GroupGapHz)} of each other)";
-        sub += " · blue stems: grid (NNLS) spectrum · markers: refined lines with ±1σ bars, numbered as listed under each title · hollow diamonds: order doubtful";
-        var (pw, ph) = PanelSize;
-        var width = cols * pw;
-        using var titlePaint = new SKPaint { IsAntialias = true, Color = new SKColor(0x20, 0x20, 0x20), TextSize = 18, Typeface = SKTypeface.FromFamilyName(Plots.FontFamily, SKFontStyle.Bold) };
-        using var subPaint = new SKPaint { IsAntialias = true, Color = new SKColor(0x50, 0x50, 0x50), TextSize = 13, Typeface = SKTypeface.FromFamilyName(Plots.FontFamily) };
-        var subLines = WrapToWidth(sub, subPaint, width - 24);
-        var header = 34 + 18 * subLines.Count;
-        var info = new SKImageInfo(width, header + rows * ph);
-        using var surface = SKSurface.Create(info);
-        var canvas = surface.Canvas;
-        canvas.Clear(SKColors.White);
-        canvas.DrawText("Line groups: grid spectrum and refined lines (±1σ)", 12, 24, titlePaint);
-        for (var i = 0; i < subLines.Count; i++) canvas.DrawText(subLines[i], 12, 44 + 18 * i, subPaint);
-        for (var i = 0; i < shown.Count; i++)
-        {
-            var panel = BuildGroupPanel(r, shown[i], i + 1, linewidthHz);
-            using var bitmap = SKBitmap.Decode(Plots.RenderPng(panel, pw, ph));
-            canvas.DrawBitmap(bitmap, i % cols * pw, header + i / cols * ph);
-        }
-
-        using var image = surface.Snapshot();
-        using var data = image.Encode(SKEncodedImageFormat.Png, 100);
-        return data.ToArray();
-    }
-
-    private static List<string> WrapToWidth(string text, SKPaint paint, float width)
-    {
-        var lines = new List<string>();
-        var current = "";
-        foreach (var word in text.Split(' '))
-        {
-            var next = current.Length == 0 ? word : current + " " + word;
-            if (current.Length > 0 && paint.MeasureText(next) > width)
-            {
-                lines.Add(current);
-                current = word;
-            }
-            else
-            {
-                current = next;
-            }
-        }
-
-        if (current.Length > 0) lines.Add(current);
-        return lines;
     }
 }

@@ -1,11 +1,9 @@
 using System.Globalization;
 using OrderUnfold.Analysis;
-using OrderUnfold.Io;
 using OrderUnfold.Units;
 using OxyPlot;
 using OxyPlot.Annotations;
 using OxyPlot.Axes;
-using OxyPlot.Legends;
 using OxyPlot.Series;
 
 namespace OrderUnfold.Plotting;
@@ -54,7 +52,7 @@ public sealed record CandidateMapInput(
 
 /// <summary>
 /// Plots of the measurement planner: the alias margin against the shift for a design, and the map of the worst
-/// margin against candidate length. Rendered like <see cref="Plots"/> (SkiaSharp PNG in memory, then written
+/// margin against candidate length. Built and rendered with <see cref="Figure"/> (PNG in memory, then written
 /// atomically, DejaVu Sans).
 /// </summary>
 public static class PlanPlots
@@ -65,14 +63,14 @@ public static class PlanPlots
     /// <summary>Pixel size of the candidate-map image.</summary>
     public static readonly (int Width, int Height) CandidateMapSize = (1200, 650);
 
-    private static readonly OxyColor CurveColor = Palette.Blue;
-    private static readonly OxyColor AliasColor = OxyColor.FromRgb(0xC0, 0x1E, 0x2E);
-    private static readonly OxyColor WorstColor = OxyColor.FromRgb(0xD0, 0x7A, 0x00);
-    private static readonly OxyColor NominalColor = OxyColor.FromRgb(0x9A, 0x9A, 0x9A);
-    private static readonly OxyColor ThresholdColor = OxyColor.FromRgb(0x60, 0x60, 0x60);
+    private static readonly OxyColor CurveColour = Palette.Blue;
+    private static readonly OxyColor AliasColour = OxyColor.FromRgb(0xC0, 0x1E, 0x2E);
+    private static readonly OxyColor WorstColour = OxyColor.FromRgb(0xD0, 0x7A, 0x00);
+    private static readonly OxyColor NominalColour = OxyColor.FromRgb(0x9A, 0x9A, 0x9A);
+    private static readonly OxyColor ThresholdColour = OxyColor.FromRgb(0x60, 0x60, 0x60);
     private static readonly OxyColor BelowFill = OxyColor.FromAColor(0x22, OxyColor.FromRgb(0xC0, 0x1E, 0x2E));
     private static readonly OxyColor SelfFill = OxyColor.FromAColor(0x30, OxyColor.FromRgb(0x80, 0x80, 0x80));
-    private static readonly OxyColor RepeatColor = OxyColor.FromRgb(0x6A, 0x3D, 0x9A);
+    private static readonly OxyColor RepeatColour = OxyColor.FromRgb(0x6A, 0x3D, 0x9A);
 
     private const string FullKey = "full";
     private const string ZoomKey = "zoom";
@@ -85,14 +83,14 @@ public static class PlanPlots
     /// when it lies in range. Δ is shown in GHz for spans of 2 GHz and more, MHz otherwise.
     /// </summary>
     public static void SaveMarginCurve(string path, MarginCurveInput input) =>
-        Plots.Save(path, BuildMarginCurve(input), MarginCurveSize);
+        Figure.Save(path, BuildMarginCurve(input), MarginCurveSize);
 
     /// <summary>
     /// Worst alias margin against candidate length (mm): the margin within tolerance as the main curve, the nominal
     /// margin in grey behind it, the required margin dashed and the recommended length marked.
     /// </summary>
     public static void SaveCandidateMap(string path, CandidateMapInput input) =>
-        Plots.Save(path, BuildCandidateMap(input), CandidateMapSize);
+        Figure.Save(path, BuildCandidateMap(input), CandidateMapSize);
 
     internal static PlotModel BuildMarginCurve(MarginCurveInput input)
     {
@@ -101,7 +99,7 @@ public static class PlanPlots
         var lo = input.Curve[0].DeltaHz;
         var hi = input.Curve[^1].DeltaHz;
         var scale = FrequencyAxisScale.For(hi - lo);
-        var model = Plots.NewModel(input.Title, input.Subtitle);
+        var model = Figure.NewModel(input.Title, input.Subtitle);
 
         // Two panels over one Δ axis: the whole curve on top (its peaks reach 𝓕/2 linewidths), and beneath it the
         // same curve with the margin axis cut at five thresholds or 2.5 × the worst alias, where the aliases are.
@@ -110,93 +108,21 @@ public static class PlanPlots
         var cut = Math.Min(peak, Math.Max(5 * input.ThresholdLinewidths, 2.5 * worstValue)) * 1.08;
         var fullMax = peak * 1.08;
 
-        model.Axes.Add(Palette.Gridded(new LinearAxis
-        {
-            Position = AxisPosition.Bottom,
-            Title = scale.Title("frequency shift Δ between two lines"),
-            StringFormat = scale.TickFormat(hi - lo),
-            Minimum = scale.FromHertz(lo),
-            Maximum = scale.FromHertz(hi),
-        }));
-        model.Axes.Add(Palette.Gridded(new LinearAxis
-        {
-            Key = FullKey,
-            Position = AxisPosition.Left,
-            StartPosition = 0.45,
-            EndPosition = 1,
-            Title = "alias margin (linewidths)",
-            Minimum = 0,
-            Maximum = fullMax,
-        }));
-        model.Axes.Add(Palette.Gridded(new LinearAxis
-        {
-            Key = ZoomKey,
-            Position = AxisPosition.Left,
-            StartPosition = 0,
-            EndPosition = 0.38,
-            Title = "zoom (linewidths)",
-            Minimum = 0,
-            Maximum = cut,
-        }));
+        model.Axes.Add(Figure.Axis(AxisPosition.Bottom, scale.Title("frequency shift Δ between two lines"),
+            scale.FromHertz(lo), scale.FromHertz(hi), scale.TickFormat(hi - lo)));
+        model.Axes.Add(Figure.PanelAxis(FullKey, "alias margin (linewidths)", 0.45, 1, minimum: 0, maximum: fullMax));
+        model.Axes.Add(Figure.PanelAxis(ZoomKey, "zoom (linewidths)", 0, 0.38, minimum: 0, maximum: cut));
 
         foreach (var key in new[] { FullKey, ZoomKey })
         {
-            var top = key == FullKey ? fullMax : cut;
-            var band = new AreaSeries
-            {
-                Title = $"below required margin ({input.ThresholdLinewidths:G3} linewidths)",
-                Color = OxyColors.Transparent, Fill = BelowFill, StrokeThickness = 0, YAxisKey = key, RenderInLegend = key == ZoomKey,
-            };
-            band.Points.Add(new DataPoint(scale.FromHertz(lo), input.ThresholdLinewidths));
-            band.Points.Add(new DataPoint(scale.FromHertz(hi), input.ThresholdLinewidths));
-            band.Points2.Add(new DataPoint(scale.FromHertz(lo), 0));
-            band.Points2.Add(new DataPoint(scale.FromHertz(hi), 0));
-            model.Series.Add(band);
-            if (input.MinimumShiftHz > lo)
-            {
-                var self = new AreaSeries
-                {
-                    Title = "the line itself (Δ < " + Quantity.FormatFrequency(input.MinimumShiftHz, 3) + ")",
-                    Color = OxyColors.Transparent, Fill = SelfFill, StrokeThickness = 0, YAxisKey = key, RenderInLegend = key == ZoomKey,
-                };
-                var x1 = scale.FromHertz(Math.Min(input.MinimumShiftHz, hi));
-                self.Points.Add(new DataPoint(scale.FromHertz(lo), top));
-                self.Points.Add(new DataPoint(x1, top));
-                self.Points2.Add(new DataPoint(scale.FromHertz(lo), 0));
-                self.Points2.Add(new DataPoint(x1, 0));
-                model.Series.Add(self);
-            }
+            var panel = new MarginPanel(key, key == FullKey ? fullMax : cut, key == ZoomKey);
+            AddRequiredMargin(model, scale.FromHertz(lo), scale.FromHertz(hi), input.ThresholdLinewidths, key, panel.InLegend);
+            if (input.MinimumShiftHz > lo) AddSelfRegion(model, input.MinimumShiftHz, lo, hi, scale, panel);
 
-            var curve = new LineSeries { Title = "alias margin", Color = CurveColor, StrokeThickness = key == FullKey ? 1.0 : 1.3, YAxisKey = key, RenderInLegend = key == ZoomKey };
+            var curve = new LineSeries { Title = "alias margin", Color = CurveColour, StrokeThickness = key == FullKey ? 1.0 : 1.3, YAxisKey = key, RenderInLegend = panel.InLegend };
             foreach (var p in input.Curve) curve.Points.Add(new DataPoint(scale.FromHertz(p.DeltaHz), p.MarginLinewidths));
             model.Series.Add(curve);
-            model.Annotations.Add(new LineAnnotation
-            {
-                Type = LineAnnotationType.Horizontal,
-                Y = input.ThresholdLinewidths,
-                Color = ThresholdColor,
-                LineStyle = LineStyle.Dash,
-                StrokeThickness = 1.2,
-                YAxisKey = key,
-            });
-
-            if (input.RepeatHz is double rep && rep >= lo && rep <= hi)
-            {
-                model.Annotations.Add(new LineAnnotation
-                {
-                    Type = LineAnnotationType.Vertical,
-                    X = scale.FromHertz(rep),
-                    Color = RepeatColor,
-                    LineStyle = LineStyle.DashDot,
-                    StrokeThickness = 1.4,
-                    YAxisKey = key,
-                    Text = key == FullKey ? "exact repeat " + Quantity.FormatFrequency(rep) : null,
-                    TextColor = RepeatColor,
-                    TextOrientation = AnnotationTextOrientation.Vertical,
-                    TextHorizontalAlignment = HorizontalAlignment.Right,
-                    TextLinePosition = 0.98,
-                });
-            }
+            if (input.RepeatHz is double rep && rep >= lo && rep <= hi) AddRepeat(model, rep, scale, key);
 
             if (input.Aliases.Count > 0)
             {
@@ -205,53 +131,129 @@ public static class PlanPlots
                     Title = $"alias below the threshold ({input.Aliases.Count})",
                     MarkerType = MarkerType.Circle,
                     MarkerSize = 4.5,
-                    MarkerFill = AliasColor,
-                    MarkerStroke = AliasColor,
+                    MarkerFill = AliasColour,
+                    MarkerStroke = AliasColour,
                     YAxisKey = key,
-                    RenderInLegend = key == ZoomKey,
+                    RenderInLegend = panel.InLegend,
                 };
                 foreach (var a in input.Aliases) aliases.Points.Add(new ScatterPoint(scale.FromHertz(a.DeltaHz), a.MarginLinewidths));
                 model.Series.Add(aliases);
             }
 
-            if (input.Worst is MarginPoint w && double.IsFinite(w.DeltaHz))
-            {
-                var worst = new ScatterSeries
-                {
-                    Title = input.WorstLabel,
-                    MarkerType = MarkerType.Diamond,
-                    MarkerSize = 7,
-                    MarkerFill = WorstColor,
-                    MarkerStroke = OxyColors.Black,
-                    MarkerStrokeThickness = 0.8,
-                    YAxisKey = key,
-                    RenderInLegend = key == ZoomKey,
-                };
-                var wx = scale.FromHertz(w.DeltaHz);
-                worst.Points.Add(new ScatterPoint(wx, w.MarginLinewidths));
-                model.Series.Add(worst);
-                if (key == ZoomKey)
-                {
-                    var right = wx > scale.FromHertz(lo + 0.7 * (hi - lo));
-                    var dx = 0.01 * scale.FromHertz(hi - lo) * (right ? -1 : 1);
-                    model.Annotations.Add(new TextAnnotation
-                    {
-                        Text = $"{input.WorstLabel}: {w.MarginLinewidths.ToString("0.##", CultureInfo.InvariantCulture)} linewidths at {Quantity.FormatFrequency(w.DeltaHz)}",
-                        TextPosition = new DataPoint(wx + dx, Math.Min(w.MarginLinewidths + 0.06 * cut, 0.85 * cut)),
-                        TextHorizontalAlignment = right ? HorizontalAlignment.Right : HorizontalAlignment.Left,
-                        TextVerticalAlignment = VerticalAlignment.Bottom,
-                        Stroke = OxyColors.Transparent,
-                        Background = OxyColor.FromAColor(0xE0, OxyColors.White),
-                        TextColor = OxyColors.Black,
-                        FontSize = 12,
-                        YAxisKey = key,
-                    });
-                }
-            }
+            if (input.Worst is MarginPoint w && double.IsFinite(w.DeltaHz)) AddWorst(model, input, w, lo, hi, scale, panel);
         }
 
         return model;
     }
+
+    /// <summary>One panel of the margin curve: its axis key, the top of its margin axis, and whether its series appear in
+    /// the legend (only the zoom panel's do, so each entry appears once).</summary>
+    private sealed record MarginPanel(string Key, double Top, bool InLegend);
+
+    /// <summary>The required margin: a shaded band from 0 up to it across <paramref name="x0"/>…<paramref name="x1"/> and
+    /// a dashed line at it.</summary>
+    private static void AddRequiredMargin(PlotModel model, double x0, double x1, double threshold, string? key = null, bool inLegend = true)
+    {
+        var band = new AreaSeries
+        {
+            Title = $"below required margin ({threshold:G3} linewidths)",
+            Color = OxyColors.Transparent, Fill = BelowFill, StrokeThickness = 0, YAxisKey = key, RenderInLegend = inLegend,
+        };
+        band.Points.Add(new DataPoint(x0, threshold));
+        band.Points.Add(new DataPoint(x1, threshold));
+        band.Points2.Add(new DataPoint(x0, 0));
+        band.Points2.Add(new DataPoint(x1, 0));
+        model.Series.Add(band);
+        model.Annotations.Add(new LineAnnotation
+        {
+            Type = LineAnnotationType.Horizontal,
+            Y = threshold,
+            Color = ThresholdColour,
+            LineStyle = LineStyle.Dash,
+            StrokeThickness = 1.2,
+            YAxisKey = key,
+        });
+    }
+
+    /// <summary>The shifts below the smallest counted one, which are the line itself: shaded grey over the panel's height.</summary>
+    private static void AddSelfRegion(PlotModel model, double minimumShiftHz, double lo, double hi, FrequencyAxisScale scale, MarginPanel panel)
+    {
+        var self = new AreaSeries
+        {
+            Title = "the line itself (Δ < " + Quantity.FormatFrequency(minimumShiftHz, 3) + ")",
+            Color = OxyColors.Transparent, Fill = SelfFill, StrokeThickness = 0, YAxisKey = panel.Key, RenderInLegend = panel.InLegend,
+        };
+        var x1 = scale.FromHertz(Math.Min(minimumShiftHz, hi));
+        self.Points.Add(new DataPoint(scale.FromHertz(lo), panel.Top));
+        self.Points.Add(new DataPoint(x1, panel.Top));
+        self.Points2.Add(new DataPoint(scale.FromHertz(lo), 0));
+        self.Points2.Add(new DataPoint(x1, 0));
+        model.Series.Add(self);
+    }
+
+    /// <summary>The common period of the FSRs (exact repeat) as a vertical line, labelled on the full panel.</summary>
+    private static void AddRepeat(PlotModel model, double repeatHz, FrequencyAxisScale scale, string key) => model.Annotations.Add(new LineAnnotation
+    {
+        Type = LineAnnotationType.Vertical,
+        X = scale.FromHertz(repeatHz),
+        Color = RepeatColour,
+        LineStyle = LineStyle.DashDot,
+        StrokeThickness = 1.4,
+        YAxisKey = key,
+        Text = key == FullKey ? "exact repeat " + Quantity.FormatFrequency(repeatHz) : null,
+        TextColor = RepeatColour,
+        TextOrientation = AnnotationTextOrientation.Vertical,
+        TextHorizontalAlignment = HorizontalAlignment.Right,
+        TextLinePosition = 0.98,
+    });
+
+    /// <summary>The worst alias as a highlighted diamond; on the zoom panel also its value as a label, on the side
+    /// away from the nearer edge.</summary>
+    private static void AddWorst(PlotModel model, MarginCurveInput input, MarginPoint w, double lo, double hi, FrequencyAxisScale scale, MarginPanel panel)
+    {
+        var wx = scale.FromHertz(w.DeltaHz);
+        model.Series.Add(Highlight(input.WorstLabel, 7, wx, w.MarginLinewidths, panel.Key, panel.InLegend));
+        if (panel.Key != ZoomKey) return;
+        var right = wx > scale.FromHertz(lo + 0.7 * (hi - lo));
+        var dx = 0.01 * scale.FromHertz(hi - lo) * (right ? -1 : 1);
+        var cut = panel.Top;
+        model.Annotations.Add(Label(
+            $"{input.WorstLabel}: {w.MarginLinewidths.ToString("0.##", CultureInfo.InvariantCulture)} linewidths at {Quantity.FormatFrequency(w.DeltaHz)}",
+            new DataPoint(wx + dx, Math.Min(w.MarginLinewidths + 0.06 * cut, 0.85 * cut)), right, 0xE0, panel.Key));
+    }
+
+    /// <summary>A highlighted point (worst alias, recommended length): a large diamond with a black outline.</summary>
+    private static ScatterSeries Highlight(string title, double size, double x, double y, string? key = null, bool inLegend = true)
+    {
+        var mark = new ScatterSeries
+        {
+            Title = title,
+            MarkerType = MarkerType.Diamond,
+            MarkerSize = size,
+            MarkerFill = WorstColour,
+            MarkerStroke = OxyColors.Black,
+            MarkerStrokeThickness = 0.8,
+            YAxisKey = key,
+            RenderInLegend = inLegend,
+        };
+        mark.Points.Add(new ScatterPoint(x, y));
+        return mark;
+    }
+
+    /// <summary>A black 12 pt label on a translucent white background (opacity <paramref name="alpha"/>), left or right
+    /// of its anchor.</summary>
+    private static TextAnnotation Label(string text, DataPoint anchor, bool right, byte alpha, string? key = null) => new()
+    {
+        Text = text,
+        TextPosition = anchor,
+        TextHorizontalAlignment = right ? HorizontalAlignment.Right : HorizontalAlignment.Left,
+        TextVerticalAlignment = VerticalAlignment.Bottom,
+        Stroke = OxyColors.Transparent,
+        Background = OxyColor.FromAColor(alpha, OxyColors.White),
+        TextColor = OxyColors.Black,
+        FontSize = 12,
+        YAxisKey = key,
+    };
 
     internal static PlotModel BuildCandidateMap(CandidateMapInput input)
     {
@@ -263,95 +265,51 @@ public static class PlanPlots
             throw new ArgumentException($"{input.LengthM.Length} lengths but {rm.Length} margins within tolerance", nameof(input));
 
         var order = Enumerable.Range(0, input.LengthM.Length).OrderBy(i => input.LengthM[i]).ToArray();
-        var model = Plots.NewModel(input.Title, input.Subtitle);
+        var model = Figure.NewModel(input.Title, input.Subtitle);
         var all = input.NominalMargin.Concat(input.RobustMargin ?? []).Where(double.IsFinite).DefaultIfEmpty(0).Max();
         var yMax = Math.Max(all, input.ThresholdLinewidths) * 1.15;
         var lmin = input.LengthM.Min() * 1e3;
         var lmax = input.LengthM.Max() * 1e3;
         var pad = lmax > lmin ? 0.01 * (lmax - lmin) : 1;
-        model.Axes.Add(Palette.Gridded(new LinearAxis
-        {
-            Position = AxisPosition.Bottom,
-            Title = "candidate cavity length (mm)",
-            Minimum = lmin - pad,
-            Maximum = lmax + pad,
-        }));
-        model.Axes.Add(Palette.Gridded(new LinearAxis
-        {
-            Position = AxisPosition.Left,
-            Title = "worst alias margin over the span (linewidths)",
-            Minimum = 0,
-            Maximum = yMax,
-        }));
-
-        var band = new AreaSeries { Title = $"below required margin ({input.ThresholdLinewidths:G3} linewidths)", Color = OxyColors.Transparent, Fill = BelowFill, StrokeThickness = 0 };
-        band.Points.Add(new DataPoint(lmin - pad, input.ThresholdLinewidths));
-        band.Points.Add(new DataPoint(lmax + pad, input.ThresholdLinewidths));
-        band.Points2.Add(new DataPoint(lmin - pad, 0));
-        band.Points2.Add(new DataPoint(lmax + pad, 0));
-        model.Series.Add(band);
-        model.Annotations.Add(new LineAnnotation
-        {
-            Type = LineAnnotationType.Horizontal,
-            Y = input.ThresholdLinewidths,
-            Color = ThresholdColor,
-            LineStyle = LineStyle.Dash,
-            StrokeThickness = 1.2,
-        });
-
-        XYAxisSeries Series(string title, OxyColor color, double thickness, double[] values)
-        {
-            if (input.Stepped)
-            {
-                var s = new LineSeries { Title = title, Color = color, StrokeThickness = thickness };
-                foreach (var i in order) s.Points.Add(new DataPoint(input.LengthM[i] * 1e3, values[i]));
-                return s;
-            }
-
-            var m = new ScatterSeries { Title = title, MarkerType = MarkerType.Circle, MarkerSize = 2 + thickness * 1.5, MarkerFill = color, MarkerStroke = color };
-            foreach (var i in order) m.Points.Add(new ScatterPoint(input.LengthM[i] * 1e3, values[i]));
-            return m;
-        }
+        model.Axes.Add(Figure.Axis(AxisPosition.Bottom, "candidate cavity length (mm)", lmin - pad, lmax + pad));
+        model.Axes.Add(Figure.Axis(AxisPosition.Left, "worst alias margin over the span (linewidths)", 0, yMax));
+        AddRequiredMargin(model, lmin - pad, lmax + pad, input.ThresholdLinewidths);
 
         if (input.RobustMargin is { } robust)
         {
-            model.Series.Add(Series("nominal length", NominalColor, 0.9, input.NominalMargin));
-            model.Series.Add(Series("worst within length tolerance", CurveColor, 1.4, robust));
+            model.Series.Add(MarginSeries(input, order, "nominal length", NominalColour, 0.9, input.NominalMargin));
+            model.Series.Add(MarginSeries(input, order, "worst within length tolerance", CurveColour, 1.4, robust));
         }
         else
         {
-            model.Series.Add(Series("worst alias margin", CurveColor, 1.4, input.NominalMargin));
+            model.Series.Add(MarginSeries(input, order, "worst alias margin", CurveColour, 1.4, input.NominalMargin));
         }
 
         if (input.ChosenLengthM is double chosen)
         {
             var idx = order.MinBy(i => Math.Abs(input.LengthM[i] - chosen));
             var y = (input.RobustMargin ?? input.NominalMargin)[idx];
-            var mark = new ScatterSeries
-            {
-                Title = input.ChosenLabel,
-                MarkerType = MarkerType.Diamond,
-                MarkerSize = 8,
-                MarkerFill = WorstColor,
-                MarkerStroke = OxyColors.Black,
-                MarkerStrokeThickness = 0.8,
-            };
-            mark.Points.Add(new ScatterPoint(chosen * 1e3, y));
-            model.Series.Add(mark);
+            model.Series.Add(Highlight(input.ChosenLabel, 8, chosen * 1e3, y));
             var right = chosen * 1e3 > lmin + 0.75 * (lmax - lmin);
-            model.Annotations.Add(new TextAnnotation
-            {
-                Text = $"{Quantity.FormatLength(chosen)}: {y.ToString("0.##", CultureInfo.InvariantCulture)} linewidths",
-                TextPosition = new DataPoint(chosen * 1e3, y + 0.03 * yMax),
-                TextHorizontalAlignment = right ? HorizontalAlignment.Right : HorizontalAlignment.Left,
-                TextVerticalAlignment = VerticalAlignment.Bottom,
-                Stroke = OxyColors.Transparent,
-                Background = OxyColor.FromAColor(0xD0, OxyColors.White),
-                TextColor = OxyColors.Black,
-                FontSize = 12,
-            });
+            model.Annotations.Add(Label($"{Quantity.FormatLength(chosen)}: {y.ToString("0.##", CultureInfo.InvariantCulture)} linewidths",
+                new DataPoint(chosen * 1e3, y + 0.03 * yMax), right, 0xD0));
         }
 
         return model;
+    }
+
+    /// <summary>One margin per candidate against its length in mm: a line over an evenly stepped range, markers for a catalogue.</summary>
+    private static XYAxisSeries MarginSeries(CandidateMapInput input, int[] order, string title, OxyColor colour, double thickness, double[] values)
+    {
+        if (input.Stepped)
+        {
+            var s = new LineSeries { Title = title, Color = colour, StrokeThickness = thickness };
+            foreach (var i in order) s.Points.Add(new DataPoint(input.LengthM[i] * 1e3, values[i]));
+            return s;
+        }
+
+        var m = new ScatterSeries { Title = title, MarkerType = MarkerType.Circle, MarkerSize = 2 + thickness * 1.5, MarkerFill = colour, MarkerStroke = colour };
+        foreach (var i in order) m.Points.Add(new ScatterPoint(input.LengthM[i] * 1e3, values[i]));
+        return m;
     }
 }

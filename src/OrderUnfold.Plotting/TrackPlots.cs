@@ -2,7 +2,6 @@ using OrderUnfold.Io;
 using OxyPlot;
 using OxyPlot.Annotations;
 using OxyPlot.Axes;
-using OxyPlot.Legends;
 using OxyPlot.Series;
 
 using OrderUnfold.Pipeline;
@@ -21,26 +20,26 @@ public static class TrackPlots
     /// <summary>Weakest intensity the colour scale shows, dB; weaker points take its colour.</summary>
     public const double FloorDb = -40;
 
-    private static readonly OxyColor HopColor = Palette.Crimson;
-    private static readonly OxyColor SeriesColor = Palette.Blue;
+    private static readonly OxyColor HopColour = Palette.Crimson;
+    private static readonly OxyColor SeriesColour = Palette.Blue;
 
     /// <summary>
     /// Frequency against time, one dot per line per item, coloured by intensity (dB relative to the item's strongest
     /// line; colour bar on the right); mode hops are dashed vertical lines. The frequency axis is in MHz or GHz.
     /// </summary>
     public static void SaveTrack(string path, TrackPlotInput input) =>
-        AtomicFile.WriteAllBytes(path, Plots.RenderPng(BuildTrack(input), Size.Width, Size.Height));
+        AtomicFile.WriteAllBytes(path, Figure.RenderPng(BuildTrack(input), Size.Width, Size.Height));
 
     /// <summary>A value against time (line with dots); mode hops are dashed vertical lines.</summary>
     public static void SaveSeries(string path, SeriesPlotInput input) =>
-        AtomicFile.WriteAllBytes(path, Plots.RenderPng(BuildSeries(input), Size.Width, Size.Height));
+        AtomicFile.WriteAllBytes(path, Figure.RenderPng(BuildSeries(input), Size.Width, Size.Height));
 
     internal static PlotModel BuildTrack(TrackPlotInput input)
     {
         ArgumentNullException.ThrowIfNull(input);
         if (input.TimeS.Length != input.FrequencyHz.Length || input.TimeS.Length != input.IntensityDb.Length)
             throw new ArgumentException($"time ({input.TimeS.Length}), frequency ({input.FrequencyHz.Length}) and intensity ({input.IntensityDb.Length}) need the same length", nameof(input));
-        var model = Plots.NewModel(input.Title, input.Subtitle);
+        var model = Figure.NewModel(input.Title, input.Subtitle);
         var scale = FrequencyAxisScale.ForValues(input.FrequencyHz.Where(double.IsFinite).DefaultIfEmpty(0));
         var span = FrequencyAxisScale.SpanHz(input.FrequencyHz.Where(double.IsFinite).DefaultIfEmpty(0));
         model.Axes.Add(TimeAxis(input.Origin, input.TimeS));
@@ -94,7 +93,7 @@ public static class TrackPlots
         ArgumentNullException.ThrowIfNull(input);
         if (input.TimeS.Length != input.Values.Length)
             throw new ArgumentException($"time ({input.TimeS.Length}) and values ({input.Values.Length}) need the same length", nameof(input));
-        var model = Plots.NewModel(input.Title, input.Subtitle);
+        var model = Figure.NewModel(input.Title, input.Subtitle);
         model.Axes.Add(TimeAxis(input.Origin, input.TimeS));
         model.Axes.Add(Palette.Gridded(new LinearAxis
         {
@@ -106,11 +105,11 @@ public static class TrackPlots
         var line = new LineSeries
         {
             Title = input.ValueTitle,
-            Color = SeriesColor,
+            Color = SeriesColour,
             StrokeThickness = 1.0,
             MarkerType = input.TimeS.Length > 2000 ? MarkerType.None : MarkerType.Circle,
             MarkerSize = 2.2,
-            MarkerFill = SeriesColor,
+            MarkerFill = SeriesColour,
         };
         for (var i = 0; i < input.TimeS.Length; i++)
             line.Points.Add(double.IsFinite(input.Values[i]) ? new DataPoint(X(input.Origin, input.TimeS[i]), input.Values[i]) : DataPoint.Undefined);
@@ -145,11 +144,11 @@ public static class TrackPlots
             {
                 Type = LineAnnotationType.Vertical,
                 X = X(origin, t),
-                Color = HopColor,
+                Color = HopColour,
                 LineStyle = LineStyle.Dash,
                 StrokeThickness = 1.2,
                 Text = first ? "mode hop" : null,
-                TextColor = HopColor,
+                TextColor = HopColour,
                 TextOrientation = AnnotationTextOrientation.Horizontal,
                 TextVerticalAlignment = VerticalAlignment.Top,
                 TextHorizontalAlignment = HorizontalAlignment.Left,

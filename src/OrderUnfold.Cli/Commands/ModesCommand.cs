@@ -65,7 +65,7 @@ internal sealed class ModesCommand : VerbCommand
         var (input, source, defaultOut) = ReadInput(parse.GetValue(_target)!);
         var outDir = parse.GetValue(_out) ?? defaultOut;
 
-        var analysis = LaserModes.Analyze(input, options);
+        var analysis = LaserModes.Analyse(input, options);
         var verdict = ModeCheck.Check(analysis, requirements);
         Directory.CreateDirectory(outDir);
         ModeOutputs.WriteJson(Path.Combine(outDir, ModeOutputs.JsonFileName), analysis, requirements.Any ? verdict : null, source);

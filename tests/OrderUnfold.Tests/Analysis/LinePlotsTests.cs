@@ -90,7 +90,7 @@ public class LinePlotsTests
     public void LinesWithinHalfAGigahertzShareAGroup()
     {
         UnfoldedLine L(double hz) => new(hz, 1, 1, 10, 0, 0);
-        var groups = LinePlots.Groups([L(2e9), L(0), L(0.3e9), L(0.75e9), L(1.4e9)]);
+        var groups = LineGroupPanels.Groups([L(2e9), L(0), L(0.3e9), L(0.75e9), L(1.4e9)]);
         Assert.Equal([3, 1, 1], groups.Select(g => g.Count));
         Assert.Equal([0, 0.3e9, 0.75e9], groups[0].Select(l => l.FrequencyHz));
     }

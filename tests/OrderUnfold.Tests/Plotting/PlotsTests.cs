@@ -127,7 +127,7 @@ public sealed class PlotsTests : IDisposable
     public void Spectrum_AbsoluteOffsetIsStatedExactlyInTitle()
     {
         var input = SimulatedPlotInputs.Spectrum(absoluteOffsetHz: 473.6123456789e12);
-        var model = Plots.BuildSpectrum(input);
+        var model = SpectrumPlot.Build(input);
         var x = BottomAxis(model);
         // GHz axis: X rounded to 1 MHz, i.e. 6 decimals in THz.
         Assert.Equal("frequency − 473.612346 THz (GHz)", x.Title);
@@ -137,14 +137,14 @@ public sealed class PlotsTests : IDisposable
         var a = lines.Single(p => p.Y == 1.0);
         Assert.Equal((473.6123456789e12 - 473.612346e12) / 1e9, a.X, 9);
 
-        var relative = Plots.BuildSpectrum(input with { AbsoluteOffsetHz = null });
+        var relative = SpectrumPlot.Build(input with { AbsoluteOffsetHz = null });
         Assert.Equal("frequency relative to anchor (GHz)", BottomAxis(relative).Title);
     }
 
     [Fact]
     public void Spectrum_DoubtfulLinesGetTheirOwnHollowSeries()
     {
-        var model = Plots.BuildSpectrum(SimulatedPlotInputs.Spectrum());
+        var model = SpectrumPlot.Build(SimulatedPlotInputs.Spectrum());
         var marks = model.Series.OfType<ScatterErrorSeries>().ToList();
         Assert.Equal(["line (summed over its bins)", "doubtful line"], marks.Select(s => s.Title));
         Assert.Equal(6, marks[0].Points.Count);
@@ -160,14 +160,14 @@ public sealed class PlotsTests : IDisposable
     public void Spectrum_CrowdedLabelsAreSpreadWithLeaders()
     {
         var input = SimulatedPlotInputs.Spectrum();
-        var model = Plots.BuildSpectrum(input);
+        var model = SpectrumPlot.Build(input);
         var labels = model.Annotations.OfType<TextAnnotation>().ToDictionary(a => a.Text, a => a.TextPosition);
         var span = (input.GridHz[^1] - input.GridHz[0]) / 1e9;
         // D (2.905 GHz, 0.71) and E (2.965 GHz, 0.64) are 60 MHz apart on an ~8 GHz axis: their labels are
         // set side by side, one clearance apart, in line order, above the higher marker (D + its sigma).
-        Assert.Equal(Plots.LabelClearanceX * span, labels["E"].X - labels["D"].X, 9);
+        Assert.Equal(LineLabels.ClearanceX * span, labels["E"].X - labels["D"].X, 9);
         Assert.Equal(labels["D"].Y, labels["E"].Y, 12);
-        Assert.Equal(0.71 + 0.015 + 0.03 * 0.71 + Plots.LabelLiftY * (1.0 + 0.045), labels["D"].Y, 9);
+        Assert.Equal(0.71 + 0.015 + 0.03 * 0.71 + LineLabels.LiftY * (1.0 + 0.045), labels["D"].Y, 9);
         // Each of the two gets a leader from its marker; lone lines get none.
         var leaders = model.Series.OfType<LineSeries>().Where(s => !s.RenderInLegend).ToList();
         Assert.Equal(2, leaders.Count);
@@ -199,9 +199,9 @@ public sealed class PlotsTests : IDisposable
         var model = Plots.BuildFinesseFit(SimulatedPlotInputs.Finesse());
         Assert.Equal("fitted finesse 151.4 ± 1.2", model.Subtitle);
         Assert.Equal("detuning (MHz)", BottomAxis(model).Title);
-        Assert.Equal("152.3 ± 1.2", Plots.FormatWithSigma(152.31, 1.24));
-        Assert.Equal("152 ± 25", Plots.FormatWithSigma(152.31, 25));
-        Assert.Equal("152.3", Plots.FormatWithSigma(152.31, null));
+        Assert.Equal("152.3 ± 1.2", PlotFormat.WithSigma(152.31, 1.24));
+        Assert.Equal("152 ± 25", PlotFormat.WithSigma(152.31, 25));
+        Assert.Equal("152.3", PlotFormat.WithSigma(152.31, null));
     }
 
     [Fact]
@@ -213,7 +213,7 @@ public sealed class PlotsTests : IDisposable
             Plots.BuildSweepFit(sweep with { ScanFrequencyHz = [1], Measured = [1], Model = [1] })).Message);
         var spectrum = SimulatedPlotInputs.Spectrum();
         Assert.Contains("DetectionLimit", Assert.Throws<ArgumentException>(() =>
-            Plots.BuildSpectrum(spectrum with { DetectionLimit = [1, 2, 3] })).Message);
+            SpectrumPlot.Build(spectrum with { DetectionLimit = [1, 2, 3] })).Message);
         var axis = SimulatedPlotInputs.AxisCalibration();
         Assert.Contains("ResidualHz", Assert.Throws<ArgumentException>(() =>
             Plots.BuildAxisCalibration(axis with { ResidualHz = [] })).Message);

@@ -171,12 +171,12 @@ public sealed class CombSearch
                 var xb = _pts[strong[b]].X;
                 if (_fold is { } f)
                 {
-                    var d = Mod(xb - xa, f);
+                    var d = FoldArithmetic.Mod(xb - xa, f);
                     for (var n = 1; n <= MaxDivisorFolded; n++)
                     {
                         for (var l = 0; l < n; l++)
                         {
-                            var s = Mod((d + l * f) / n, f);
+                            var s = FoldArithmetic.Mod((d + l * f) / n, f);
                             var c = Math.Min(s, f - s);
                             if (c >= minStep) raw.Add(c);
                         }
@@ -207,17 +207,11 @@ public sealed class CombSearch
     private double Scale(double step)
     {
         if (_fold is not { } f) return Math.Abs(step);
-        var s = Mod(step, f);
+        var s = FoldArithmetic.Mod(step, f);
         return Math.Min(s, f - s);
     }
 
-    private double Wrap(double d) => _fold is { } f ? d - f * Math.Round(d / f) : d;
-
-    private static double Mod(double x, double m)
-    {
-        var r = x % m;
-        return r < 0 ? r + m : r;
-    }
+    private double Wrap(double d) => FoldArithmetic.WrapTo(d, _fold);
 
     /// <summary>
     /// Membership tolerance of point i: max(SigmaTolerance·σ, fraction·step), at most a quarter of the step. While

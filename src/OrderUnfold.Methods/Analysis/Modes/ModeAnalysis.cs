@@ -240,7 +240,7 @@ public sealed record FoldedReading(
     double? SuggestedSecondFsrHz,
     double? SuggestedSeparationHz);
 
-/// <summary>Everything the mode analysis found. Built by <see cref="LaserModes.Analyze"/>.</summary>
+/// <summary>Everything the mode analysis found. Built by <see cref="LaserModes.Analyse"/>.</summary>
 /// <param name="OrdersResolved">Whether the positions were true frequency differences.</param>
 /// <param name="Lines">Every input line, in input order, with its role.</param>
 /// <param name="MainLineIndex">Input index of the strongest line (mode k = 0).</param>

@@ -5,7 +5,7 @@ namespace OrderUnfold.Pipeline.Batch;
 
 /// <summary>
 /// Fills the summary's mode_spacing_hz and smsr_db columns from the laser-mode analysis of each item
-/// (<see cref="LaserModes.Analyze"/> on the item's line list). A failed mode analysis leaves the columns empty:
+/// (<see cref="LaserModes.Analyse"/> on the item's line list). A failed mode analysis leaves the columns empty:
 /// a line list that is not a comb is not an item failure.
 /// </summary>
 public sealed class ModeItemAnalysis : IItemAnalysis
@@ -21,7 +21,7 @@ public sealed class ModeItemAnalysis : IItemAnalysis
         ModeAnalysis analysis;
         try
         {
-            analysis = LaserModes.Analyze(ModeInputs.FromRun(run));
+            analysis = LaserModes.Analyse(ModeInputs.FromRun(run));
         }
         catch (InputException)
         {

@@ -24,7 +24,7 @@ public sealed class LaserModesTests
 
         // Noise-free simulated three-mode line list: the fit returns the spacing and length exactly.
         var lines = Comb(spacing, 123e6, [-1, 0, 1], k => Envelope(k, 0.2, 3.0), 0, 0, new Random(1));
-        var a = LaserModes.Analyze(Resolved(lines));
+        var a = LaserModes.Analyse(Resolved(lines));
         Assert.Equal(spacing, a.Spacing!.SpacingHz, spacing * 1e-12);
         Assert.Equal(0.30, a.Spacing.OpticalLengthM, 1e-12);
         Assert.Null(a.Spacing.PhysicalLengthM);
@@ -43,7 +43,7 @@ public sealed class LaserModesTests
         var half = modes / 2;
         var fwhmModes = (modes == 3 ? 1.5e9 : 2.5e9) / spacing;
         var lines = Comb(spacing, 2.1e9, Enumerable.Range(-half, modes), k => Envelope(k, 0.15, fwhmModes), 0.2e6, 0.02, new Random(seed));
-        var a = LaserModes.Analyze(Resolved(lines));
+        var a = LaserModes.Analyse(Resolved(lines));
 
         Assert.NotNull(a.Comb);
         Assert.Equal(modes, a.Comb!.MemberCount);
@@ -89,7 +89,7 @@ public sealed class LaserModesTests
         var folded = lines.Select(l => ((l.FrequencyHz % CavityFsr) + CavityFsr) % CavityFsr).ToList();
         Assert.NotEqual(folded.OrderBy(x => x), folded);
 
-        var a = LaserModes.Analyze(Resolved(lines), new ModeAnalysisOptions { GroupIndex = GroupIndex });
+        var a = LaserModes.Analyse(Resolved(lines), new ModeAnalysisOptions { GroupIndex = GroupIndex });
 
         // Spacing within 0.1 % (and within 4 standard errors); the chip length follows.
         var s = a.Spacing!;
@@ -126,7 +126,7 @@ public sealed class LaserModesTests
         const double change = 20e6;
         var lines = Enumerable.Range(-4, 9).Select(k =>
             new ModeInputLine(k * d + 0.5 * change * k * (k - 1), 1e6, Envelope(k, 0, 6), 0.01, null)).ToList();
-        var a = LaserModes.Analyze(Resolved(lines));
+        var a = LaserModes.Analyse(Resolved(lines));
         var c = a.Comb!;
         Assert.Equal(change, c.StepChangePerModeHz!.Value, 1.0);
         // The straight-line fit leaves a parabola: residuals are tens of MHz, and they are what is reported.
@@ -157,7 +157,7 @@ public sealed class LaserModesTests
             new ModeInputLine(mainHz + 1.71 * DiodeSpacing, 5e6, 0.02, 0.001, 6),
             new ModeInputLine(mainHz + 7.44 * DiodeSpacing, 5e6, 0.01, 0.001, 4),
         };
-        var a = LaserModes.Analyze(Resolved(lines.Concat(spurious)));
+        var a = LaserModes.Analyse(Resolved(lines.Concat(spurious)));
 
         Assert.InRange(Math.Abs(a.Spacing!.SpacingHz / DiodeSpacing - 1), 0, 1e-3);
         Assert.Equal(7, a.Comb!.MemberCount);
@@ -175,7 +175,7 @@ public sealed class LaserModesTests
         var spacing = C / (2 * 0.30);
         var lines = Comb(spacing, 0, [-1, 0, 1], k => Envelope(k, 0.1, 3), 0.3e6, 0.02, new Random(5));
         lines.Add(new ModeInputLine(0.5 * spacing, 0.3e6, 0.01, 0.001, 10));
-        var a = LaserModes.Analyze(Resolved(lines));
+        var a = LaserModes.Analyse(Resolved(lines));
         Assert.Equal(spacing, a.Spacing!.SpacingHz, spacing * 1e-3);
         Assert.Equal(LineRole.OffComb, a.Lines[3].Role);
     }
@@ -189,7 +189,7 @@ public sealed class LaserModesTests
         var rng = new Random(32);
         var family = Comb(DiodeSpacing, -3.7e9 + 0.30 * DiodeSpacing, Enumerable.Range(-2, 5), k => 0.03 * Envelope(k, 0, 4), 5e6, 0.02, rng);
         var spurious = new ModeInputLine(-3.7e9 + 2.81 * DiodeSpacing, 5e6, 0.01, 0.001, 5);
-        var a = LaserModes.Analyze(Resolved(main.Concat(family).Append(spurious)));
+        var a = LaserModes.Analyse(Resolved(main.Concat(family).Append(spurious)));
 
         Assert.InRange(Math.Abs(a.Spacing!.SpacingHz / DiodeSpacing - 1), 0, 1e-3);
         Assert.Equal(9, a.Comb!.MemberCount);
@@ -219,7 +219,7 @@ public sealed class LaserModesTests
             var lines = Comb(d, 1e9 * rng.NextDouble(), ks, k => Envelope(k, n / 2.0, n), 5e-4 * d, 0.02, rng);
             lines.Add(new ModeInputLine(lines[0].FrequencyHz + (0.3 + 0.2 * rng.NextDouble()) * d, 5e-4 * d, 0.05, 0.005, 5));
             lines.Add(new ModeInputLine(lines[^2].FrequencyHz + (1.35 + 0.2 * rng.NextDouble()) * d, 5e-4 * d, 0.03, 0.005, 5));
-            var a = LaserModes.Analyze(Resolved(lines));
+            var a = LaserModes.Analyse(Resolved(lines));
             Assert.InRange(Math.Abs(a.Spacing!.SpacingHz / d - 1), 0, 1e-3);
         }, iter: 60);
     }
@@ -230,7 +230,7 @@ public sealed class LaserModesTests
         var spacing = C / (2 * 0.30);
         var lines = Comb(spacing, 0, Enumerable.Range(-2, 5), k => Envelope(k, 0.1, 5), 0.5e6, 0.02, new Random(9))
             .Select(l => l with { FrequencySigmaHz = null, IntensitySigma = null }).ToList();
-        var a = LaserModes.Analyze(Resolved(lines));
+        var a = LaserModes.Analyse(Resolved(lines));
         Assert.Equal(UncertaintyBasis.Scatter, a.Comb!.Basis);
         Assert.NotNull(a.Spacing!.SigmaHz);
         Assert.Null(a.Comb.ReducedChiSquared);
@@ -252,7 +252,7 @@ public sealed class LaserModesTests
             new(150e9, 1e6, 1e-3, 1e-4, 10),
             new(-150e9, 1e6, 1e-4, 1e-5, 3),
         };
-        var a = LaserModes.Analyze(Resolved(lines, detectionLimit: 5e-5));
+        var a = LaserModes.Analyse(Resolved(lines, detectionLimit: 5e-5));
         Assert.Equal(SmsrKind.Measured, a.Smsr.Kind);
         Assert.Equal(30.0, a.Smsr.ValueDb!.Value, 12);
         Assert.Equal(10 / Math.Log(10) * Math.Sqrt(0.01 * 0.01 + 0.1 * 0.1), a.Smsr.SigmaDb!.Value, 12);
@@ -272,7 +272,7 @@ public sealed class LaserModesTests
         const double detection = 1e-3;
         Assert.True(trueSide < detection);
         var lines = new List<ModeInputLine> { new(0, 1e6, 1.0, 0.01, 1000) };
-        var a = LaserModes.Analyze(Resolved(lines, detection));
+        var a = LaserModes.Analyse(Resolved(lines, detection));
         Assert.Equal(SmsrKind.LowerBound, a.Smsr.Kind);
         Assert.Equal(30.0, a.Smsr.ValueDb!.Value, 12);
         Assert.True(a.Smsr.ValueDb <= 10 * Math.Log10(1 / trueSide));
@@ -287,7 +287,7 @@ public sealed class LaserModesTests
         Assert.StartsWith("FAIL: SMSR only shown to be ≥ 30 dB", fail.Line);
 
         // No detection limit: nothing can be said, and a requirement cannot be shown to pass.
-        var unknown = LaserModes.Analyze(Resolved(lines, detectionLimit: null));
+        var unknown = LaserModes.Analyse(Resolved(lines, detectionLimit: null));
         Assert.Equal(SmsrKind.Unbounded, unknown.Smsr.Kind);
         Assert.Null(unknown.Smsr.ValueDb);
         Assert.False(ModeCheck.Check(unknown, new ModeRequirements(MinSmsrDb: 10)).Passed);
@@ -302,14 +302,14 @@ public sealed class LaserModesTests
             new(50e9, 1e6, 0.02, 0.001, 20),   // −17 dB
             new(-50e9, 1e6, 0.005, 0.0005, 8), // −23 dB
         };
-        var a = LaserModes.Analyze(Resolved(lines));
+        var a = LaserModes.Analyse(Resolved(lines));
         Assert.Equal(2, a.Count.Total);
         var v = ModeCheck.Check(a, new ModeRequirements(MinSmsrDb: 15, MaxModes: 1));
         Assert.False(v.Passed);
         Assert.Equal("FAIL: 2 lines within 20 dB > 1 allowed; SMSR 16.99 ± 0.22 dB ≥ 15 dB", v.Line);
         Assert.True(ModeCheck.Check(a, new ModeRequirements(MinSmsrDb: 15, MaxModes: 2)).Passed);
         Assert.Equal("PASS: no requirement stated", ModeCheck.Check(a, new ModeRequirements()).Line);
-        var narrow = LaserModes.Analyze(Resolved(lines), new ModeAnalysisOptions { WithinDb = 10 });
+        var narrow = LaserModes.Analyse(Resolved(lines), new ModeAnalysisOptions { WithinDb = 10 });
         Assert.Equal(1, narrow.Count.Total);
     }
 
@@ -320,7 +320,7 @@ public sealed class LaserModesTests
     {
         const double d = 40e9;
         var lines = Enumerable.Range(-3, 8).Select(k => new ModeInputLine(k * d, null, Envelope(k, 0.8, 3.7), null, null)).ToList();
-        var a = LaserModes.Analyze(Resolved(lines));
+        var a = LaserModes.Analyse(Resolved(lines));
         var e = a.Envelope;
         Assert.True(e.Fitted);
         // The strongest line is k = 1 of the simulation: the centre is 0.8 − 1 = −0.2 modes from it.
@@ -337,11 +337,11 @@ public sealed class LaserModesTests
     {
         const double d = 40e9;
         var rising = Enumerable.Range(0, 5).Select(k => new ModeInputLine(k * d, 1e6, Math.Exp(0.3 * k * k), 0.01, null)).ToList();
-        var a = LaserModes.Analyze(Resolved(rising));
+        var a = LaserModes.Analyse(Resolved(rising));
         Assert.False(a.Envelope.Fitted);
         Assert.Contains("do not fall off", a.Envelope.Message);
 
-        var two = LaserModes.Analyze(Resolved([new(0, 1e6, 1, 0.01, null), new(d, 1e6, 0.5, 0.01, null)]));
+        var two = LaserModes.Analyse(Resolved([new(0, 1e6, 1, 0.01, null), new(d, 1e6, 0.5, 0.01, null)]));
         Assert.False(two.Envelope.Fitted);
         Assert.Contains("three modes", two.Envelope.Message);
         Assert.Equal(d, two.Spacing!.SpacingHz, 1e-3);
@@ -359,7 +359,7 @@ public sealed class LaserModesTests
         var spacing = C / (2 * 0.30);
         var half = modes / 2;
         var lines = Comb(spacing, 0.87e9, Enumerable.Range(-half, modes), k => Envelope(k, 0.15, 2.5e9 / spacing), 0.5e6, 0.02, new Random(seed));
-        var a = LaserModes.Analyze(Folded(lines, fsr));
+        var a = LaserModes.Analyse(Folded(lines, fsr));
 
         Assert.False(a.OrdersResolved);
         var f = a.Folded!;
@@ -380,7 +380,7 @@ public sealed class LaserModesTests
     {
         var lines = DiodeLines(51, sigmaHz: 2e6);
         var input = Folded(lines, CavityFsr);
-        var a = LaserModes.Analyze(input, new ModeAnalysisOptions { GroupIndex = GroupIndex });
+        var a = LaserModes.Analyse(input, new ModeAnalysisOptions { GroupIndex = GroupIndex });
         var f = a.Folded!;
 
         // δ is the spacing modulo the FSR, folded into (0, FSR/2]: 52.047 GHz = 35 × 1.5 GHz − 452.7 MHz.
@@ -422,7 +422,7 @@ public sealed class LaserModesTests
         var input = Folded(lines, CavityFsr);
 
         // Range 51.8–52.3 GHz (say, from the chip's design length): one candidate, the true spacing.
-        var narrow = LaserModes.Analyze(input, new ModeAnalysisOptions { SpacingMinHz = 51.8e9, SpacingMaxHz = 52.3e9, GroupIndex = GroupIndex });
+        var narrow = LaserModes.Analyse(input, new ModeAnalysisOptions { SpacingMinHz = 51.8e9, SpacingMaxHz = 52.3e9, GroupIndex = GroupIndex });
         var chosen = narrow.Folded!.Chosen!;
         Assert.Equal(35, chosen.FsrMultiple);
         Assert.Equal(-1, chosen.Sign);
@@ -436,7 +436,7 @@ public sealed class LaserModesTests
             Assert.InRange(read[i] - read[0] - (truth[i] - truth[0]), -0.001 * DiodeSpacing, 0.001 * DiodeSpacing);
 
         // Range 50–54 GHz: five candidates (m = 34 ± δ, 35 ± δ, 36 − δ) remain and none is chosen.
-        var wide = LaserModes.Analyze(input, new ModeAnalysisOptions { SpacingMinHz = 50e9, SpacingMaxHz = 54e9 });
+        var wide = LaserModes.Analyse(input, new ModeAnalysisOptions { SpacingMinHz = 50e9, SpacingMaxHz = 54e9 });
         Assert.Null(wide.Folded!.Chosen);
         Assert.Equal(5, wide.Folded.Candidates.Count(c => c.Divisor == 1));
         Assert.Contains(wide.Folded.Candidates, c => c.Divisor == 1 && Math.Abs(c.SpacingHz / DiodeSpacing - 1) < 1e-3);
@@ -465,7 +465,7 @@ public sealed class LaserModesTests
 
             var rng = new Random(seed);
             var lines = Comb(d, 5e9 * rng.NextDouble(), Enumerable.Range(0, n), k => Envelope(k, n / 2.0, n), 1e6, 0.02, rng);
-            var a = LaserModes.Analyze(Folded(lines, fsr));
+            var a = LaserModes.Analyse(Folded(lines, fsr));
             Assert.Equal(n, a.Comb!.MemberCount);
             Assert.InRange(Math.Abs(a.Folded!.FoldedStepHz - delta), 0, Math.Max(2e6, 4 * a.Folded.FoldedStepSigmaHz!.Value));
             if (d < 6 * fsr)
@@ -477,7 +477,7 @@ public sealed class LaserModesTests
     public void Folded_TwoModes_CannotTellDeltaFromFsrMinusDelta()
     {
         var lines = new List<ModeInputLine> { new(0.2e9, 1e6, 1, 0.01, null), new(0.9e9, 1e6, 0.5, 0.01, null) };
-        var a = LaserModes.Analyze(new ModeInput(lines, 1e-3, false, 2e9, null));
+        var a = LaserModes.Analyse(new ModeInput(lines, 1e-3, false, 2e9, null));
         Assert.Null(a.Folded!.Chosen);
         Assert.Equal(0.7e9, a.Folded.FoldedStepHz, 1e-3);
         Assert.Contains("FSR − δ", a.Folded.ChoiceReason);
@@ -488,21 +488,21 @@ public sealed class LaserModesTests
     [Fact]
     public void BadInput_IsAnInputException()
     {
-        Assert.Throws<InputException>(() => LaserModes.Analyze(Resolved([])));
-        Assert.Throws<InputException>(() => LaserModes.Analyze(Resolved([new(double.NaN, null, 1, null, null)])));
-        Assert.Throws<InputException>(() => LaserModes.Analyze(Resolved([new(0, -1, 1, null, null)])));
-        Assert.Throws<InputException>(() => LaserModes.Analyze(Resolved([new(0, null, 0, null, null)])));
-        Assert.Throws<InputException>(() => LaserModes.Analyze(new ModeInput([new(0, null, 1, null, null)], null, false, null, null)));
-        var e = Assert.Throws<InputException>(() => LaserModes.Analyze(Resolved([new(0, null, 1, null, null)], detectionLimit: 2)));
+        Assert.Throws<InputException>(() => LaserModes.Analyse(Resolved([])));
+        Assert.Throws<InputException>(() => LaserModes.Analyse(Resolved([new(double.NaN, null, 1, null, null)])));
+        Assert.Throws<InputException>(() => LaserModes.Analyse(Resolved([new(0, -1, 1, null, null)])));
+        Assert.Throws<InputException>(() => LaserModes.Analyse(Resolved([new(0, null, 0, null, null)])));
+        Assert.Throws<InputException>(() => LaserModes.Analyse(new ModeInput([new(0, null, 1, null, null)], null, false, null, null)));
+        var e = Assert.Throws<InputException>(() => LaserModes.Analyse(Resolved([new(0, null, 1, null, null)], detectionLimit: 2)));
         Assert.Contains("(0, 1]", e.Message);
-        Assert.Throws<InputException>(() => LaserModes.Analyze(Resolved([new(0, null, 1, null, null)]), new ModeAnalysisOptions { GroupIndex = -1 }));
+        Assert.Throws<InputException>(() => LaserModes.Analyse(Resolved([new(0, null, 1, null, null)]), new ModeAnalysisOptions { GroupIndex = -1 }));
     }
 
     [Fact]
     public void NonPositiveLines_AreLeftOutWithANote()
     {
         var lines = new List<ModeInputLine> { new(0, 1e6, 1, 0.01, null), new(40e9, 1e6, 0.5, 0.01, null), new(20e9, 1e6, -0.01, 0.01, null) };
-        var a = LaserModes.Analyze(Resolved(lines));
+        var a = LaserModes.Analyse(Resolved(lines));
         Assert.Equal(LineRole.Excluded, a.Lines[2].Role);
         Assert.Null(a.Lines[2].RelativeDb);
         Assert.Contains(a.Notes, n => n.Contains("≤ 0"));

@@ -33,7 +33,7 @@ public sealed class ModePlotsTests : IDisposable
         var main = Comb(d, 0, new[] { -4, -3, -2, -1, 0, 1, 2, 4 }, k => Envelope(k, 0.05, 2.6), 5e6, 0.03, rng);
         var family = Comb(d, 0.3 * d, Enumerable.Range(-2, 4), k => 0.016 * Envelope(k, -0.5, 3), 5e6, 0.03, rng);
         var spurious = new ModeInputLine(1.62 * d, 5e6, 0.004, 0.0004, 4);
-        return LaserModes.Analyze(Resolved(main.Concat(family).Append(spurious), 1e-3), new ModeAnalysisOptions { GroupIndex = 3.6 });
+        return LaserModes.Analyse(Resolved(main.Concat(family).Append(spurious), 1e-3), new ModeAnalysisOptions { GroupIndex = 3.6 });
     }
 
     [Fact]
@@ -85,7 +85,7 @@ public sealed class ModePlotsTests : IDisposable
     public void FoldedAndAmbiguous_IsDrawnAgainstTheModeIndex()
     {
         var lines = Comb(C / (2 * 3.6 * 0.8e-3), 0, Enumerable.Range(-4, 9), k => Envelope(k, 0.3, 4.5), 2e6, 0.02, new Random(3));
-        var a = LaserModes.Analyze(Folded(lines, 1.5e9));
+        var a = LaserModes.Analyse(Folded(lines, 1.5e9));
         var model = ModePlots.Build(a, "Laser modes");
         Assert.StartsWith("mode index k", model.Axes.Single(x => x.Position == AxisPosition.Bottom).Title);
         Assert.Contains("spacing ambiguous", model.Subtitle);
@@ -96,12 +96,12 @@ public sealed class ModePlotsTests : IDisposable
     [Fact]
     public void SingleLine_ShowsTheLowerBound()
     {
-        var a = LaserModes.Analyze(Resolved([new ModeInputLine(0, 1e6, 1, 0.01, null)], 1e-4));
+        var a = LaserModes.Analyse(Resolved([new ModeInputLine(0, 1e6, 1, 0.01, null)], 1e-4));
         var model = ModePlots.Build(a, "Laser modes");
         Assert.Equal("SMSR ≥ 40 dB", model.Annotations.OfType<TextAnnotation>().Single().Text);
         ModePlots.Save(Path.Combine(_dir, "single.png"), a);
 
-        var none = LaserModes.Analyze(Resolved([new ModeInputLine(0, 1e6, 1, 0.01, null)], null));
+        var none = LaserModes.Analyse(Resolved([new ModeInputLine(0, 1e6, 1, 0.01, null)], null));
         Assert.Empty(ModePlots.Build(none, "Laser modes").Annotations.OfType<TextAnnotation>());
         ModePlots.Save(Path.Combine(_dir, "none.png"), none);
     }
