@@ -9,7 +9,9 @@ namespace OrderUnfold.Inversion;
 /// Each iteration: the binding set B holds the constrained entries at zero whose gradient is positive (they would leave
 /// the feasible set); on the other entries the Newton direction d = −G_FF⁻¹ g_F is solved by conjugate gradients with the
 /// preconditioner restricted to them, to a relative residual <see cref="Forcing"/> (tighter near the end); then a
-/// projected search x(α) = P(x + α d) from α = 1 with an Armijo test on the exact change of the quadratic. The projection
+/// projected search x(α) = P(x + α d) from α = 1 with a non-monotone Armijo test on the exact change of the quadratic
+/// (against the largest of the last <see cref="SearchMemory"/> objectives). The first step, from which the bounds are
+/// ignored, instead keeps the best projection of the conjugate-gradient iterates of the unconstrained system. The projection
 /// fixes many entries at once and the next iteration's gradient releases those that should not stay at zero, so the
 /// set of zero entries settles in a few iterations; once it is right a single Newton step on the face is exact. With a
 /// preconditioner that keeps the conjugate-gradient runs short (<see cref="ToeplitzPreconditioner"/>), each iteration
