@@ -9,7 +9,9 @@ namespace OrderUnfold.Inversion;
 /// Each iteration: the binding set B holds the constrained entries at zero whose gradient is positive (they would leave
 /// the feasible set); on the other entries the Newton direction d = −G_FF⁻¹ g_F is solved by conjugate gradients with the
 /// preconditioner restricted to them, to a relative residual <see cref="Forcing"/> (tighter near the end); then a
-/// projected search x(α) = P(x + α d) from α = 1 with an Armijo test on the exact change of the quadratic. The projection
+/// projected search x(α) = P(x + α d) from α = 1 with a non-monotone Armijo test on the exact change of the quadratic
+/// (against the largest of the last <see cref="SearchMemory"/> objectives). The first step, from which the bounds are
+/// ignored, instead keeps the best projection of the conjugate-gradient iterates of the unconstrained system. The projection
 /// fixes many entries at once and the next iteration's gradient releases those that should not stay at zero, so the
 /// set of zero entries settles in a few iterations; once it is right a single Newton step on the face is exact. With a
 /// preconditioner that keeps the conjugate-gradient runs short (<see cref="ToeplitzPreconditioner"/>), each iteration
@@ -24,6 +26,11 @@ public static class ProjectedNewtonNnls
     public const double Forcing = 1e-3;
 
     private const double Armijo = 1e-4;
+
+    /// <summary>The projected search compares with the largest objective of the last this many iterates (a non-monotone
+    /// Armijo test, L. Grippo, F. Lampariello &amp; S. Lucidi, "A nonmonotone line search technique for Newton's method",
+    /// SIAM J. Numer. Anal. 23, 707–716, 1986, whose experiments use 10).</summary>
+    private const int SearchMemory = 10;
 
     /// <summary>Most conjugate-gradient steps per Newton direction while the bound set is too large for the exact face
     /// preconditioner: the stray eigenvalues of the plain restriction make long runs slow, and a rough direction serves
@@ -76,6 +83,12 @@ public static class ProjectedNewtonNnls
         var gp = new double[n];
         var xt = new double[n];
         var gxt = new double[n];
+        // the first direction's conjugate-gradient iterates, for the search along that path
+        var path = new List<double[]>();
+        // objectives of the last iterates relative to the start (exact changes of the quadratic summed up)
+        var objective = 0.0;
+        var recent = new Queue<double>();
+        recent.Enqueue(objective);
 
         // g = Gx − b is kept with gx, so the violation is the one every solver's final check uses
         double Violation() => NnlsResult.KktViolationOf(b, gx, x, free).Violation;
@@ -162,6 +175,7 @@ public static class ProjectedNewtonNnls
                         norm = Math.Max(norm, Math.Abs(r[j]));
                     }
 
+                    if (iterations == 1) path.Add((double[])d.Clone());
                     if (norm <= stop) break;
                     Precondition();
                     var rzNew = 0.0;
@@ -186,10 +200,66 @@ public static class ProjectedNewtonNnls
                 safeguards++;
             }
 
-            // projected search along d: x(α) = P(x + α d), Armijo on the exact change of the quadratic
+            // The first step: the unconstrained Newton system's conjugate-gradient iterates d₁, d₂, … are tried in turn,
+            // projected, and the best of them kept (the search stops at the first that is worse than the best so far). On the
+            // broadband benchmark problems the converged unconstrained minimiser oscillates (from 8k × 2k on, 40–90 % of its
+            // bins negative), because directions the data hardly see are held only by the smoothness weight; its projection
+            // then starts the method with hundreds of bins at zero that take tens of steps to release. The early iterates
+            // carry the well-determined part of the solution and project with few zeros (4k: 32, 8k: 85, 16k: 1 instead of
+            // 32, 2 000 and 742).
             var moved = false;
+            if (path.Count > 1)
+            {
+                var bestChange = 0.0;
+                var bestX = new double[n];
+                var bestGx = new double[n];
+                var found = false;
+                foreach (var step in path)
+                {
+                    for (var j = 0; j < n; j++)
+                    {
+                        var v = x[j] + step[j];
+                        xt[j] = !free[j] && v < 0 ? 0 : v;
+                    }
+
+                    Product(xt, gxt);
+                    var change = 0.0;
+                    for (var j = 0; j < n; j++) change += 0.5 * (g[j] + gxt[j] - b[j]) * (xt[j] - x[j]);
+                    if (!double.IsFinite(change)) break;
+                    if (change < bestChange)
+                    {
+                        bestChange = change;
+                        (bestX, xt) = (xt, bestX);
+                        (bestGx, gxt) = (gxt, bestGx);
+                        found = true;
+                    }
+                    else if (found)
+                    {
+                        break;
+                    }
+                }
+
+                if (found)
+                {
+                    (x, bestX) = (bestX, x);
+                    (gx, bestGx) = (bestGx, gx);
+                    for (var j = 0; j < n; j++) g[j] = gx[j] - b[j];
+                    // the memory of the non-monotone test starts here: the cold start's objective lies far above
+                    objective += bestChange;
+                    recent.Clear();
+                    recent.Enqueue(objective);
+                    moved = true;
+                }
+            }
+
+            path.Clear();
+
+            // projected search along d: x(α) = P(x + α d), a non-monotone Armijo test on the exact change of the quadratic
+            // against the largest of the last SearchMemory objectives: with a monotone test, steps that clip a few small
+            // bins and raise the objective slightly were cut back to α = 2⁻² … 2⁻¹⁰ for tens of steps at 8k and 16k
             var alpha = 1.0;
-            for (var trial = 0; trial < 40 && products < options.MaxProducts + 40; trial++)
+            var reference = recent.Max();
+            for (var trial = 0; trial < 40 && !moved && products < options.MaxProducts + 40; trial++)
             {
                 var slope = 0.0;
                 for (var j = 0; j < n; j++)
@@ -215,8 +285,11 @@ public static class ProjectedNewtonNnls
                 var change = 0.0;
                 for (var j = 0; j < n; j++) change += 0.5 * (g[j] + gxt[j] - b[j]) * (xt[j] - x[j]);
                 if (!double.IsFinite(change)) break;
-                if (change < 0 && change <= Armijo * Math.Min(slope, 0))
+                if (objective + change < reference && objective + change <= reference + Armijo * Math.Min(slope, 0))
                 {
+                    objective += change;
+                    recent.Enqueue(objective);
+                    if (recent.Count > SearchMemory) recent.Dequeue();
                     (x, xt) = (xt, x);
                     (gx, gxt) = (gxt, gx);
                     for (var j = 0; j < n; j++) g[j] = gx[j] - b[j];
@@ -344,6 +417,7 @@ public static class ProjectedNewtonNnls
         private int[] _set = [];
         private double[] _factor = [];
         private double[] _u = [];
+        private double[][] _setColumns = [];
         private bool _exact;
 
         /// <summary>True when the face is preconditioned exactly (bound set small enough).</summary>
@@ -423,12 +497,16 @@ public static class ProjectedNewtonNnls
             _factor = new double[m * m];
             _u = new double[m];
             for (var a = 0; a < keep; a++) Array.Copy(previousFactor, a * mOld, _factor, a * m, a + 1);
+            var cols = new double[m][];
+            for (var a = 0; a < m; a++) cols[a] = _columns[_set[a]];
+            _setColumns = cols;
             for (var a = keep; a < m; a++)
             {
-                var col = _columns[_set[a]];
+                var col = cols[a];
+                var ja = _set[a];
                 for (var c = 0; c <= a; c++)
                 {
-                    var sum = 0.5 * (col[_set[c]] + _columns[_set[c]][_set[a]])
+                    var sum = 0.5 * (col[_set[c]] + cols[c][ja])
                         - Dot(_factor.AsSpan(a * m, c), _factor.AsSpan(c * m, c));
                     if (c == a)
                     {
@@ -469,11 +547,12 @@ public static class ProjectedNewtonNnls
                 Axpy(-u[a], _factor.AsSpan(a * m, a), u.AsSpan(0, a));
             }
 
+            var cols = _setColumns;
             for (var a = 0; a < m; a++)
             {
                 var w = u[a];
                 if (w == 0) continue;
-                Axpy(-w, _columns[_set[a]], z);
+                Axpy(-w, cols[a], z);
             }
         }
     }

@@ -63,6 +63,28 @@ public class ProjectedNewtonNnlsTests
     }
 
     [Fact]
+    public void VectorisedDurbinAgreesWithTheScalarRecursion()
+    {
+        // the same double-double recursion four lanes at a time (other rounding order) against one operation at a time, on
+        // the simulated dense-support case's Toeplitz model (condition number near 10⁹) and on odd sizes around the lane width
+        var t = ToeplitzPreconditioner.BuildSymbol(DenseSupportCase.Create(4000, 1000).Problem());
+        foreach (var size in new[] { 2, 3, 4, 5, 6, 9, 37, t.Length })
+        {
+            var section = t[..size];
+            var scalar = ToeplitzPreconditioner.InverseFirstColumnScalar(section);
+            Assert.NotNull(scalar);
+            if (!(System.Runtime.Intrinsics.X86.Fma.IsSupported && System.Runtime.Intrinsics.Vector256.IsHardwareAccelerated)) continue;
+            var vector = ToeplitzPreconditioner.InverseFirstColumnVector(section);
+            Assert.NotNull(vector);
+            var scale = scalar!.Max(Math.Abs);
+            for (var i = 0; i < size; i++)
+                Assert.True(Math.Abs(vector![i] - scalar[i]) <= 1e-12 * scale, $"size {size}, entry {i}: {vector[i]:R} against {scalar[i]:R}");
+        }
+
+        Assert.Null(ToeplitzPreconditioner.InverseFirstColumnVector([1.0, 1.5, 0.2]));
+    }
+
+    [Fact]
     public void ToeplitzInverseIsAccurateOnTheDenseSupportCase()
     {
         var problem = DenseSupportCase.Create(4000, 1000).Problem();
