@@ -102,12 +102,13 @@ public static class FinesseFit
         var start = new[] { centerHz, height, baseline, finesse0 };
         var lower = new[] { centerHz - half, 0.0, double.NegativeInfinity, 1.0 };
         var upper = new[] { centerHz + half, double.PositiveInfinity, double.PositiveInfinity, 1e7 };
-        var result = DampedLeastSquares.Minimize(Eval, start, m, maxIterations: 60, lower: lower, upper: upper);
-        var pr = result.Parameters;
-        if (result.Covariance is null || !(pr[1] > 0)) return null;
+        var result = LevenbergMarquardt.MinimiseResiduals(Eval, start, m, LmSettings.Relative(60, 1e-9) with { Lower = lower, Upper = upper });
+        var covariance = result.Covariance();
+        var pr = result.P;
+        if (covariance is null || !(pr[1] > 0)) return null;
         var dof = Math.Max(1, m - 4);
         var reduced = result.ChiSquare / dof;
-        var sigma = Math.Sqrt(Math.Max(0, result.Covariance[3, 3]) * Math.Max(1, reduced));
+        var sigma = Math.Sqrt(Math.Max(0, covariance[3, 3]) * Math.Max(1, reduced));
         if (!double.IsFinite(sigma) || !(pr[3] > 1)) return null;
         var kk = Airy.CoefficientOfFinesse(pr[3]);
         var model = f.Select(v =>
@@ -324,11 +325,12 @@ public static class FinesseFit
         start[2 * k + 1] = Math.Max(1.5, periodHz / fwhm);
         lower[2 * k + 1] = 1.0;
         upper[2 * k + 1] = 1e7;
-        var result = DampedLeastSquares.Minimize(Eval, start, m, maxIterations: 100, lower: lower, upper: upper);
-        var pr = result.Parameters;
-        if (result.Covariance is null) return null;
+        var result = LevenbergMarquardt.MinimiseResiduals(Eval, start, m, LmSettings.Relative(100, 1e-9) with { Lower = lower, Upper = upper });
+        var covariance = result.Covariance();
+        var pr = result.P;
+        if (covariance is null) return null;
         var reduced = result.ChiSquare / Math.Max(1, m - start.Length);
-        var sigma = Math.Sqrt(Math.Max(0, result.Covariance[2 * k + 1, 2 * k + 1]) * Math.Max(1, reduced));
+        var sigma = Math.Sqrt(Math.Max(0, covariance[2 * k + 1, 2 * k + 1]) * Math.Max(1, reduced));
         if (!double.IsFinite(sigma) || !(pr[2 * k + 1] > 1)) return null;
         // the profile record describes the tallest peak of the blend
         var tq = chain.IndexOf(top);

@@ -32,7 +32,7 @@ public sealed record RingdownPeakFit(double Crossing, double CrossingSigma, doub
 
 /// <summary>
 /// Least-squares fit of one peak with the swept-cavity response: y = b + A·|b(t; t₀, τ, r)|², with A, t₀, τ, r and the
-/// background free (τ optionally fixed), by Levenberg–Marquardt (<see cref="DampedLeastSquares"/>) on the sample
+/// background free (τ optionally fixed), by Levenberg–Marquardt (<see cref="LevenbergMarquardt"/>) on the sample
 /// grid of a window around the peak. Starting values come from the measured width and top of the peak matched to
 /// a table of response shapes over a ladder of π²rτ² (the best of the ladder by χ² starts the iteration). The cost is
 /// bounded: a window of at most <see cref="MaxWindow"/> samples and at most <see cref="MaxIterations"/> iterations.
@@ -165,17 +165,9 @@ public static class RingdownFit
         var q0 = idx.Select(j => best[j]).ToArray();
         var lower = idx.Select(j => j switch { 0 => 0.0, 1 => start - 0.5 * m, 2 => Math.Log(0.05), 3 => Math.Log(1e-9), _ => double.NegativeInfinity }).ToArray();
         var upper = idx.Select(j => j switch { 0 => double.PositiveInfinity, 1 => end + 0.5 * m, 2 => Math.Log(10.0 * m), 3 => Math.Log(0.5), _ => double.PositiveInfinity }).ToArray();
-        DampedLeastSquares.Result result;
-        try
-        {
-            result = DampedLeastSquares.Minimize(Evaluate, q0, m, MaxIterations, 1e-7, lower, upper);
-        }
-        catch (Exception e) when (e is ArgumentException or InvalidOperationException)
-        {
-            return null;
-        }
-
-        var p = Expand(result.Parameters);
+        var result = LevenbergMarquardt.MinimiseResiduals(Evaluate, q0, m, LmSettings.Relative(MaxIterations, 1e-7) with { Lower = lower, Upper = upper });
+        var covariance = result.Covariance();
+        var p = Expand(result.P);
         if (!p.All(double.IsFinite)) return null;
         var dof = Math.Max(1, m - idx.Length);
         var reduced = result.ChiSquare / dof;
@@ -183,8 +175,8 @@ public static class RingdownFit
         double Se(int j)
         {
             var k = Array.IndexOf(idx, j);
-            if (k < 0 || result.Covariance is null) return double.NaN;
-            var v = result.Covariance[k, k];
+            if (k < 0 || covariance is null) return double.NaN;
+            var v = covariance[k, k];
             return v >= 0 ? Math.Sqrt(v) * scale : double.NaN;
         }
 
@@ -230,14 +222,7 @@ public static class RingdownFit
 
         var bg = Edge(window);
         var start0 = new[] { window[top - start] - bg, (double)top, Math.Log(Math.Max(fwhm, 0.5)), bg };
-        try
-        {
-            return DampedLeastSquares.Minimize(Evaluate, start0, m, MaxIterations, 1e-7).ChiSquare;
-        }
-        catch (Exception e) when (e is ArgumentException or InvalidOperationException)
-        {
-            return double.NaN;
-        }
+        return LevenbergMarquardt.MinimiseResiduals(Evaluate, start0, m, LmSettings.Relative(MaxIterations, 1e-7)).ChiSquare;
     }
 
     /// <summary>A + b by linear least squares of y ≈ A·model + b; returns A, b and the (unwhitened) χ².</summary>

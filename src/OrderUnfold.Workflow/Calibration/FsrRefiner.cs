@@ -797,19 +797,19 @@ public static class FsrRefiner
 
         // whitened residuals: steps that gain less than 0.01 in χ² five times in a row move no line by a meaningful
         // fraction of its uncertainty, so the fit ends there (common practice for a stopping rule, not from a reference)
-        var fit = DampedLeastSquares.Minimize(Eval, p0, m, maxIterations: 80, tolerance: 1e-10, crawlChiSquare: 0.01,
-            keepGoing: budget is null ? null : () => budget.Spend());
+        var fit = LevenbergMarquardt.MinimiseResiduals(Eval, p0, m, LmSettings.Relative(80, 1e-10) with { CrawlChiSquare = 0.01, Budget = budget });
+        var covariance = fit.Covariance();
         var reduced = fit.ChiSquare / Math.Max(1, m - nP);
         var freq = new double[nLines];
         var cov = new double[nLines, nLines];
         var inflate = Math.Max(1, reduced);
         for (var j = 0; j < nLines; j++)
         {
-            freq[j] = nuIndex[j] >= 0 ? fit.Parameters[nuIndex[j]] : lines[j].Frequency;
+            freq[j] = nuIndex[j] >= 0 ? fit.P[nuIndex[j]] : lines[j].Frequency;
             for (var j2 = 0; j2 < nLines; j2++)
             {
                 if (nuIndex[j] < 0 || nuIndex[j2] < 0) continue;
-                cov[j, j2] = fit.Covariance is null ? (j == j2 ? double.PositiveInfinity : 0) : fit.Covariance[nuIndex[j], nuIndex[j2]] * inflate;
+                cov[j, j2] = covariance is null ? (j == j2 ? double.PositiveInfinity : 0) : covariance[nuIndex[j], nuIndex[j2]] * inflate;
             }
 
             // a line that ran far from where the joint unfold put it is not measured by this instrument
