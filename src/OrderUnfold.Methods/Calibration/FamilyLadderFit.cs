@@ -2,12 +2,12 @@ using MathNet.Numerics.LinearAlgebra;
 
 namespace OrderUnfold.Calibration;
 
-    /// <summary>The axis refitted to every peak of one source line and its transverse families at once.</summary>
-    internal sealed record Ladder(RepeatAxisFit Fit, List<DegreeScore> Scores, int Points, string Note)
-    {
-        /// <summary>χ² per degree of freedom of the chosen degree (points − degree − 2 unknowns).</summary>
-        public double ReducedChiSquare => Fit.ChiSquare / Math.Max(1, Points - Fit.Axis.Degree - 2);
-    }
+/// <summary>The axis refitted to every peak of one source line and its transverse families at once.</summary>
+internal sealed record Ladder(RepeatAxisFit Fit, List<DegreeScore> Scores, int Points, string Note)
+{
+    /// <summary>χ² per degree of freedom of the chosen degree (points − degree − 2 unknowns).</summary>
+    public double ReducedChiSquare => Fit.ChiSquare / Math.Max(1, Points - Fit.Axis.Degree - 2);
+}
 
 /// <summary>The axis refitted to the transverse families on their Gouy ladder.</summary>
 internal static class FamilyLadderFit
@@ -28,21 +28,60 @@ internal static class FamilyLadderFit
         double xLo, double xHi)
     {
         if (decision.FundamentalPhase is not double basePhase || chosen.Fit is null) return null;
+        var rungs = Rungs(decision);
+        if (rungs is null) return null;
+        var pts = LabelledPeaks(chosen.Fit.Axis, peaks, rungs, basePhase, decision.Tolerance, period, xLo);
+        if (pts.Select(q => q.N).Distinct().Count() < 3) return null;
+        var n = pts.Count;
+        var lo = pts[0].X;
+        var hi = pts[^1].X;
+        var centre = 0.5 * (lo + hi);
+        var half = 0.5 * (hi - lo);
+        if (!(half > 0)) return null;
+        var maxDegree = Math.Min(options.MaxDegree, n - 4); // d shape coefficients + C + A, at least two degrees of freedom
+        var fits = new List<RepeatAxisFit>();
+        var scores = new List<DegreeScore>();
+        for (var deg = 1; deg <= maxDegree; deg++)
+        {
+            var (a, b) = Design(pts, deg, centre, half, period);
+            var fit = RepeatAxisFitting.SolveDesign(a, b, deg, sweep.X[0], centre, half, lo, hi);
+            if (fit is null) break;
+            var mono = fit.Axis.IsMonotone(lo, hi, 801);
+            scores.Add(new DegreeScore(deg, fit.ChiSquare, RepeatAxisFitting.Bic(fit.ChiSquare, n, deg, period), fit.Press, mono));
+            if (mono && double.IsFinite(fit.Press)) fits.Add(fit);
+        }
+
+        if (fits.Count == 0) return null;
+        var minPress = fits.Min(f => f.Press);
+        var chosenFit = fits.First(f => f.Press <= 1.05 * minPress + 1e-12);
+        var dof = n - chosenFit.Axis.Degree - 2;
+        var note = $"{n} peaks of {pts.Select(q => q.N).Distinct().Count()} families, reduced χ² {chosenFit.ChiSquare / dof:G3}";
+        return new Ladder(chosenFit, scores, n, note);
+    }
+
+    /// <summary>The rungs a_N = N·a₁ − m_N of the families (TEM00 first); a family off its rung by more than the grouping
+    /// tolerance is not used. Null without family 1 or without a rung N ≥ 2.</summary>
+    private static List<(int N, double A, int M)>? Rungs(PeriodDecision decision)
+    {
         var one = decision.Families.FirstOrDefault(f => f.N == 1);
         if (one is null) return null;
-        var axis = chosen.Fit.Axis;
-        var f0 = axis.Evaluate(xLo);
-        var tol = decision.Tolerance;
-        // rungs a_N = N·a₁ − m_N; a family off its rung by more than the grouping tolerance is not used
         var rungs = new List<(int N, double A, int M)> { (0, 0, 0) };
         foreach (var fam in decision.Families.Where(f => f.N >= 1))
         {
             var off = fam.N * one.ApparentOffsetFsr - fam.ApparentOffsetFsr;
             var m = (int)Math.Round(off);
-            if (Math.Abs(off - m) <= tol) rungs.Add((fam.N, fam.ApparentOffsetFsr, m));
+            if (Math.Abs(off - m) <= decision.Tolerance) rungs.Add((fam.N, fam.ApparentOffsetFsr, m));
         }
 
-        if (!rungs.Any(r => r.N >= 2)) return null;
+        return rungs.Any(r => r.N >= 2) ? rungs : null;
+    }
+
+    /// <summary>Each peak labelled with its family N, order K and rung shift M (the nearest rung within the tolerance), with
+    /// its position uncertainty in Hz; one peak per label (two peaks claiming one label are both left out), sorted by x.</summary>
+    private static List<(double X, int N, int K, int M, double Sigma)> LabelledPeaks(AxisPolynomial axis, List<DetectedPeak> peaks,
+        List<(int N, double A, int M)> rungs, double basePhase, double tol, double period, double xLo)
+    {
+        var f0 = axis.Evaluate(xLo);
         var labelled = new List<(double X, int N, int K, int M, double Sigma)>();
         foreach (var p in peaks)
         {
@@ -59,95 +98,32 @@ internal static class FamilyLadderFit
             if (best is { } l) labelled.Add((p.X, l.N, l.K, l.M, Math.Max(p.SigmaX * Math.Abs(axis.Derivative(p.X)), 1e-9 * period)));
         }
 
-        // one peak per label; two peaks claiming one label are both left out
-        var pts = labelled.GroupBy(q => (q.N, q.K)).Where(g => g.Count() == 1).Select(g => g.First()).OrderBy(q => q.X).ToList();
-        if (pts.Select(q => q.N).Distinct().Count() < 3) return null;
+        return labelled.GroupBy(q => (q.N, q.K)).Where(g => g.Count() == 1).Select(g => g.First()).OrderBy(q => q.X).ToList();
+    }
+
+    /// <summary>Weighted design of f(x_i) − C − N_i·A = FSR·(K_i − M_i): columns t¹…t^d, then C and A.</summary>
+    private static (Matrix<double> A, Vector<double> B) Design(List<(double X, int N, int K, int M, double Sigma)> pts, int deg, double centre, double half, double period)
+    {
         var n = pts.Count;
-        var lo = pts[0].X;
-        var hi = pts[^1].X;
-        var centre = 0.5 * (lo + hi);
-        var half = 0.5 * (hi - lo);
-        if (!(half > 0)) return null;
-        var maxDegree = Math.Min(options.MaxDegree, n - 4); // d shape coefficients + C + A, at least two degrees of freedom
-        var fits = new List<RepeatAxisFit>();
-        var scores = new List<DegreeScore>();
-        for (var deg = 1; deg <= maxDegree; deg++)
+        var a = Matrix<double>.Build.Dense(n, deg + 2);
+        var b = Vector<double>.Build.Dense(n);
+        for (var i = 0; i < n; i++)
         {
-            var cols = deg + 2;
-            var a = Matrix<double>.Build.Dense(n, cols);
-            var b = Vector<double>.Build.Dense(n);
-            for (var i = 0; i < n; i++)
+            var q = pts[i];
+            var w = 1 / q.Sigma;
+            var t = (q.X - centre) / half;
+            var pw = t;
+            for (var j = 0; j < deg; j++)
             {
-                var q = pts[i];
-                var w = 1 / q.Sigma;
-                var t = (q.X - centre) / half;
-                var pw = t;
-                for (var j = 0; j < deg; j++)
-                {
-                    a[i, j] = w * pw;
-                    pw *= t;
-                }
-
-                a[i, deg] = w;
-                a[i, deg + 1] = w * q.N;
-                b[i] = w * period * (q.K - q.M);
+                a[i, j] = w * pw;
+                pw *= t;
             }
 
-            var qr = a.QR(MathNet.Numerics.LinearAlgebra.Factorization.QRMethod.Thin);
-            var rank = true;
-            for (var j = 0; j < cols; j++)
-                if (Math.Abs(qr.R[j, j]) < 1e-10 * Math.Abs(qr.R[0, 0])) rank = false;
-            if (!rank) break;
-            var sol = qr.Solve(b);
-            var coefficients = new double[deg + 1];
-            for (var j = 1; j <= deg; j++) coefficients[j] = sol[j - 1];
-            var tRef = (sweep.X[0] - centre) / half;
-            var c0 = 0.0;
-            for (var j = deg; j >= 1; j--) c0 = (c0 + coefficients[j]) * tRef;
-            coefficients[0] = -c0;
-            var poly = new AxisPolynomial(coefficients, centre, half, lo, hi);
-            var resid = a * sol - b;
-            var chi = resid.DotProduct(resid);
-            var leverage = new double[n];
-            var press = 0.0;
-            for (var i = 0; i < n; i++)
-            {
-                var h = 0.0;
-                for (var j = 0; j < cols; j++) h += qr.Q[i, j] * qr.Q[i, j];
-                leverage[i] = Math.Min(h, 0.99);
-                press += Math.Pow(resid[i] / (1 - leverage[i]), 2);
-            }
-
-            double sigma = double.NaN;
-            double[]? shapeCovariance = null;
-            try
-            {
-                var cov = a.TransposeThisAndMultiply(a).Inverse() * (chi / (n - cols));
-                var flat = new double[deg * deg];
-                for (var i = 0; i < deg; i++)
-                for (var j = 0; j < deg; j++)
-                    flat[i * deg + j] = cov[i, j];
-                if (flat.All(double.IsFinite))
-                {
-                    sigma = AxisPolynomial.ShapeSigmaRms(flat, deg);
-                    shapeCovariance = flat;
-                }
-            }
-            catch (Exception e) when (e is ArgumentException or InvalidOperationException)
-            {
-                sigma = double.NaN;
-            }
-
-            var mono = poly.IsMonotone(lo, hi, 801);
-            scores.Add(new DegreeScore(deg, chi, RepeatAxisFitting.Bic(chi, n, deg, period), press, mono));
-            if (mono && double.IsFinite(press)) fits.Add(new RepeatAxisFit(poly, chi, sigma, leverage, press) { ShapeCovariance = shapeCovariance });
+            a[i, deg] = w;
+            a[i, deg + 1] = w * q.N;
+            b[i] = w * period * (q.K - q.M);
         }
 
-        if (fits.Count == 0) return null;
-        var minPress = fits.Min(f => f.Press);
-        var chosenFit = fits.First(f => f.Press <= 1.05 * minPress + 1e-12);
-        var dof = n - chosenFit.Axis.Degree - 2;
-        var note = $"{n} peaks of {pts.Select(q => q.N).Distinct().Count()} families, reduced χ² {chosenFit.ChiSquare / dof:G3}";
-        return new Ladder(chosenFit, scores, n, note);
+        return (a, b);
     }
 }

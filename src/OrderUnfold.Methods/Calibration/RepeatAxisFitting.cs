@@ -2,11 +2,12 @@ using MathNet.Numerics.LinearAlgebra;
 
 namespace OrderUnfold.Calibration;
 
-    internal sealed record RepeatAxisFit(AxisPolynomial Axis, double ChiSquare, double AxisSigmaHz, double[] Leverage, double Press)
-    {
-        /// <summary>Covariance of c₁…c_d (row-major, Hz²), scaled by χ² per degree of freedom; null when not computable.</summary>
-        public double[]? ShapeCovariance { get; init; }
-    }
+/// <summary>An axis fitted to repeat constraints, with its χ², shape uncertainty, leverages and leave-one-out error.</summary>
+internal sealed record RepeatAxisFit(AxisPolynomial Axis, double ChiSquare, double AxisSigmaHz, double[] Leverage, double Press)
+{
+    /// <summary>Covariance of c₁…c_d (row-major, Hz²), scaled by χ² per degree of freedom; null when not computable.</summary>
+    public double[]? ShapeCovariance { get; init; }
+}
 
 /// <summary>The axis polynomial from repeat constraints: weighted least squares, degree by leave-one-out, outlier rejection.</summary>
 internal static class RepeatAxisFitting
@@ -25,8 +26,7 @@ internal static class RepeatAxisFitting
             var lev = new Dictionary<RepeatConstraint, double>(ReferenceEqualityComparer.Instance);
             for (var k = 0; k < used.Count && k < fit.Leverage.Length; k++) lev[used[k]] = fit.Leverage[k];
             double Deleted(RepeatConstraint c) => Math.Abs(c.Residual) / c.Sigma / (1 - lev.GetValueOrDefault(c, 0));
-            var normalised = used.Select(Deleted).OrderBy(v => v).ToList();
-            var scale = 1.4826 * normalised[normalised.Count / 2];
+            var scale = 1.4826 * Medians.Upper(used.Select(Deleted));
             if (!(scale > 0)) break;
             var limit = options.RejectSigma * scale;
             var changed = false;
@@ -135,9 +135,23 @@ internal static class RepeatAxisFitting
             b[k] = w * c.Delta;
         }
 
+        return SolveDesign(a, b, degree, xRef, centre, half, lo, hi);
+    }
+
+    /// <summary>
+    /// Solves the weighted design <paramref name="a"/>·c = <paramref name="b"/> (by thin QR) whose first
+    /// <paramref name="degree"/> columns are the shape coefficients c₁…c_d of the axis on t = (x − centre)/half (further
+    /// columns are nuisance unknowns); c₀ makes f(<paramref name="xRef"/>) = 0. Also gives the shape covariance (scaled by
+    /// χ² per degree of freedom), its RMS over the range, each row's leverage and the leave-one-out error (PRESS).
+    /// Null when the design is rank-deficient.
+    /// </summary>
+    internal static RepeatAxisFit? SolveDesign(Matrix<double> a, Vector<double> b, int degree, double xRef, double centre, double half, double lo, double hi)
+    {
+        var n = a.RowCount;
+        var cols = a.ColumnCount;
         var qr = a.QR(MathNet.Numerics.LinearAlgebra.Factorization.QRMethod.Thin);
         var r = qr.R;
-        for (var i = 0; i < degree; i++)
+        for (var i = 0; i < cols; i++)
             if (Math.Abs(r[i, i]) < 1e-10 * Math.Abs(r[0, 0])) return null;
         var sol = qr.Solve(b);
         var coefficients = new double[degree + 1];
@@ -149,27 +163,7 @@ internal static class RepeatAxisFitting
         var axis = new AxisPolynomial(coefficients, centre, half, lo, hi);
         var resid = a * sol - b;
         var chi = resid.DotProduct(resid);
-
-        // uncertainty of the axis shape (constant removed), averaged over the calibrated range
-        double sigma = double.NaN;
-        double[]? shapeCovariance = null;
-        try
-        {
-            var cov = (a.TransposeThisAndMultiply(a)).Inverse() * (n > degree ? chi / (n - degree) : 1.0);
-            if (cov.Enumerate().All(double.IsFinite))
-            {
-                var flat = new double[degree * degree];
-                for (var i = 0; i < degree; i++)
-                for (var j = 0; j < degree; j++)
-                    flat[i * degree + j] = cov[i, j];
-                sigma = AxisPolynomial.ShapeSigmaRms(flat, degree);
-                if (n > degree) shapeCovariance = flat;
-            }
-        }
-        catch (Exception e) when (e is ArgumentException or InvalidOperationException)
-        {
-            sigma = double.NaN;
-        }
+        var (sigma, shapeCovariance) = ShapeUncertainty(a, chi, n - cols, degree);
 
         // leverage of each constraint (diagonal of the hat matrix): an edge pair can bend the polynomial to itself
         var q = qr.Q;
@@ -177,7 +171,7 @@ internal static class RepeatAxisFitting
         for (var k = 0; k < n; k++)
         {
             var h = 0.0;
-            for (var j = 0; j < degree; j++) h += q[k, j] * q[k, j];
+            for (var j = 0; j < cols; j++) h += q[k, j] * q[k, j];
             leverage[k] = Math.Min(h, 0.99);
         }
 
@@ -185,5 +179,25 @@ internal static class RepeatAxisFitting
         var press = 0.0;
         for (var k = 0; k < n; k++) press += Math.Pow(resid[k] / (1 - leverage[k]), 2);
         return new RepeatAxisFit(axis, chi, sigma, leverage, press) { ShapeCovariance = shapeCovariance };
+    }
+
+    /// <summary>Uncertainty of the axis shape (constant removed): the covariance of c₁…c_d, (AᵀA)⁻¹ scaled by χ²/dof (by 1
+    /// without a degree of freedom, when the covariance is not reported), and its RMS over the calibrated range.</summary>
+    private static (double Sigma, double[]? ShapeCovariance) ShapeUncertainty(Matrix<double> a, double chi, int dof, int degree)
+    {
+        try
+        {
+            var cov = a.TransposeThisAndMultiply(a).Inverse() * (dof > 0 ? chi / dof : 1.0);
+            if (!cov.Enumerate().All(double.IsFinite)) return (double.NaN, null);
+            var flat = new double[degree * degree];
+            for (var i = 0; i < degree; i++)
+            for (var j = 0; j < degree; j++)
+                flat[i * degree + j] = cov[i, j];
+            return (AxisPolynomial.ShapeSigmaRms(flat, degree), dof > 0 ? flat : null);
+        }
+        catch (Exception e) when (e is ArgumentException or InvalidOperationException)
+        {
+            return (double.NaN, null);
+        }
     }
 }

@@ -65,29 +65,7 @@ internal static class RepeatPeriodChoice
             if (k > 0.2 && k < 5) Add($"start ×{k:F2}", Math.Round(k * 4) / 4 is var q && q > 0 && Math.Abs(q / k - 1) < 0.03 ? q : k);
         }
 
-        double? adopt = null;
-        var one = list.First(c => c.K == 1);
-        var dbl = list.First(c => c.K == 2);
-        string basis;
-        var shorter = list.Where(c => c.K < 0.97 && c.Score.Consistent && c.Score.Predictions > 0).OrderBy(c => c.K).FirstOrDefault();
-        if (shorter.Score is not null)
-        {
-            adopt = shorter.K;
-            basis = $"a shorter period ({shorter.Score.Label}) explains every peak as well: the shortest consistent period is the period";
-        }
-        else if (one.Score.Consistent)
-        {
-            basis = "the shortest period at which every peak group repeats with the same height";
-        }
-        else if (dbl.Score.Consistent && dbl.Score.Predictions > 0)
-        {
-            adopt = 2;
-            basis = "only the double of the first repeat period explains every peak";
-        }
-        else
-        {
-            basis = "no candidate explains the peak pattern";
-        }
+        var (adopt, basis) = Adoption(list);
 
         // groups at the period → source lines and transverse families of the cavity
         var groups = PeriodDecider.Group(clear, U, tol);
@@ -110,5 +88,19 @@ internal static class RepeatPeriodChoice
 
         var scores = list.Select(c => c.Score with { Chosen = c.K == 1 }).ToList();
         return (new PeriodDecision(periodScan, periodHz, period, scores, basis, families, fundamental) { FundamentalPhase = split.FundamentalPhase, Tolerance = tol }, adopt);
+    }
+
+    /// <summary>Which factor of the chosen period to adopt (null: keep it) and why, in words: the shortest consistent
+    /// period that predicts repeats; else the chosen one when consistent; else its double when that explains every peak.</summary>
+    private static (double? Adopt, string Basis) Adoption(List<(PeriodCandidateScore Score, double K)> list)
+    {
+        var one = list.First(c => c.K == 1);
+        var dbl = list.First(c => c.K == 2);
+        var shorter = list.Where(c => c.K < 0.97 && c.Score.Consistent && c.Score.Predictions > 0).OrderBy(c => c.K).FirstOrDefault();
+        if (shorter.Score is not null)
+            return (shorter.K, $"a shorter period ({shorter.Score.Label}) explains every peak as well: the shortest consistent period is the period");
+        if (one.Score.Consistent) return (null, "the shortest period at which every peak group repeats with the same height");
+        if (dbl.Score.Consistent && dbl.Score.Predictions > 0) return (2, "only the double of the first repeat period explains every peak");
+        return (null, "no candidate explains the peak pattern");
     }
 }

@@ -1,10 +1,12 @@
 namespace OrderUnfold.Calibration;
 
-    internal sealed record PairingRun(List<RepeatConstraint> Pairs, RepeatAxisFit? Fit, List<DegreeScore> Scores, int Iterations, double Coverage, double HeightMismatch,
-        double PeriodSamples, List<(RepeatConstraint Pair, (bool Used, double Residual) State)> CompanionStateList)
-    {
-        public IEnumerable<(RepeatConstraint, (bool Used, double Residual))> CompanionState => CompanionStateList.Select(t => (t.Pair, t.State));
-    }
+/// <summary>What the pairing rounds from one starting axis found (see <see cref="SelfCalibrationResult"/> for the fields'
+/// meaning); the calibration sweep's intervals are shared between runs, so each run keeps their flags as it left them.</summary>
+internal sealed record PairingRun(List<RepeatConstraint> Pairs, RepeatAxisFit? Fit, List<DegreeScore> Scores, int Iterations, double Coverage, double HeightMismatch,
+    double PeriodSamples, List<(RepeatConstraint Pair, (bool Used, double Residual) State)> CompanionStateList)
+{
+    public IEnumerable<(RepeatConstraint, (bool Used, double Residual))> CompanionState => CompanionStateList.Select(t => (t.Pair, t.State));
+}
 
 /// <summary>Rounds of pairing and fitting from one starting axis, and what the pairs leave unrepeated.</summary>
 internal static class RepeatRounds
@@ -44,51 +46,59 @@ internal static class RepeatRounds
             previous = key;
         }
 
-        // coverage: the share of peaks that could have a repeat inside the sweep and have one
         double coverage = 0, mismatch = double.PositiveInfinity;
         if (fit is not null)
         {
-            var fA = fit.Axis.Evaluate(xLo);
-            var fB = fit.Axis.Evaluate(xHi);
-            var (fMin, fMax) = (Math.Min(fA, fB), Math.Max(fA, fB));
-            var period = Math.Abs(delta);
-            var paired = new HashSet<int>();
-            foreach (var c in pairs.Where(c => c.Used))
-            {
-                paired.Add(c.FirstIndex);
-                paired.Add(c.RepeatIndex);
-            }
-
-            // weighted by height: a weak peak's repeat may sink into the noise
-            double eligible = 0, hit = 0;
-            for (var i = 0; i < peaks.Count; i++)
-            {
-                var f = fit.Axis.Evaluate(peaks[i].X);
-                if (!(f + period <= fMax - 0.01 * period || f - period >= fMin + 0.01 * period)) continue;
-                eligible += peaks[i].Height;
-                if (paired.Contains(i)) hit += peaks[i].Height;
-            }
-
-            coverage = eligible > 0 ? hit / eligible : 0;
-            // height mismatch in units of its noise, about a linear trend along the sweep (laser power drift):
-            // about 0.7 for true repeats, many times that for look-alikes of other heights
-            var used = pairs.Where(c => c.Used && c.FirstIndex >= 0).ToList();
-            if (used.Count > 0)
-            {
-                var model = used.Count >= 4 ? HeightModel.From(used) : null;
-                var z = used.Select(c =>
-                {
-                    var trend = model is null ? 0 : model.Intercept + model.Slope * c.FirstX;
-                    var sigma = Math.Sqrt(Square(noise / c.FirstHeight) + Square(noise / c.RepeatHeight)) + 1e-4;
-                    return Math.Abs(Math.Log(c.RepeatHeight / c.FirstHeight) - trend) / sigma;
-                }).OrderBy(v => v).ToList();
-                mismatch = z[z.Count / 2];
-            }
+            coverage = Coverage(peaks, pairs, fit.Axis, delta, xLo, xHi);
+            mismatch = HeightMismatch(pairs, noise);
         }
 
         var periodSamples = fit is null ? double.NaN : SamplesPerPeriod(sweep, fit.Axis, Math.Abs(delta));
         var state = companionPairs.Select(c => (c, (c.Used, c.Residual))).ToList();
         return new PairingRun(pairs, fit, scores, iterations, coverage, mismatch, periodSamples, state);
+    }
+
+    /// <summary>The share of the peaks that could have a repeat inside the sweep and have one, weighted by height (a weak
+    /// peak's repeat may sink into the noise).</summary>
+    private static double Coverage(List<DetectedPeak> peaks, List<RepeatConstraint> pairs, AxisPolynomial axis, double delta, double xLo, double xHi)
+    {
+        var fA = axis.Evaluate(xLo);
+        var fB = axis.Evaluate(xHi);
+        var (fMin, fMax) = (Math.Min(fA, fB), Math.Max(fA, fB));
+        var period = Math.Abs(delta);
+        var paired = new HashSet<int>();
+        foreach (var c in pairs.Where(c => c.Used))
+        {
+            paired.Add(c.FirstIndex);
+            paired.Add(c.RepeatIndex);
+        }
+
+        double eligible = 0, hit = 0;
+        for (var i = 0; i < peaks.Count; i++)
+        {
+            var f = axis.Evaluate(peaks[i].X);
+            if (!(f + period <= fMax - 0.01 * period || f - period >= fMin + 0.01 * period)) continue;
+            eligible += peaks[i].Height;
+            if (paired.Contains(i)) hit += peaks[i].Height;
+        }
+
+        return eligible > 0 ? hit / eligible : 0;
+    }
+
+    /// <summary>Height mismatch of the used pairs in units of its noise, about a linear trend along the sweep (laser power
+    /// drift): about 0.7 for true repeats, many times that for look-alikes of other heights; +∞ without pairs.</summary>
+    private static double HeightMismatch(List<RepeatConstraint> pairs, double noise)
+    {
+        var used = pairs.Where(c => c.Used && c.FirstIndex >= 0).ToList();
+        if (used.Count == 0) return double.PositiveInfinity;
+        var model = used.Count >= 4 ? HeightModel.From(used) : null;
+        var z = used.Select(c =>
+        {
+            var trend = model is null ? 0 : model.Intercept + model.Slope * c.FirstX;
+            var sigma = Math.Sqrt(Square(noise / c.FirstHeight) + Square(noise / c.RepeatHeight)) + 1e-4;
+            return Math.Abs(Math.Log(c.RepeatHeight / c.FirstHeight) - trend) / sigma;
+        });
+        return Medians.Upper(z);
     }
 
     /// <summary>
