@@ -95,33 +95,7 @@ public static class RingdownFit
         if (!(height > 0)) return null;
         var model = new double[m];
 
-        // starting values: the shape ladder matched to the measured width and top; A and b by linear least squares
-        double bestChi = double.PositiveInfinity;
-        double[]? best = null;
-        foreach (var shape in RingdownModel.Shapes)
-        {
-            var tau = fixedTau ?? fwhm / shape.FwhmTau;
-            var rate = fixedTau is double ft
-                ? RateForWidth(ft, fwhm)
-                : shape.Dynamics / (Math.PI * Math.PI * tau * tau);
-            if (fixedTau is not null && Math.Abs(RingdownModel.Dynamics(tau, rate) / shape.Dynamics - 1) > 0.5) continue;
-            var crossing = top - shape.DelayTau * tau;
-            RingdownModel.Power(model, start, crossing, tau, rate);
-            var (a, b, chi) = Linear(window, model);
-            if (chi < bestChi && a > 0)
-            {
-                bestChi = chi;
-                best = [a, crossing, Math.Log(tau), Math.Log(rate), b];
-            }
-        }
-
-        if (best is null)
-        {
-            // τ fixed and no ladder entry near: start from the width alone
-            var tau = fixedTau!.Value;
-            best = [height / 0.5, top - 0.5 * tau, Math.Log(tau), Math.Log(RateForWidth(tau, fwhm)), bg0];
-        }
-
+        var best = StartingValues(window, model, start, top, fwhm, fixedTau, height, bg0);
         var tauFree = fixedTau is null;
         var idx = tauFree ? new[] { 0, 1, 2, 3, 4 } : new[] { 0, 1, 3, 4 };
         var full = (double[])best.Clone();
@@ -188,6 +162,39 @@ public static class RingdownFit
         var staticChi = StaticChiSquare(window, start, top, fwhm, sigma);
         return new RingdownPeakFit(p[1], Se(1), start + Refine(model, maxAt), p[0], p[4], tauFit, tauFree ? tauFit * Se(2) : double.NaN, rateFit, rateFit * Se(3),
             reduced, staticChi / Math.Max(result.ChiSquare, 1e-300), fwhm, start, m, !tauFree, result.Converged);
+    }
+
+    /// <summary>Starting values (A, crossing, ln τ, ln rate, b): the shape ladder matched to the measured width and top, A and b
+    /// by linear least squares; with τ fixed and no ladder entry near, from the width alone.</summary>
+    private static double[] StartingValues(double[] window, double[] model, int start, int top, double fwhm, double? fixedTau, double height, double bg0)
+    {
+        double bestChi = double.PositiveInfinity;
+        double[]? best = null;
+        foreach (var shape in RingdownModel.Shapes)
+        {
+            var tau = fixedTau ?? fwhm / shape.FwhmTau;
+            var rate = fixedTau is double ft
+                ? RateForWidth(ft, fwhm)
+                : shape.Dynamics / (Math.PI * Math.PI * tau * tau);
+            if (fixedTau is not null && Math.Abs(RingdownModel.Dynamics(tau, rate) / shape.Dynamics - 1) > 0.5) continue;
+            var crossing = top - shape.DelayTau * tau;
+            RingdownModel.Power(model, start, crossing, tau, rate);
+            var (a, b, chi) = Linear(window, model);
+            if (chi < bestChi && a > 0)
+            {
+                bestChi = chi;
+                best = [a, crossing, Math.Log(tau), Math.Log(rate), b];
+            }
+        }
+
+        if (best is null)
+        {
+            // τ fixed and no ladder entry near: start from the width alone
+            var tau = fixedTau!.Value;
+            best = [height / 0.5, top - 0.5 * tau, Math.Log(tau), Math.Log(RateForWidth(tau, fwhm)), bg0];
+        }
+
+        return best;
     }
 
     /// <summary>Sweep rate at which a resonance of field decay time τ shows a static FWHM of <paramref name="fwhm"/> samples.</summary>
