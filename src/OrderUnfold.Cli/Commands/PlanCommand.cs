@@ -327,12 +327,9 @@ public sealed class PlanCommand : ICommand
     {
         var v = args.Value(name);
         if (v is null) return null;
-        return v.Trim().ToLowerInvariant() switch
-        {
-            "planar" => CavityGeometry.Planar,
-            "confocal" => CavityGeometry.Confocal,
-            _ => throw new UsageException($"plan: --{name} expects planar or confocal but got '{v}'"),
-        };
+        return CavityGeometryNames.TryParse(v, out var geometry)
+            ? geometry
+            : throw new UsageException($"plan: --{name} expects {CavityGeometryNames.Choices} but got '{v}'");
     }
 
     private static double? PositiveFinesse(Args args, string name)

@@ -51,12 +51,9 @@ public sealed class SimulateCommand : ICommand
         var outDir = a.Value("out") ?? throw new UsageException("simulate: --out DIR is required");
         var spec = Scenarios.ByName(a.Value("scenario") ?? "demo");
         if (a.Value("lines") is string lines) spec = spec with { Lines = ParseLines(lines) };
-        var geometry = (a.Value("geometry") ?? "planar").ToLowerInvariant() switch
-        {
-            "planar" => CavityGeometry.Planar,
-            "confocal" => CavityGeometry.Confocal,
-            var g => throw new UsageException($"simulate: --geometry expects planar or confocal but got '{g}'"),
-        };
+        var geometryName = a.Value("geometry") ?? "planar";
+        if (!CavityGeometryNames.TryParse(geometryName, out var geometry))
+            throw new UsageException($"simulate: --geometry expects {CavityGeometryNames.Choices} but got '{geometryName.ToLowerInvariant()}'");
         var finesse = a.Double("finesse") ?? spec.Cavities[0].Instrument.Finesse;
         if (finesse < 1) throw new UsageException($"simulate: --finesse must be at least 1 but got {finesse}");
         List<Instrument>? instruments = null;

@@ -106,7 +106,7 @@ public static class FinesseFit
     {
         peaks ??= ResolvedPeaks.Find(sweep.X, sweep.Y, 0.05, 8);
         if (peaks.Count == 0) return null;
-        var noise = PeakFinder.NoiseSigma(sweep.Y);
+        var noise = NoiseEstimator.FirstDifferenceSigma(sweep.Y);
         if (!(noise > 0)) return null;
         if (RecordOnAxis(sweep, axis, peaks) is not var (freq, sig, info)) return null;
         var (fits, samplesPerFwhm, poor, poorSamples) = FitIsolatedPeaks(info, freq, sig, periodHz, noise, maxPeaks);

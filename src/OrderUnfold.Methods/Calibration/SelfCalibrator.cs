@@ -68,7 +68,7 @@ public static class SelfCalibrator
         if (sweep.Count < 64)
             throw new InputException($"{sweep.Name}: {sweep.Count} samples are too few to self-calibrate (needs at least 64)", sweep.Source);
         var sign = sweep.Direction == RampDirection.Down && sweep.Scan == ScanCoordinate.Time ? -1.0 : 1.0;
-        var noise = PeakFinder.NoiseSigma(sweep.Y);
+        var noise = NoiseEstimator.FirstDifferenceSigma(sweep.Y);
         var found = ResolvedPeaks.Find(sweep.X, sweep.Y, options.MinHeightFraction, options.MinSnr);
         var peaks = found.Select(p => DetectedPeak.From(sweep, p, noise)).OrderBy(p => p.X).ToList();
         if (peaks.Count < 2)
