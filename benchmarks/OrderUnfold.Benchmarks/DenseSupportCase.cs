@@ -48,7 +48,7 @@ public sealed record DenseSupportCase(List<CalibratedSweep> Sweeps, FrequencyGri
         foreach (var cav in spec.Cavities)
         {
             var trace = Simulator.Trace(spec, cav, calibration: false, rng);
-            sweeps.Add(new CalibratedSweep(cav.Instrument.Name, cav.Instrument, trace.TrueScanHz, trace.Signal, PeakFinder.NoiseSigma(trace.Signal)));
+            sweeps.Add(new CalibratedSweep(cav.Instrument.Name, cav.Instrument, trace.TrueScanHz, trace.Signal, NoiseEstimator.FirstDifferenceSigma(trace.Signal)));
             offsets.Add(trace.OffsetHz);
             gains.Add(cav.Gain);
         }

@@ -60,9 +60,9 @@ internal static class SharedOptions
             return ok;
         });
 
-    /// <summary><c>--geometry</c> and the like: planar or confocal.</summary>
+    /// <summary><c>--geometry</c> and the like: the names of <see cref="CavityGeometryNames"/> (the one table of them).</summary>
     public static Option<CavityGeometry?> Geometry(string name, string description) =>
-        ValueOptions.Choice(name, description, ("planar", CavityGeometry.Planar), ("confocal", CavityGeometry.Confocal));
+        ValueOptions.Choice(name, description, CavityGeometryNames.ByName.Select(kv => (kv.Key, kv.Value)).ToArray());
 
     /// <summary><c>--lines</c>: the lines of a simulated source, in the one syntax of <see cref="LineList"/>.</summary>
     public static Option<IReadOnlyList<SimulatedLine>?> Lines(string description) =>

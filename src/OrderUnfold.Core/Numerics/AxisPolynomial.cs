@@ -91,18 +91,10 @@ public sealed record AxisPolynomial
         var n = x.Count;
         var p = Coefficients.Length;
         if (n != f.Count || n <= p || Degree < 1) return null;
-        var a = Matrix<double>.Build.Dense(n, p);
+        var a = PolynomialFit.Design(x.Select(v => (v - Center) / HalfRange).ToArray(), null, Degree);
         var rss = 0.0;
         for (var i = 0; i < n; i++)
         {
-            var t = (x[i] - Center) / HalfRange;
-            var v = 1.0;
-            for (var j = 0; j < p; j++)
-            {
-                a[i, j] = v;
-                v *= t;
-            }
-
             var r = f[i] - Evaluate(x[i]);
             rss += r * r;
         }
@@ -167,23 +159,8 @@ public sealed record AxisPolynomial
         var center = 0.5 * (xmin + xmax);
         var half = 0.5 * (xmax - xmin);
         if (!(half > 0)) half = 1;
-        var a = Matrix<double>.Build.Dense(x.Count, degree + 1);
-        var b = Vector<double>.Build.Dense(x.Count);
-        for (var i = 0; i < x.Count; i++)
-        {
-            var w = weights is null ? 1.0 : Math.Sqrt(weights[i]);
-            var t = (x[i] - center) / half;
-            var p = 1.0;
-            for (var j = 0; j <= degree; j++)
-            {
-                a[i, j] = w * p;
-                p *= t;
-            }
-
-            b[i] = w * f[i];
-        }
-
-        var c = a.QR().Solve(b).ToArray();
+        var t = x.Select(v => (v - center) / half).ToArray();
+        var c = PolynomialFit.Solve(t, f, weights?.Select(Math.Sqrt).ToArray(), degree).Coefficients.ToArray();
         return new AxisPolynomial(c, center, half, xmin, xmax);
     }
 }

@@ -88,6 +88,30 @@ public static class NoiseEstimator
         return new NoiseEstimate { Sigma = sigma, SigmaBaseline = sigmaDark, QuantisationStep = q, VarianceSlope = slope, Method = method };
     }
 
+    /// <summary>
+    /// A quick, robust noise σ for peak thresholds and fit weights inside the calibration: 1.4826·median|Δy|/√2 from the
+    /// first differences (the upper median; robust to peaks, which occupy few samples), floored at the smallest non-zero
+    /// step / √12 when the signal is quantised. It differs from <see cref="Estimate"/> (fourth differences, clipped mean
+    /// square, signal-dependent variance) on quantised and shot-noise-limited data; the peak finder's thresholds and the
+    /// calibration fits were set against it (field traces 01–08), so it stays their estimate, while <see cref="Estimate"/>
+    /// gives the σ that weights the unfolding's χ².
+    /// </summary>
+    public static double FirstDifferenceSigma(IReadOnlyList<double> y)
+    {
+        if (y.Count < 3) return 0;
+        var d = new double[y.Count - 1];
+        var minStep = double.PositiveInfinity;
+        for (var i = 0; i < d.Length; i++)
+        {
+            d[i] = Math.Abs(y[i + 1] - y[i]);
+            if (d[i] > 0 && d[i] < minStep) minStep = d[i];
+        }
+
+        var sigma = 1.4826 * Medians.Upper(d) / Math.Sqrt(2);
+        var floor = double.IsFinite(minStep) ? minStep / Math.Sqrt(12) : 0;
+        return Math.Max(sigma, floor);
+    }
+
     /// <summary>σ of white noise from the fourth differences at <paramref name="idx"/>: iterated 4σ-clipped mean square / 70.</summary>
     private static double ClippedSigma(double[] e, int[] idx)
     {

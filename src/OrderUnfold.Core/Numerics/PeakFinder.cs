@@ -22,7 +22,7 @@ public static class PeakFinder
         if (n < 3) return [];
         var baseline = Percentile(y, 0.05);
         var max = y.Max() - baseline;
-        var noise = NoiseSigma(y);
+        var noise = NoiseEstimator.FirstDifferenceSigma(y);
         if (!(max > 0)) return [];
         var threshold = Math.Max(minHeightFraction * max, minSnr * noise);
         var peaks = new List<Peak>();
@@ -76,26 +76,6 @@ public static class PeakFinder
         if (i >= x.Count - 1) return x[^1];
         var t = position - i;
         return x[i] + t * (x[i + 1] - x[i]);
-    }
-
-    /// <summary>Noise σ from the median absolute first difference (robust to peaks), floored at the
-    /// quantisation step / √12 when the signal is quantised.</summary>
-    public static double NoiseSigma(IReadOnlyList<double> y)
-    {
-        if (y.Count < 3) return 0;
-        var d = new double[y.Count - 1];
-        var minStep = double.PositiveInfinity;
-        for (var i = 0; i < d.Length; i++)
-        {
-            d[i] = Math.Abs(y[i + 1] - y[i]);
-            if (d[i] > 0 && d[i] < minStep) minStep = d[i];
-        }
-
-        Array.Sort(d);
-        var mad = d[d.Length / 2];
-        var sigma = 1.4826 * mad / Math.Sqrt(2);
-        var floor = double.IsFinite(minStep) ? minStep / Math.Sqrt(12) : 0;
-        return Math.Max(sigma, floor);
     }
 
     public static double Percentile(IReadOnlyList<double> y, double p)

@@ -23,6 +23,37 @@ public static class PolynomialFit
         public double? Cov(int i, int j) => Covariance?[i, j];
     }
 
+    /// <summary>
+    /// The weighted Vandermonde design in an abscissa t: row i is wᵢ·(1, tᵢ, …, tᵢᵈ) (wᵢ = 1 when
+    /// <paramref name="rowWeights"/> is null). The one place where the project's polynomial least squares are set up.
+    /// </summary>
+    public static Matrix<double> Design(IReadOnlyList<double> t, IReadOnlyList<double>? rowWeights, int degree)
+    {
+        var a = Matrix<double>.Build.Dense(t.Count, degree + 1);
+        for (var i = 0; i < t.Count; i++)
+        {
+            var w = rowWeights is null ? 1.0 : rowWeights[i];
+            var power = 1.0;
+            for (var d = 0; d <= degree; d++)
+            {
+                a[i, d] = w * power;
+                power *= t[i];
+            }
+        }
+
+        return a;
+    }
+
+    /// <summary>Coefficients c₀…c_d of Σ c_d·t^d fitted to y by least squares with row weights wᵢ (minimising
+    /// Σ wᵢ²(yᵢ − Σ c_d tᵢ^d)²), by MathNet QR on <see cref="Design"/>; also returns the design.</summary>
+    public static (Matrix<double> Design, Vector<double> Coefficients) Solve(IReadOnlyList<double> t, IReadOnlyList<double> y, IReadOnlyList<double>? rowWeights, int degree)
+    {
+        var a = Design(t, rowWeights, degree);
+        var b = Vector<double>.Build.Dense(t.Count);
+        for (var i = 0; i < t.Count; i++) b[i] = (rowWeights is null ? 1.0 : rowWeights[i]) * y[i];
+        return (a, a.QR().Solve(b));
+    }
+
     /// <summary>Fits; <paramref name="sigma"/> null means unweighted. Needs at least degree + 1 distinct x.</summary>
     public static Result Fit(IReadOnlyList<double> x, IReadOnlyList<double> y, IReadOnlyList<double>? sigma, int degree)
     {
@@ -33,34 +64,19 @@ public static class PolynomialFit
 
         // Centre x for conditioning; parameters are transformed back afterwards.
         var xc = x.Average();
-        var a = Matrix<double>.Build.Dense(n, p);
-        var b = Vector<double>.Build.Dense(n);
-        for (var i = 0; i < n; i++)
-        {
-            var w = sigma is null ? 1.0 : 1.0 / sigma[i];
-            var t = 1.0;
-            for (var d = 0; d < p; d++)
-            {
-                a[i, d] = t * w;
-                t *= x[i] - xc;
-            }
-
-            b[i] = y[i] * w;
-        }
-
-        var beta = a.QR().Solve(b);
+        var t = x.Select(v => v - xc).ToArray();
+        var (a, beta) = Solve(t, y, sigma?.Select(v => 1.0 / v).ToArray(), degree);
         var ata = a.TransposeThisAndMultiply(a).Inverse();
-
         var residuals = new double[n];
         var chi2 = 0.0;
         for (var i = 0; i < n; i++)
         {
-            var t = 1.0;
+            var power = 1.0;
             var f = 0.0;
             for (var d = 0; d < p; d++)
             {
-                f += beta[d] * t;
-                t *= x[i] - xc;
+                f += beta[d] * power;
+                power *= t[i];
             }
 
             residuals[i] = y[i] - f;
@@ -70,45 +86,35 @@ public static class PolynomialFit
 
         var dof = n - p;
         double? reduced = dof > 0 ? chi2 / dof : null;
-        Matrix<double>? cov;
-        UncertaintyBasis basis;
-        if (sigma is not null)
+        var (cov, basis) = CovariancePolicy(ata, sigma is not null, chi2, dof, reduced);
+        var (raw, covRaw) = FromCentred(beta, cov, xc);
+        return new Result(raw, covRaw, residuals, chi2, dof, sigma is null ? null : reduced, basis);
+    }
+
+    /// <summary>With sigmas, (XᵀWX)⁻¹ multiplied by the reduced χ² when that exceeds 1; without, s²·(XᵀX)⁻¹ with
+    /// s² = RSS/(n − p), or none when n = p.</summary>
+    private static (Matrix<double>? Covariance, UncertaintyBasis Basis) CovariancePolicy(Matrix<double> ata, bool weighted, double chi2, int dof, double? reduced)
+    {
+        if (weighted)
         {
             var scale = reduced is > 1 ? reduced.Value : 1.0;
-            cov = ata * scale;
-            basis = reduced is > 1 ? UncertaintyBasis.LineSigmasScaled : UncertaintyBasis.LineSigmas;
-        }
-        else if (dof > 0)
-        {
-            cov = ata * (chi2 / dof);
-            basis = UncertaintyBasis.Scatter;
-        }
-        else
-        {
-            cov = null;
-            basis = UncertaintyBasis.None;
+            return (ata * scale, reduced is > 1 ? UncertaintyBasis.LineSigmasScaled : UncertaintyBasis.LineSigmas);
         }
 
-        // Back from centred t = x − xc to x: the map p_raw = T·p_centred is linear.
+        return dof > 0 ? (ata * (chi2 / dof), UncertaintyBasis.Scatter) : (null, UncertaintyBasis.None);
+    }
+
+    /// <summary>Back from centred t = x − xc to x: the map p_raw = T·p_centred is linear, (x − xc)^e contributing
+    /// C(e, d)·(−xc)^(e−d) to x^d.</summary>
+    private static (double[] Parameters, double[,]? Covariance) FromCentred(Vector<double> beta, Matrix<double>? cov, double xc)
+    {
+        var p = beta.Count;
         var tMat = Matrix<double>.Build.Dense(p, p);
         for (var d = 0; d < p; d++)
-        {
             for (var e = d; e < p; e++)
-            {
-                // (x − xc)^e contributes C(e, d)·(−xc)^(e−d) to x^d.
                 tMat[d, e] = Binomial(e, d) * Math.Pow(-xc, e - d);
-            }
-        }
-
         var raw = tMat * beta;
-        double[,]? covRaw = null;
-        if (cov is not null)
-        {
-            var c = tMat * cov * tMat.Transpose();
-            covRaw = c.ToArray();
-        }
-
-        return new Result(raw.ToArray(), covRaw, residuals, chi2, dof, sigma is null ? null : reduced, basis);
+        return (raw.ToArray(), cov is null ? null : (tMat * cov * tMat.Transpose()).ToArray());
     }
 
     private static double Binomial(int n, int k)
@@ -128,8 +134,7 @@ public static class PolynomialFit
         var known = sigmas.Where(s => s is > 0 && double.IsFinite(s.Value)).Select(s => s!.Value).ToArray();
         if (known.Length == 0) return null;
         if (known.Length == sigmas.Count) return known;
-        Array.Sort(known);
-        var median = known.Length % 2 == 1 ? known[known.Length / 2] : 0.5 * (known[known.Length / 2 - 1] + known[known.Length / 2]);
+        var median = Medians.OfFinite(known);
         filled = true;
         return sigmas.Select(s => s is > 0 && double.IsFinite(s.Value) ? s.Value : median).ToArray();
     }

@@ -107,25 +107,52 @@ public static class AxisCalibrator
 
         var warnings = new List<string>();
         var sign = sweep.Direction == RampDirection.Down && sweep.Scan == ScanCoordinate.Time ? -1.0 : 1.0;
-        var ordered = peaks.OrderBy(p => p.X).ToList();
-        // a transverse family as tall as a third of TEM00 puts its own peak between the orders: the peaks are then k
-        // interleaved classes, each one FSR apart, and taking consecutive peaks as consecutive orders would make the FSR
-        // in scan units 1/k of the truth (a factor-2 error of the whole frequency scale for a near-confocal cavity)
-        var interleaved = InterleavedClasses(ordered);
-        if (interleaved > 1)
+        var ordered = TallestClass(sweep, peaks.OrderBy(p => p.X).ToList(), warnings);
+        var orders = NumberOrders(ordered, warnings);
+        var fsr = instrument.FsrHz * wavelengthRatio;
+        var px = ordered.Select(p => p.X).ToArray();
+        var pf = orders.Select(o => sign * o * fsr).ToArray();
+        var n = px.Length;
+        var best = degree is int d ? FixedDegreeAxis(sweep, px, pf, d) : LowestBicAxis(sweep, px, pf, fsr, warnings);
+        var residuals = new double[n];
+        for (var i = 0; i < n; i++) residuals[i] = pf[i] - best.Evaluate(px[i]);
+        var rms = Math.Sqrt(residuals.Sum(r => r * r) / n);
+        var (finesse, finesseSigma) = WidthFinesse(sweep, instrument, ordered, best, wavelengthRatio, warnings);
+        var shapeCovariance = best.ShapeCovariance(px, pf);
+        return new AxisCalibration(instrument.Name, sweep.Direction, sweep.Name, "calibration sweep", best, px, pf, residuals, rms,
+            finesse, finesseSigma, warnings)
         {
-            var classes = Enumerable.Range(0, interleaved).Select(c => ordered.Where((_, i) => i % interleaved == c).ToList()).ToList();
-            var kept = classes.MaxBy(c => c.Average(p => p.Height))!;
-            warnings.Add($"{sweep.Name}: the calibration peaks form {interleaved} interleaved groups of different heights (" +
-                         string.Join(", ", classes.Select(c => $"{c.Average(p => p.Height) / kept.Average(p => p.Height):P0}")) +
-                         "): the cavity's transverse families put their own peaks between the orders, so each group repeats once per FSR; " +
-                         $"the tallest group ({kept.Count} peaks) calibrates the axis (improve the alignment of the calibration laser to lower the others)");
-            ordered = kept;
-        }
+            ShapeCovariance = shapeCovariance,
+            AxisSigmaHz = shapeCovariance is null ? null : AxisPolynomial.ShapeSigmaRms(shapeCovariance, best.Degree),
+        };
+    }
+
+    /// <summary>
+    /// A transverse family as tall as a third of TEM00 puts its own peak between the orders: the peaks are then k
+    /// interleaved classes, each one FSR apart, and taking consecutive peaks as consecutive orders would make the FSR in
+    /// scan units 1/k of the truth (a factor-2 error of the whole frequency scale for a near-confocal cavity). Returns the
+    /// tallest class (all peaks when they are one class).
+    /// </summary>
+    private static List<Peak> TallestClass(Sweep sweep, List<Peak> ordered, List<string> warnings)
+    {
+        var interleaved = InterleavedClasses(ordered);
+        if (interleaved <= 1) return ordered;
+        var classes = Enumerable.Range(0, interleaved).Select(c => ordered.Where((_, i) => i % interleaved == c).ToList()).ToList();
+        var kept = classes.MaxBy(c => c.Average(p => p.Height))!;
+        warnings.Add($"{sweep.Name}: the calibration peaks form {interleaved} interleaved groups of different heights (" +
+                     string.Join(", ", classes.Select(c => $"{c.Average(p => p.Height) / kept.Average(p => p.Height):P0}")) +
+                     "): the cavity's transverse families put their own peaks between the orders, so each group repeats once per FSR; " +
+                     $"the tallest group ({kept.Count} peaks) calibrates the axis (improve the alignment of the calibration laser to lower the others)");
+        return kept;
+    }
+
+    /// <summary>Order numbers of the peaks from their spacings in units of the typical (upper median) spacing; a gap of
+    /// several spacings skips orders, with a warning.</summary>
+    private static int[] NumberOrders(List<Peak> ordered, List<string> warnings)
+    {
         var spacings = new List<double>();
         for (var i = 1; i < ordered.Count; i++) spacings.Add(ordered[i].X - ordered[i - 1].X);
-        var sorted = spacings.OrderBy(v => v).ToList();
-        var typical = sorted[sorted.Count / 2];
+        var typical = Medians.Upper(spacings);
         var orders = new int[ordered.Count];
         for (var i = 1; i < ordered.Count; i++)
         {
@@ -137,85 +164,79 @@ public static class AxisCalibrator
             orders[i] = orders[i - 1] + step;
         }
 
-        var fsr = instrument.FsrHz * wavelengthRatio;
-        var px = ordered.Select(p => p.X).ToArray();
-        var pf = orders.Select(o => sign * o * fsr).ToArray();
+        return orders;
+    }
+
+    private static AxisPolynomial FixedDegreeAxis(Sweep sweep, double[] px, double[] pf, int d)
+    {
+        if (d < 1) throw new InputException($"axis degree must be at least 1 but got {d}");
+        if (px.Length < d + 1)
+            throw new InputException($"{sweep.Name}: {px.Length} calibration peaks are too few for a degree-{d} axis (needs at least {d + 1}); lower axis_degree or sweep over more FSRs", sweep.Source);
+        var axis = AxisPolynomial.Fit(px, pf, d);
+        if (!axis.IsMonotone(sweep.X.Min(), sweep.X.Max()))
+            throw new InputException($"{sweep.Name}: the fitted degree-{d} axis is not monotone over the sweep; lower axis_degree", sweep.Source);
+        return axis;
+    }
+
+    /// <summary>The monotone axis with the lowest Bayesian information criterion (residuals floored at 10⁻⁵ FSR).</summary>
+    private static AxisPolynomial LowestBicAxis(Sweep sweep, double[] px, double[] pf, double fsr, List<string> warnings)
+    {
         var n = px.Length;
         AxisPolynomial? best = null;
-        if (degree is int d)
+        var floor = 1e-5 * fsr;
+        var bestBic = double.PositiveInfinity;
+        // three peaks (two FSRs) already show the piezo's curvature: a quadratic through them gives each interval its
+        // own FSR in scan units, where a line would force one mean spacing on both (without a degree of freedom left)
+        var maxDegree = Math.Min(MaxAutoDegree, n == 3 ? 2 : n - 2);
+        for (var deg = 1; deg <= Math.Max(1, maxDegree); deg++)
         {
-            if (d < 1) throw new InputException($"axis degree must be at least 1 but got {d}");
-            if (n < d + 1)
-                throw new InputException($"{sweep.Name}: {n} calibration peaks are too few for a degree-{d} axis (needs at least {d + 1}); lower axis_degree or sweep over more FSRs", sweep.Source);
-            best = AxisPolynomial.Fit(px, pf, d);
-            if (!best.IsMonotone(sweep.X.Min(), sweep.X.Max()))
-                throw new InputException($"{sweep.Name}: the fitted degree-{d} axis is not monotone over the sweep; lower axis_degree", sweep.Source);
-        }
-        else
-        {
-            var floor = 1e-5 * fsr;
-            var bestBic = double.PositiveInfinity;
-            // three peaks (two FSRs) already show the piezo's curvature: a quadratic through them gives each interval its
-            // own FSR in scan units, where a line would force one mean spacing on both (without a degree of freedom left)
-            var maxDegree = Math.Min(MaxAutoDegree, n == 3 ? 2 : n - 2);
-            for (var deg = 1; deg <= Math.Max(1, maxDegree); deg++)
+            var fit = AxisPolynomial.Fit(px, pf, deg);
+            if (!fit.IsMonotone(sweep.X.Min(), sweep.X.Max())) continue;
+            var rss = 0.0;
+            for (var i = 0; i < n; i++) rss += Math.Pow(pf[i] - fit.Evaluate(px[i]), 2);
+            rss = Math.Max(rss, n * floor * floor);
+            var bic = n * Math.Log(rss / n) + (deg + 1) * Math.Log(n);
+            if (bic < bestBic - 1e-9)
             {
-                var fit = AxisPolynomial.Fit(px, pf, deg);
-                if (!fit.IsMonotone(sweep.X.Min(), sweep.X.Max())) continue;
-                var rss = 0.0;
-                for (var i = 0; i < n; i++) rss += Math.Pow(pf[i] - fit.Evaluate(px[i]), 2);
-                rss = Math.Max(rss, n * floor * floor);
-                var bic = n * Math.Log(rss / n) + (deg + 1) * Math.Log(n);
-                if (bic < bestBic - 1e-9)
-                {
-                    bestBic = bic;
-                    best = fit;
-                }
+                bestBic = bic;
+                best = fit;
             }
-
-            if (best is null)
-                throw new InputException($"{sweep.Name}: no monotone axis polynomial fits the calibration peaks; the peaks may not be one FSR apart", sweep.Source);
-            if (n <= 3)
-                warnings.Add($"{sweep.Name}: only {n} calibration peaks: the axis is at most linear-plus-one-term and a non-linear piezo is not fully corrected; sweep over more FSRs or use self-calibration");
         }
 
-        var residuals = new double[n];
-        for (var i = 0; i < n; i++) residuals[i] = pf[i] - best.Evaluate(px[i]);
-        var rms = Math.Sqrt(residuals.Sum(r => r * r) / n);
+        if (best is null)
+            throw new InputException($"{sweep.Name}: no monotone axis polynomial fits the calibration peaks; the peaks may not be one FSR apart", sweep.Source);
+        if (n <= 3)
+            warnings.Add($"{sweep.Name}: only {n} calibration peaks: the axis is at most linear-plus-one-term and a non-linear piezo is not fully corrected; sweep over more FSRs or use self-calibration");
+        return best;
+    }
 
-        // effective finesse from the peak widths
+    /// <summary>Effective finesse from the peak widths on the fitted axis: the (upper) median, with the standard error of
+    /// the mean as its σ; null without a usable width.</summary>
+    private static (double? Finesse, double? Sigma) WidthFinesse(Sweep sweep, Instrument instrument, List<Peak> ordered, AxisPolynomial axis,
+        double wavelengthRatio, List<string> warnings)
+    {
         var finesses = new List<double>();
         foreach (var p in ordered)
         {
             var i = (int)Math.Clamp(Math.Round(p.Position), 1, sweep.X.Length - 2);
             var dxdi = Math.Abs(sweep.X[i + 1] - sweep.X[i - 1]) / 2;
-            var fwhmHz = p.WidthSamples * dxdi * Math.Abs(best.Derivative(p.X)) / wavelengthRatio;
+            var fwhmHz = p.WidthSamples * dxdi * Math.Abs(axis.Derivative(p.X)) / wavelengthRatio;
             if (fwhmHz > 0 && fwhmHz < instrument.FsrHz / 2) finesses.Add(Airy.FinesseFromFwhm(instrument.FsrHz, fwhmHz));
         }
 
-        double? finesse = null, finesseSigma = null;
-        if (finesses.Count > 0)
+        if (finesses.Count == 0) return (null, null);
+        var sorted = finesses.OrderBy(v => v).ToList();
+        double? finesseSigma = null;
+        if (sorted.Count > 1)
         {
-            var fs = finesses.OrderBy(v => v).ToList();
-            finesse = fs[fs.Count / 2];
-            if (fs.Count > 1)
-            {
-                var mean = fs.Average();
-                finesseSigma = Math.Sqrt(fs.Sum(v => (v - mean) * (v - mean)) / (fs.Count - 1) / fs.Count);
-            }
-
-            var samplesPerFwhm = ordered.Average(p => p.WidthSamples);
-            if (samplesPerFwhm < 4)
-                warnings.Add($"{sweep.Name}: calibration peaks are only {samplesPerFwhm:F1} samples wide; the measured finesse is unreliable (sample faster or sweep fewer FSRs)");
+            var mean = sorted.Average();
+            finesseSigma = Math.Sqrt(sorted.Sum(v => (v - mean) * (v - mean)) / (sorted.Count - 1) / sorted.Count);
         }
 
-        var shapeCovariance = best.ShapeCovariance(px, pf);
-        return new AxisCalibration(instrument.Name, sweep.Direction, sweep.Name, "calibration sweep", best, px, pf, residuals, rms,
-            finesse, finesseSigma, warnings)
-        {
-            ShapeCovariance = shapeCovariance,
-            AxisSigmaHz = shapeCovariance is null ? null : AxisPolynomial.ShapeSigmaRms(shapeCovariance, best.Degree),
-        };
+        var samplesPerFwhm = ordered.Average(p => p.WidthSamples);
+        if (samplesPerFwhm < 4)
+            warnings.Add($"{sweep.Name}: calibration peaks are only {samplesPerFwhm:F1} samples wide; the measured finesse is unreliable (sample faster or sweep fewer FSRs)");
+        return (Medians.Upper(sorted), finesseSigma);
     }
 
     /// <summary>Heights of one class of peaks of a single-frequency laser agree within this relative standard deviation.</summary>

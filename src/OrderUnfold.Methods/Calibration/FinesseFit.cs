@@ -77,44 +77,18 @@ public static class FinesseFit
         var finesse0 = Math.Max(1.5, periodHz / fwhmGuessHz);
         var m = y.Length;
 
-        void Eval(double[] p, double[] r, double[,]? jac)
-        {
-            double nu0 = p[0], a = p[1], b = p[2], fin = p[3];
-            var k = Airy.CoefficientOfFinesse(fin);
-            var dk = 8 * fin / (Math.PI * Math.PI);
-            for (var i = 0; i < m; i++)
-            {
-                var phase = Math.PI * (f[i] - nu0) / periodHz;
-                var s = Math.Sin(phase);
-                var c = Math.Cos(phase);
-                var d = 1 + k * s * s;
-                var model = b + a / d;
-                r[i] = (y[i] - model) / noiseSigma;
-                if (jac is null) continue;
-                var d2 = d * d;
-                jac[i, 0] = a * k * 2 * s * c * (Math.PI / periodHz) / d2 / noiseSigma;
-                jac[i, 1] = 1 / d / noiseSigma;
-                jac[i, 2] = 1 / noiseSigma;
-                jac[i, 3] = -a * s * s * dk / d2 / noiseSigma;
-            }
-        }
-
         var start = new[] { centerHz, height, baseline, finesse0 };
         var lower = new[] { centerHz - half, 0.0, double.NegativeInfinity, 1.0 };
         var upper = new[] { centerHz + half, double.PositiveInfinity, double.PositiveInfinity, 1e7 };
-        var result = DampedLeastSquares.Minimize(Eval, start, m, maxIterations: 60, lower: lower, upper: upper);
-        var pr = result.Parameters;
-        if (result.Covariance is null || !(pr[1] > 0)) return null;
+        var result = LevenbergMarquardt.MinimiseResiduals(AirySum(f, y, 1, periodHz, noiseSigma), start, m, LmSettings.Relative(60, 1e-9) with { Lower = lower, Upper = upper });
+        var covariance = result.Covariance();
+        var pr = result.P;
+        if (covariance is null || !(pr[1] > 0)) return null;
         var dof = Math.Max(1, m - 4);
         var reduced = result.ChiSquare / dof;
-        var sigma = Math.Sqrt(Math.Max(0, result.Covariance[3, 3]) * Math.Max(1, reduced));
+        var sigma = Math.Sqrt(Math.Max(0, covariance[3, 3]) * Math.Max(1, reduced));
         if (!double.IsFinite(sigma) || !(pr[3] > 1)) return null;
-        var kk = Airy.CoefficientOfFinesse(pr[3]);
-        var model = f.Select(v =>
-        {
-            var s = Math.Sin(Math.PI * (v - pr[0]) / periodHz);
-            return pr[2] + pr[1] / (1 + kk * s * s);
-        }).ToArray();
+        var model = AirySumModel(pr, 1, f, periodHz);
         return new PeakProfileFit(x, pr[0], pr[1], pr[2], pr[3], sigma, reduced, f.Select(v => v - pr[0]).ToArray(), y, model);
     }
 
@@ -132,59 +106,10 @@ public static class FinesseFit
     {
         peaks ??= ResolvedPeaks.Find(sweep.X, sweep.Y, 0.05, 8);
         if (peaks.Count == 0) return null;
-        var noise = PeakFinder.NoiseSigma(sweep.Y);
+        var noise = NoiseEstimator.FirstDifferenceSigma(sweep.Y);
         if (!(noise > 0)) return null;
-        // the calibrated range plus a few peak widths: a peak at the end of the range (a sweep of little more than one
-        // period has its only peaks there) is fitted on the axis extrapolated over a few linewidths
-        var widestX = peaks.Select(p =>
-        {
-            var i = (int)Math.Clamp(Math.Round(p.Position), 1, sweep.Count - 2);
-            return p.WidthSamples * Math.Abs(sweep.X[i + 1] - sweep.X[i - 1]) / 2;
-        }).Max();
-        var margin = Math.Max(0.02 * (axis.XMax - axis.XMin), (HalfWindowFwhm + 2) * widestX);
-        var lo = axis.XMin - margin;
-        var hi = axis.XMax + margin;
-        var inRange = Enumerable.Range(0, sweep.Count).Where(i => sweep.X[i] >= lo && sweep.X[i] <= hi).ToArray();
-        if (inRange.Length < 16) return null;
-        var freq = inRange.Select(i => axis.Evaluate(sweep.X[i])).ToArray();
-        var sig = inRange.Select(i => sweep.Y[i]).ToArray();
-
-        var info = peaks.Select(p =>
-        {
-            var i = (int)Math.Clamp(Math.Round(p.Position), 1, sweep.Count - 2);
-            var dxdi = Math.Abs(sweep.X[i + 1] - sweep.X[i - 1]) / 2;
-            var fwhm = p.WidthSamples * dxdi * Math.Abs(axis.Derivative(p.X));
-            return (Peak: p, F: axis.Evaluate(p.X), Fwhm: fwhm);
-        }).Where(q => q.Fwhm > 0 && q.Peak.X >= lo && q.Peak.X <= hi).ToList();
-
-        var fits = new List<PeakProfileFit>();
-        var poor = new List<PeakProfileFit>();
-        var samplesPerFwhm = new List<double>();
-        var poorSamples = new List<double>();
-        foreach (var q in info.OrderByDescending(q => q.Peak.Height))
-        {
-            if (fits.Count >= maxPeaks) break;
-            var reach = (HalfWindowFwhm + 1.5) * q.Fwhm;
-            var crowded = info.Any(o => !ReferenceEquals(o.Peak, q.Peak) && o.Peak.Height > 0.03 * q.Peak.Height && Math.Abs(o.F - q.F) < reach);
-            if (crowded) continue;
-            // stay inside the record: the whole window must be sampled; near the ends of a short record the window
-            // shrinks to what the record holds, down to 2 FWHM on each side (still the whole peak and its wings)
-            var room = Math.Min(Math.Abs(q.F - freq.Min()), Math.Abs(freq.Max() - q.F)) / q.Fwhm;
-            if (room < 2) continue;
-            var fit = FitPeak(freq, sig, q.F, q.Fwhm, periodHz, noise, q.Peak.X, Math.Min(HalfWindowFwhm, room));
-            if (fit is null) continue;
-            // a fit far outside the noise is not an Airy peak (a blend of lines, a shoulder): kept aside
-            if (fit.ReducedChiSquare > 25)
-            {
-                poor.Add(fit);
-                poorSamples.Add(q.Peak.WidthSamples);
-                continue;
-            }
-
-            fits.Add(fit);
-            samplesPerFwhm.Add(q.Peak.WidthSamples);
-        }
-
+        if (RecordOnAxis(sweep, axis, peaks) is not var (freq, sig, info)) return null;
+        var (fits, samplesPerFwhm, poor, poorSamples) = FitIsolatedPeaks(info, freq, sig, periodHz, noise, maxPeaks);
         var warnings = new List<string>();
         if (fits.Count == 0 && poor.Count > 0)
         {
@@ -209,23 +134,8 @@ public static class FinesseFit
         }
 
         if (fits.Count == 0) return null;
-        var weights = fits.Select(p => 1 / (p.FinesseSigma * p.FinesseSigma)).ToArray();
-        var sw = weights.Sum();
-        var mean = fits.Select((p, i) => weights[i] * p.Finesse).Sum() / sw;
-        var scatter = fits.Count > 1 ? fits.Select((p, i) => weights[i] * (p.Finesse - mean) * (p.Finesse - mean)).Sum() / (fits.Count - 1) : 1.0;
-        var sigma = Math.Sqrt(1 / sw) * Math.Sqrt(Math.Max(1, scatter));
-        // peaks that disagree beyond their (small) noise but only by a few per cent still measure the finesse: the
-        // scatter then sets its uncertainty (σ above is inflated by it); a spread of more than 10 % RMS is not one finesse
-        var spread = fits.Count > 1 ? Math.Sqrt(fits.Sum(p => (p.Finesse - mean) * (p.Finesse - mean)) / (fits.Count - 1)) / mean : 0;
-        var scattered = fits.Count >= 3 && scatter > 6 && spread > 0.1;
+        var (mean, sigma, scatter, scattered) = Combine(fits, warnings);
         var consistent = !scattered && !ReferenceEquals(fits, poor);
-        if (scattered)
-        {
-            var sorted = fits.Select(p => p.Finesse).OrderBy(v => v).ToArray();
-            warnings.Add($"the widths of the {fits.Count} fitted peaks differ more than their noise allows (finesse {sorted[0]:F0} to {sorted[^1]:F0}, scatter χ² {scatter:F1}): " +
-                         "lines with a width of their own, overlapping lines, or a drifting alignment; the effective finesse is not taken from them");
-        }
-
         var perFwhm = samplesPerFwhm.Average();
         if (perFwhm < 4)
             warnings.Add($"peaks are only {perFwhm:F1} samples wide (FWHM): the fitted finesse is unreliable; sample faster or sweep fewer FSRs");
@@ -235,6 +145,95 @@ public static class FinesseFit
             warnings.Add($"the averaged peak is not Airy-shaped (RMS deviation {100 * profile.RmsDeviation:F1} % of the height, asymmetric part {100 * profile.OddRms:F1} %): " +
                          "mirror defects, misalignment or transverse modes; the finesse is an effective value and the fitted line positions may be biased");
         return new FinesseEstimate(mean, sigma, fits, scatter, consistent, profile, warnings) { PeriodHz = periodHz };
+    }
+
+    /// <summary>A peak on the calibrated axis: its frequency and FWHM there.</summary>
+    private readonly record struct PeakOnAxis(Peak Peak, double F, double Fwhm);
+
+    /// <summary>
+    /// The samples on the calibrated range plus a few peak widths (a peak at the end of the range — a sweep of little more
+    /// than one period has its only peaks there — is fitted on the axis extrapolated over a few linewidths), as frequency
+    /// and signal, and the peaks inside it; null when fewer than 16 samples remain.
+    /// </summary>
+    private static (double[] Freq, double[] Sig, List<PeakOnAxis> Info)? RecordOnAxis(Sweep sweep, AxisPolynomial axis, IReadOnlyList<Peak> peaks)
+    {
+        var widestX = peaks.Select(p =>
+        {
+            var i = (int)Math.Clamp(Math.Round(p.Position), 1, sweep.Count - 2);
+            return p.WidthSamples * Math.Abs(sweep.X[i + 1] - sweep.X[i - 1]) / 2;
+        }).Max();
+        var margin = Math.Max(0.02 * (axis.XMax - axis.XMin), (HalfWindowFwhm + 2) * widestX);
+        var lo = axis.XMin - margin;
+        var hi = axis.XMax + margin;
+        var inRange = Enumerable.Range(0, sweep.Count).Where(i => sweep.X[i] >= lo && sweep.X[i] <= hi).ToArray();
+        if (inRange.Length < 16) return null;
+        var freq = inRange.Select(i => axis.Evaluate(sweep.X[i])).ToArray();
+        var sig = inRange.Select(i => sweep.Y[i]).ToArray();
+        var info = peaks.Select(p =>
+        {
+            var i = (int)Math.Clamp(Math.Round(p.Position), 1, sweep.Count - 2);
+            var dxdi = Math.Abs(sweep.X[i + 1] - sweep.X[i - 1]) / 2;
+            var fwhm = p.WidthSamples * dxdi * Math.Abs(axis.Derivative(p.X));
+            return new PeakOnAxis(p, axis.Evaluate(p.X), fwhm);
+        }).Where(q => q.Fwhm > 0 && q.Peak.X >= lo && q.Peak.X <= hi).ToList();
+        return (freq, sig, info);
+    }
+
+    /// <summary>Fits the tallest isolated peaks (no other peak above 3 % of the height within reach), up to
+    /// <paramref name="maxPeaks"/>; fits far outside the noise (a blend of lines, a shoulder) are kept aside as poor.</summary>
+    private static (List<PeakProfileFit> Fits, List<double> Samples, List<PeakProfileFit> Poor, List<double> PoorSamples) FitIsolatedPeaks(
+        List<PeakOnAxis> info, double[] freq, double[] sig, double periodHz, double noise, int maxPeaks)
+    {
+        var fits = new List<PeakProfileFit>();
+        var poor = new List<PeakProfileFit>();
+        var samplesPerFwhm = new List<double>();
+        var poorSamples = new List<double>();
+        foreach (var q in info.OrderByDescending(q => q.Peak.Height))
+        {
+            if (fits.Count >= maxPeaks) break;
+            var reach = (HalfWindowFwhm + 1.5) * q.Fwhm;
+            var crowded = info.Any(o => !ReferenceEquals(o.Peak, q.Peak) && o.Peak.Height > 0.03 * q.Peak.Height && Math.Abs(o.F - q.F) < reach);
+            if (crowded) continue;
+            // stay inside the record: the whole window must be sampled; near the ends of a short record the window
+            // shrinks to what the record holds, down to 2 FWHM on each side (still the whole peak and its wings)
+            var room = Math.Min(Math.Abs(q.F - freq.Min()), Math.Abs(freq.Max() - q.F)) / q.Fwhm;
+            if (room < 2) continue;
+            var fit = FitPeak(freq, sig, q.F, q.Fwhm, periodHz, noise, q.Peak.X, Math.Min(HalfWindowFwhm, room));
+            if (fit is null) continue;
+            if (fit.ReducedChiSquare > 25)
+            {
+                poor.Add(fit);
+                poorSamples.Add(q.Peak.WidthSamples);
+                continue;
+            }
+
+            fits.Add(fit);
+            samplesPerFwhm.Add(q.Peak.WidthSamples);
+        }
+
+        return (fits, samplesPerFwhm, poor, poorSamples);
+    }
+
+    /// <summary>Weighted mean of the fitted finesses with its σ (inflated by the scatter χ² when above 1); peaks that
+    /// disagree beyond their (small) noise but only by a few per cent still measure the finesse, whereas a spread of more
+    /// than 10 % RMS is not one finesse (scattered, with a warning).</summary>
+    private static (double Mean, double Sigma, double Scatter, bool Scattered) Combine(List<PeakProfileFit> fits, List<string> warnings)
+    {
+        var weights = fits.Select(p => 1 / (p.FinesseSigma * p.FinesseSigma)).ToArray();
+        var sw = weights.Sum();
+        var mean = fits.Select((p, i) => weights[i] * p.Finesse).Sum() / sw;
+        var scatter = fits.Count > 1 ? fits.Select((p, i) => weights[i] * (p.Finesse - mean) * (p.Finesse - mean)).Sum() / (fits.Count - 1) : 1.0;
+        var sigma = Math.Sqrt(1 / sw) * Math.Sqrt(Math.Max(1, scatter));
+        var spread = fits.Count > 1 ? Math.Sqrt(fits.Sum(p => (p.Finesse - mean) * (p.Finesse - mean)) / (fits.Count - 1)) / mean : 0;
+        var scattered = fits.Count >= 3 && scatter > 6 && spread > 0.1;
+        if (scattered)
+        {
+            var sorted = fits.Select(p => p.Finesse).OrderBy(v => v).ToArray();
+            warnings.Add($"the widths of the {fits.Count} fitted peaks differ more than their noise allows (finesse {sorted[0]:F0} to {sorted[^1]:F0}, scatter χ² {scatter:F1}): " +
+                         "lines with a width of their own, overlapping lines, or a drifting alignment; the effective finesse is not taken from them");
+        }
+
+        return (mean, sigma, scatter, scattered);
     }
 
     /// <summary>
@@ -275,36 +274,6 @@ public static class FinesseFit
         var m = f.Length;
         var baseline0 = y.Min();
 
-        void Eval(double[] p, double[] r, double[,]? jac)
-        {
-            var fin = p[2 * k + 1];
-            var kk = Airy.CoefficientOfFinesse(fin);
-            var dk = 8 * fin / (Math.PI * Math.PI);
-            for (var i = 0; i < m; i++)
-            {
-                var model = p[2 * k];
-                double dFin = 0;
-                for (var q = 0; q < k; q++)
-                {
-                    var phase = Math.PI * (f[i] - p[2 * q]) / periodHz;
-                    var sn = Math.Sin(phase);
-                    var cs = Math.Cos(phase);
-                    var d = 1 + kk * sn * sn;
-                    var a = p[2 * q + 1];
-                    model += a / d;
-                    if (jac is null) continue;
-                    jac[i, 2 * q] = a * kk * 2 * sn * cs * (Math.PI / periodHz) / (d * d) / noise;
-                    jac[i, 2 * q + 1] = 1 / d / noise;
-                    dFin += -a * sn * sn * dk / (d * d);
-                }
-
-                r[i] = (y[i] - model) / noise;
-                if (jac is null) continue;
-                jac[i, 2 * k] = 1 / noise;
-                jac[i, 2 * k + 1] = dFin / noise;
-            }
-        }
-
         var start = new double[2 * k + 2];
         var lower = new double[2 * k + 2];
         var upper = new double[2 * k + 2];
@@ -324,27 +293,67 @@ public static class FinesseFit
         start[2 * k + 1] = Math.Max(1.5, periodHz / fwhm);
         lower[2 * k + 1] = 1.0;
         upper[2 * k + 1] = 1e7;
-        var result = DampedLeastSquares.Minimize(Eval, start, m, maxIterations: 100, lower: lower, upper: upper);
-        var pr = result.Parameters;
-        if (result.Covariance is null) return null;
+        var result = LevenbergMarquardt.MinimiseResiduals(AirySum(f, y, k, periodHz, noise), start, m, LmSettings.Relative(100, 1e-9) with { Lower = lower, Upper = upper });
+        var covariance = result.Covariance();
+        var pr = result.P;
+        if (covariance is null) return null;
         var reduced = result.ChiSquare / Math.Max(1, m - start.Length);
-        var sigma = Math.Sqrt(Math.Max(0, result.Covariance[2 * k + 1, 2 * k + 1]) * Math.Max(1, reduced));
+        var sigma = Math.Sqrt(Math.Max(0, covariance[2 * k + 1, 2 * k + 1]) * Math.Max(1, reduced));
         if (!double.IsFinite(sigma) || !(pr[2 * k + 1] > 1)) return null;
         // the profile record describes the tallest peak of the blend
         var tq = chain.IndexOf(top);
-        var kk2 = Airy.CoefficientOfFinesse(pr[2 * k + 1]);
-        var model = f.Select(v =>
+        var model = AirySumModel(pr, k, f, periodHz);
+        return new PeakProfileFit(top.X, pr[2 * tq], pr[2 * tq + 1], pr[2 * k], pr[2 * k + 1], sigma, reduced, f.Select(v => v - pr[2 * tq]).ToArray(), y, model);
+    }
+
+    /// <summary>Whitened residuals (y − model)/σ and Jacobian of k Airy peaks on one baseline with one finesse at the
+    /// frequencies <paramref name="f"/>: parameters (ν₁, A₁, …, ν_k, A_k, baseline, 𝓕), model b + Σ A_q/(1 + F sin²(π(f − ν_q)/P))
+    /// with F = <see cref="Airy.CoefficientOfFinesse"/>(𝓕), ∂F/∂𝓕 = 8𝓕/π².</summary>
+    private static ResidualFunction AirySum(double[] f, double[] y, int k, double periodHz, double noise) => (p, r, jac) =>
+    {
+        var fin = p[2 * k + 1];
+        var kk = Airy.CoefficientOfFinesse(fin);
+        var dk = 8 * fin / (Math.PI * Math.PI);
+        for (var i = 0; i < f.Length; i++)
         {
-            var t = pr[2 * k];
+            var model = p[2 * k];
+            double dFin = 0;
             for (var q = 0; q < k; q++)
             {
-                var sn = Math.Sin(Math.PI * (v - pr[2 * q]) / periodHz);
-                t += pr[2 * q + 1] / (1 + kk2 * sn * sn);
+                var phase = Math.PI * (f[i] - p[2 * q]) / periodHz;
+                var sn = Math.Sin(phase);
+                var cs = Math.Cos(phase);
+                var d = 1 + kk * sn * sn;
+                var a = p[2 * q + 1];
+                model += a / d;
+                if (jac is null) continue;
+                jac[i, 2 * q] = a * kk * 2 * sn * cs * (Math.PI / periodHz) / (d * d) / noise;
+                jac[i, 2 * q + 1] = 1 / d / noise;
+                dFin += -a * sn * sn * dk / (d * d);
+            }
+
+            r[i] = (y[i] - model) / noise;
+            if (jac is null) continue;
+            jac[i, 2 * k] = 1 / noise;
+            jac[i, 2 * k + 1] = dFin / noise;
+        }
+    };
+
+    /// <summary>The model of <see cref="AirySum"/> at the frequencies <paramref name="f"/>.</summary>
+    private static double[] AirySumModel(double[] p, int k, double[] f, double periodHz)
+    {
+        var kk = Airy.CoefficientOfFinesse(p[2 * k + 1]);
+        return f.Select(v =>
+        {
+            var t = p[2 * k];
+            for (var q = 0; q < k; q++)
+            {
+                var sn = Math.Sin(Math.PI * (v - p[2 * q]) / periodHz);
+                t += p[2 * q + 1] / (1 + kk * sn * sn);
             }
 
             return t;
         }).ToArray();
-        return new PeakProfileFit(top.X, pr[2 * tq], pr[2 * tq + 1], pr[2 * k], pr[2 * k + 1], sigma, reduced, f.Select(v => v - pr[2 * tq]).ToArray(), y, model);
     }
 
     /// <summary>Averages the fitted peaks on a common detuning grid (units of the fitted FWHM), normalised to height 1.</summary>

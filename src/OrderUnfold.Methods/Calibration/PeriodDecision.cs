@@ -207,22 +207,7 @@ public static class PeriodDecider
 
         if (best.Members.Count == 0) return new([], "the peak groups do not form a transverse-family ladder: they are taken as source lines", null);
         var b = best.Base;
-        if (weakGroups is not null)
-        {
-            for (var n = 2; n <= 3; n++)
-            {
-                if (best.Members.Any(m => m.N == n)) continue;
-                var target = Frac(b.Phase + n * best.A);
-                var weak = weakGroups.Where(g => CircularDistance(g.Phase, target) <= 1.5 * tolerance &&
-                                                 g.Members.Count >= Math.Max(minMembers, b.Members.Count - 1) &&
-                                                 !usable.Any(u => CircularDistance(u.Phase, g.Phase) <= tolerance) &&
-                                                 !best.Members.Any(m => CircularDistance(m.G.Phase, g.Phase) <= tolerance))
-                    .MaxBy(g => g.Members.Count + g.Height / b.Height);
-                if (weak is not null) best.Members.Add((weak, n, Frac(weak.Phase - b.Phase)));
-            }
-
-            best.Members.Sort((p, q) => p.N.CompareTo(q.N));
-        }
+        if (weakGroups is not null) AddWeakFamilies(best.Members, b, best.A, weakGroups, usable, tolerance, minMembers);
 
         var families = best.Members.Select(m => new CavityModeFamily(m.N, Frac(-m.A), m.G.Height / b.Height,
             predicted is not null ? "measured (mirror radii predicted " + predicted[m.N - 1].ToString("F4") + " FSR after TEM00)" : "measured")).ToList();
@@ -232,6 +217,26 @@ public static class PeriodDecider
                 ? $"TEM00 is the group with a family {best.A:F4} FSR after it, as the mirror radii predict ({predicted[0]:F4})"
                 : $"a family {best.A:F4} FSR after the taller group (near half the FSR: the odd family of a near-confocal cavity); which group is TEM00 is not decided by the data: state mirror_radius to settle it";
         return new(families, why, b.Phase);
+    }
+
+    /// <summary>Adds, at each free rung N·a (N ≤ 3) of the ladder on <paramref name="baseGroup"/>, the weak group that sits
+    /// there and accompanies every TEM00 member but at most one; then sorts the members by N.</summary>
+    private static void AddWeakFamilies(List<(PeakGroup G, int N, double A)> members, PeakGroup baseGroup, double a, List<PeakGroup> weakGroups,
+        List<PeakGroup> usable, double tolerance, int minMembers)
+    {
+        for (var n = 2; n <= 3; n++)
+        {
+            if (members.Any(m => m.N == n)) continue;
+            var target = Frac(baseGroup.Phase + n * a);
+            var weak = weakGroups.Where(g => CircularDistance(g.Phase, target) <= 1.5 * tolerance &&
+                                             g.Members.Count >= Math.Max(minMembers, baseGroup.Members.Count - 1) &&
+                                             !usable.Any(u => CircularDistance(u.Phase, g.Phase) <= tolerance) &&
+                                             !members.Any(m => CircularDistance(m.G.Phase, g.Phase) <= tolerance))
+                .MaxBy(g => g.Members.Count + g.Height / baseGroup.Height);
+            if (weak is not null) members.Add((weak, n, Frac(weak.Phase - baseGroup.Phase)));
+        }
+
+        members.Sort((p, q) => p.N.CompareTo(q.N));
     }
 
     public static double Frac(double v) => v - Math.Floor(v);

@@ -22,7 +22,7 @@ public static class ResolvedPeaks
         var n = y.Count;
         if (n < 5) return [];
         var baseline = PeakFinder.Percentile(y, 0.05);
-        var noise = PeakFinder.NoiseSigma(y);
+        var noise = NoiseEstimator.FirstDifferenceSigma(y);
         var top = y.Max() - baseline;
         if (!(top > 0)) return [];
         var threshold = Math.Max(minHeightFraction * top, minSnr * noise);

@@ -32,7 +32,7 @@ public sealed record RingdownPeakFit(double Crossing, double CrossingSigma, doub
 
 /// <summary>
 /// Least-squares fit of one peak with the swept-cavity response: y = b + A·|b(t; t₀, τ, r)|², with A, t₀, τ, r and the
-/// background free (τ optionally fixed), by Levenberg–Marquardt (<see cref="DampedLeastSquares"/>) on the sample
+/// background free (τ optionally fixed), by Levenberg–Marquardt (<see cref="LevenbergMarquardt"/>) on the sample
 /// grid of a window around the peak. Starting values come from the measured width and top of the peak matched to
 /// a table of response shapes over a ladder of π²rτ² (the best of the ladder by χ² starts the iteration). The cost is
 /// bounded: a window of at most <see cref="MaxWindow"/> samples and at most <see cref="MaxIterations"/> iterations.
@@ -95,33 +95,7 @@ public static class RingdownFit
         if (!(height > 0)) return null;
         var model = new double[m];
 
-        // starting values: the shape ladder matched to the measured width and top; A and b by linear least squares
-        double bestChi = double.PositiveInfinity;
-        double[]? best = null;
-        foreach (var shape in RingdownModel.Shapes)
-        {
-            var tau = fixedTau ?? fwhm / shape.FwhmTau;
-            var rate = fixedTau is double ft
-                ? RateForWidth(ft, fwhm)
-                : shape.Dynamics / (Math.PI * Math.PI * tau * tau);
-            if (fixedTau is not null && Math.Abs(RingdownModel.Dynamics(tau, rate) / shape.Dynamics - 1) > 0.5) continue;
-            var crossing = top - shape.DelayTau * tau;
-            RingdownModel.Power(model, start, crossing, tau, rate);
-            var (a, b, chi) = Linear(window, model);
-            if (chi < bestChi && a > 0)
-            {
-                bestChi = chi;
-                best = [a, crossing, Math.Log(tau), Math.Log(rate), b];
-            }
-        }
-
-        if (best is null)
-        {
-            // τ fixed and no ladder entry near: start from the width alone
-            var tau = fixedTau!.Value;
-            best = [height / 0.5, top - 0.5 * tau, Math.Log(tau), Math.Log(RateForWidth(tau, fwhm)), bg0];
-        }
-
+        var best = StartingValues(window, model, start, top, fwhm, fixedTau, height, bg0);
         var tauFree = fixedTau is null;
         var idx = tauFree ? new[] { 0, 1, 2, 3, 4 } : new[] { 0, 1, 3, 4 };
         var full = (double[])best.Clone();
@@ -165,17 +139,9 @@ public static class RingdownFit
         var q0 = idx.Select(j => best[j]).ToArray();
         var lower = idx.Select(j => j switch { 0 => 0.0, 1 => start - 0.5 * m, 2 => Math.Log(0.05), 3 => Math.Log(1e-9), _ => double.NegativeInfinity }).ToArray();
         var upper = idx.Select(j => j switch { 0 => double.PositiveInfinity, 1 => end + 0.5 * m, 2 => Math.Log(10.0 * m), 3 => Math.Log(0.5), _ => double.PositiveInfinity }).ToArray();
-        DampedLeastSquares.Result result;
-        try
-        {
-            result = DampedLeastSquares.Minimize(Evaluate, q0, m, MaxIterations, 1e-7, lower, upper);
-        }
-        catch (Exception e) when (e is ArgumentException or InvalidOperationException)
-        {
-            return null;
-        }
-
-        var p = Expand(result.Parameters);
+        var result = LevenbergMarquardt.MinimiseResiduals(Evaluate, q0, m, LmSettings.Relative(MaxIterations, 1e-7) with { Lower = lower, Upper = upper });
+        var covariance = result.Covariance();
+        var p = Expand(result.P);
         if (!p.All(double.IsFinite)) return null;
         var dof = Math.Max(1, m - idx.Length);
         var reduced = result.ChiSquare / dof;
@@ -183,8 +149,8 @@ public static class RingdownFit
         double Se(int j)
         {
             var k = Array.IndexOf(idx, j);
-            if (k < 0 || result.Covariance is null) return double.NaN;
-            var v = result.Covariance[k, k];
+            if (k < 0 || covariance is null) return double.NaN;
+            var v = covariance[k, k];
             return v >= 0 ? Math.Sqrt(v) * scale : double.NaN;
         }
 
@@ -196,6 +162,39 @@ public static class RingdownFit
         var staticChi = StaticChiSquare(window, start, top, fwhm, sigma);
         return new RingdownPeakFit(p[1], Se(1), start + Refine(model, maxAt), p[0], p[4], tauFit, tauFree ? tauFit * Se(2) : double.NaN, rateFit, rateFit * Se(3),
             reduced, staticChi / Math.Max(result.ChiSquare, 1e-300), fwhm, start, m, !tauFree, result.Converged);
+    }
+
+    /// <summary>Starting values (A, crossing, ln τ, ln rate, b): the shape ladder matched to the measured width and top, A and b
+    /// by linear least squares; with τ fixed and no ladder entry near, from the width alone.</summary>
+    private static double[] StartingValues(double[] window, double[] model, int start, int top, double fwhm, double? fixedTau, double height, double bg0)
+    {
+        double bestChi = double.PositiveInfinity;
+        double[]? best = null;
+        foreach (var shape in RingdownModel.Shapes)
+        {
+            var tau = fixedTau ?? fwhm / shape.FwhmTau;
+            var rate = fixedTau is double ft
+                ? RateForWidth(ft, fwhm)
+                : shape.Dynamics / (Math.PI * Math.PI * tau * tau);
+            if (fixedTau is not null && Math.Abs(RingdownModel.Dynamics(tau, rate) / shape.Dynamics - 1) > 0.5) continue;
+            var crossing = top - shape.DelayTau * tau;
+            RingdownModel.Power(model, start, crossing, tau, rate);
+            var (a, b, chi) = Linear(window, model);
+            if (chi < bestChi && a > 0)
+            {
+                bestChi = chi;
+                best = [a, crossing, Math.Log(tau), Math.Log(rate), b];
+            }
+        }
+
+        if (best is null)
+        {
+            // τ fixed and no ladder entry near: start from the width alone
+            var tau = fixedTau!.Value;
+            best = [height / 0.5, top - 0.5 * tau, Math.Log(tau), Math.Log(RateForWidth(tau, fwhm)), bg0];
+        }
+
+        return best;
     }
 
     /// <summary>Sweep rate at which a resonance of field decay time τ shows a static FWHM of <paramref name="fwhm"/> samples.</summary>
@@ -230,14 +229,7 @@ public static class RingdownFit
 
         var bg = Edge(window);
         var start0 = new[] { window[top - start] - bg, (double)top, Math.Log(Math.Max(fwhm, 0.5)), bg };
-        try
-        {
-            return DampedLeastSquares.Minimize(Evaluate, start0, m, MaxIterations, 1e-7).ChiSquare;
-        }
-        catch (Exception e) when (e is ArgumentException or InvalidOperationException)
-        {
-            return double.NaN;
-        }
+        return LevenbergMarquardt.MinimiseResiduals(Evaluate, start0, m, LmSettings.Relative(MaxIterations, 1e-7)).ChiSquare;
     }
 
     /// <summary>A + b by linear least squares of y ≈ A·model + b; returns A, b and the (unwhitened) χ².</summary>

@@ -140,7 +140,7 @@ public static class RingdownHandling
 
         var reversed = evidence.Side == "leading";
         var y = Oriented(sweep.Y, reversed);
-        var noise = PeakFinder.NoiseSigma(y);
+        var noise = NoiseEstimator.FirstDifferenceSigma(y);
         var warnings = new List<string>();
         var fits = FitAll(y, noise, evidence.TauSamples, options, warnings, sweep.Name);
 
@@ -153,8 +153,8 @@ public static class RingdownHandling
             {
                 TauSamples = tau,
                 TauSigmaSamples = tauSigma,
-                RateSamples = Median(free.Select(f => f.Rate)),
-                Dynamics = Median(free.Select(f => f.Dynamics)),
+                RateSamples = Medians.OfFinite(free.Select(f => f.Rate)),
+                Dynamics = Medians.OfFinite(free.Select(f => f.Dynamics)),
             };
             var inSeconds = evidence.TauFieldS is double ts ? $" = {ts * 1e9:G4} ± {evidence.TauFieldSigmaS!.Value * 1e9:G2} ns" : "";
             evidence = evidence with
@@ -213,7 +213,7 @@ public static class RingdownHandling
         var y = sweep.Y;
         if (y.Length < 64)
             return new RingdownEvidence(false, "none", [], double.NaN, double.NaN, double.NaN, double.NaN, dt, "too few samples to check for ring-down");
-        var noise = PeakFinder.NoiseSigma(y);
+        var noise = NoiseEstimator.FirstDifferenceSigma(y);
         var baseline = PeakFinder.Percentile(y, 0.05);
         var tops = TallestTops(y, baseline, noise, options.PeaksExamined);
         if (tops.Count == 0)
@@ -248,13 +248,13 @@ public static class RingdownHandling
         var detected = passing.Count >= Math.Max(1, (checks.Count + 1) / 2) && (checks.Count == 1 || passing.Count >= 2);
         var side = detected ? (reversed ? "leading" : "trailing") : "none";
         var (tau, tauSigma) = WeightedMean(passing.Select(c => (c.Fit!.Tau, c.Fit.TauSigma)).ToList());
-        var rate = Median(passing.Select(c => c.Fit!.Rate));
-        var dynamics = Median(passing.Select(c => c.Fit!.Dynamics));
+        var rate = Medians.OfFinite(passing.Select(c => c.Fit!.Rate));
+        var dynamics = Medians.OfFinite(passing.Select(c => c.Fit!.Dynamics));
         if (!detected)
         {
             var all = checks.Where(c => c.Fit is not null).ToList();
-            rate = Median(all.Select(c => c.Fit!.Rate));
-            dynamics = Median(all.Select(c => c.Fit!.Dynamics));
+            rate = Medians.OfFinite(all.Select(c => c.Fit!.Rate));
+            dynamics = Medians.OfFinite(all.Select(c => c.Fit!.Dynamics));
         }
 
         string summary;
@@ -306,8 +306,8 @@ public static class RingdownHandling
         if (items.Count == 0) return null;
         var (fMean, fSigma) = WeightedMean(items.Select(v => (v.F, v.FSigma)).ToList());
         var (tMean, tSigma) = WeightedMean(items.Select(v => (v.Tau, v.TauSigma)).ToList());
-        return new RingdownFinesse(fMean, fSigma, tMean, tSigma, 1 / (Math.PI * tMean), Median(items.Select(v => v.Static)), Median(items.Select(v => v.Dt)),
-            Median(items.Select(v => v.Rate)), items.Count, Median(items.Select(v => v.ChirpDt)));
+        return new RingdownFinesse(fMean, fSigma, tMean, tSigma, 1 / (Math.PI * tMean), Medians.OfFinite(items.Select(v => v.Static)), Medians.OfFinite(items.Select(v => v.Dt)),
+            Medians.OfFinite(items.Select(v => v.Rate)), items.Count, Medians.OfFinite(items.Select(v => v.ChirpDt)));
     }
 
     /// <summary>
@@ -522,12 +522,6 @@ public static class RingdownHandling
         if (good.Count < 2) return (mean, internalSigma);
         var scatter = Math.Sqrt(good.Sum(v => Sq(v.Value - mean)) / (good.Count - 1) / good.Count);
         return (mean, Math.Max(internalSigma, scatter));
-    }
-
-    private static double Median(IEnumerable<double> values)
-    {
-        var a = values.Where(double.IsFinite).OrderBy(v => v).ToArray();
-        return a.Length == 0 ? double.NaN : a.Length % 2 == 1 ? a[a.Length / 2] : 0.5 * (a[a.Length / 2 - 1] + a[a.Length / 2]);
     }
 
     private static double Sq(double v) => v * v;

@@ -183,7 +183,7 @@ public static class WhatIf
             foreach (var (a, b, dir) in new[] { (0, half, "up"), (half, trace.Signal.Length, "down") })
             {
                 var y = trace.Signal[a..b];
-                sweeps.Add(new CalibratedSweep($"{cav.Instrument.Name} ({dir})", cav.Instrument, trace.TrueScanHz[a..b], y, PeakFinder.NoiseSigma(y)));
+                sweeps.Add(new CalibratedSweep($"{cav.Instrument.Name} ({dir})", cav.Instrument, trace.TrueScanHz[a..b], y, NoiseEstimator.FirstDifferenceSigma(y)));
             }
         }
 

@@ -50,10 +50,9 @@ internal sealed class InstrumentLineFitter
         var m = _group.Sum(s => s.Signal.Length);
         // whitened residuals: steps that gain less than 0.01 in χ² five times in a row move no line by a meaningful
         // fraction of its uncertainty, so the fit ends there (common practice for a stopping rule, not from a reference)
-        var fit = DampedLeastSquares.Minimize(Eval, p0, m, maxIterations: 80, tolerance: 1e-10, crawlChiSquare: 0.01,
-            keepGoing: budget is null ? null : () => budget.Spend());
+        var fit = LevenbergMarquardt.MinimiseResiduals(Eval, p0, m, LmSettings.Relative(80, 1e-10) with { CrawlChiSquare = 0.01, Budget = budget });
         var reduced = fit.ChiSquare / Math.Max(1, m - _parameterCount);
-        return Positions(fit.Parameters, fit.Covariance, reduced);
+        return Positions(fit.P, fit.Covariance(), reduced);
     }
 
     /// <summary>Starting point: the joint unfold's lines and origins; gains and backgrounds by linear regression of each

@@ -14,12 +14,6 @@ namespace OrderUnfold.Io;
 /// </remarks>
 public static class SetupReader
 {
-    private static readonly Dictionary<string, CavityGeometry> Geometries = new(StringComparer.OrdinalIgnoreCase)
-    {
-        ["planar"] = CavityGeometry.Planar,
-        ["confocal"] = CavityGeometry.Confocal,
-    };
-
     private static readonly Dictionary<string, ScanCoordinate> Scans = new(StringComparer.OrdinalIgnoreCase)
     {
         ["time"] = ScanCoordinate.Time,
@@ -192,7 +186,7 @@ public static class SetupReader
         private static InstrumentSpec ReadInstrument(SetupTomlTable t)
         {
             var name = t.RequiredString("name", "a short name that [[sweep]] tables refer to").Trim();
-            var geometry = t.Choice("geometry", Geometries, CavityGeometry.Planar);
+            var geometry = t.Choice("geometry", CavityGeometryNames.ByName, CavityGeometry.Planar);
 
             // Size: mirror spacing or FSR, exactly one.
             if (t.Has("length") && t.Has("fsr"))

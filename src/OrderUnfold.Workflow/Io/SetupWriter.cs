@@ -59,7 +59,7 @@ public static class SetupWriter
     {
         w.Append("\n[[instrument]]\n");
         Key(w, "name", Str(i.Name));
-        Key(w, "geometry", Str(i.Geometry == CavityGeometry.Confocal ? "confocal" : "planar"));
+        Key(w, "geometry", Str(CavityGeometryNames.NameOf(i.Geometry)));
         if (i.FsrHz is double fsr)
         {
             // The FSR is what the analysis uses, so it wins when both are known; the spacing stays as a note.

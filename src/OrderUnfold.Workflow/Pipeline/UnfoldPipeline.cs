@@ -125,7 +125,7 @@ public static class UnfoldPipeline
         var sorted = y.Where(double.IsFinite).OrderBy(v => v).ToArray();
         if (sorted.Length < 16) return null;
         double min = sorted[0], max = sorted[^1], median = sorted[sorted.Length / 2];
-        var sigma = PeakFinder.NoiseSigma(y.ToArray());
+        var sigma = NoiseEstimator.FirstDifferenceSigma(y.ToArray());
         var down = median - min;
         var up = max - median;
         if (down > 4 * up && down > 20 * sigma)

@@ -85,11 +85,11 @@ public class PeakFinderTests
         // the median-absolute-difference estimate of σ for white Gaussian noise (simulated), within 5 %
         var rng = new Random(2);
         var y = Enumerable.Range(0, 20000).Select(_ => 0.01 * OrderUnfold.Simulation.Simulator.Gaussian(rng)).ToArray();
-        Assert.Equal(0.01, PeakFinder.NoiseSigma(y), 0.0005);
+        Assert.Equal(0.01, NoiseEstimator.FirstDifferenceSigma(y), 0.0005);
         // a quantised flat record has at least the quantisation noise LSB/√12
         var q = Enumerable.Range(0, 1000).Select(i => i % 7 == 0 ? 0.004 : 0.0).ToArray();
-        Assert.Equal(0.004 / Math.Sqrt(12), PeakFinder.NoiseSigma(q), 1e-12);
-        Assert.Equal(0.0, PeakFinder.NoiseSigma([1.0, 2.0]));
+        Assert.Equal(0.004 / Math.Sqrt(12), NoiseEstimator.FirstDifferenceSigma(q), 1e-12);
+        Assert.Equal(0.0, NoiseEstimator.FirstDifferenceSigma([1.0, 2.0]));
     }
 
     [Fact]

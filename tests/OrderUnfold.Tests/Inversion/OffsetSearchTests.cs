@@ -130,7 +130,7 @@ public class OffsetSearchTests
         foreach (var cav in spec.Cavities)
         {
             var trace = Simulator.Trace(spec, cav, calibration: false, rng);
-            sweeps.Add(new CalibratedSweep(cav.Instrument.Name, cav.Instrument, trace.TrueScanHz, trace.Signal, PeakFinder.NoiseSigma(trace.Signal)));
+            sweeps.Add(new CalibratedSweep(cav.Instrument.Name, cav.Instrument, trace.TrueScanHz, trace.Signal, NoiseEstimator.FirstDifferenceSigma(trace.Signal)));
             offsets.Add(trace.OffsetHz);
         }
 

@@ -34,7 +34,7 @@ public class RealisticKktTests(ITestOutputHelper output)
             foreach (var half in SimulatedSweeps.Halves(trace, cav.Instrument.Name))
             {
                 var scan = trace.TrueScanHz[half.FirstSample..(half.FirstSample + half.Count)];
-                sweeps.Add(new CalibratedSweep(half.Name, cav.Instrument, scan, half.Y, PeakFinder.NoiseSigma(half.Y)));
+                sweeps.Add(new CalibratedSweep(half.Name, cav.Instrument, scan, half.Y, NoiseEstimator.FirstDifferenceSigma(half.Y)));
                 offsets.Add(trace.OffsetHz); // y = Σ I·T(ν − offset − f(x)): the simulator's offset is the origin φ
                 gains.Add(cav.Gain);
             }

@@ -70,11 +70,11 @@ internal static class SelfCalibrationData
         var range = axis.XMax - axis.XMin;
         var keep = Enumerable.Range(0, s.Count).Where(i => s.X[i] >= axis.XMin - 0.02 * range && s.X[i] <= axis.XMax + 0.02 * range).ToArray();
         var y = keep.Select(i => s.Y[i]).ToArray();
-        return new CalibratedSweep(s.Name, instrument, keep.Select(i => axis.Evaluate(s.X[i])).ToArray(), y, PeakFinder.NoiseSigma(y));
+        return new CalibratedSweep(s.Name, instrument, keep.Select(i => axis.Evaluate(s.X[i])).ToArray(), y, NoiseEstimator.FirstDifferenceSigma(y));
     }
 
     /// <summary>A calibrated sweep on the true (simulated) scan.</summary>
-    public static CalibratedSweep OnTruth(Record r, Sweep s) => new(s.Name, r.Cavity.Instrument, r.TrueScan(s), s.Y, PeakFinder.NoiseSigma(s.Y));
+    public static CalibratedSweep OnTruth(Record r, Sweep s) => new(s.Name, r.Cavity.Instrument, r.TrueScan(s), s.Y, NoiseEstimator.FirstDifferenceSigma(s.Y));
 
     /// <summary>Pairs every expected line with the nearest found line; returns the largest distance, Hz.</summary>
     public static double WorstMatchHz(IEnumerable<double> expected, IReadOnlyList<UnfoldedLine> found) =>

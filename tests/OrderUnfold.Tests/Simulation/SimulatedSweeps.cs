@@ -54,7 +54,7 @@ internal static class SimulatedSweeps
                     scan = axis.Evaluate(s.X);
                 }
 
-                result.Add(new CalibratedSweep(s.Name, cav.Instrument, scan, s.Y, PeakFinder.NoiseSigma(s.Y)));
+                result.Add(new CalibratedSweep(s.Name, cav.Instrument, scan, s.Y, NoiseEstimator.FirstDifferenceSigma(s.Y)));
             }
         }
 
