@@ -80,7 +80,7 @@ public static class FamilyFit
         private readonly List<CalibratedSweep> _sweeps;
         private readonly double[] _phi;
         private readonly IReadOnlyList<UnfoldedLine> _lines;
-        private readonly LineRefiner.LineShape[] _shapes;
+        private readonly LineShape[] _shapes;
         private readonly int _families;
 
         public Problem(List<CalibratedSweep> sweeps, double[] phi, IReadOnlyList<UnfoldedLine> lines, Instrument inst)
@@ -90,7 +90,7 @@ public static class FamilyFit
             _lines = lines;
             _families = inst.Families.Count;
             var bare = inst with { Families = [] };
-            _shapes = lines.Select(l => LineRefiner.LineShape.For(bare, l.WidthHz is double w && w > 0 ? w : 0)).ToArray();
+            _shapes = lines.Select(l => LineShape.For(bare, l.WidthHz is double w && w > 0 ? w : 0)).ToArray();
             Samples = sweeps.Sum(s => s.Signal.Length);
         }
 
