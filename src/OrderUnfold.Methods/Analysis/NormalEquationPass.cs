@@ -53,29 +53,19 @@ internal sealed class NormalEquationPass
         return chi;
     }
 
-    /// <summary>Adds sweep <paramref name="k"/>'s samples; <paramref name="chi"/> is the χ² so far, the sum continued is returned.</summary>
+    /// <summary>Adds sweep <paramref name="k"/>'s samples; <paramref name="chi"/> is the χ² so far, the sum continued is returned.
+    /// One loop over the samples, kept in one method (the hot loop of the refinement: helpers called per sample cost time).</summary>
     private double AccumulateSweep(int k, double chi)
     {
-        var layout = _layout;
-        var p = _parameters;
-        var y = _observed;
-        var jtr = _jtr;
+        var (layout, p, y, jtj, jtr, n) = (_layout, _parameters, _observed, _jtj, _jtr, _layout.Count);
         var (t, dt, dw, index, row) = (_profile, _slope, _widthSlope, _index, _row);
-        var lines = layout.LineCount;
-        var inst = _samples.Sweeps[k].Instrument;
-        var phi = k == 0 ? 0 : p[layout.Offset(k)];
-        var g = k == 0 ? 1 : p[layout.Gain(k)];
-        var b = p[layout.Background(k)];
-        var shapes = SweepSamples.LineShapes(inst, layout, p);
-        var wide = layout.FitsWidths ? SweepSamples.LineShapes(inst, layout, p, SweepSamples.WidthStep(inst)) : null;
-        var h = SweepSamples.WidthStep(inst);
-        var fsr = inst.FsrHz;
-        var reach = new double[lines];
-        for (var j = 0; j < lines; j++)
-            reach[j] = _samples.CutoffLinewidths * (inst.LinewidthHz + (layout.FitsWidths ? Math.Abs(p[layout.Width(j)]) : 0));
-        for (var i = _samples.SweepStart[k]; i < _samples.SweepStart[k + 1]; i++)
+        var (scan, weight, lines) = (_samples.ScanHz, _samples.Weight, layout.LineCount);
+        var sweep = new SweepConstants(_samples, layout, p, k);
+        var (phi, g, b, shapes, wide, h, fsr, reach) = (sweep.Offset, sweep.Gain, sweep.Background, sweep.Shapes, sweep.Wide, sweep.WidthStep, sweep.FsrHz, sweep.Reach);
+        var (first, end) = (_samples.SweepStart[k], _samples.SweepStart[k + 1]);
+        for (var i = first; i < end; i++)
         {
-            var f = _samples.ScanHz[i];
+            var f = scan[i];
             double sumT = 0, sumDT = 0;
             for (var j = 0; j < lines; j++)
             {
@@ -87,12 +77,33 @@ internal sealed class NormalEquationPass
                 if (dw is not null) dw[j] = (p[layout.Width(j)] < 0 ? -1 : 1) * g * a * (wide![j].Evaluate(delta).T - t[j]) / h;
             }
 
-            var w = _samples.Weight[i];
+            var w = weight[i];
             var r = y[i] - (g * sumT + b);
             chi += r * r * w;
             var wr = w * r;
             // exact gradient for every line; the near ones also enter the Gauss–Newton matrix
-            var used = AddLineGradients(phi, g, f, fsr, reach, wr);
+            var used = 0;
+            for (var j = 0; j < lines; j++)
+            {
+                var a = p[layout.Intensity(j)];
+                double rn = g * a * dt[j], ra = g * t[j];
+                jtr[layout.Position(j)] += wr * rn;
+                jtr[layout.Intensity(j)] += wr * ra;
+                if (dw is not null) jtr[layout.Width(j)] += wr * dw[j];
+                var delta = p[layout.Position(j)] - phi - f;
+                var folded = delta - fsr * Math.Round(delta / fsr);
+                if (Math.Abs(folded) >= reach[j]) continue;
+                index[used] = layout.Position(j);
+                row[used++] = rn;
+                index[used] = layout.Intensity(j);
+                row[used++] = ra;
+                if (dw is not null)
+                {
+                    index[used] = layout.Width(j);
+                    row[used++] = dw[j];
+                }
+            }
+
             if (k > 0)
             {
                 jtr[layout.Offset(k)] += wr * -g * sumDT;
@@ -106,59 +117,45 @@ internal sealed class NormalEquationPass
             jtr[layout.Background(k)] += wr;
             index[used] = layout.Background(k);
             row[used++] = 1;
-            AddOuterProduct(used, w);
+            for (var u = 0; u < used; u++)
+            {
+                var ru = w * row[u];
+                if (ru == 0) continue;
+                var iu = index[u] * n;
+                for (var v = u; v < used; v++) jtj[iu + index[v]] += ru * row[v];
+            }
         }
 
         return chi;
     }
 
-    /// <summary>Adds every line's gradient terms for one sample (weighted residual <paramref name="wr"/>) and puts the lines
-    /// within their cutoff reach into the sample's Jacobian row; returns the row's length so far.</summary>
-    private int AddLineGradients(double phi, double g, double f, double fsr, double[] reach, double wr)
+    /// <summary>What one sweep's samples share: its offset, gain and background, each line's profile (and the profile at
+    /// the width step, when widths are fitted), and the folded distance within which a line enters a sample's row.</summary>
+    private sealed class SweepConstants
     {
-        var layout = _layout;
-        var p = _parameters;
-        var jtr = _jtr;
-        var (t, dt, dw, index, row) = (_profile, _slope, _widthSlope, _index, _row);
-        var used = 0;
-        for (var j = 0; j < layout.LineCount; j++)
+        public SweepConstants(SweepSamples samples, ParameterLayout layout, double[] p, int k)
         {
-            var a = p[layout.Intensity(j)];
-            double rn = g * a * dt[j], ra = g * t[j];
-            jtr[layout.Position(j)] += wr * rn;
-            jtr[layout.Intensity(j)] += wr * ra;
-            if (dw is not null) jtr[layout.Width(j)] += wr * dw[j];
-            var delta = p[layout.Position(j)] - phi - f;
-            var folded = delta - fsr * Math.Round(delta / fsr);
-            if (Math.Abs(folded) >= reach[j]) continue;
-            index[used] = layout.Position(j);
-            row[used++] = rn;
-            index[used] = layout.Intensity(j);
-            row[used++] = ra;
-            if (dw is not null)
-            {
-                index[used] = layout.Width(j);
-                row[used++] = dw[j];
-            }
+            var inst = samples.Sweeps[k].Instrument;
+            Offset = k == 0 ? 0 : p[layout.Offset(k)];
+            Gain = k == 0 ? 1 : p[layout.Gain(k)];
+            Background = p[layout.Background(k)];
+            Shapes = SweepSamples.LineShapes(inst, layout, p);
+            Wide = layout.FitsWidths ? SweepSamples.LineShapes(inst, layout, p, SweepSamples.WidthStep(inst)) : null;
+            WidthStep = SweepSamples.WidthStep(inst);
+            FsrHz = inst.FsrHz;
+            Reach = new double[layout.LineCount];
+            for (var j = 0; j < layout.LineCount; j++)
+                Reach[j] = samples.CutoffLinewidths * (inst.LinewidthHz + (layout.FitsWidths ? Math.Abs(p[layout.Width(j)]) : 0));
         }
 
-        return used;
-    }
-
-    /// <summary>Adds w·rowᵀrow of the sample's first <paramref name="used"/> row entries to one triangle of JᵀWJ.</summary>
-    private void AddOuterProduct(int used, double w)
-    {
-        var jtj = _jtj;
-        var index = _index;
-        var row = _row;
-        var n = _layout.Count;
-        for (var u = 0; u < used; u++)
-        {
-            var ru = w * row[u];
-            if (ru == 0) continue;
-            var iu = index[u] * n;
-            for (var v = u; v < used; v++) jtj[iu + index[v]] += ru * row[v];
-        }
+        public double Offset { get; }
+        public double Gain { get; }
+        public double Background { get; }
+        public LineShape[] Shapes { get; }
+        public LineShape[]? Wide { get; }
+        public double WidthStep { get; }
+        public double FsrHz { get; }
+        public double[] Reach { get; }
     }
 
     /// <summary>
