@@ -129,35 +129,6 @@ internal sealed class NormalEquationPass
         return chi;
     }
 
-    /// <summary>What one sweep's samples share: its offset, gain and background, each line's profile (and the profile at
-    /// the width step, when widths are fitted), and the folded distance within which a line enters a sample's row.</summary>
-    private sealed class SweepConstants
-    {
-        public SweepConstants(SweepSamples samples, ParameterLayout layout, double[] p, int k)
-        {
-            var inst = samples.Sweeps[k].Instrument;
-            Offset = k == 0 ? 0 : p[layout.Offset(k)];
-            Gain = k == 0 ? 1 : p[layout.Gain(k)];
-            Background = p[layout.Background(k)];
-            Shapes = SweepSamples.LineShapes(inst, layout, p);
-            Wide = layout.FitsWidths ? SweepSamples.LineShapes(inst, layout, p, SweepSamples.WidthStep(inst)) : null;
-            WidthStep = SweepSamples.WidthStep(inst);
-            FsrHz = inst.FsrHz;
-            Reach = new double[layout.LineCount];
-            for (var j = 0; j < layout.LineCount; j++)
-                Reach[j] = samples.CutoffLinewidths * (inst.LinewidthHz + (layout.FitsWidths ? Math.Abs(p[layout.Width(j)]) : 0));
-        }
-
-        public double Offset { get; }
-        public double Gain { get; }
-        public double Background { get; }
-        public LineShape[] Shapes { get; }
-        public LineShape[]? Wide { get; }
-        public double WidthStep { get; }
-        public double FsrHz { get; }
-        public double[] Reach { get; }
-    }
-
     /// <summary>
     /// Each pair of parameters was accumulated in one cell only, (index[u], index[v]) with u ≤ v in the row's order, which
     /// is not the numerical order (ν₀, a₀, ν₁, … vs the layout ν₀, ν₁, …, a₀, …): the other cell is zero, so the sum of the

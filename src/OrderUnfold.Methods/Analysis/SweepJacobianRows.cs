@@ -11,9 +11,7 @@ internal sealed class SweepJacobianRows
     private readonly ParameterLayout _layout;
     private readonly double[] _parameters;
     private readonly int _sweep;
-    private readonly double _offset, _gain, _background;
-    private readonly LineShape[] _shapes;
-    private readonly LineShape[]? _wide;
+    private readonly SweepConstants _constants;
 
     /// <summary>Rows of sweep <paramref name="sweep"/> at <paramref name="parameters"/>.</summary>
     public SweepJacobianRows(SweepSamples samples, ParameterLayout layout, double[] parameters, int sweep)
@@ -22,12 +20,7 @@ internal sealed class SweepJacobianRows
         _layout = layout;
         _parameters = parameters;
         _sweep = sweep;
-        var inst = samples.Sweeps[sweep].Instrument;
-        _offset = sweep == 0 ? 0 : parameters[layout.Offset(sweep)];
-        _gain = sweep == 0 ? 1 : parameters[layout.Gain(sweep)];
-        _background = parameters[layout.Background(sweep)];
-        _shapes = SweepSamples.LineShapes(inst, layout, parameters);
-        _wide = layout.FitsWidths ? SweepSamples.LineShapes(inst, layout, parameters, SweepSamples.WidthStep(inst)) : null;
+        _constants = new SweepConstants(samples, layout, parameters, sweep);
         Index = new int[(layout.FitsWidths ? 3 : 2) * layout.LineCount + 3];
         Row = new double[Index.Length];
         var used = 0;
@@ -63,34 +56,80 @@ internal sealed class SweepJacobianRows
     {
         var layout = _layout;
         var p = _parameters;
+        var (offset, gain, background, shapes, wide) = (_constants.Offset, _constants.Gain, _constants.Background, _constants.Shapes, _constants.Wide);
         var f = _samples.ScanHz[i];
         double sumT = 0, sumDT = 0;
         var c = 0;
         for (var j = 0; j < layout.LineCount; j++)
         {
-            var delta = p[layout.Position(j)] - _offset - f;
-            var (t, dt) = _shapes[j].Evaluate(delta);
+            var delta = p[layout.Position(j)] - offset - f;
+            var (t, dt) = shapes[j].Evaluate(delta);
             var a = p[layout.Intensity(j)];
             sumT += a * t;
             sumDT += a * dt;
-            Row[c++] = _gain * a * dt;
-            Row[c++] = _gain * t;
-            if (_wide is not null)
+            Row[c++] = gain * a * dt;
+            Row[c++] = gain * t;
+            if (wide is not null)
             {
                 // the model uses |w|; forward difference in |w|, signed by w
-                var h = SweepSamples.WidthStep(_samples.Sweeps[_sweep].Instrument);
-                Row[c++] = (p[layout.Width(j)] < 0 ? -1 : 1) * _gain * a * (_wide[j].Evaluate(delta).T - t) / h;
+                var h = _constants.WidthStep;
+                Row[c++] = (p[layout.Width(j)] < 0 ? -1 : 1) * gain * a * (wide[j].Evaluate(delta).T - t) / h;
             }
         }
 
         if (_sweep > 0)
         {
-            Row[c++] = -_gain * sumDT;
+            Row[c++] = -gain * sumDT;
             Row[c++] = sumT;
         }
 
         Row[c] = 1;
-        slope = -_gain * sumDT;
-        return _gain * sumT + _background;
+        slope = -gain * sumDT;
+        return gain * sumT + background;
     }
+}
+
+/// <summary>What one sweep's samples share: its offset, gain and background, each line's profile (and the profile at
+/// the width step, when widths are fitted), and the folded distance within which a line enters a sample's row.</summary>
+internal sealed class SweepConstants
+{
+    /// <summary>The constants of sweep <paramref name="k"/> at parameters <paramref name="p"/>.</summary>
+    public SweepConstants(SweepSamples samples, ParameterLayout layout, double[] p, int k)
+    {
+        var inst = samples.Sweeps[k].Instrument;
+        Offset = k == 0 ? 0 : p[layout.Offset(k)];
+        Gain = k == 0 ? 1 : p[layout.Gain(k)];
+        Background = p[layout.Background(k)];
+        Shapes = SweepSamples.LineShapes(inst, layout, p);
+        Wide = layout.FitsWidths ? SweepSamples.LineShapes(inst, layout, p, SweepSamples.WidthStep(inst)) : null;
+        WidthStep = SweepSamples.WidthStep(inst);
+        FsrHz = inst.FsrHz;
+        Reach = new double[layout.LineCount];
+        for (var j = 0; j < layout.LineCount; j++)
+            Reach[j] = samples.CutoffLinewidths * (inst.LinewidthHz + (layout.FitsWidths ? Math.Abs(p[layout.Width(j)]) : 0));
+    }
+
+    /// <summary>Frequency offset φ of the sweep (0 for sweep 0).</summary>
+    public double Offset { get; }
+
+    /// <summary>Gain g of the sweep (1 for sweep 0).</summary>
+    public double Gain { get; }
+
+    /// <summary>Background b of the sweep.</summary>
+    public double Background { get; }
+
+    /// <summary>Each line's profile in this sweep's instrument.</summary>
+    public LineShape[] Shapes { get; }
+
+    /// <summary>Each line's profile at its width plus <see cref="WidthStep"/> (null when widths are not fitted).</summary>
+    public LineShape[]? Wide { get; }
+
+    /// <summary>Step of the forward difference in the width.</summary>
+    public double WidthStep { get; }
+
+    /// <summary>The instrument's FSR.</summary>
+    public double FsrHz { get; }
+
+    /// <summary>Per line, the folded distance within which it enters a sample's Gauss–Newton row.</summary>
+    public double[] Reach { get; }
 }
