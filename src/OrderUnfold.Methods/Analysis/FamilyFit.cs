@@ -31,6 +31,14 @@ public sealed record FamilyFitResult(string Instrument, IReadOnlyList<FittedFami
 /// </summary>
 public static class FamilyFit
 {
+    /// <summary>Step tolerance of the fit, in units of the parameter scales (<see cref="FamilyProblem.Scales"/>): 10⁻⁸ of
+    /// those is far below any uncertainty. Chosen.</summary>
+    private const double StepTolerance = 1e-8;
+
+    /// <summary>χ² decrease (absolute, in units of the noise) below which the fit has converged: far below the Δχ² of 1
+    /// that one standard error costs. Chosen.</summary>
+    private const double ChiSquareTolerance = 1e-6;
+
     /// <summary>Fits the families of <paramref name="instrument"/>; null when it has none or none of its sweeps is in the result.</summary>
     /// <param name="sweeps">The calibrated sweeps, in the order of <paramref name="result"/>'s sweep fits.</param>
     /// <param name="result">The refined unfold.</param>
@@ -42,11 +50,11 @@ public static class FamilyFit
         if (idx.Count == 0 || result.Lines.Count == 0) return null;
         var inst = sweeps[idx[0]].Instrument;
         if (inst.Families.Count == 0) return null;
-        var problem = new Problem(idx.Select(k => sweeps[k]).ToList(), idx.Select(k => result.Sweeps[k].OffsetHz).ToArray(), result.Lines, inst);
+        var problem = new FamilyProblem(idx.Select(k => sweeps[k]).ToList(), idx.Select(k => result.Sweeps[k].OffsetHz).ToArray(), result.Lines, inst);
         var p0 = problem.Start(inst.Families);
         var before = problem.ChiSquare(p0);
         var scales = problem.Scales(p0);
-        var outcome = LevenbergMarquardt.Minimise(problem, p0, scales, null, maxIterations, 1e-8, 1e-6);
+        var outcome = LevenbergMarquardt.Minimise(problem, p0, scales, null, maxIterations, StepTolerance, ChiSquareTolerance);
         var p = outcome.P;
         var n = problem.Count;
         var dof = Math.Max(1, problem.Samples - n);
@@ -65,7 +73,7 @@ public static class FamilyFit
         var fams = new List<FittedFamily>();
         for (var f = 0; f < inst.Families.Count; f++)
         {
-            var (ih, io) = (problem.H(f), problem.S(f));
+            var (ih, io) = (problem.Height(f), problem.Shift(f));
             double Sigma(int i) => cov is null || !(cov[i * n + i] > 0) ? double.NaN : Math.Sqrt(cov[i * n + i] * inflate);
             var shift = p[io];
             fams.Add(new FittedFamily(inst.Families[f].N, CavityModeFamily.Frac(-shift / inst.FsrHz), Sigma(io) / inst.FsrHz, p[ih], Sigma(ih)));
@@ -75,31 +83,31 @@ public static class FamilyFit
     }
 
     /// <summary>Parameters: b_k, G_k per sweep, then h_N, s_N per family.</summary>
-    private sealed class Problem : ILeastSquaresProblem
+    private sealed class FamilyProblem : ILeastSquaresProblem
     {
         private readonly List<CalibratedSweep> _sweeps;
         private readonly double[] _phi;
         private readonly IReadOnlyList<UnfoldedLine> _lines;
-        private readonly LineRefiner.LineShape[] _shapes;
+        private readonly LineShape[] _shapes;
         private readonly int _families;
 
-        public Problem(List<CalibratedSweep> sweeps, double[] phi, IReadOnlyList<UnfoldedLine> lines, Instrument inst)
+        public FamilyProblem(List<CalibratedSweep> sweeps, double[] phi, IReadOnlyList<UnfoldedLine> lines, Instrument inst)
         {
             _sweeps = sweeps;
             _phi = phi;
             _lines = lines;
             _families = inst.Families.Count;
             var bare = inst with { Families = [] };
-            _shapes = lines.Select(l => LineRefiner.LineShape.For(bare, l.WidthHz is double w && w > 0 ? w : 0)).ToArray();
+            _shapes = lines.Select(l => LineShape.For(bare, l.WidthHz is double w && w > 0 ? w : 0)).ToArray();
             Samples = sweeps.Sum(s => s.Signal.Length);
         }
 
         public int Count => 2 * _sweeps.Count + 2 * _families;
         public int Samples { get; }
-        private int B(int k) => 2 * k;
-        private int G(int k) => 2 * k + 1;
-        public int H(int f) => 2 * _sweeps.Count + 2 * f;
-        public int S(int f) => 2 * _sweeps.Count + 2 * f + 1;
+        private int Background(int k) => 2 * k;
+        private int Gain(int k) => 2 * k + 1;
+        public int Height(int f) => 2 * _sweeps.Count + 2 * f;
+        public int Shift(int f) => 2 * _sweeps.Count + 2 * f + 1;
 
         /// <summary>Start: the measured families; each sweep's gain and background by linear least squares on them.</summary>
         public double[] Start(IReadOnlyList<CavityModeFamily> families)
@@ -107,8 +115,8 @@ public static class FamilyFit
             var p = new double[Count];
             for (var f = 0; f < _families; f++)
             {
-                p[H(f)] = families[f].RelativeHeight;
-                p[S(f)] = families[f].GouyOffsetFsr * _sweeps[0].Instrument.FsrHz;
+                p[Height(f)] = families[f].RelativeHeight;
+                p[Shift(f)] = families[f].GouyOffsetFsr * _sweeps[0].Instrument.FsrHz;
             }
 
             for (var k = 0; k < _sweeps.Count; k++)
@@ -126,26 +134,34 @@ public static class FamilyFit
                 }
 
                 var det = n * suu - su * su;
-                p[G(k)] = det > 0 ? (n * suy - su * sy) / det : 1;
-                p[B(k)] = (sy - p[G(k)] * su) / n;
+                p[Gain(k)] = det > 0 ? (n * suy - su * sy) / det : 1;
+                p[Background(k)] = (sy - p[Gain(k)] * su) / n;
             }
 
             return p;
         }
 
+        /// <summary>Smallest scale of a background or a gain (a zero noise σ or gain must not give a zero scale).</summary>
+        private const double MinScale = 1e-6;
+
+        /// <summary>Scale of a gain as a fraction of its start value, of a height (relative to TEM00, absolute), and of a
+        /// shift in linewidths: one percent, the size of a small correction. Chosen.</summary>
+        private const double RelativeScale = 0.01;
+
+        /// <summary>Typical size of each parameter, the units Levenberg–Marquardt measures steps in.</summary>
         public double[] Scales(double[] p)
         {
             var s = new double[Count];
             for (var k = 0; k < _sweeps.Count; k++)
             {
-                s[B(k)] = Math.Max(1e-6, _sweeps[k].NoiseSigma);
-                s[G(k)] = Math.Max(1e-6, Math.Abs(p[G(k)]) * 0.01);
+                s[Background(k)] = Math.Max(MinScale, _sweeps[k].NoiseSigma);
+                s[Gain(k)] = Math.Max(MinScale, Math.Abs(p[Gain(k)]) * RelativeScale);
             }
 
             for (var f = 0; f < _families; f++)
             {
-                s[H(f)] = 0.01;
-                s[S(f)] = 0.01 * _sweeps[0].Instrument.LinewidthHz;
+                s[Height(f)] = RelativeScale;
+                s[Shift(f)] = RelativeScale * _sweeps[0].Instrument.LinewidthHz;
             }
 
             return s;
@@ -165,8 +181,8 @@ public static class FamilyFit
                 total += r * _shapes[j].Evaluate(delta).T;
                 for (var f = 0; f < _families; f++)
                 {
-                    var (t, dt) = _shapes[j].Evaluate(delta - p[S(f)]);
-                    total += p[H(f)] * r * t;
+                    var (t, dt) = _shapes[j].Evaluate(delta - p[Shift(f)]);
+                    total += p[Height(f)] * r * t;
                     if (fam is not null) fam[f] += r * t;
                     if (dfam is not null) dfam[f] -= r * dt;
                 }
@@ -197,21 +213,21 @@ public static class FamilyFit
                 for (var i = 0; i < s.Signal.Length; i++)
                 {
                     var u = Evaluate(k, i, p, fam, dfam);
-                    var g = p[G(k)];
-                    var r = s.Signal[i] - (p[B(k)] + g * u);
+                    var g = p[Gain(k)];
+                    var r = s.Signal[i] - (p[Background(k)] + g * u);
                     chi += w * r * r;
                     if (jtj is null || jtr is null) continue;
                     var m = 0;
-                    nz[m++] = B(k);
-                    grad[B(k)] = 1;
-                    nz[m++] = G(k);
-                    grad[G(k)] = u;
+                    nz[m++] = Background(k);
+                    grad[Background(k)] = 1;
+                    nz[m++] = Gain(k);
+                    grad[Gain(k)] = u;
                     for (var f = 0; f < _families; f++)
                     {
-                        nz[m++] = H(f);
-                        grad[H(f)] = g * fam[f];
-                        nz[m++] = S(f);
-                        grad[S(f)] = g * p[H(f)] * dfam[f];
+                        nz[m++] = Height(f);
+                        grad[Height(f)] = g * fam[f];
+                        nz[m++] = Shift(f);
+                        grad[Shift(f)] = g * p[Height(f)] * dfam[f];
                     }
 
                     for (var a = 0; a < m; a++)

@@ -11,7 +11,7 @@ using static OrderUnfold.Tests.Analysis.RefinerFixtures;
 namespace OrderUnfold.Tests.Analysis;
 
 /// <summary>
-/// Propagation of the scan-axis uncertainty into the line frequencies (LineRefiner.AxisCovariance). The reference is a
+/// Propagation of the scan-axis uncertainty into the line frequencies (LineUncertainties.AxisCovariance). The reference is a
 /// Monte Carlo over the same model: axes drawn from the stated coefficient covariance, SIMULATED sweeps made on the drawn
 /// axis, refined on the nominal one. The linear propagation must predict the spread of the relative frequency.
 /// </summary>

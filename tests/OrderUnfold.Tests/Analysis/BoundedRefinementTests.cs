@@ -62,18 +62,18 @@ public class BoundedRefinementTests(ITestOutputHelper output)
     public void GroupsFollowTheFoldedDistanceInEveryInstrument()
     {
         var (sweeps, _, _) = ThreeLines(1);
-        var data = new LineRefiner.Data(sweeps) { CutoffLinewidths = 3 };
-        var layout = new LineRefiner.Layout(3, 2, false);
+        var data = new SweepSamples(sweeps) { CutoffLinewidths = 3 };
+        var layout = new ParameterLayout(3, 2, false);
         var p = new double[layout.Count];
         // 0 and 1: 150 MHz apart = 15 linewidths > 2·3·10 MHz in A; folded in B also 150 MHz: separate
         // 2: 1.0 GHz + 55 MHz from line 0 → folded distance 55 MHz in A (< 60 MHz): joined with line 0
-        p[layout.Nu(0)] = 0.20e9;
-        p[layout.Nu(1)] = 0.35e9;
-        p[layout.Nu(2)] = 1.255e9;
-        var groups = data.Groups(layout, p);
+        p[layout.Position(0)] = 0.20e9;
+        p[layout.Position(1)] = 0.35e9;
+        p[layout.Position(2)] = 1.255e9;
+        var groups = data.LineGroups(layout, p);
         Assert.Equal(groups[0], groups[2]);
         Assert.NotEqual(groups[0], groups[1]);
-        var dense = new LineRefiner.Data(sweeps).Groups(layout, p);
+        var dense = new SweepSamples(sweeps).LineGroups(layout, p);
         Assert.All(dense, g => Assert.Equal(0, g));
     }
 

@@ -244,7 +244,7 @@ public class LineRefinerTests(ITestOutputHelper output)
         var sweeps = new List<CalibratedSweep> { Sweep("A", spec, [new(0.2e9, 1.0)], new Random(2)) };
         var grid = Grid(sweeps, [spec], [new(0.2e9, 1.0)], -0.2e9, 1.2e9, false);
         const double threshold = 25;
-        var limit = LineRefiner.DetectionLimit(sweeps, grid, threshold, 1.0);
+        var limit = DetectionLimitCurve.Compute(sweeps, grid, threshold, 1.0);
         foreach (var j in new[] { 3, 101, 250, 399 })
         {
             var nu = grid.Grid[j] - grid.Sweeps[0].OffsetHz;
@@ -309,7 +309,7 @@ public class LineRefinerTests(ITestOutputHelper output)
             }
 
             numeric *= inst.FsrHz / n;
-            Assert.InRange(LineRefiner.AiryAutocorrelation(inst, d) / numeric, 0.999, 1.001);
+            Assert.InRange(OrderAmbiguity.AiryAutocorrelation(inst, d) / numeric, 0.999, 1.001);
         }
 
         var spec = new FixtureSweep(inst, 5000, 3, 0.0, Gain: 0.7, NoiseSigma: 0.02);
@@ -330,7 +330,7 @@ public class LineRefinerTests(ITestOutputHelper output)
             }
 
             var direct = a * a * (s00 - s01 * s01 / s11);
-            var estimate = LineRefiner.AliasChiSquareEstimate([sweep], fits, a, shift);
+            var estimate = OrderAmbiguity.AliasChiSquareEstimate([sweep], fits, a, shift);
             Assert.InRange(estimate / direct, 0.97, 1.03);
         }
     }
@@ -425,7 +425,7 @@ public class LineRefinerTests(ITestOutputHelper output)
     {
         // parameters 0 and 1 enter only as their sum (identical columns); parameter 2 is independent
         var j = Matrix<double>.Build.DenseOfArray(new double[,] { { 1, 1, 0 }, { 2, 2, 1 }, { 0.5, 0.5, 3 }, { 1, 1, -1 } });
-        var cov = LineRefiner.PseudoInverse(j.TransposeThisAndMultiply(j));
+        var cov = LineFitter.PseudoInverse(j.TransposeThisAndMultiply(j));
         Assert.True(double.IsNaN(cov[0, 0]) && double.IsNaN(cov[1, 1]));
         var c2 = j.Column(2);
         var j3 = Matrix<double>.Build.DenseOfColumnVectors(j.Column(0) + j.Column(1), c2);
