@@ -30,7 +30,8 @@ public static class CpuTimeProbe
     {
         try
         {
-            Process.GetCurrentProcess().ProcessorAffinity = 1;
+            if (OperatingSystem.IsLinux() || OperatingSystem.IsWindows()) Process.GetCurrentProcess().ProcessorAffinity = 1;
+            else throw new PlatformNotSupportedException();
         }
         catch (PlatformNotSupportedException)
         {
@@ -49,7 +50,8 @@ public static class CpuTimeProbe
     {
         try
         {
-            Process.GetCurrentProcess().ProcessorAffinity = 1;
+            if (OperatingSystem.IsLinux() || OperatingSystem.IsWindows()) Process.GetCurrentProcess().ProcessorAffinity = 1;
+            else throw new PlatformNotSupportedException();
         }
         catch (PlatformNotSupportedException)
         {

@@ -215,6 +215,7 @@ public static class AliasMargin
         return null;
     }
 
+    /// <summary>The smallest alias margin over shifts in [<paramref name="fromHz"/>, <paramref name="toHz"/>] and the shift where it occurs; <paramref name="buffer"/> is reused for the candidate shifts (no allocation per call).</summary>
     public static MarginPoint Minimum(IReadOnlyList<Instrument> instruments, double fromHz, double toHz, List<double> buffer)
     {
         CollectVertices(instruments, fromHz, toHz, buffer);
@@ -228,6 +229,7 @@ public static class AliasMargin
         return best;
     }
 
+    /// <summary>As the overload without a buffer, reusing <paramref name="buffer"/> for the candidate shifts.</summary>
     public static MarginPoint LowestAlias(IReadOnlyList<Instrument> instruments, double fromHz, double toHz, List<double> buffer)
     {
         CollectVertices(instruments, fromHz, toHz, buffer);

@@ -8,6 +8,7 @@ namespace OrderUnfold.Numerics;
 /// </summary>
 public sealed record AxisPolynomial
 {
+    /// <summary>An axis f(t) = Σ cᵢ tⁱ with t = (x − <paramref name="center"/>) / <paramref name="halfRange"/> (positive), fitted over [<paramref name="xMin"/>, <paramref name="xMax"/>].</summary>
     public AxisPolynomial(double[] coefficients, double center, double halfRange, double xMin, double xMax)
     {
         if (coefficients.Length == 0) throw new ArgumentException("an axis polynomial needs at least one coefficient");
@@ -22,13 +23,17 @@ public sealed record AxisPolynomial
     /// <summary>Coefficients c₀…c_d of f(t) = Σ cᵢ tⁱ, in Hz.</summary>
     public double[] Coefficients { get; }
 
+    /// <summary>Centre of the normalisation, in units of x.</summary>
     public double Center { get; }
+    /// <summary>Half-range of the normalisation, in units of x.</summary>
     public double HalfRange { get; }
 
     /// <summary>The x range the polynomial was fitted over (extrapolation beyond it is not trusted).</summary>
     public double XMin { get; }
+    /// <summary>Upper end of the fitted x range.</summary>
     public double XMax { get; }
 
+    /// <summary>Polynomial degree d.</summary>
     public int Degree => Coefficients.Length - 1;
 
     /// <summary>f(x) in Hz.</summary>
@@ -49,6 +54,7 @@ public sealed record AxisPolynomial
         return r / HalfRange;
     }
 
+    /// <summary>f(x) at each of <paramref name="x"/>, Hz.</summary>
     public double[] Evaluate(IReadOnlyList<double> x)
     {
         var r = new double[x.Count];

@@ -15,6 +15,7 @@ public sealed class CircularConvolver
     private readonly Fft.Plan _half;
     private readonly Fft.Plan _full;
 
+    /// <summary>A convolver with <paramref name="evenKernel"/> (symmetric, length a power of two), transformed once.</summary>
     public CircularConvolver(double[] evenKernel)
     {
         M = evenKernel.Length;
@@ -29,6 +30,7 @@ public sealed class CircularConvolver
         _im = new double[M / 2];
     }
 
+    /// <summary>Length of the periodic grid.</summary>
     public int M { get; }
 
     /// <summary>Kernel spectrum (real).</summary>

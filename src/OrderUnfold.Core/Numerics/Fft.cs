@@ -13,6 +13,7 @@ public static class Fft
     /// <summary>Tables of one transform length n: bit-reversed pairs to swap and e^(−2πik/n), k &lt; n/2.</summary>
     public sealed class Plan
     {
+        /// <summary>The tables for length <paramref name="n"/> (a power of two).</summary>
         public Plan(int n)
         {
             N = n;
@@ -40,12 +41,17 @@ public static class Fft
             }
         }
 
+        /// <summary>Transform length.</summary>
         public int N { get; }
+        /// <summary>Index pairs (i, j), i &lt; j, exchanged by the bit-reversal permutation.</summary>
         public int[] Swaps { get; }
+        /// <summary>cos(−2πk/n), k &lt; n/2.</summary>
         public double[] Cos { get; }
+        /// <summary>sin(−2πk/n), k &lt; n/2.</summary>
         public double[] Sin { get; }
     }
 
+    /// <summary>The plan for length <paramref name="n"/>, made once and shared.</summary>
     public static Plan For(int n)
     {
         if (n < 1 || (n & (n - 1)) != 0) throw new ArgumentException($"FFT length must be a power of two but got {n}");

@@ -78,6 +78,7 @@ public static class PeakFinder
         return x[i] + t * (x[i + 1] - x[i]);
     }
 
+    /// <summary>The <paramref name="p"/>-quantile (0–1) of <paramref name="y"/> by linear interpolation between order statistics.</summary>
     public static double Percentile(IReadOnlyList<double> y, double p)
     {
         var a = y.ToArray();

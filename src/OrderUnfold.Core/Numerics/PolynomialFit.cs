@@ -9,6 +9,15 @@ namespace OrderUnfold.Numerics;
 /// </summary>
 public static class PolynomialFit
 {
+    /// <summary>A polynomial fit: coefficients, their covariance (null when none can be given), residuals, χ² with its
+    /// degrees of freedom and reduced value, and where the uncertainties came from.</summary>
+    /// <param name="Parameters">Coefficients c₀…c_d.</param>
+    /// <param name="Covariance">Covariance of the coefficients, or null.</param>
+    /// <param name="Residuals">Data minus fit at each point.</param>
+    /// <param name="ChiSquared">Weighted sum of squared residuals (plain sum without sigmas).</param>
+    /// <param name="DegreesOfFreedom">Points minus coefficients.</param>
+    /// <param name="ReducedChiSquared">χ² per degree of freedom, or null without any.</param>
+    /// <param name="Basis">Where the uncertainties came from.</param>
     public sealed record Result(
         double[] Parameters,
         double[,]? Covariance,
@@ -18,8 +27,10 @@ public static class PolynomialFit
         double? ReducedChiSquared,
         UncertaintyBasis Basis)
     {
+        /// <summary>Standard uncertainty of coefficient <paramref name="i"/>, or null.</summary>
         public double? Sigma(int i) => Covariance is null ? null : Math.Sqrt(Math.Max(0, Covariance[i, i]));
 
+        /// <summary>Covariance of coefficients <paramref name="i"/> and <paramref name="j"/>, or null.</summary>
         public double? Cov(int i, int j) => Covariance?[i, j];
     }
 

@@ -27,7 +27,9 @@ public sealed class WorkBudget
     /// <summary>An unlimited budget (for fits that must not be cut short, e.g. inside tests of the solver).</summary>
     public static WorkBudget Unlimited() => new(int.MaxValue, double.PositiveInfinity);
 
+    /// <summary>Most iterations all fits sharing this budget may take together.</summary>
     public int IterationLimit { get; }
+    /// <summary>Most CPU seconds they may take together.</summary>
     public double CpuLimitSeconds { get; }
 
     /// <summary>Iterations spent so far.</summary>

@@ -32,6 +32,7 @@ public sealed record AxisCalibration(
     double? FinesseSigma,
     IReadOnlyList<string> Warnings)
 {
+    /// <summary>Number of calibration points the axis was fitted to.</summary>
     public int PointCount => PointX.Length;
 
     /// <summary>True when the axis was fitted to repeats of the source one FSR apart (self-calibration).</summary>

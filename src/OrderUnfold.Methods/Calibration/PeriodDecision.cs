@@ -105,6 +105,7 @@ public static class PeriodDecider
     /// <summary>A group of peaks at one position modulo the period.</summary>
     public sealed record PeakGroup(double Phase, IReadOnlyList<PatternPeak> Members)
     {
+        /// <summary>Mean height of the group's peaks.</summary>
         public double Height => Members.Average(m => m.Height);
     }
 
@@ -239,8 +240,10 @@ public static class PeriodDecider
         members.Sort((p, q) => p.N.CompareTo(q.N));
     }
 
+    /// <summary>The fractional part of <paramref name="v"/>, in [0, 1).</summary>
     public static double Frac(double v) => v - Math.Floor(v);
 
+    /// <summary>Distance between two fractions of a period on the circle, in [0, 0.5].</summary>
     public static double CircularDistance(double a, double b)
     {
         var d = Math.Abs(Frac(a) - Frac(b));

@@ -39,7 +39,9 @@ public sealed record RingdownPeakFit(double Crossing, double CrossingSigma, doub
 /// </summary>
 public static class RingdownFit
 {
+    /// <summary>Most samples one peak's ring-down fit looks at.</summary>
     public const int MaxWindow = 1200;
+    /// <summary>Most Levenberg–Marquardt iterations per peak.</summary>
     public const int MaxIterations = 40;
 
     /// <summary>Measured top, height above <paramref name="baseline"/> and FWHM (samples) of the peak whose top is at or near <paramref name="top"/>.</summary>

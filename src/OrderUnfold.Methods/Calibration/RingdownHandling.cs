@@ -67,7 +67,7 @@ public sealed record RingdownEvidence(bool Detected, string Side, IReadOnlyList<
     public double? LinewidthHz => TauFieldS is double t ? 1 / (Math.PI * t) : null;
 }
 
-/// <summary>The result of <see cref="RingdownHandling.Prepare"/>.</summary>
+/// <summary>The result of <see cref="RingdownHandling.Prepare(Sweep, RingdownOptions?)"/>.</summary>
 /// <param name="Method">Which treatment was applied (see <see cref="RingdownHandling"/>).</param>
 /// <param name="Sweep">The sweep for peak finding: the input when no ring-down was found, else the same sweep with the corrected signal.</param>
 /// <param name="Evidence">What the check saw.</param>
@@ -280,7 +280,7 @@ public static class RingdownHandling
     /// (r [cycles/sample²] divided by dν/dn [Hz/sample]), so the axis scale (and with it the period decision) enters.
     /// Null when there was no ring-down or no peak with a free τ.
     /// </summary>
-    /// <param name="preparation">The result of <see cref="Prepare"/>.</param>
+    /// <param name="preparation">The result of <see cref="Prepare(Sweep, RingdownOptions?)"/>.</param>
     /// <param name="axis">The calibrated axis of the sweep (x → Hz).</param>
     /// <param name="fsrHz">The FSR (the period of the axis), Hz.</param>
     public static RingdownFinesse? FinesseOnAxis(RingdownPreparation preparation, AxisPolynomial axis, double fsrHz)

@@ -34,6 +34,7 @@ public interface INormalPreconditionerColumns
 /// </summary>
 public static class DenseNnls
 {
+    /// <summary>Limits and tolerances of the dense solvers.</summary>
     public sealed record Options
     {
         /// <summary>Absolute KKT tolerance in gradient units (as <see cref="ActiveSetNnls.Options.Tolerance"/>).</summary>
@@ -58,6 +59,7 @@ public static class DenseNnls
     /// (the rule of Moré &amp; Toraldo, with a smaller factor).</summary>
     private const double CgStop = 1e-3;
 
+    /// <summary>Solves for dense support: projected Newton with the Toeplitz preconditioner where the equations provide one, else gradient projection; KKT checked at the end with a fresh product.</summary>
     public static NnlsResult Solve(INormalEquations eq, Options? options = null, ReadOnlySpan<double> start = default)
     {
         options ??= new Options();

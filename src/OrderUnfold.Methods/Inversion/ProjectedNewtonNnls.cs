@@ -37,6 +37,7 @@ public static class ProjectedNewtonNnls
     /// while the bound set is still changing.</summary>
     private const int RestrictedCgSteps = 50;
 
+    /// <summary>Bertsekas' projected Newton method with conjugate-gradient directions preconditioned by <paramref name="pre"/> (named <paramref name="preconditionerName"/> in the result's message), from <paramref name="start"/> when given.</summary>
     public static NnlsResult Solve(INormalEquations eq, INormalPreconditioner pre, DenseNnls.Options options, ReadOnlySpan<double> start,
         string preconditionerName)
     {

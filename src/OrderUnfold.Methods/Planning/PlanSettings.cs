@@ -18,7 +18,7 @@ public sealed record PlanSettings
     public double ThresholdLinewidths { get; init; } = 3;
 
     /// <summary>Shifts below this are the line itself, not an alias (null: 2 × threshold × narrowest linewidth,
-    /// see <see cref="Analysis.AliasMargin.DefaultMinimumShiftHz"/>).</summary>
+    /// see <see cref="AliasMargin.DefaultMinimumShiftHz"/>).</summary>
     public double? MinimumShiftHz { get; init; }
 
     /// <summary>Tolerance sampling: the lengths inside a tolerance band are sampled densely enough that the

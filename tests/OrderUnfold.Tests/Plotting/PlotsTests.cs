@@ -161,7 +161,7 @@ public sealed class PlotsTests : IDisposable
     {
         var input = SimulatedPlotInputs.Spectrum();
         var model = SpectrumPlot.Build(input);
-        var labels = model.Annotations.OfType<TextAnnotation>().ToDictionary(a => a.Text, a => a.TextPosition);
+        var labels = model.Annotations.OfType<TextAnnotation>().ToDictionary(a => a.Text ?? "", a => a.TextPosition);
         var span = (input.GridHz[^1] - input.GridHz[0]) / 1e9;
         // D (2.905 GHz, 0.71) and E (2.965 GHz, 0.64) are 60 MHz apart on an ~8 GHz axis: their labels are
         // set side by side, one clearance apart, in line order, above the higher marker (D + its sigma).

@@ -24,6 +24,7 @@ public sealed record CombMatch(double Origin, double Step, int[] K, double[] Res
 /// </summary>
 public sealed class CombSearch
 {
+    /// <summary>The comb index of a line that belongs to no comb.</summary>
     public const int NotMember = int.MinValue;
 
     private const int StrongLines = 12;
