@@ -42,6 +42,29 @@ public static class OffsetSearch
     /// <summary>Most Gauss–Newton refinements of the chosen origin.</summary>
     public const int RefineSteps = 4;
 
+    /// <summary>Iteration budget of a whole pair solve: this many per folded peak of all sweeps, plus
+    /// <see cref="WholeSolveBaseIterations"/> (each true line costs one active-set iteration per cavity that sees it; the
+    /// rest is room for the small bins a slightly misaligned model pulls in). Chosen, not from a reference.</summary>
+    public const int WholeSolveIterationsPerPeak = 4;
+
+    /// <summary>Fixed part of a whole pair solve's budget (see <see cref="WholeSolveIterationsPerPeak"/>).</summary>
+    public const int WholeSolveBaseIterations = 60;
+
+    /// <summary>Iteration budget of a screening (short) solve, per folded peak, plus
+    /// <see cref="ScreenBaseIterations"/>: half the whole budget, enough to tell a wrong pairing by its χ².</summary>
+    public const int ScreenIterationsPerPeak = 2;
+
+    /// <summary>Fixed part of a screening solve's budget.</summary>
+    public const int ScreenBaseIterations = 30;
+
+    /// <summary>The refinement of an origin stops when its step falls below the linewidth divided by this (a step of
+    /// 1/200 linewidth moves the model by much less than its noise). Chosen, not from a reference.</summary>
+    public const double RefineStopLinewidthFraction = 200;
+
+    /// <summary>The pair search's periodic grid is at most the narrowest linewidth divided by this (ten points per
+    /// linewidth resolve the Airy peak for the cross-correlation and the pair solve). Common practice.</summary>
+    public const double PeriodicStepsPerLinewidth = 10;
+
     /// <summary>Origins found and the trials behind them.</summary>
     public sealed record Result(double[] OffsetsHz, List<OffsetTrial> Trials);
 
@@ -65,8 +88,10 @@ public static class OffsetSearch
             return p;
         }
 
-        var settings = new PairSettings(options, grid, step, sweeps.Min(s => s.Instrument.LinewidthHz), 4 * folded.Sum(f => f.Count) + 60,
-            Math.Min(4 * folded.Sum(f => f.Count) + 60, 2 * folded.Sum(f => f.Count) + 30));
+        var peaks = folded.Sum(f => f.Count);
+        var wholeCap = WholeSolveIterationsPerPeak * peaks + WholeSolveBaseIterations;
+        var settings = new PairSettings(options, grid, step, sweeps.Min(s => s.Instrument.LinewidthHz), wholeCap,
+            Math.Min(wholeCap, ScreenIterationsPerPeak * peaks + ScreenBaseIterations));
         for (var k = 1; k < sweeps.Count; k++)
         {
             var sibling = Enumerable.Range(0, k).FirstOrDefault(r => SameInstrument(sweeps[r].Instrument, sweeps[k].Instrument), -1);
@@ -110,7 +135,7 @@ public static class OffsetSearch
             _referenceOffset = referenceOffset;
             _settings = settings;
             _searchOptions = settings.Options with { Sparsity = Math.Max(settings.Options.Sparsity, 1) * SparsityFactor };
-            _periodicStep = Math.Min(settings.Step, settings.NarrowestLinewidthHz / 10);
+            _periodicStep = Math.Min(settings.Step, settings.NarrowestLinewidthHz / PeriodicStepsPerLinewidth);
             (Lo, Hi) = SearchWindow([reference.Instrument, sweep.Instrument], settings.Grid, settings.Options.AliasThresholdLinewidths);
             _searchGrid = FrequencyGrid.Covering(Lo, Hi, settings.Step * 2);
         }
@@ -188,7 +213,7 @@ public static class OffsetSearch
             for (var it = 0; it < RefineSteps; it++)
             {
                 var d = Math.Clamp(problem.OffsetStep(1, x), -limit, limit);
-                if (Math.Abs(d) < lw / 200) break;
+                if (Math.Abs(d) < lw / RefineStopLinewidthFraction) break;
                 var next = Eval(phiBest + d, x, _settings.Cap);
                 if (!(next.Chi < chiBest))
                 {
