@@ -23,11 +23,13 @@ public sealed class SnakeCaseEnumConverter<T>() : JsonStringEnumConverter<T>(Jso
     ReadCommentHandling = JsonCommentHandling.Skip,
     AllowTrailingCommas = true,
     Converters = [typeof(SnakeCaseEnumConverter<OrderVerdict>), typeof(SnakeCaseEnumConverter<CavityGeometry>),
-        typeof(SnakeCaseEnumConverter<RampDirection>)])]
+        typeof(SnakeCaseEnumConverter<RampDirection>), typeof(SnakeCaseEnumConverter<Pipeline.Batch.ItemStatus>)])]
 [JsonSerializable(typeof(UnfoldReport))]
 [JsonSerializable(typeof(CalibrationFileRecord))]
 [JsonSerializable(typeof(CalibrationReportRecord))]
 [JsonSerializable(typeof(ModesReport))]
+[JsonSerializable(typeof(Pipeline.Batch.ItemRecordFile))]
+[JsonSerializable(typeof(Pipeline.Batch.BatchStatusFile))]
 public sealed partial class OutputJsonContext : JsonSerializerContext;
 
 /// <summary>Writing and reading the output records: one set of options for every file.</summary>

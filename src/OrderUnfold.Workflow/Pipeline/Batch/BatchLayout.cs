@@ -1,6 +1,5 @@
-using System.Text.Json;
-using System.Text.Json.Nodes;
 using OrderUnfold.Io;
+using OrderUnfold.Outputs;
 
 namespace OrderUnfold.Pipeline.Batch;
 
@@ -51,43 +50,36 @@ public sealed record BatchStatus(Shard Shard, bool Complete, string Manifest, st
 {
     public const string Format = "orderunfold-batch-status";
 
-    public void Write(string path)
+    /// <summary>Writes the status atomically (<see cref="BatchStatusFile"/>).</summary>
+    public void Write(string path) => AtomicFile.WriteAllText(path, OutputJson.Serialize(new BatchStatusFile
     {
-        var o = new JsonObject
-        {
-            ["format"] = Format,
-            ["version"] = 1,
-            ["shard_index"] = Shard.Index,
-            ["shard_count"] = Shard.Count,
-            ["complete"] = Complete,
-            ["manifest"] = Manifest,
-            ["manifest_sha256"] = ManifestSha256,
-            ["tool"] = Tool,
-            ["rows"] = Rows,
-            ["ok"] = Ok,
-            ["failed"] = Failed,
-            ["skipped"] = Skipped,
-        };
-        AtomicFile.WriteAllText(path, o.ToJsonString(new JsonSerializerOptions { WriteIndented = true }) + "\n");
-    }
+        ShardIndex = Shard.Index,
+        ShardCount = Shard.Count,
+        Complete = Complete,
+        Manifest = Manifest,
+        ManifestSha256 = ManifestSha256,
+        Tool = Tool,
+        Rows = Rows,
+        Ok = Ok,
+        Failed = Failed,
+        Skipped = Skipped,
+    }, c => c.BatchStatusFile));
 
-    /// <summary>Reads a status file; InputException when it is not one.</summary>
+    /// <summary>Reads a status file; InputException (file, line, column) when it is not one.</summary>
     public static BatchStatus Read(string path)
     {
+        byte[] bytes;
         try
         {
-            var o = JsonNode.Parse(File.ReadAllText(path))!.AsObject();
-            if ((string?)o["format"] != Format) throw new InputException($"not a batch status file (expected \"format\": \"{Format}\")", path);
-            return new BatchStatus(new Shard((int)o["shard_index"]!, (int)o["shard_count"]!), (bool)o["complete"]!, (string)o["manifest"]!,
-                (string)o["manifest_sha256"]!, (string)o["tool"]!, (long)o["rows"]!, (long)o["ok"]!, (long)o["failed"]!, (long)o["skipped"]!);
-        }
-        catch (Exception e) when (e is JsonException or InvalidOperationException or FormatException or NullReferenceException)
-        {
-            throw new InputException($"damaged batch status file: {e.Message}", path);
+            bytes = File.ReadAllBytes(path);
         }
         catch (IOException e)
         {
             throw new InputException($"cannot read the batch status file: {e.Message}", path);
         }
+
+        var o = OutputJson.Deserialize(path, bytes, c => c.BatchStatusFile, "batch status file");
+        if (o.Format != Format) throw new InputException($"not a batch status file (expected \"format\": \"{Format}\")", path);
+        return new BatchStatus(new Shard(o.ShardIndex, o.ShardCount), o.Complete, o.Manifest, o.ManifestSha256, o.Tool, o.Rows, o.Ok, o.Failed, o.Skipped);
     }
 }

@@ -1,6 +1,6 @@
 using System.Text.Json;
-using System.Text.Json.Nodes;
 using OrderUnfold.Io;
+using OrderUnfold.Outputs;
 
 namespace OrderUnfold.Pipeline.Batch;
 
@@ -64,32 +64,24 @@ public sealed record ItemRecord
     /// <summary>Values from the <see cref="IItemAnalysis"/>, by column name.</summary>
     public IReadOnlyDictionary<string, string> Analysis { get; init; } = new Dictionary<string, string>();
 
-    /// <summary>The record as JSON text.</summary>
-    public string ToJson()
+    /// <summary>The record as JSON text (done.json: <see cref="ItemRecordFile"/>).</summary>
+    public string ToJson() => OutputJson.Serialize(new ItemRecordFile
     {
-        var analysis = new JsonObject();
-        foreach (var (k, v) in Analysis.OrderBy(p => p.Key, StringComparer.Ordinal)) analysis[k] = v;
-        var o = new JsonObject
-        {
-            ["format"] = Format,
-            ["version"] = Version,
-            ["id"] = Id,
-            ["key"] = Key,
-            ["status"] = Status.ToString().ToLowerInvariant(),
-            ["manifest_line"] = ManifestLine,
-            ["timestamp"] = Timestamp,
-            ["lines"] = Lines,
-            ["strongest_line_hz"] = Finite(StrongestLineHz),
-            ["frame_fsr_hz"] = Finite(FrameFsrHz),
-            ["orders_resolved"] = OrdersResolved,
-            ["reduced_chi2"] = Finite(ReducedChi2),
-            ["warnings"] = Warnings,
-            ["seconds"] = Math.Round(Seconds, 4),
-            ["error"] = Error,
-            ["analysis"] = analysis,
-        };
-        return o.ToJsonString(new JsonSerializerOptions { WriteIndented = true }) + "\n";
-    }
+        Id = Id,
+        Key = Key,
+        Status = Status,
+        ManifestLine = ManifestLine,
+        Timestamp = Timestamp,
+        Lines = Lines,
+        StrongestLineHz = OutputJson.Finite(StrongestLineHz),
+        FrameFsrHz = OutputJson.Finite(FrameFsrHz),
+        OrdersResolved = OrdersResolved,
+        ReducedChi2 = OutputJson.Finite(ReducedChi2),
+        Warnings = Warnings,
+        Seconds = Math.Round(Seconds, 4),
+        Error = Error,
+        Analysis = new SortedDictionary<string, string>(Analysis.ToDictionary(p => p.Key, p => p.Value), StringComparer.Ordinal),
+    }, c => c.ItemRecordFile);
 
     /// <summary>Writes the record atomically (or, with <paramref name="staged"/>, into a staging folder published as a whole).</summary>
     public void Write(string path, bool staged = false) => AtomicFile.WriteAllText(path, ToJson(), staged);
@@ -111,30 +103,25 @@ public sealed record ItemRecord
     /// <summary>Parses record text; throws on anything that is not a record of this version.</summary>
     public static ItemRecord Parse(string json)
     {
-        var o = JsonNode.Parse(json)!.AsObject();
-        if ((string?)o["format"] != Format || (int?)o["version"] != Version) throw new FormatException("not a batch item record of this version");
-        var analysis = new Dictionary<string, string>(StringComparer.Ordinal);
-        if (o["analysis"] is JsonObject a)
-            foreach (var (k, v) in a)
-                if (v is not null) analysis[k] = v.ToString();
+        var o = JsonSerializer.Deserialize(json, OutputJson.Context.ItemRecordFile) ?? throw new FormatException("not a batch item record");
+        if (o.Format != Format || o.Version != Version) throw new FormatException("not a batch item record of this version");
         return new ItemRecord
         {
-            Id = (string)o["id"]!,
-            Key = (string)o["key"]!,
-            Status = Enum.Parse<ItemStatus>((string)o["status"]!, ignoreCase: true),
-            ManifestLine = (long?)o["manifest_line"] ?? 0,
-            Timestamp = (string?)o["timestamp"],
-            Lines = (int?)o["lines"],
-            StrongestLineHz = (double?)o["strongest_line_hz"],
-            FrameFsrHz = (double?)o["frame_fsr_hz"],
-            OrdersResolved = (bool?)o["orders_resolved"],
-            ReducedChi2 = (double?)o["reduced_chi2"],
-            Warnings = (int?)o["warnings"] ?? 0,
-            Seconds = (double?)o["seconds"] ?? 0,
-            Error = (string?)o["error"],
-            Analysis = analysis,
+            Id = o.Id,
+            Key = o.Key,
+            Status = o.Status,
+            ManifestLine = o.ManifestLine,
+            Timestamp = o.Timestamp,
+            Lines = o.Lines,
+            StrongestLineHz = o.StrongestLineHz,
+            FrameFsrHz = o.FrameFsrHz,
+            OrdersResolved = o.OrdersResolved,
+            ReducedChi2 = o.ReducedChi2,
+            Warnings = o.Warnings,
+            Seconds = o.Seconds,
+            Error = o.Error,
+            Analysis = new Dictionary<string, string>(o.Analysis, StringComparer.Ordinal),
         };
     }
 
-    private static double? Finite(double? v) => v is double d && double.IsFinite(d) ? d : null;
 }
