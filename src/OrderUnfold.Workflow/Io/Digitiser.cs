@@ -107,7 +107,7 @@ public static class Digitiser
         var q = step ?? PrintedResolution(y.Distinct().Take(4096).ToArray());
         var sigma = DifferenceNoise(y);
         var stay = sigma > 0 ? SpecialFunctions.Erf(q / (2 * sigma)) : 1.0;
-        var median = Median(y);
+        var median = Medians.OfFinite(y);
 
         var result = new List<int>();
         foreach (var (level, top) in new[] { (max, true), (min, false) })
@@ -175,16 +175,9 @@ public static class Digitiser
     {
         var d = new double[y.Length - 1];
         for (var i = 1; i < y.Length; i++) d[i - 1] = y[i] - y[i - 1];
-        var m = Median(d);
+        var m = Medians.OfFinite(d);
         for (var i = 0; i < d.Length; i++) d[i] = Math.Abs(d[i] - m);
-        return 1.4826 * Median(d) / Math.Sqrt(2);
+        return 1.4826 * Medians.OfFinite(d) / Math.Sqrt(2);
     }
 
-    private static double Median(double[] values)
-    {
-        var copy = (double[])values.Clone();
-        Array.Sort(copy);
-        var c = copy.Length;
-        return c % 2 == 1 ? copy[c / 2] : 0.5 * (copy[c / 2 - 1] + copy[c / 2]);
-    }
 }

@@ -46,7 +46,7 @@ internal static class RampSegments
         double min = smooth.Min(), max = smooth.Max(), span = max - min;
         var residual = new double[n];
         for (int i = 0; i < n; i++) residual[i] = Math.Abs(ramp[i] - smooth[i]);
-        double sigma = 1.4826 * Median(residual);
+        double sigma = 1.4826 * Medians.OfFinite(residual);
         if (!(span > MinSpanInNoise * sigma) || !(span > 1e-12 * scale)) throw new RampConstantException(span, sigma);
 
         var turns = Turns(smooth, TurnFraction * span);
@@ -211,13 +211,6 @@ internal static class RampSegments
         sorted.RemoveAt(k);
     }
 
-    private static double Median(double[] values)
-    {
-        var copy = (double[])values.Clone();
-        Array.Sort(copy);
-        int c = copy.Length;
-        return c % 2 == 1 ? copy[c / 2] : 0.5 * (copy[c / 2 - 1] + copy[c / 2]);
-    }
 }
 
 /// <summary>The ramp does not move (beyond its noise); turned into an <see cref="InputException"/> by the caller.</summary>
