@@ -96,142 +96,185 @@ public static class DenseNnls
         return fallback.Length == 0 ? result : result with { Message = result.Message + fallback };
     }
 
-    private static NnlsResult SolveByGradientProjection(INormalEquations eq, Options options, ReadOnlySpan<double> start)
-    {
-        var n = eq.Count;
-        var b = eq.RightHandSide.ToArray();
-        var free = new bool[n];
-        for (var j = 0; j < n; j++) free[j] = eq.IsFree(j);
+    private static NnlsResult SolveByGradientProjection(INormalEquations eq, Options options, ReadOnlySpan<double> start) =>
+        new GradientProjectionRun(eq, options, start).Solve();
 
-        // Jacobi scaling
-        var inv = new double[n];
-        var diagonal = eq as INormalDiagonal;
-        for (var j = 0; j < n; j++)
+    /// <summary>The checks before each outer iteration of the dense solvers, in order: non-finite values, the KKT
+    /// conditions within the tolerance, the iteration and product limits. True (with the status and message) when the
+    /// solver stops.</summary>
+    internal static bool StopsBeforeIteration(bool finite, double violation, double tol, int iterations, int products,
+        Options options, out SolverStatus status, out string message)
+    {
+        status = SolverStatus.IterationLimit;
+        message = "";
+        if (!finite)
         {
-            var d = diagonal?.Diagonal(j) ?? 1;
-            inv[j] = d > 0 && double.IsFinite(d) ? 1 / d : 0;
+            status = SolverStatus.InvalidValues;
+            message = "gradient has non-finite values";
+            return true;
         }
 
-        var meanInv = inv.Where(v => v > 0).DefaultIfEmpty(1).Average();
-        for (var j = 0; j < n; j++) if (inv[j] == 0) inv[j] = meanInv;
+        if (violation <= tol)
+        {
+            status = SolverStatus.Converged;
+            message = "KKT conditions hold";
+            return true;
+        }
 
-        var x = new double[n];
-        if (start.Length == n)
-            for (var j = 0; j < n; j++) x[j] = free[j] ? start[j] : Math.Max(0, start[j]);
-        var gx = new double[n];
-        var g = new double[n];
-        var products = 0;
+        if (iterations >= options.MaxIterations || products >= options.MaxProducts)
+        {
+            message = $"stopped after {iterations} iterations and {products} products G x (limits {options.MaxIterations}, {options.MaxProducts}); KKT violation {violation:G3} > tolerance {tol:G3}";
+            return true;
+        }
 
-        double Objective(double[] v, double[] gv)
+        return false;
+    }
+
+    /// <summary>The verdict of a dense solver that made no progress for three iterations, from the KKT violation
+    /// <paramref name="violation"/> of its iterate.</summary>
+    internal static (SolverStatus Status, string Message) StalledVerdict(double violation, double tol, int iterations) =>
+        violation <= tol
+            ? (SolverStatus.Converged, "KKT conditions hold")
+            : (SolverStatus.IterationLimit, $"no further progress after {iterations} iterations; KKT violation {violation:G3} > tolerance {tol:G3}");
+
+    /// <summary>One gradient-projection solve: the iterate, its product and gradient, the Jacobi scaling and the work
+    /// vectors, with one method per phase of an outer iteration.</summary>
+    private sealed class GradientProjectionRun
+    {
+        private readonly INormalEquations _eq;
+        private readonly Options _options;
+        private readonly int _n;
+        private readonly double[] _b;
+        private readonly bool[] _free;
+        private readonly double[] _inv; // Jacobi scaling
+        private readonly INormalPreconditioner? _pre;
+        private readonly double[] _x, _gx, _g;
+        private readonly double[] _xt, _gxt, _p, _gp, _r, _z, _dir;
+        private readonly bool[] _inFace;
+        private readonly bool[] _binding;
+        private readonly double _tol;
+        private double _q; // objective ½ xᵀGx − bᵀx
+        private int _products;
+        private bool _moved;
+
+        public GradientProjectionRun(INormalEquations eq, Options options, ReadOnlySpan<double> start)
+        {
+            _eq = eq;
+            _options = options;
+            var n = _n = eq.Count;
+            _b = eq.RightHandSide.ToArray();
+            _free = new bool[n];
+            for (var j = 0; j < n; j++) _free[j] = eq.IsFree(j);
+            _inv = JacobiScaling(eq, n);
+            _x = new double[n];
+            if (start.Length == n)
+                for (var j = 0; j < n; j++) _x[j] = _free[j] ? start[j] : Math.Max(0, start[j]);
+            _gx = new double[n];
+            _g = new double[n];
+            Product(_x, _gx);
+            for (var j = 0; j < n; j++) _g[j] = _gx[j] - _b[j];
+            _q = Objective(_x, _gx);
+            var bMax = 0.0;
+            for (var j = 0; j < n; j++) bMax = Math.Max(bMax, Math.Abs(_b[j]));
+            _tol = Math.Max(options.Tolerance, options.RelativeTolerance * bMax);
+            _pre = eq as INormalPreconditioner;
+            _xt = new double[n];
+            _gxt = new double[n];
+            _p = new double[n];
+            _gp = new double[n];
+            _r = new double[n];
+            _z = new double[n];
+            _dir = new double[n];
+            _inFace = new bool[n];
+            _binding = new bool[n];
+        }
+
+        private static double[] JacobiScaling(INormalEquations eq, int n)
+        {
+            var inv = new double[n];
+            var diagonal = eq as INormalDiagonal;
+            for (var j = 0; j < n; j++)
+            {
+                var d = diagonal?.Diagonal(j) ?? 1;
+                inv[j] = d > 0 && double.IsFinite(d) ? 1 / d : 0;
+            }
+
+            var meanInv = inv.Where(v => v > 0).DefaultIfEmpty(1).Average();
+            for (var j = 0; j < n; j++) if (inv[j] == 0) inv[j] = meanInv;
+            return inv;
+        }
+
+        private double Objective(double[] v, double[] gv)
         {
             var s = 0.0;
-            for (var j = 0; j < n; j++) s += v[j] * (0.5 * gv[j] - b[j]);
+            for (var j = 0; j < _n; j++) s += v[j] * (0.5 * gv[j] - _b[j]);
             return s;
         }
 
-        void Product(double[] v, double[] result)
+        private void Product(double[] v, double[] result)
         {
-            eq.Multiply(v, result);
-            products++;
+            _eq.Multiply(v, result);
+            _products++;
         }
-
-        Product(x, gx);
-        for (var j = 0; j < n; j++) g[j] = gx[j] - b[j];
-        var q = Objective(x, gx);
-        var bMax = 0.0;
-        for (var j = 0; j < n; j++) bMax = Math.Max(bMax, Math.Abs(b[j]));
-        var tol = Math.Max(options.Tolerance, options.RelativeTolerance * bMax);
-
-        var pre = eq as INormalPreconditioner;
-        var moved = false;
-        var xt = new double[n];
-        var gxt = new double[n];
-        var p = new double[n];
-        var gp = new double[n];
-        var r = new double[n];
-        var z = new double[n];
-        var dir = new double[n];
-        var inFace = new bool[n];
 
         // g = Gx − b is kept with gx, so the violation is the one every solver's final check uses
-        double Violation() => NnlsResult.KktViolationOf(b, gx, x, free).Violation;
+        private double Violation() => NnlsResult.KktViolationOf(_b, _gx, _x, _free).Violation;
 
-        // projected search along d from x: xt = P(x + α d), Armijo on the objective; accepts into x, gx, g, q
-        bool ProjectedSearch(double[] d, double alpha)
+        public NnlsResult Solve()
         {
-            for (var trial = 0; trial < 40; trial++)
+            SolverStatus status;
+            string message;
+            var iterations = 0;
+            var stalls = 0;
+            while (true)
             {
-                var slope = 0.0;
-                for (var j = 0; j < n; j++)
+                var violation = Violation();
+                if (StopsBeforeIteration(double.IsFinite(violation) && double.IsFinite(_q), violation, _tol, iterations,
+                        _products, _options, out status, out message)) break;
+                iterations++;
+                _moved = false;
+                ProjectedGradientSteps();
+                FaceConjugateGradients();
+                if (!_moved)
                 {
-                    var v = x[j] + alpha * d[j];
-                    if (!free[j] && v < 0) v = 0;
-                    xt[j] = v;
-                    slope += g[j] * (v - x[j]);
+                    // neither phase moved: the projected searches found no decrease (round-off level)
+                    if (++stalls >= 3)
+                    {
+                        (status, message) = StalledVerdict(Violation(), _tol, iterations);
+                        break;
+                    }
                 }
-
-                if (!(slope < 0)) return false;
-                Product(xt, gxt);
-                // the change of a quadratic is exactly ½ (g(x) + g(x + Δ))ᵀ Δ: no cancellation between two large objectives
-                var change = 0.0;
-                for (var j = 0; j < n; j++) change += 0.5 * (g[j] + gxt[j] - b[j]) * (xt[j] - x[j]);
-                if (!double.IsFinite(change)) return false;
-                if (change <= Armijo * slope)
+                else
                 {
-                    Array.Copy(xt, x, n);
-                    Array.Copy(gxt, gx, n);
-                    for (var j = 0; j < n; j++) g[j] = gx[j] - b[j];
-                    q += change;
-                    moved = true;
-                    return true;
+                    stalls = 0;
                 }
-
-                alpha *= 0.5;
             }
 
-            return false;
+            // KKT check on the returned point (the same definition as the active-set solver)
+            Product(_x, _gx);
+            var (kkt, activeCount) = NnlsResult.KktViolationOf(_b, _gx, _x, _free);
+
+            return new NnlsResult(_x, iterations, 0, status, message, kkt, activeCount)
+            {
+                Method = NnlsMethod.Dense,
+                Products = _products,
+                Tolerance = _tol,
+            };
         }
 
-        var status = SolverStatus.IterationLimit;
-        var message = "";
-        var iterations = 0;
-        var stalls = 0;
-        var binding = new bool[n];
-        while (true)
+        /// <summary>Phase 1: scaled projected-gradient steps until the set of bound entries settles or progress slows.</summary>
+        private void ProjectedGradientSteps()
         {
-            var violation = Violation();
-            if (!double.IsFinite(violation) || !double.IsFinite(q))
-            {
-                status = SolverStatus.InvalidValues;
-                message = "gradient has non-finite values";
-                break;
-            }
-
-            if (violation <= tol)
-            {
-                status = SolverStatus.Converged;
-                message = "KKT conditions hold";
-                break;
-            }
-
-            if (iterations >= options.MaxIterations || products >= options.MaxProducts)
-            {
-                message = $"stopped after {iterations} iterations and {products} products G x (limits {options.MaxIterations}, {options.MaxProducts}); KKT violation {violation:G3} > tolerance {tol:G3}";
-                break;
-            }
-
-            iterations++;
-            moved = false;
-
-            // 1) scaled projected-gradient steps until the set of bound entries settles or progress slows
+            var n = _n;
+            var (x, g, p, gp) = (_x, _g, _p, _gp);
             var maxDecrease = 0.0;
             for (var step = 0; step < 5; step++)
             {
                 var any = false;
                 for (var j = 0; j < n; j++)
                 {
-                    var v = -g[j] * inv[j];
-                    if (!free[j] && x[j] <= 0 && v < 0) v = 0;
+                    var v = -g[j] * _inv[j];
+                    if (!_free[j] && x[j] <= 0 && v < 0) v = 0;
                     p[j] = v;
                     any |= v != 0;
                 }
@@ -247,120 +290,127 @@ public static class DenseNnls
 
                 if (!(slope < 0)) break;
                 var alpha = pgp > 0 ? -slope / pgp : 1;
-                var before = q;
+                var before = _q;
                 if (!ProjectedSearch(p, alpha)) break;
-                var decrease = before - q;
+                var decrease = before - _q;
                 var changed = false;
                 for (var j = 0; j < n; j++)
                 {
-                    var bound = !free[j] && x[j] <= 0 && g[j] > 0;
-                    if (bound != binding[j]) changed = true;
-                    binding[j] = bound;
+                    var bound = !_free[j] && x[j] <= 0 && g[j] > 0;
+                    if (bound != _binding[j]) changed = true;
+                    _binding[j] = bound;
                 }
 
                 if (!changed || decrease <= 0.1 * maxDecrease) break;
                 maxDecrease = Math.Max(maxDecrease, decrease);
             }
+        }
 
-            // 2) preconditioned conjugate gradients on the face of positive (and free) entries
+        /// <summary>Phase 2: preconditioned conjugate gradients on the face of positive (and free) entries, then a projected
+        /// search along the result.</summary>
+        private void FaceConjugateGradients()
+        {
+            var n = _n;
+            var (r, z, p, gp, dir, inFace) = (_r, _z, _p, _gp, _dir, _inFace);
             var faceSize = 0;
             for (var j = 0; j < n; j++)
             {
-                inFace[j] = free[j] || x[j] > 0;
+                inFace[j] = _free[j] || _x[j] > 0;
                 if (inFace[j]) faceSize++;
                 dir[j] = 0;
-                r[j] = inFace[j] ? -g[j] : 0;
-            }
-
-            void ApplyPreconditioner()
-            {
-                if (pre is null)
-                {
-                    for (var j = 0; j < n; j++) z[j] = r[j] * inv[j];
-                    return;
-                }
-
-                pre.Precondition(r, z);
-                for (var j = 0; j < n; j++) if (!inFace[j]) z[j] = 0;
+                r[j] = inFace[j] ? -_g[j] : 0;
             }
 
             ApplyPreconditioner();
             Array.Copy(z, p, n);
-
-            if (faceSize > 0)
+            if (faceSize == 0) return;
+            var rz = 0.0;
+            for (var j = 0; j < n; j++) rz += r[j] * z[j];
+            var best = 0.0;
+            for (var k = 0; k < _options.MaxCgSteps && rz > 0 && _products < _options.MaxProducts; k++)
             {
-                var rz = 0.0;
-                for (var j = 0; j < n; j++) rz += r[j] * z[j];
-                var best = 0.0;
-                for (var k = 0; k < options.MaxCgSteps && rz > 0 && products < options.MaxProducts; k++)
+                Product(p, gp);
+                var pAp = 0.0;
+                for (var j = 0; j < n; j++)
                 {
-                    Product(p, gp);
-                    var pAp = 0.0;
-                    for (var j = 0; j < n; j++)
-                    {
-                        if (!inFace[j]) gp[j] = 0;
-                        pAp += p[j] * gp[j];
-                    }
-
-                    if (!(pAp > 0)) break;
-                    var a = rz / pAp;
-                    var rNorm = 0.0;
-                    for (var j = 0; j < n; j++)
-                    {
-                        dir[j] += a * p[j];
-                        r[j] -= a * gp[j];
-                        rNorm = Math.Max(rNorm, Math.Abs(r[j]));
-                    }
-
-                    var decrease = 0.5 * a * rz;
-                    best = Math.Max(best, decrease);
-                    if (rNorm <= 0.1 * tol || decrease <= CgStop * best) break;
-                    ApplyPreconditioner();
-                    var rzNew = 0.0;
-                    for (var j = 0; j < n; j++) rzNew += r[j] * z[j];
-
-                    var beta = rzNew / rz;
-                    rz = rzNew;
-                    for (var j = 0; j < n; j++) p[j] = z[j] + beta * p[j];
+                    if (!inFace[j]) gp[j] = 0;
+                    pAp += p[j] * gp[j];
                 }
 
-                ProjectedSearch(dir, 1);
-            }
-
-            if (!moved)
-            {
-                // neither phase moved: the projected searches found no decrease (round-off level)
-                if (++stalls >= 3)
+                if (!(pAp > 0)) break;
+                var a = rz / pAp;
+                var rNorm = 0.0;
+                for (var j = 0; j < n; j++)
                 {
-                    var v = Violation();
-                    if (v <= tol)
-                    {
-                        status = SolverStatus.Converged;
-                        message = "KKT conditions hold";
-                    }
-                    else
-                    {
-                        message = $"no further progress after {iterations} iterations; KKT violation {v:G3} > tolerance {tol:G3}";
-                    }
-
-                    break;
+                    dir[j] += a * p[j];
+                    r[j] -= a * gp[j];
+                    rNorm = Math.Max(rNorm, Math.Abs(r[j]));
                 }
+
+                var decrease = 0.5 * a * rz;
+                best = Math.Max(best, decrease);
+                if (rNorm <= 0.1 * _tol || decrease <= CgStop * best) break;
+                ApplyPreconditioner();
+                var rzNew = 0.0;
+                for (var j = 0; j < n; j++) rzNew += r[j] * z[j];
+
+                var beta = rzNew / rz;
+                rz = rzNew;
+                for (var j = 0; j < n; j++) p[j] = z[j] + beta * p[j];
             }
-            else
-            {
-                stalls = 0;
-            }
+
+            ProjectedSearch(dir, 1);
         }
 
-        // KKT check on the returned point (the same definition as the active-set solver)
-        Product(x, gx);
-        var (kkt, activeCount) = NnlsResult.KktViolationOf(b, gx, x, free);
-
-        return new NnlsResult(x, iterations, 0, status, message, kkt, activeCount)
+        /// <summary>z = P r on the face (Jacobi scaling when the equations bring no preconditioner).</summary>
+        private void ApplyPreconditioner()
         {
-            Method = NnlsMethod.Dense,
-            Products = products,
-            Tolerance = tol,
-        };
+            if (_pre is null)
+            {
+                for (var j = 0; j < _n; j++) _z[j] = _r[j] * _inv[j];
+                return;
+            }
+
+            _pre.Precondition(_r, _z);
+            for (var j = 0; j < _n; j++) if (!_inFace[j]) _z[j] = 0;
+        }
+
+        /// <summary>Projected search along d from x: xt = P(x + α d), Armijo on the objective; accepts into x, gx, g, q.</summary>
+        private bool ProjectedSearch(double[] d, double alpha)
+        {
+            var n = _n;
+            var (x, g, xt, gxt, b) = (_x, _g, _xt, _gxt, _b);
+            for (var trial = 0; trial < 40; trial++)
+            {
+                var slope = 0.0;
+                for (var j = 0; j < n; j++)
+                {
+                    var v = x[j] + alpha * d[j];
+                    if (!_free[j] && v < 0) v = 0;
+                    xt[j] = v;
+                    slope += g[j] * (v - x[j]);
+                }
+
+                if (!(slope < 0)) return false;
+                Product(xt, gxt);
+                // the change of a quadratic is exactly ½ (g(x) + g(x + Δ))ᵀ Δ: no cancellation between two large objectives
+                var change = 0.0;
+                for (var j = 0; j < n; j++) change += 0.5 * (g[j] + gxt[j] - b[j]) * (xt[j] - x[j]);
+                if (!double.IsFinite(change)) return false;
+                if (change <= Armijo * slope)
+                {
+                    Array.Copy(xt, x, n);
+                    Array.Copy(gxt, _gx, n);
+                    for (var j = 0; j < n; j++) g[j] = _gx[j] - b[j];
+                    _q += change;
+                    _moved = true;
+                    return true;
+                }
+
+                alpha *= 0.5;
+            }
+
+            return false;
+        }
     }
 }

@@ -39,333 +39,9 @@ public static class ProjectedNewtonNnls
 
     /// <summary>Bertsekas' projected Newton method with conjugate-gradient directions preconditioned by <paramref name="pre"/> (named <paramref name="preconditionerName"/> in the result's message), from <paramref name="start"/> when given.</summary>
     public static NnlsResult Solve(INormalEquations eq, INormalPreconditioner pre, DenseNnls.Options options, ReadOnlySpan<double> start,
-        string preconditionerName)
-    {
-        var n = eq.Count;
-        var b = eq.RightHandSide.ToArray();
-        var free = new bool[n];
-        for (var j = 0; j < n; j++) free[j] = eq.IsFree(j);
-        var x = new double[n];
-        if (start.Length == n)
-            for (var j = 0; j < n; j++) x[j] = free[j] ? start[j] : Math.Max(0, start[j]);
+        string preconditionerName) =>
+        new Run(eq, pre, options, start).Solve(preconditionerName);
 
-        else
-        {
-            // cold start: the free entries (backgrounds) at their own optimum with the spectrum at zero, so that the first
-            // Newton system's residual is the spectrum's alone
-            for (var j = 0; j < n; j++)
-            {
-                if (!free[j]) continue;
-                eq.Column(j, [], Span<double>.Empty, out var diagonal);
-                if (diagonal > 0) x[j] = b[j] / diagonal;
-            }
-        }
-
-        var products = 0;
-        void Product(double[] v, double[] result)
-        {
-            eq.Multiply(v, result);
-            products++;
-        }
-
-        var gx = new double[n];
-        var g = new double[n];
-        Product(x, gx);
-        for (var j = 0; j < n; j++) g[j] = gx[j] - b[j];
-        var bMax = 0.0;
-        for (var j = 0; j < n; j++) bMax = Math.Max(bMax, Math.Abs(b[j]));
-        var tol = Math.Max(options.Tolerance, options.RelativeTolerance * bMax);
-
-        var bound = new bool[n];
-        var d = new double[n];
-        var r = new double[n];
-        var z = new double[n];
-        var p = new double[n];
-        var gp = new double[n];
-        var xt = new double[n];
-        var gxt = new double[n];
-        // the first direction's conjugate-gradient iterates, for the search along that path
-        var path = new List<double[]>();
-        // objectives of the last iterates relative to the start (exact changes of the quadratic summed up)
-        var objective = 0.0;
-        var recent = new Queue<double>();
-        recent.Enqueue(objective);
-
-        // g = Gx − b is kept with gx, so the violation is the one every solver's final check uses
-        double Violation() => NnlsResult.KktViolationOf(b, gx, x, free).Violation;
-
-        var face = new FacePreconditioner(pre, n);
-        var status = SolverStatus.IterationLimit;
-        var message = "";
-        var iterations = 0;
-        var cgSteps = 0;
-        var stalls = 0;
-        var safeguards = 0;
-        while (true)
-        {
-            var violation = Violation();
-            if (!double.IsFinite(violation))
-            {
-                status = SolverStatus.InvalidValues;
-                message = "gradient has non-finite values";
-                break;
-            }
-
-            if (violation <= tol)
-            {
-                status = SolverStatus.Converged;
-                message = "KKT conditions hold";
-                break;
-            }
-
-            if (iterations >= options.MaxIterations || products >= options.MaxProducts)
-            {
-                message = $"stopped after {iterations} iterations and {products} products G x (limits {options.MaxIterations}, {options.MaxProducts}); KKT violation {violation:G3} > tolerance {tol:G3}";
-                break;
-            }
-
-            iterations++;
-
-            // binding set and the right-hand side of the face's Newton system
-            var rMax = 0.0;
-            for (var j = 0; j < n; j++)
-            {
-                // the first step ignores the bounds (an unconstrained Newton step, projected by the search): from a cold
-                // start every entry is at zero and the binding set would be every bin with a positive gradient
-                bound[j] = iterations > 1 && !free[j] && x[j] <= 0 && g[j] > 0;
-                r[j] = bound[j] ? 0 : -g[j];
-                rMax = Math.Max(rMax, Math.Abs(r[j]));
-                d[j] = 0;
-            }
-
-            // preconditioned conjugate gradients on G_FF d = −g_F
-            var stop = 0.1 * tol;
-            face.SetBound(bound, plain: stalls > 0);
-            void Precondition()
-            {
-                face.Apply(r, z);
-                for (var j = 0; j < n; j++) if (bound[j]) z[j] = 0;
-            }
-
-            if (rMax > 0)
-            {
-                Precondition();
-                Array.Copy(z, p, n);
-                var rz = 0.0;
-                for (var j = 0; j < n; j++) rz += r[j] * z[j];
-                var rz0 = rz;
-                var maxSteps = face.Exact ? options.MaxCgSteps : Math.Min(options.MaxCgSteps, RestrictedCgSteps);
-                for (var k = 0; k < maxSteps && rz > 0 && products < options.MaxProducts; k++)
-                {
-                    Product(p, gp);
-                    cgSteps++;
-                    var pAp = 0.0;
-                    for (var j = 0; j < n; j++)
-                    {
-                        if (bound[j]) gp[j] = 0;
-                        pAp += p[j] * gp[j];
-                    }
-
-                    if (!(pAp > 0)) break;
-                    var a = rz / pAp;
-                    var norm = 0.0;
-                    for (var j = 0; j < n; j++)
-                    {
-                        d[j] += a * p[j];
-                        r[j] -= a * gp[j];
-                        norm = Math.Max(norm, Math.Abs(r[j]));
-                    }
-
-                    if (iterations == 1) path.Add((double[])d.Clone());
-                    if (norm <= stop) break;
-                    Precondition();
-                    var rzNew = 0.0;
-                    for (var j = 0; j < n; j++) rzNew += r[j] * z[j];
-                    if (rzNew <= Forcing * Forcing * rz0) break;
-                    var beta = rzNew / rz;
-                    rz = rzNew;
-                    for (var j = 0; j < n; j++) p[j] = z[j] + beta * p[j];
-                }
-            }
-
-            // safeguard: a direction that is not downhill on the face (rounding in the face preconditioner's Schur
-            // complement can make it indefinite when the bound block is ill-conditioned) is replaced by the preconditioned
-            // gradient with the plain restriction, which is downhill
-            var downhill = 0.0;
-            for (var j = 0; j < n; j++) if (!bound[j]) downhill += g[j] * d[j];
-            if (!(downhill < 0))
-            {
-                for (var j = 0; j < n; j++) r[j] = bound[j] ? 0 : -g[j];
-                pre.Precondition(r, d);
-                for (var j = 0; j < n; j++) if (bound[j]) d[j] = 0;
-                safeguards++;
-            }
-
-            // The first step: the unconstrained Newton system's conjugate-gradient iterates d₁, d₂, … are tried in turn,
-            // projected, and the best of them kept (the search stops at the first that is worse than the best so far). On the
-            // broadband benchmark problems the converged unconstrained minimiser oscillates (from 8k × 2k on, 40–90 % of its
-            // bins negative), because directions the data hardly see are held only by the smoothness weight; its projection
-            // then starts the method with hundreds of bins at zero that take tens of steps to release. The early iterates
-            // carry the well-determined part of the solution and project with few zeros (4k: 32, 8k: 85, 16k: 1 instead of
-            // 32, 2 000 and 742).
-            var moved = false;
-            if (path.Count > 1)
-            {
-                var bestChange = 0.0;
-                var bestX = new double[n];
-                var bestGx = new double[n];
-                var found = false;
-                foreach (var step in path)
-                {
-                    for (var j = 0; j < n; j++)
-                    {
-                        var v = x[j] + step[j];
-                        xt[j] = !free[j] && v < 0 ? 0 : v;
-                    }
-
-                    Product(xt, gxt);
-                    var change = 0.0;
-                    for (var j = 0; j < n; j++) change += 0.5 * (g[j] + gxt[j] - b[j]) * (xt[j] - x[j]);
-                    if (!double.IsFinite(change)) break;
-                    if (change < bestChange)
-                    {
-                        bestChange = change;
-                        (bestX, xt) = (xt, bestX);
-                        (bestGx, gxt) = (gxt, bestGx);
-                        found = true;
-                    }
-                    else if (found)
-                    {
-                        break;
-                    }
-                }
-
-                if (found)
-                {
-                    (x, bestX) = (bestX, x);
-                    (gx, bestGx) = (bestGx, gx);
-                    for (var j = 0; j < n; j++) g[j] = gx[j] - b[j];
-                    // the memory of the non-monotone test starts here: the cold start's objective lies far above
-                    objective += bestChange;
-                    recent.Clear();
-                    recent.Enqueue(objective);
-                    moved = true;
-                }
-            }
-
-            path.Clear();
-
-            // projected search along d: x(α) = P(x + α d), a non-monotone Armijo test on the exact change of the quadratic
-            // against the largest of the last SearchMemory objectives: with a monotone test, steps that clip a few small
-            // bins and raise the objective slightly were cut back to α = 2⁻² … 2⁻¹⁰ for tens of steps at 8k and 16k
-            var alpha = 1.0;
-            var reference = recent.Max();
-            for (var trial = 0; trial < 40 && !moved && products < options.MaxProducts + 40; trial++)
-            {
-                var slope = 0.0;
-                for (var j = 0; j < n; j++)
-                {
-                    var v = x[j] + alpha * d[j];
-                    if (!free[j] && v < 0) v = 0;
-                    xt[j] = v;
-                    slope += g[j] * (v - x[j]);
-                }
-
-                if (double.IsNaN(slope)) break;
-                // the projection can turn the step's first-order change uphill (entries that the Newton step pushes far below
-                // zero); the full step is still tried, since its exact change may be a decrease, and shorter steps clip fewer
-                // entries and are downhill for α small enough (Bertsekas 1982)
-                if (!(slope < 0) && trial > 0)
-                {
-                    alpha *= 0.5;
-                    continue;
-                }
-
-                Product(xt, gxt);
-                // the change of a quadratic is exactly ½ (g(x) + g(x + Δ))ᵀ Δ
-                var change = 0.0;
-                for (var j = 0; j < n; j++) change += 0.5 * (g[j] + gxt[j] - b[j]) * (xt[j] - x[j]);
-                if (!double.IsFinite(change)) break;
-                if (objective + change < reference && objective + change <= reference + Armijo * Math.Min(slope, 0))
-                {
-                    objective += change;
-                    recent.Enqueue(objective);
-                    if (recent.Count > SearchMemory) recent.Dequeue();
-                    (x, xt) = (xt, x);
-                    (gx, gxt) = (gxt, gx);
-                    for (var j = 0; j < n; j++) g[j] = gx[j] - b[j];
-                    moved = true;
-                    break;
-                }
-
-                alpha *= 0.5;
-            }
-
-            if (!moved)
-            {
-                if (++stalls >= 3)
-                {
-                    var v = Violation();
-                    if (v <= tol)
-                    {
-                        status = SolverStatus.Converged;
-                        message = "KKT conditions hold";
-                    }
-                    else
-                    {
-                        message = $"no further progress after {iterations} iterations; KKT violation {v:G3} > tolerance {tol:G3}";
-                    }
-
-                    break;
-                }
-            }
-            else
-            {
-                stalls = 0;
-            }
-        }
-
-        // KKT check on the returned point with a fresh product (the same definition as the active-set solver)
-        Product(x, gx);
-        var (kkt, activeCount) = NnlsResult.KktViolationOf(b, gx, x, free);
-
-        if (status == SolverStatus.Converged && kkt > tol)
-        {
-            status = SolverStatus.IterationLimit;
-            message = $"KKT violation {kkt:G3} on the final check exceeds the tolerance {tol:G3}";
-        }
-
-        return new NnlsResult(x, iterations, 0, status,
-            $"{message} (projected Newton, {preconditionerName} preconditioner; {iterations} Newton steps, {cgSteps} conjugate-gradient steps, {products} products G x{(safeguards > 0 ? $", {safeguards} gradient steps as safeguard" : "")})",
-            kkt, activeCount)
-        {
-            Method = NnlsMethod.Dense,
-            Products = products,
-            Tolerance = tol,
-        };
-    }
-
-    /// <summary>aᵀb (vectorised).</summary>
-    private static double Dot(ReadOnlySpan<double> a, ReadOnlySpan<double> b)
-    {
-        var vectors = System.Runtime.InteropServices.MemoryMarshal.Cast<double, System.Numerics.Vector<double>>(a);
-        var others = System.Runtime.InteropServices.MemoryMarshal.Cast<double, System.Numerics.Vector<double>>(b);
-        var acc = System.Numerics.Vector<double>.Zero;
-        for (var i = 0; i < vectors.Length; i++) acc += vectors[i] * others[i];
-        var sum = System.Numerics.Vector.Sum(acc);
-        for (var i = vectors.Length * System.Numerics.Vector<double>.Count; i < a.Length; i++) sum += a[i] * b[i];
-        return sum;
-    }
-
-    /// <summary>y += α x.</summary>
-    private static void Axpy(double alpha, ReadOnlySpan<double> x, Span<double> y)
-    {
-        var xs = System.Runtime.InteropServices.MemoryMarshal.Cast<double, System.Numerics.Vector<double>>(x);
-        var ys = System.Runtime.InteropServices.MemoryMarshal.Cast<double, System.Numerics.Vector<double>>(y[..x.Length]);
-        var va = new System.Numerics.Vector<double>(alpha);
-        for (var i = 0; i < xs.Length; i++) ys[i] += va * xs[i];
-        for (var i = xs.Length * System.Numerics.Vector<double>.Count; i < x.Length; i++) y[i] += alpha * x[i];
-    }
 
     /// <summary>Deletes row and column k from the lower Cholesky factor L (row-major, row stride
     /// <paramref name="stride"/>, size m → m − 1): the rows after k lose column k, and the trailing block takes the
@@ -401,160 +77,342 @@ public static class ProjectedNewtonNnls
         }
     }
 
-    /// <summary>
-    /// The preconditioner P ≈ G⁻¹ restricted to a face (the entries not bound at zero) without losing its quality: the
-    /// inverse of the face block of P⁻¹ is P_FF − P_FB (P_BB)⁻¹ P_BF (the Schur-complement identity for a block of an
-    /// inverse), so with the columns P e_b of the bound entries (one application each, kept while they stay bound) and a
-    /// Cholesky factor of the small block P_BB, the face is preconditioned as well as the whole problem. Simply zeroing P's
-    /// rows and columns of the bound entries instead leaves one stray eigenvalue per bound entry, which costs the
-    /// conjugate gradients an iteration or more each. Used while the bound set is small (at most <see cref="MaxSet"/>
-    /// entries); beyond that the plain restriction.
-    /// </summary>
-    private sealed class FacePreconditioner(INormalPreconditioner pre, int n)
+    /// <summary>One projected Newton solve: the iterate with its product and gradient, the bound set, the work vectors
+    /// and the counters, with one method per stage of an iteration (bound set, Newton direction, safeguard, first step
+    /// along the conjugate-gradient path, projected Armijo search) and the final KKT check.</summary>
+    private sealed class Run
     {
-        public const int MaxSet = 1200;
+        private readonly INormalEquations _eq;
+        private readonly INormalPreconditioner _pre;
+        private readonly DenseNnls.Options _options;
+        private readonly int _n;
+        private readonly double[] _b;
+        private readonly bool[] _free;
+        private readonly double _tol;
+        private readonly double[] _g;
+        private readonly bool[] _bound;
+        private readonly double[] _d, _r, _z, _p, _gp;
+        private readonly FacePreconditioner _face;
+        // the first direction's conjugate-gradient iterates, for the search along that path
+        private readonly List<double[]> _path = [];
+        // objectives of the last iterates relative to the start (exact changes of the quadratic summed up)
+        private readonly Queue<double> _recent = new();
+        private double[] _x, _gx, _xt, _gxt;
+        private double _objective;
+        private int _products, _iterations, _cgSteps, _stalls, _safeguards;
 
-        private readonly Dictionary<int, double[]> _columns = new();
-        private int[] _set = [];
-        private double[] _factor = [];
-        private double[] _u = [];
-        private double[][] _setColumns = [];
-        private bool _exact;
-
-        /// <summary>True when the face is preconditioned exactly (bound set small enough).</summary>
-        public bool Exact => _exact || _set.Length == 0 && _empty;
-
-        private bool _empty;
-
-        /// <summary>Prepares the face of the entries not in <paramref name="bound"/>; with <paramref name="plain"/> (after a
-        /// Newton step that made no progress) the plain restriction.</summary>
-        public void SetBound(bool[] bound, bool plain)
+        public Run(INormalEquations eq, INormalPreconditioner pre, DenseNnls.Options options, ReadOnlySpan<double> start)
         {
-            // the entries in the order they became bound (those still bound from the last set first, then the new ones), so
-            // that the factor's leading rows, which depend only on the entries before them, can be kept
-            var set = new List<int>();
-            var inSet = new HashSet<int>();
-            foreach (var j in _set)
-                if (bound[j] && inSet.Add(j)) set.Add(j);
-            for (var j = 0; j < n; j++) if (bound[j] && inSet.Add(j)) set.Add(j);
-            _empty = set.Count == 0;
-            if (plain || set.Count > MaxSet || (long)set.Count * n > 1L << 23)
-            {
-                _exact = false;
-                _set = [];
-                return;
-            }
-
-            if (_exact && set.SequenceEqual(_set)) return;
-            // rows of the factor depend only on the entries before them: the rows of a shared leading part are kept
-            var previous = _exact ? _set : [];
-            var previousFactor = _factor;
-            var keep = 0;
-            while (keep < previous.Length && keep < set.Count && previous[keep] == set[keep]) keep++;
-            _set = set.ToArray();
-            foreach (var key in _columns.Keys.Where(k => !bound[k]).ToList()) _columns.Remove(key);
-            var unit = new double[n];
-            foreach (var j in _set)
-            {
-                if (_columns.ContainsKey(j)) continue;
-                var column = new double[n];
-                if (pre is INormalPreconditionerColumns columns) columns.Column(j, column);
-                else
-                {
-                    unit[j] = 1;
-                    pre.Precondition(unit, column);
-                    unit[j] = 0;
-                }
-                _columns[j] = column;
-            }
-
-            // Cholesky factor of P_BB (lower, row-major)
-            var m = _set.Length;
-            var mOld = previous.Length;
-            // entries that left the bound set: their rows and columns are deleted from the previous factor by a rank-one
-            // update of the trailing block each (Golub & Van Loan, Matrix Computations, 4th ed., §6.5.4), O((m − k)²) per
-            // deleted position k, when that is cheaper than recomputing the rows after the first deleted one (O(m³ − k³))
-            if (keep < mOld)
-            {
-                var deleteCost = 0.0;
-                var kept = 0;
-                for (var a = 0; a < mOld; a++)
-                {
-                    if (bound[previous[a]]) kept++;
-                    else deleteCost += 3.0 * (mOld - a) * (mOld - a);
-                }
-
-                var recomputeCost = ((double)kept * kept * kept - (double)keep * keep * keep) / 6;
-                if (kept > keep && deleteCost < recomputeCost)
-                {
-                    var work = new double[mOld];
-                    var size = mOld;
-                    for (var a = mOld - 1; a >= 0; a--)
-                        if (!bound[previous[a]]) DeleteFromFactor(previousFactor, mOld, size--, a, work);
-                    keep = kept;
-                }
-            }
-
-            _factor = new double[m * m];
-            _u = new double[m];
-            for (var a = 0; a < keep; a++) Array.Copy(previousFactor, a * mOld, _factor, a * m, a + 1);
-            var cols = new double[m][];
-            for (var a = 0; a < m; a++) cols[a] = _columns[_set[a]];
-            _setColumns = cols;
-            for (var a = keep; a < m; a++)
-            {
-                var col = cols[a];
-                var ja = _set[a];
-                for (var c = 0; c <= a; c++)
-                {
-                    var sum = 0.5 * (col[_set[c]] + cols[c][ja])
-                        - Dot(_factor.AsSpan(a * m, c), _factor.AsSpan(c * m, c));
-                    if (c == a)
-                    {
-                        if (!(sum > 0))
-                        {
-                            _exact = false;
-                            _set = [];
-                            return;
-                        }
-
-                        _factor[a * m + a] = Math.Sqrt(sum);
-                    }
-                    else
-                    {
-                        _factor[a * m + c] = sum / _factor[c * m + c];
-                    }
-                }
-            }
-
-            _exact = true;
+            _eq = eq;
+            _pre = pre;
+            _options = options;
+            var n = _n = eq.Count;
+            _b = eq.RightHandSide.ToArray();
+            _free = new bool[n];
+            for (var j = 0; j < n; j++) _free[j] = eq.IsFree(j);
+            _x = StartingPoint(start);
+            _gx = new double[n];
+            _g = new double[n];
+            Product(_x, _gx);
+            for (var j = 0; j < n; j++) _g[j] = _gx[j] - _b[j];
+            var bMax = 0.0;
+            for (var j = 0; j < n; j++) bMax = Math.Max(bMax, Math.Abs(_b[j]));
+            _tol = Math.Max(options.Tolerance, options.RelativeTolerance * bMax);
+            _bound = new bool[n];
+            _d = new double[n];
+            _r = new double[n];
+            _z = new double[n];
+            _p = new double[n];
+            _gp = new double[n];
+            _xt = new double[n];
+            _gxt = new double[n];
+            _objective = 0.0;
+            _recent.Enqueue(_objective);
+            _face = new FacePreconditioner(pre, n);
         }
 
-        public void Apply(double[] r, double[] z)
+        private double[] StartingPoint(ReadOnlySpan<double> start)
         {
-            pre.Precondition(r, z);
-            if (!_exact || _set.Length == 0) return;
-            var m = _set.Length;
-            var u = _u;
-            for (var a = 0; a < m; a++) u[a] = z[_set[a]];
-            // w = P_BB⁻¹ u by the two triangular solves
-            for (var a = 0; a < m; a++)
-                u[a] = (u[a] - Dot(_factor.AsSpan(a * m, a), u.AsSpan(0, a))) / _factor[a * m + a];
+            var n = _n;
+            var x = new double[n];
+            if (start.Length == n)
+                for (var j = 0; j < n; j++) x[j] = _free[j] ? start[j] : Math.Max(0, start[j]);
 
-            // the transposed solve by rows of the factor (contiguous): once u[a] is final, its part leaves the earlier ones
-            for (var a = m - 1; a >= 0; a--)
+            else
             {
-                u[a] /= _factor[a * m + a];
-                Axpy(-u[a], _factor.AsSpan(a * m, a), u.AsSpan(0, a));
+                // cold start: the free entries (backgrounds) at their own optimum with the spectrum at zero, so that the first
+                // Newton system's residual is the spectrum's alone
+                for (var j = 0; j < n; j++)
+                {
+                    if (!_free[j]) continue;
+                    _eq.Column(j, [], Span<double>.Empty, out var diagonal);
+                    if (diagonal > 0) x[j] = _b[j] / diagonal;
+                }
             }
 
-            var cols = _setColumns;
-            for (var a = 0; a < m; a++)
+            return x;
+        }
+
+        private void Product(double[] v, double[] result)
+        {
+            _eq.Multiply(v, result);
+            _products++;
+        }
+
+        // g = Gx − b is kept with gx, so the violation is the one every solver's final check uses
+        private double Violation() => NnlsResult.KktViolationOf(_b, _gx, _x, _free).Violation;
+
+        public NnlsResult Solve(string preconditionerName)
+        {
+            SolverStatus status;
+            string message;
+            while (true)
             {
-                var w = u[a];
-                if (w == 0) continue;
-                Axpy(-w, cols[a], z);
+                var violation = Violation();
+                if (DenseNnls.StopsBeforeIteration(double.IsFinite(violation), violation, _tol, _iterations, _products, _options,
+                        out status, out message)) break;
+                _iterations++;
+                var rMax = SetBoundAndResidual();
+                _face.SetBound(_bound, plain: _stalls > 0);
+                if (rMax > 0) NewtonDirection();
+                SafeguardDownhill();
+                var moved = FirstStepAlongPath();
+                _path.Clear();
+                if (!moved) moved = ProjectedSearch();
+                if (!moved)
+                {
+                    if (++_stalls >= 3)
+                    {
+                        (status, message) = DenseNnls.StalledVerdict(Violation(), _tol, _iterations);
+                        break;
+                    }
+                }
+                else
+                {
+                    _stalls = 0;
+                }
             }
+
+            return Finish(status, message, preconditionerName);
+        }
+
+        /// <summary>The binding set and the right-hand side of the face's Newton system (d cleared); returns max |r|.</summary>
+        private double SetBoundAndResidual()
+        {
+            var rMax = 0.0;
+            for (var j = 0; j < _n; j++)
+            {
+                // the first step ignores the bounds (an unconstrained Newton step, projected by the search): from a cold
+                // start every entry is at zero and the binding set would be every bin with a positive gradient
+                _bound[j] = _iterations > 1 && !_free[j] && _x[j] <= 0 && _g[j] > 0;
+                _r[j] = _bound[j] ? 0 : -_g[j];
+                rMax = Math.Max(rMax, Math.Abs(_r[j]));
+                _d[j] = 0;
+            }
+
+            return rMax;
+        }
+
+        private void PreconditionOnFace()
+        {
+            _face.Apply(_r, _z);
+            for (var j = 0; j < _n; j++) if (_bound[j]) _z[j] = 0;
+        }
+
+        /// <summary>Preconditioned conjugate gradients on G_FF d = −g_F (the first iteration's iterates kept on the path).</summary>
+        private void NewtonDirection()
+        {
+            var n = _n;
+            var (d, r, z, p, gp, bound) = (_d, _r, _z, _p, _gp, _bound);
+            var stop = 0.1 * _tol;
+            PreconditionOnFace();
+            Array.Copy(z, p, n);
+            var rz = 0.0;
+            for (var j = 0; j < n; j++) rz += r[j] * z[j];
+            var rz0 = rz;
+            var maxSteps = _face.Exact ? _options.MaxCgSteps : Math.Min(_options.MaxCgSteps, RestrictedCgSteps);
+            for (var k = 0; k < maxSteps && rz > 0 && _products < _options.MaxProducts; k++)
+            {
+                Product(p, gp);
+                _cgSteps++;
+                var pAp = 0.0;
+                for (var j = 0; j < n; j++)
+                {
+                    if (bound[j]) gp[j] = 0;
+                    pAp += p[j] * gp[j];
+                }
+
+                if (!(pAp > 0)) break;
+                var a = rz / pAp;
+                var norm = 0.0;
+                for (var j = 0; j < n; j++)
+                {
+                    d[j] += a * p[j];
+                    r[j] -= a * gp[j];
+                    norm = Math.Max(norm, Math.Abs(r[j]));
+                }
+
+                if (_iterations == 1) _path.Add((double[])d.Clone());
+                if (norm <= stop) break;
+                PreconditionOnFace();
+                var rzNew = 0.0;
+                for (var j = 0; j < n; j++) rzNew += r[j] * z[j];
+                if (rzNew <= Forcing * Forcing * rz0) break;
+                var beta = rzNew / rz;
+                rz = rzNew;
+                for (var j = 0; j < n; j++) p[j] = z[j] + beta * p[j];
+            }
+        }
+
+        /// <summary>
+        /// A direction that is not downhill on the face (rounding in the face preconditioner's Schur complement can make it
+        /// indefinite when the bound block is ill-conditioned) is replaced by the preconditioned gradient with the plain
+        /// restriction, which is downhill.
+        /// </summary>
+        private void SafeguardDownhill()
+        {
+            var n = _n;
+            var downhill = 0.0;
+            for (var j = 0; j < n; j++) if (!_bound[j]) downhill += _g[j] * _d[j];
+            if (downhill < 0) return;
+            for (var j = 0; j < n; j++) _r[j] = _bound[j] ? 0 : -_g[j];
+            _pre.Precondition(_r, _d);
+            for (var j = 0; j < n; j++) if (_bound[j]) _d[j] = 0;
+            _safeguards++;
+        }
+
+        /// <summary>
+        /// The first step: the unconstrained Newton system's conjugate-gradient iterates d₁, d₂, … are tried in turn,
+        /// projected, and the best of them kept (the search stops at the first that is worse than the best so far). On the
+        /// broadband benchmark problems the converged unconstrained minimiser oscillates (from 8k × 2k on, 40–90 % of its
+        /// bins negative), because directions the data hardly see are held only by the smoothness weight; its projection
+        /// then starts the method with hundreds of bins at zero that take tens of steps to release. The early iterates
+        /// carry the well-determined part of the solution and project with few zeros (4k: 32, 8k: 85, 16k: 1 instead of
+        /// 32, 2 000 and 742). True when the iterate moved.
+        /// </summary>
+        private bool FirstStepAlongPath()
+        {
+            if (_path.Count <= 1) return false;
+            var n = _n;
+            var bestChange = 0.0;
+            var bestX = new double[n];
+            var bestGx = new double[n];
+            var found = false;
+            foreach (var step in _path)
+            {
+                for (var j = 0; j < n; j++)
+                {
+                    var v = _x[j] + step[j];
+                    _xt[j] = !_free[j] && v < 0 ? 0 : v;
+                }
+
+                Product(_xt, _gxt);
+                var change = QuadraticChange();
+                if (!double.IsFinite(change)) break;
+                if (change < bestChange)
+                {
+                    bestChange = change;
+                    (bestX, _xt) = (_xt, bestX);
+                    (bestGx, _gxt) = (_gxt, bestGx);
+                    found = true;
+                }
+                else if (found)
+                {
+                    break;
+                }
+            }
+
+            if (!found) return false;
+            (_x, bestX) = (bestX, _x);
+            (_gx, bestGx) = (bestGx, _gx);
+            for (var j = 0; j < n; j++) _g[j] = _gx[j] - _b[j];
+            // the memory of the non-monotone test starts here: the cold start's objective lies far above
+            _objective += bestChange;
+            _recent.Clear();
+            _recent.Enqueue(_objective);
+            return true;
+        }
+
+        /// <summary>The exact change of the quadratic from x to xt: ½ (g(x) + g(xt))ᵀ (xt − x).</summary>
+        private double QuadraticChange()
+        {
+            var change = 0.0;
+            for (var j = 0; j < _n; j++) change += 0.5 * (_g[j] + _gxt[j] - _b[j]) * (_xt[j] - _x[j]);
+            return change;
+        }
+
+        /// <summary>
+        /// Projected search along d: x(α) = P(x + α d), a non-monotone Armijo test on the exact change of the quadratic
+        /// against the largest of the last SearchMemory objectives: with a monotone test, steps that clip a few small bins
+        /// and raise the objective slightly were cut back to α = 2⁻² … 2⁻¹⁰ for tens of steps at 8k and 16k. True when the
+        /// iterate moved.
+        /// </summary>
+        private bool ProjectedSearch()
+        {
+            var n = _n;
+            var alpha = 1.0;
+            var reference = _recent.Max();
+            for (var trial = 0; trial < 40 && _products < _options.MaxProducts + 40; trial++)
+            {
+                var slope = 0.0;
+                for (var j = 0; j < n; j++)
+                {
+                    var v = _x[j] + alpha * _d[j];
+                    if (!_free[j] && v < 0) v = 0;
+                    _xt[j] = v;
+                    slope += _g[j] * (v - _x[j]);
+                }
+
+                if (double.IsNaN(slope)) break;
+                // the projection can turn the step's first-order change uphill (entries that the Newton step pushes far below
+                // zero); the full step is still tried, since its exact change may be a decrease, and shorter steps clip fewer
+                // entries and are downhill for α small enough (Bertsekas 1982)
+                if (!(slope < 0) && trial > 0)
+                {
+                    alpha *= 0.5;
+                    continue;
+                }
+
+                Product(_xt, _gxt);
+                // the change of a quadratic is exactly ½ (g(x) + g(x + Δ))ᵀ Δ
+                var change = QuadraticChange();
+                if (!double.IsFinite(change)) break;
+                if (_objective + change < reference && _objective + change <= reference + Armijo * Math.Min(slope, 0))
+                {
+                    _objective += change;
+                    _recent.Enqueue(_objective);
+                    if (_recent.Count > SearchMemory) _recent.Dequeue();
+                    (_x, _xt) = (_xt, _x);
+                    (_gx, _gxt) = (_gxt, _gx);
+                    for (var j = 0; j < n; j++) _g[j] = _gx[j] - _b[j];
+                    return true;
+                }
+
+                alpha *= 0.5;
+            }
+
+            return false;
+        }
+
+        /// <summary>KKT check on the returned point with a fresh product (the same definition as the active-set solver).</summary>
+        private NnlsResult Finish(SolverStatus status, string message, string preconditionerName)
+        {
+            Product(_x, _gx);
+            var (kkt, activeCount) = NnlsResult.KktViolationOf(_b, _gx, _x, _free);
+            if (status == SolverStatus.Converged && kkt > _tol)
+            {
+                status = SolverStatus.IterationLimit;
+                message = $"KKT violation {kkt:G3} on the final check exceeds the tolerance {_tol:G3}";
+            }
+
+            return new NnlsResult(_x, _iterations, 0, status,
+                $"{message} (projected Newton, {preconditionerName} preconditioner; {_iterations} Newton steps, {_cgSteps} conjugate-gradient steps, {_products} products G x{(_safeguards > 0 ? $", {_safeguards} gradient steps as safeguard" : "")})",
+                kkt, activeCount)
+            {
+                Method = NnlsMethod.Dense,
+                Products = _products,
+                Tolerance = _tol,
+            };
         }
     }
 }

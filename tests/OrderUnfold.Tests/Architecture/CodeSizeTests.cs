@@ -16,27 +16,12 @@ public sealed class CodeSizeTests
     public const int MaxFileLines = 600;
     public const int MaxMemberLines = 80;
 
-    /// <summary>
-    /// Known offenders still to be split, each held to its present size so that it cannot grow: the dense NNLS solvers
-    /// (issue 15's projected Newton method and its gradient-projection fallback, and the Toeplitz preconditioner's
-    /// Durbin recursions). Remove an entry when its split lands; the list must end empty.
-    /// </summary>
-    private static readonly Dictionary<string, int> NotYetSplit = new(StringComparer.Ordinal)
-    {
-        ["ProjectedNewtonNnls.Solve"] = 306,
-        ["DenseNnls.SolveByGradientProjection"] = 267,
-        ["ToeplitzPreconditioner.InverseFirstColumnVector"] = 116,
-        ["FacePreconditioner.SetBound"] = 101,
-        ["ToeplitzPreconditioner.InverseFirstColumnScalar"] = 81,
-        ["src/OrderUnfold.Methods/Inversion/ToeplitzPreconditioner.cs"] = 677,
-    };
-
     [Fact]
     public void No_source_file_is_longer_than_the_limit()
     {
         var offences = SourceFiles()
             .Select(f => (File: f, Lines: File.ReadAllLines(f).Length))
-            .Where(x => x.Lines > (NotYetSplit.TryGetValue(Relative(x.File).Replace('\\', '/'), out var held) ? held : MaxFileLines))
+            .Where(x => x.Lines > MaxFileLines)
             .Select(x => $"{Relative(x.File)}: {x.Lines} lines")
             .ToList();
         Assert.True(offences.Count == 0, $"files over {MaxFileLines} lines:\n" + string.Join("\n", offences));
@@ -46,7 +31,7 @@ public sealed class CodeSizeTests
     public void No_member_is_longer_than_the_limit()
     {
         var offences = SourceFiles().SelectMany(MemberLengths)
-            .Where(x => x.Lines > (NotYetSplit.TryGetValue(x.Name, out var held) ? held : MaxMemberLines))
+            .Where(x => x.Lines > MaxMemberLines)
             .OrderByDescending(x => x.Lines)
             .Select(x => $"{x.Where}: {x.Name} {x.Lines} lines")
             .ToList();
