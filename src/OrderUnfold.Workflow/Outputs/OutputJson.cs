@@ -28,7 +28,7 @@ public sealed class SnakeCaseEnumConverter<T>() : JsonStringEnumConverter<T>(Jso
 [JsonSerializable(typeof(CalibrationFileRecord))]
 [JsonSerializable(typeof(CalibrationReportRecord))]
 [JsonSerializable(typeof(ModesReport))]
-[JsonSerializable(typeof(Pipeline.Batch.ItemRecordFile))]
+[JsonSerializable(typeof(Pipeline.Batch.ItemRecord))]
 [JsonSerializable(typeof(Pipeline.Batch.BatchStatusFile))]
 public sealed partial class OutputJsonContext : JsonSerializerContext;
 

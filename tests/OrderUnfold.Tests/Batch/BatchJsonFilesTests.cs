@@ -3,7 +3,7 @@ using Xunit;
 
 namespace OrderUnfold.Tests.Batch;
 
-/// <summary>done.json and batch.json go through typed records (<see cref="ItemRecordFile"/>, <see cref="BatchStatusFile"/>)
+/// <summary>done.json and batch.json go through typed records (<see cref="ItemRecord"/>, <see cref="BatchStatusFile"/>)
 /// like every other JSON output.</summary>
 public sealed class BatchJsonFilesTests : IDisposable
 {

@@ -1,4 +1,5 @@
 using System.Text.Json;
+using System.Text.Json.Serialization;
 using OrderUnfold.Io;
 using OrderUnfold.Outputs;
 
@@ -20,8 +21,19 @@ public enum ItemStatus
 /// </summary>
 public sealed record ItemRecord
 {
-    public const string Format = "orderunfold-batch-item";
-    public const int Version = 1;
+    /// <summary>The <c>format</c> every done.json carries.</summary>
+    public const string FormatName = "orderunfold-batch-item";
+
+    /// <summary>The <c>version</c> of this layout; a record of another version counts as not done.</summary>
+    public const int CurrentVersion = 1;
+
+    /// <summary>Always <see cref="FormatName"/> (first in the file).</summary>
+    [JsonPropertyOrder(-2)]
+    public string Format { get; init; } = FormatName;
+
+    /// <summary>Always <see cref="CurrentVersion"/> when written by this build.</summary>
+    [JsonPropertyOrder(-1)]
+    public int Version { get; init; } = CurrentVersion;
 
     /// <summary>Folder name (the id, or <c>@line-NNNNNNN</c> for a row whose id was not accepted).</summary>
     public required string Id { get; init; }
@@ -64,24 +76,16 @@ public sealed record ItemRecord
     /// <summary>Values from the <see cref="IItemAnalysis"/>, by column name.</summary>
     public IReadOnlyDictionary<string, string> Analysis { get; init; } = new Dictionary<string, string>();
 
-    /// <summary>The record as JSON text (done.json: <see cref="ItemRecordFile"/>).</summary>
-    public string ToJson() => OutputJson.Serialize(new ItemRecordFile
+    /// <summary>The record as JSON text (done.json), through the outputs' serialiser: no NaN (null instead), seconds to
+    /// 0.1 ms, the analysis values in ordinal key order.</summary>
+    public string ToJson() => OutputJson.Serialize(this with
     {
-        Id = Id,
-        Key = Key,
-        Status = Status,
-        ManifestLine = ManifestLine,
-        Timestamp = Timestamp,
-        Lines = Lines,
         StrongestLineHz = OutputJson.Finite(StrongestLineHz),
         FrameFsrHz = OutputJson.Finite(FrameFsrHz),
-        OrdersResolved = OrdersResolved,
         ReducedChi2 = OutputJson.Finite(ReducedChi2),
-        Warnings = Warnings,
         Seconds = Math.Round(Seconds, 4),
-        Error = Error,
         Analysis = new SortedDictionary<string, string>(Analysis.ToDictionary(p => p.Key, p => p.Value), StringComparer.Ordinal),
-    }, c => c.ItemRecordFile);
+    }, c => c.ItemRecord);
 
     /// <summary>Writes the record atomically (or, with <paramref name="staged"/>, into a staging folder published as a whole).</summary>
     public void Write(string path, bool staged = false) => AtomicFile.WriteAllText(path, ToJson(), staged);
@@ -103,25 +107,8 @@ public sealed record ItemRecord
     /// <summary>Parses record text; throws on anything that is not a record of this version.</summary>
     public static ItemRecord Parse(string json)
     {
-        var o = JsonSerializer.Deserialize(json, OutputJson.Context.ItemRecordFile) ?? throw new FormatException("not a batch item record");
-        if (o.Format != Format || o.Version != Version) throw new FormatException("not a batch item record of this version");
-        return new ItemRecord
-        {
-            Id = o.Id,
-            Key = o.Key,
-            Status = o.Status,
-            ManifestLine = o.ManifestLine,
-            Timestamp = o.Timestamp,
-            Lines = o.Lines,
-            StrongestLineHz = o.StrongestLineHz,
-            FrameFsrHz = o.FrameFsrHz,
-            OrdersResolved = o.OrdersResolved,
-            ReducedChi2 = o.ReducedChi2,
-            Warnings = o.Warnings,
-            Seconds = o.Seconds,
-            Error = o.Error,
-            Analysis = new Dictionary<string, string>(o.Analysis, StringComparer.Ordinal),
-        };
+        var o = JsonSerializer.Deserialize(json, OutputJson.Context.ItemRecord) ?? throw new FormatException("not a batch item record");
+        if (o.Format != FormatName || o.Version != CurrentVersion) throw new FormatException("not a batch item record of this version");
+        return o;
     }
-
 }
