@@ -189,8 +189,7 @@ public static class NoiseEstimator
         var q = gaps.Min();
         if (!(q > 0) || (distinct[^1] - distinct[0]) / q > (1 << 20)) return null;
         // rounding in the export makes equal steps differ in the last digits: take the median of the near-smallest gaps
-        var small = gaps.Where(g => g < 1.5 * q).OrderBy(g => g).ToArray();
-        q = small[small.Length / 2];
+        q = Medians.Upper(gaps.Where(g => g < 1.5 * q));
         var onGrid = gaps.Count(g => Math.Abs(g / q - Math.Round(g / q)) < 0.05);
         return onGrid >= 0.95 * gaps.Length ? q : null;
     }

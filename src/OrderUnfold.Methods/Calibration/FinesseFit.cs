@@ -262,7 +262,7 @@ public static class FinesseFit
         } while (grown && chain.Count <= 8);
 
         if (chain.Count > 8) return null;
-        var fwhm = chain.Select(c => c.Fwhm).OrderBy(v => v).ElementAt(chain.Count / 2);
+        var fwhm = Medians.Upper(chain.Select(c => c.Fwhm));
         var lo = chain.Min(c => c.F) - HalfWindowFwhm * fwhm;
         var hi = chain.Max(c => c.F) + HalfWindowFwhm * fwhm;
         if (hi - lo > 0.9 * periodHz || lo < freq.Min() || hi > freq.Max()) return null;

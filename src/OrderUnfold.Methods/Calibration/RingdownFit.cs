@@ -265,8 +265,7 @@ public static class RingdownFit
     private static double Edge(double[] w)
     {
         var k = Math.Max(2, w.Length / 8);
-        var values = w.Take(k).Concat(w.Skip(w.Length - k)).OrderBy(v => v).ToArray();
-        return values[values.Length / 2];
+        return Medians.Upper(w.Take(k).Concat(w.Skip(w.Length - k)));
     }
 
     /// <summary>Sub-sample position of a maximum by a three-point parabola.</summary>

@@ -237,8 +237,7 @@ public static class Unfolder
             norms.Add(probe.ColumnNormSquared(j));
         }
 
-        norms.Sort();
-        var median = norms[norms.Count / 2];
+        var median = Medians.Upper(norms);
         var lambda = options.Sparsity * Math.Sqrt(median);
         var mu = options.Smoothness * median;
         return probe.WithPenalties(lambda, mu);

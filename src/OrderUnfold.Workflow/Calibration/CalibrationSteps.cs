@@ -263,8 +263,8 @@ public static class CalibrationSteps
             var families = decided.SelectMany(d => d.Families).GroupBy(f => f.N).OrderBy(g => g.Key)
                 .Select(g =>
                 {
-                    var off = g.Select(f => f.GouyOffsetFsr).OrderBy(v => v).ElementAt(g.Count() / 2);
-                    var h = g.Select(f => f.RelativeHeight).OrderBy(v => v).ElementAt(g.Count() / 2);
+                    var off = Medians.Upper(g.Select(f => f.GouyOffsetFsr));
+                    var h = Medians.Upper(g.Select(f => f.RelativeHeight));
                     return new CavityModeFamily(g.Key, off, h, g.First().Basis);
                 }).ToList();
             if (families.Count > 0)

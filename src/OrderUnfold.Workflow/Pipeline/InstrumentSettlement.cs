@@ -42,7 +42,7 @@ internal static class InstrumentSettlement
         if (withFinesse.Any(c => !c.FromRepeats)) withFinesse = withFinesse.Where(c => !c.FromRepeats).ToList();
         var measured = withFinesse.Select(c => c.Finesse!.Value).ToList();
         if (measured.Count == 0) return inst;
-        var f = measured.OrderBy(v => v).ElementAt(measured.Count / 2);
+        var f = Medians.Upper(measured);
         if (fixFinesse)
         {
             // the stated value is kept, as asked; but a fit with a linewidth the peaks contradict explains every line

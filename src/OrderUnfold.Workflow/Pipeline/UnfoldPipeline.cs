@@ -124,7 +124,7 @@ public static class UnfoldPipeline
         if (y.Count < 16) return null;
         var sorted = y.Where(double.IsFinite).OrderBy(v => v).ToArray();
         if (sorted.Length < 16) return null;
-        double min = sorted[0], max = sorted[^1], median = sorted[sorted.Length / 2];
+        double min = sorted[0], max = sorted[^1], median = Medians.Upper(sorted);
         var sigma = NoiseEstimator.FirstDifferenceSigma(y.ToArray());
         var down = median - min;
         var up = max - median;

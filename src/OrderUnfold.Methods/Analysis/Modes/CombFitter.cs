@@ -63,12 +63,11 @@ internal static class CombFitter
         var missing = Enumerable.Range(kMin, kMax - kMin + 1).Where(x => !present.Contains(x)).ToList();
         var rms = Math.Sqrt(fit.Residuals.Average(r => r * r));
         var maxAbs = fit.Residuals.Max(Math.Abs);
-        var tolerances = members.Select(i => m.Tolerance[i]).OrderBy(t => t).ToArray();
 
         var originOut = fold is { } ff ? FoldArithmetic.Mod(a, ff) : a;
         var comb = new CombFit(b, fit.Sigma(1), originOut, fit.Sigma(0), fit.Cov(0, 1), kMin, kMax, members.Count, missing,
             rms, maxAbs, fit.ReducedChiSquared, fit.Basis, changePerMode, changeSigma, fold is not null,
-            tolerances[tolerances.Length / 2]);
+            Medians.Upper(members.Select(i => m.Tolerance[i])));
         var state = new CombState(k, residual, fit.Cov(0, 0) ?? double.NaN, fit.Cov(1, 1) ?? double.NaN, fit.Cov(0, 1) ?? double.NaN);
         return (comb, state);
     }

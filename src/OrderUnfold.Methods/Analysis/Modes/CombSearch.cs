@@ -146,8 +146,8 @@ public sealed class CombSearch
 
     private double MinStep()
     {
-        var sig = _pts.Where(p => p.Sigma is > 0).Select(p => p.Sigma!.Value).OrderBy(s => s).ToArray();
-        var fromSigma = sig.Length > 0 ? 6 * sig[sig.Length / 2] : 0;
+        var sig = _pts.Where(p => p.Sigma is > 0).Select(p => p.Sigma!.Value).ToArray();
+        var fromSigma = sig.Length > 0 ? 6 * Medians.Upper(sig) : 0;
         double floor;
         if (_fold is { } f) floor = f * 1e-4;
         else
