@@ -237,22 +237,9 @@ public static class RingdownFit
     /// <summary>A + b by linear least squares of y ≈ A·model + b; returns A, b and the (unwhitened) χ².</summary>
     private static (double A, double B, double Chi) Linear(double[] y, double[] model)
     {
-        var m = y.Length;
-        double sx = 0, sy = 0, sxx = 0, sxy = 0;
-        for (var i = 0; i < m; i++)
-        {
-            sx += model[i];
-            sy += y[i];
-            sxx += model[i] * model[i];
-            sxy += model[i] * y[i];
-        }
-
-        var det = m * sxx - sx * sx;
-        if (!(Math.Abs(det) > 0)) return (0, sy / m, double.PositiveInfinity);
-        var a = (m * sxy - sx * sy) / det;
-        var b = (sy - a * sx) / m;
+        if (!GainFit.TryFit(model, y, out var a, out var b)) return (0, b, double.PositiveInfinity);
         var chi = 0.0;
-        for (var i = 0; i < m; i++)
+        for (var i = 0; i < y.Length; i++)
         {
             var r = y[i] - a * model[i] - b;
             chi += r * r;

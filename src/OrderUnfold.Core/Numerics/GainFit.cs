@@ -1,4 +1,4 @@
-namespace OrderUnfold.Inversion;
+namespace OrderUnfold.Numerics;
 
 /// <summary>Least-squares fit of a sweep to a model shape: y ≈ g·a + b (one gain and one background).</summary>
 public static class GainFit
