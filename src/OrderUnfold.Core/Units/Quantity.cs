@@ -131,7 +131,8 @@ public static partial class Quantity
         _ => "level in dB",
     };
 
-    private static string Example(Dimension d) => d switch
+    /// <summary>A value of dimension <paramref name="d"/> written with its unit, for messages ("1.5 GHz", "50 mm").</summary>
+    public static string Example(Dimension d) => d switch
     {
         Dimension.Frequency => "1.5 GHz",
         Dimension.Length => "50 mm",

@@ -167,7 +167,7 @@ internal sealed class SetupTomlTable
                 text = RawText(value);
                 break;
             default:
-                throw At(File, (SyntaxNodeBase?)value ?? Header, $"{what} must be a string with a unit, such as \"{Example(dimension)}\", but got {Describe(value)}");
+                throw At(File, (SyntaxNodeBase?)value ?? Header, $"{what} must be a string with a unit, such as \"{Units.Quantity.Example(dimension)}\", but got {Describe(value)}");
         }
 
         if (!Units.Quantity.TryParse(text, dimension, out var v, out var error))
@@ -215,14 +215,5 @@ internal sealed class SetupTomlTable
         InlineTableSyntax => "an inline table",
         DateTimeValueSyntax => $"{RawText(value)} (a date/time)",
         _ => RawText(value),
-    };
-
-    private static string Example(Dimension d) => d switch
-    {
-        Dimension.Frequency => "1.5 GHz",
-        Dimension.Length => "50 mm",
-        Dimension.Time => "2 ns",
-        Dimension.Voltage => "10 V",
-        _ => "30 dB",
     };
 }
