@@ -87,14 +87,7 @@ public class UnfoldScalingBenchmarks
             var lambda = c.L1Weight(grid);
             var problem = new UnfoldProblem(c.Sweeps, grid, c.OffsetsHz, c.Gains, lambda, 0, c.PeriodicStepHz(grid));
             var options = new ActiveSetNnls.Options { Tolerance = 1e-3 * lambda, MaxIterations = 5000 };
-            double Objective(double[] x)
-            {
-                var gx = new double[x.Length];
-                problem.Multiply(x, gx);
-                var f = 0.0;
-                for (var j = 0; j < x.Length; j++) f += 0.5 * x[j] * gx[j] - problem.RightHandSide[j] * x[j];
-                return f;
-            }
+            double Objective(double[] x) => NnlsResult.ObjectiveOf(problem, x);
 
             NnlsResult Timed(ActiveSetNnls.Options o, out double cpu)
             {

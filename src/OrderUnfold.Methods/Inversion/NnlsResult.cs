@@ -42,6 +42,18 @@ public sealed record NnlsResult(double[] Solution, int Iterations, int Removals,
     /// <see cref="ActiveSetNnls.Options.MaxActiveCount"/>).</summary>
     public bool HandedOver { get; init; }
 
+    /// <summary>The objective ½ xᵀGx − bᵀx of <paramref name="eq"/> at <paramref name="x"/> (one product G x), to compare
+    /// two solutions of the same problem.</summary>
+    public static double ObjectiveOf(INormalEquations eq, double[] x)
+    {
+        var gx = new double[x.Length];
+        eq.Multiply(x, gx);
+        var b = eq.RightHandSide;
+        var f = 0.0;
+        for (var j = 0; j < x.Length; j++) f += 0.5 * x[j] * gx[j] - b[j] * x[j];
+        return f;
+    }
+
     /// <summary>
     /// The KKT violation of a point x of ½ xᵀGx − bᵀx subject to x ≥ 0 (free entries unconstrained), from its gradient
     /// b − Gx: the largest |gradient| over free or positive entries and the largest positive gradient over entries at zero;

@@ -165,14 +165,7 @@ public class RealisticKktTests(ITestOutputHelper output)
         Assert.Equal(SolverStatus.Converged, working.Status);
         Assert.True(working.KktViolation <= options.Tolerance, $"KKT violation {working.KktViolation:G3}");
 
-        double Objective(double[] x)
-        {
-            var gx = new double[x.Length];
-            problem.Multiply(x, gx);
-            var f = 0.0;
-            for (var j = 0; j < x.Length; j++) f += 0.5 * x[j] * gx[j] - problem.RightHandSide[j] * x[j];
-            return f;
-        }
+        double Objective(double[] x) => NnlsResult.ObjectiveOf(problem, x);
 
         var f1 = Objective(classic.Solution);
         var f2 = Objective(working.Solution);
