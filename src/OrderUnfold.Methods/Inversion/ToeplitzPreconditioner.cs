@@ -93,7 +93,7 @@ public sealed class ToeplitzPreconditioner : INormalPreconditioner, INormalPreco
         }
 
         var t = BuildSymbol(problem);
-        var x = InverseFirstColumn(t);
+        var x = ToeplitzRecursions.InverseFirstColumn(t);
         if (x is null)
         {
             reason = "Toeplitz approximation not numerically positive definite";
@@ -192,16 +192,6 @@ public sealed class ToeplitzPreconditioner : INormalPreconditioner, INormalPreco
         if (n > 1) t[1] -= mu;
         return t;
     }
-
-    /// <summary>x = T⁻¹e₀ for the symmetric Toeplitz matrix with first column t, by Durbin's recursion in double-double
-    /// arithmetic (<see cref="ToeplitzRecursions.InverseFirstColumn"/>); null when T is not numerically positive definite.</summary>
-    internal static double[]? InverseFirstColumn(double[] t) => ToeplitzRecursions.InverseFirstColumn(t);
-
-    /// <summary><see cref="InverseFirstColumn"/> with one double-double operation at a time.</summary>
-    internal static double[]? InverseFirstColumnScalar(double[] t) => ToeplitzRecursions.InverseFirstColumnScalar(t);
-
-    /// <summary><see cref="InverseFirstColumn"/> with four double-double operations at a time (AVX2 with fused multiply-add).</summary>
-    internal static double[]? InverseFirstColumnVector(double[] t) => ToeplitzRecursions.InverseFirstColumnVector(t);
 
     /// <summary>z = T⁻¹ r on the grid block (length n each), by the Gohberg–Semencul formula with four FFTs.</summary>
     public void ApplyToeplitzInverse(ReadOnlySpan<double> r, Span<double> z)

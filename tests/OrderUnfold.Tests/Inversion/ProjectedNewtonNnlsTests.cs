@@ -50,7 +50,7 @@ public class ProjectedNewtonNnlsTests
         var n = 40;
         var t = Enumerable.Range(0, n).Select(d => d == 0 ? 0.0 : Math.Exp(-d / 4.0) * Math.Cos(0.7 * d)).ToArray();
         t[0] = 1 + 2 * t.Sum(Math.Abs);
-        var x = ToeplitzPreconditioner.InverseFirstColumn(t)!;
+        var x = ToeplitzRecursions.InverseFirstColumn(t)!;
         for (var i = 0; i < n; i++)
         {
             var s = 0.0;
@@ -59,7 +59,7 @@ public class ProjectedNewtonNnlsTests
         }
 
         // an indefinite one is refused
-        Assert.Null(ToeplitzPreconditioner.InverseFirstColumn([1.0, 1.5, 0.2]));
+        Assert.Null(ToeplitzRecursions.InverseFirstColumn([1.0, 1.5, 0.2]));
     }
 
     [Fact]
@@ -71,17 +71,17 @@ public class ProjectedNewtonNnlsTests
         foreach (var size in new[] { 2, 3, 4, 5, 6, 9, 37, t.Length })
         {
             var section = t[..size];
-            var scalar = ToeplitzPreconditioner.InverseFirstColumnScalar(section);
+            var scalar = ToeplitzRecursions.InverseFirstColumnScalar(section);
             Assert.NotNull(scalar);
             if (!(System.Runtime.Intrinsics.X86.Fma.IsSupported && System.Runtime.Intrinsics.Vector256.IsHardwareAccelerated)) continue;
-            var vector = ToeplitzPreconditioner.InverseFirstColumnVector(section);
+            var vector = ToeplitzRecursions.InverseFirstColumnVector(section);
             Assert.NotNull(vector);
             var scale = scalar!.Max(Math.Abs);
             for (var i = 0; i < size; i++)
                 Assert.True(Math.Abs(vector![i] - scalar[i]) <= 1e-12 * scale, $"size {size}, entry {i}: {vector[i]:R} against {scalar[i]:R}");
         }
 
-        Assert.Null(ToeplitzPreconditioner.InverseFirstColumnVector([1.0, 1.5, 0.2]));
+        Assert.Null(ToeplitzRecursions.InverseFirstColumnVector([1.0, 1.5, 0.2]));
     }
 
     [Fact]
