@@ -80,6 +80,16 @@ internal static class Figure
         return stream.ToArray();
     }
 
+    /// <summary>Renders a model to an SVG element for inline use in an HTML page: OxyPlot's SVG exporter writes the text as
+    /// text (selectable, searchable), measured by the same SkiaSharp text measurer as the PNG so that labels are placed as
+    /// in the PNG. The XML prolog is dropped and the fixed size becomes a view box (<see cref="InlineSvg"/>).</summary>
+    public static string RenderSvg(PlotModel model, int width, int height)
+    {
+        using var measurer = new OxyPlot.SkiaSharp.SkiaRenderContext { RenderTarget = OxyPlot.SkiaSharp.RenderTarget.VectorGraphic };
+        var exporter = new OxyPlot.SvgExporter { Width = width, Height = height, IsDocument = false, TextMeasurer = measurer };
+        return InlineSvg.FromDocument(exporter.ExportToString(model), width, height, model.Title);
+    }
+
     /// <summary>Renders a model to PNG and writes it atomically (its folder is created if needed).</summary>
     public static void Save(string path, PlotModel model, (int Width, int Height) size)
     {

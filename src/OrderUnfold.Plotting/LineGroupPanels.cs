@@ -134,12 +134,28 @@ internal static class LineGroupPanels
         return mhz > 0.0005 ? "+" + text : text;
     }
 
+    /// <summary>The groups drawn: the <see cref="LinePlots.MaxPanels"/> strongest, in frequency order.</summary>
+    private static List<List<UnfoldedLine>> Shown(List<List<UnfoldedLine>> groups) =>
+        groups.OrderByDescending(g => g.Max(l => l.Intensity)).Take(LinePlots.MaxPanels).OrderBy(g => g[0].FrequencyHz).ToList();
+
+    /// <summary>The panels of <see cref="Render"/> as separate models (for report.html, where the page lays them out).</summary>
+    public static IReadOnlyList<PlotModel> Panels(UnfoldResult r, double linewidthHz)
+    {
+        var shown = Shown(Groups(r.Lines));
+        return shown.Select((g, i) =>
+        {
+            var panel = BuildPanel(r, g, i + 1, linewidthHz);
+            panel.IsLegendVisible = true; // no composed header here: each panel carries its legend
+            return panel;
+        }).ToList();
+    }
+
     /// <summary>Renders up to <see cref="LinePlots.MaxPanels"/> group panels (strongest groups first, shown in frequency order) on a
     /// grid of at most three columns under a header line, composed with SkiaSharp.</summary>
     public static byte[] Render(UnfoldResult r, double linewidthHz)
     {
         var groups = Groups(r.Lines);
-        var shown = groups.OrderByDescending(g => g.Max(l => l.Intensity)).Take(LinePlots.MaxPanels).OrderBy(g => g[0].FrequencyHz).ToList();
+        var shown = Shown(groups);
         var cols = Math.Min(3, shown.Count);
         var rows = (shown.Count + cols - 1) / cols;
         var sub = groups.Count > shown.Count

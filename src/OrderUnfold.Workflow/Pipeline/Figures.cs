@@ -11,11 +11,44 @@ public interface IFigureWriter
     /// into <paramref name="directory"/>; returns the paths written.</summary>
     IReadOnlyList<string> WriteUnfold(UnfoldRun run, string directory);
 
+    /// <summary>The same figures as <see cref="WriteUnfold"/>, as inline SVG for report.html (nothing is written).</summary>
+    IReadOnlyList<SvgFigure> DrawUnfold(UnfoldRun run);
+
+    /// <summary>The track figure as inline SVG (nothing is written).</summary>
+    SvgFigure DrawTrack(TrackPlotInput input);
+
+    /// <summary>The series figure as inline SVG (nothing is written).</summary>
+    SvgFigure DrawSeries(SeriesPlotInput input);
+
     /// <summary>Draws the lines of a batch over time into <paramref name="path"/>.</summary>
     void WriteTrack(string path, TrackPlotInput input);
 
     /// <summary>Draws one value per item over time into <paramref name="path"/>.</summary>
     void WriteSeries(string path, SeriesPlotInput input);
+}
+
+/// <summary>A figure drawn for a web page: an <c>&lt;svg&gt;</c> element (no XML prolog; its text escaped by the
+/// exporter) and what it shows.</summary>
+/// <param name="Caption">What the figure shows, and the PNG file that holds the same figure when plots are written.</param>
+/// <param name="Svg">The element, ready to be placed inline.</param>
+/// <param name="Width">Natural width in CSS pixels (the page shows it no wider, and narrower when the window is).</param>
+/// <param name="Topic">Which part of the report shows it.</param>
+public sealed record SvgFigure(string Caption, string Svg, int Width, FigureTopic Topic = FigureTopic.Other);
+
+/// <summary>Which part of report.html a figure belongs to.</summary>
+public enum FigureTopic
+{
+    /// <summary>Anything without a part of its own (shown where the page's figures go).</summary>
+    Other,
+
+    /// <summary>The spectrum and the lines.</summary>
+    Spectrum,
+
+    /// <summary>One sweep's fit with its residuals.</summary>
+    Sweep,
+
+    /// <summary>The calibration evidence (axis, finesse, peak shape).</summary>
+    Calibration,
 }
 
 /// <summary>Lines of a time series: one point per line per item.</summary>

@@ -2,6 +2,7 @@ using System.Text;
 using OrderUnfold.Inversion;
 using OrderUnfold.Io;
 using OrderUnfold.Outputs;
+using OrderUnfold.Reports;
 
 namespace OrderUnfold.Pipeline;
 
@@ -17,7 +18,7 @@ public static class OutputNames
 /// <summary>Writes an unfold run's report, tables and plots. Every file is written atomically.</summary>
 public static class UnfoldOutputs
 {
-    /// <summary>Writes report.json, lines.csv, spectrum.csv and (when <paramref name="figures"/> is given) the PNGs.
+    /// <summary>Writes report.json, lines.csv, spectrum.csv, report.html and (when <paramref name="figures"/> is given) the PNGs.
     /// Returns the paths written. With <paramref name="staged"/> the directory is a staging folder that is published as a
     /// whole (the batch): the text files are written directly, and flushing them to disk is left to the publisher.</summary>
     public static IReadOnlyList<string> Write(UnfoldRun run, string directory, IFigureWriter? figures, string? toolVersion = null, bool staged = false)
@@ -35,6 +36,8 @@ public static class UnfoldOutputs
         Text(OutputNames.Lines, LinesCsv(run, report));
         Text(OutputNames.Spectrum, SpectrumCsv(run));
         if (figures is not null) written.AddRange(figures.WriteUnfold(run, directory));
+        // the page people open: the same record as report.json, the figures inline as SVG (Reports/UnfoldHtml.cs)
+        written.Add(UnfoldHtml.Write(directory, report, figures?.DrawUnfold(run), staged));
 
         // the report last: its presence means the run's outputs are complete
         Text(OutputNames.Report, OutputJson.Serialize(report, c => c.UnfoldReport));
