@@ -32,6 +32,10 @@ public static class ModePlots
     public static void Save(string path, ModeAnalysis analysis, string title = "Laser modes") =>
         Figure.Save(path, Build(analysis, title), Size);
 
+    /// <summary>The same figure as <see cref="Save"/>, as inline SVG for report.html.</summary>
+    public static Pipeline.SvgFigure Svg(ModeAnalysis analysis, string title = "Laser modes") =>
+        new($"Laser modes: lines, comb and gain envelope ({ModeOutputs.PngFileName})", Figure.RenderSvg(Build(analysis, title), Size.Width, Size.Height), Size.Width);
+
     /// <summary>
     /// Where things go on the mode plot. <see cref="ByFrequency"/>: the horizontal axis is the frequency relative to
     /// the strongest mode (orders resolved, or a folded reading chosen), else the mode index. The power axis runs from

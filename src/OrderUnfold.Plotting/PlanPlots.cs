@@ -92,6 +92,15 @@ public static class PlanPlots
     public static void SaveCandidateMap(string path, CandidateMapInput input) =>
         Figure.Save(path, BuildCandidateMap(input), CandidateMapSize);
 
+    /// <summary>The margin curve as inline SVG for report.html.</summary>
+    public static Pipeline.SvgFigure MarginCurveSvg(MarginCurveInput input) =>
+        new("Alias margin against frequency shift (margin.png)", Figure.RenderSvg(BuildMarginCurve(input), MarginCurveSize.Width, MarginCurveSize.Height), MarginCurveSize.Width);
+
+    /// <summary>The candidate map as inline SVG for report.html.</summary>
+    public static Pipeline.SvgFigure CandidateMapSvg(CandidateMapInput input) =>
+        new("Worst alias margin against the added cavity's length (candidates.png)", Figure.RenderSvg(BuildCandidateMap(input), CandidateMapSize.Width, CandidateMapSize.Height),
+            CandidateMapSize.Width);
+
     internal static PlotModel BuildMarginCurve(MarginCurveInput input)
     {
         ArgumentNullException.ThrowIfNull(input);

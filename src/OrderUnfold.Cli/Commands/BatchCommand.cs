@@ -2,6 +2,7 @@ using System.CommandLine;
 using OrderUnfold.Cli.CommandLine;
 using OrderUnfold.Pipeline.Batch;
 using OrderUnfold.Plotting;
+using OrderUnfold.Reports;
 
 namespace OrderUnfold.Cli.Commands;
 
@@ -98,6 +99,8 @@ internal sealed class BatchCommand : VerbCommand
         Out.WriteLine($"batch{(options.Shard.IsAll ? "" : $" shard {options.Shard}")}: {result.Ok + result.Failed} of {result.Rows} item(s) finished: {result.Ok} ok, {result.Failed} failed, " +
                       $"{result.Skipped} already done; {ran} run in {result.Elapsed.TotalSeconds:F1} s ({rate:F1} items/s, {options.Jobs} job{(options.Jobs == 1 ? "" : "s")})");
         Out.WriteLine($"summary: {result.SummaryPath}");
+        // the whole batch's page (Reports/BatchHtml.cs); a shard's waits for merge, which sees every item
+        if (options.Shard.IsAll && result.Complete) Out.WriteLine($"report: {BatchHtml.Write(Path.GetFullPath(outDir), parse.GetValue(_noPlots) ? null : new FigureWriter(), Cli.Version)}");
         if (!options.Shard.IsAll) Out.WriteLine($"when every shard has finished: {Hint.Command("merge " + Hint.Quote(Path.GetFullPath(outDir)))}");
         if (!result.Complete)
         {

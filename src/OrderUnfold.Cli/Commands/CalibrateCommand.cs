@@ -4,6 +4,7 @@ using OrderUnfold.Cli.CommandLine;
 using OrderUnfold.Io;
 using OrderUnfold.Pipeline;
 using OrderUnfold.Plotting;
+using OrderUnfold.Reports;
 
 namespace OrderUnfold.Cli.Commands;
 
@@ -75,13 +76,18 @@ internal sealed class CalibrateCommand : VerbCommand
         {
             CalibrationFile.Write(Path.Combine(staged.Path, CalibrationReport.CalibrationFileName), set);
             plots = parse.GetValue(_noPlots) ? [] : CalibrationPlots.Write(set.Axes, staged.Path);
-            CalibrationReport.Write(Path.Combine(staged.Path, CalibrationReport.FileName), CalibrationReport.Build(set, stated, warnings, fsr, Cli.Version));
+            var report = CalibrationReport.Build(set, stated, warnings, fsr, Cli.Version);
+            CalibrationReport.Write(Path.Combine(staged.Path, CalibrationReport.FileName), report);
+            // the page people open (Reports/CalibrationHtml.cs): the same record, the figures inline, the inputs hashed
+            var inputs = HtmlPage.Describe([("setup", setupPath), .. setup.Calibrations.Select(c => ("calibration", c.File.Path)),
+                .. setup.Sweeps.Select(s => ("sweep", s.File.Path))]);
+            CalibrationHtml.Build(report, parse.GetValue(_noPlots) ? null : CalibrationPlots.Svg(set.Axes), inputs).Write(staged.Path, Cli.Version, report.CreatedUtc);
             staged.Publish(CalibrationReport.FileName);
         }
 
         PrintCalibration(set, fsr);
         foreach (var w in warnings) Out.WriteLine($"warning: {w}");
-        Out.WriteLine($"outputs: {Path.GetFullPath(outDir)} ({2 + plots.Count} files)");
+        Out.WriteLine($"outputs: {Path.GetFullPath(outDir)} ({3 + plots.Count} files)");
         return ExitCodes.Ok;
     }
 

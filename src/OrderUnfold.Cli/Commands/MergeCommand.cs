@@ -1,6 +1,8 @@
 using System.CommandLine;
 using OrderUnfold.Cli.CommandLine;
 using OrderUnfold.Pipeline.Batch;
+using OrderUnfold.Plotting;
+using OrderUnfold.Reports;
 
 namespace OrderUnfold.Cli.Commands;
 
@@ -31,6 +33,7 @@ internal sealed class MergeCommand : VerbCommand
         Out.WriteLine($"merged {result.Shards} shard(s): {result.Rows} item(s), {result.Ok} ok, {result.Failed} failed" +
                       (result.CopiedItems > 0 ? $"; {result.CopiedItems} item folder(s) copied" : ""));
         Out.WriteLine($"summary: {result.SummaryPath}");
+        Out.WriteLine($"report: {BatchHtml.Write(Path.GetDirectoryName(result.SummaryPath)!, new FigureWriter(), Cli.Version)}");
         return result.Failed > 0 ? ExitCodes.SomeFailed : ExitCodes.Ok;
     }
 }

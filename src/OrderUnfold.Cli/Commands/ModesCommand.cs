@@ -2,7 +2,9 @@ using System.CommandLine;
 using System.Globalization;
 using OrderUnfold.Analysis.Modes;
 using OrderUnfold.Cli.CommandLine;
+using OrderUnfold.Outputs;
 using OrderUnfold.Plotting;
+using OrderUnfold.Reports;
 
 namespace OrderUnfold.Cli.Commands;
 
@@ -43,8 +45,8 @@ internal sealed class ModesCommand : VerbCommand
         Longitudinal modes of a laser from an unfolded line list: fits a comb ν0 + k·Δ (robust to missing
         modes, spurious lines and a second mode family), gives the mode spacing Δ and the laser's optical
         length c/(2Δ), the number of lines within a level of the strongest, the side-mode suppression ratio
-        (SMSR) and the gain envelope. With SETUP.toml the unfold runs first. Writes modes.json, modes.csv and
-        modes.png to the output folder.
+        (SMSR) and the gain envelope. With SETUP.toml the unfold runs first. Writes modes.json, modes.csv,
+        modes.png and modes.html (the page to open) to the output folder.
         Exit codes: 0 PASS (or no requirement stated), 1 FAIL of a stated requirement, 2 bad input.
         """;
 
@@ -76,6 +78,12 @@ internal sealed class ModesCommand : VerbCommand
             ModePlots.Save(Path.Combine(outDir, ModeOutputs.PngFileName), analysis);
             written.Add(ModeOutputs.PngFileName);
         }
+
+        var report = ModesReportBuilder.Build(analysis, requirements.Any ? verdict : null, source);
+        var inputs = HtmlPage.Describe((source.EndsWith(".toml", StringComparison.OrdinalIgnoreCase) ? "setup" : "lines", source));
+        ModesHtml.Build(report, ModeOutputs.CsvText(analysis), parse.GetValue(_noPlots) ? null : ModePlots.Svg(analysis), inputs, Cli.Version)
+            .Write(outDir, Cli.Version, HtmlPage.Now(), fileName: ModeOutputs.HtmlFileName);
+        written.Add(ModeOutputs.HtmlFileName);
 
         ModeSummary.Print(Out, analysis, source);
         Out.WriteLine($"  wrote {string.Join(", ", written)} to {outDir}");

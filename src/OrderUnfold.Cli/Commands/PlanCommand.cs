@@ -4,7 +4,10 @@ using OrderUnfold.Analysis;
 using OrderUnfold.Cli.CommandLine;
 using OrderUnfold.Io;
 using OrderUnfold.Planning;
+using OrderUnfold.Outputs;
+using OrderUnfold.Pipeline;
 using OrderUnfold.Plotting;
+using OrderUnfold.Reports;
 
 namespace OrderUnfold.Cli.Commands;
 
@@ -50,8 +53,9 @@ internal sealed class PlanCommand : VerbCommand
         // is not reported as ok
         var whatIf = request.WhatIfLines is { } lines ? WhatIf.Run(chosen.Instruments, lines, request.WhatIfOptions, new Progress(Error)) : null;
         var confirmed = whatIf is null || whatIf.Passes;
-        PrintVerdict(request, chosen, whatIf);
-        WriteFiles(request, search, confirmed);
+        var verdict = PrintVerdict(request, chosen, whatIf);
+        var inputs = HtmlPage.Describe(("setup", parse.GetValue(_options.Setup) ?? ""), ("catalogue", parse.GetValue(_options.Catalogue) ?? ""));
+        WriteFiles(request, search, confirmed, verdict, inputs);
         if (whatIf is not null)
         {
             var o = request.WhatIfOptions;
@@ -109,7 +113,7 @@ internal sealed class PlanCommand : VerbCommand
         return new PlanSearch(ranked, triples, chosen);
     }
 
-    private void PrintVerdict(PlanRequest request, DesignEvaluation chosen, WhatIfResult? whatIf)
+    private PlanVerdict PrintVerdict(PlanRequest request, DesignEvaluation chosen, WhatIfResult? whatIf)
     {
         var settings = request.Settings;
         var confirmed = whatIf is null || whatIf.Passes;
@@ -117,22 +121,27 @@ internal sealed class PlanCommand : VerbCommand
         var limit = Math.Max(Math.Min(chosen.Repeat?.RepeatHz ?? chosen.RepeatSearchLimitHz, chosen.RepeatSearchLimitHz), settings.SpanHz);
         var unambiguous = AliasMargin.FirstBelow(chosen.Instruments, settings.ThresholdLinewidths, chosen.MinimumShiftHz, limit);
         Out.WriteLine();
-        Out.WriteLine(chosen.Passes && confirmed ? (given ? "Design:" : "Recommended:") :
+        var heading = chosen.Passes && confirmed ? (given ? "Design:" : "Recommended:") :
             chosen.Passes ? (given ? "Design (meets the margin, but its what-if simulation fails):" : "Best found (meets the margin, but its what-if simulation fails):") :
-            given ? "Design (does not meet the required margin):" : "Best found (does not meet the required margin):");
+            given ? "Design (does not meet the required margin):" : "Best found (does not meet the required margin):";
+        Out.WriteLine(heading);
         var description = PlanReport.Describe(chosen, unambiguous, limit, settings.Sampling, settings.RequiredDeltaChiSquare);
         if (chosen.Passes && !confirmed)
             description = description.Replace("  verdict: ok", "  verdict: not confirmed: the alias margin is met, but the what-if simulation below " +
                 (whatIf!.AllRecovered ? $"shows {whatIf.Ghosts.Count} ghost line(s)" : "misses line(s)"));
         Out.Write(description);
+        return new PlanVerdict(heading, chosen.Passes && confirmed,
+            $"span {Quantity.FormatFrequency(settings.SpanHz)}, required margin {PlanOptions.Number(settings.ThresholdLinewidths, "G3")} linewidths", description,
+            whatIf is null ? null : PlanReport.WhatIfSummary(whatIf));
     }
 
     /// <summary>plan.csv, and unless --no-plots the margin curve and the candidate map; complete or absent (Io/StagedFolder.cs).</summary>
-    private void WriteFiles(PlanRequest request, PlanSearch search, bool confirmed)
+    private void WriteFiles(PlanRequest request, PlanSearch search, bool confirmed, PlanVerdict verdict, IReadOnlyList<InputFileRecord> inputs)
     {
         using var staged = StagedFolder.Create(request.OutDir);
         var written = new List<string> { Path.Combine(staged.Path, "plan.csv") };
-        AtomicFile.WriteAllText(written[0], PlanReport.Csv(search.All));
+        var csv = PlanReport.Csv(search.All);
+        AtomicFile.WriteAllText(written[0], csv);
         if (request.Plots)
         {
             written.Add(Path.Combine(staged.Path, "margin.png"));
@@ -144,6 +153,10 @@ internal sealed class PlanCommand : VerbCommand
             }
         }
 
+        // the page people open (Reports/PlanHtml.cs): the verdict, the ranked designs and the figures inline
+        var figures = request.Plots ? new List<SvgFigure> { PlanPlots.MarginCurveSvg(MarginCurve(request, search.Chosen, confirmed)) } : null;
+        if (figures is not null && request.Candidates is { } set) figures.Add(PlanPlots.CandidateMapSvg(CandidateMap(request, set, search)));
+        written.Add(PlanHtml.Build(verdict, csv, figures, inputs, Cli.Version).Write(staged.Path, Cli.Version, HtmlPage.Now()));
         staged.Publish("plan.csv");
         Out.WriteLine();
         Out.WriteLine("Wrote " + string.Join(", ", written.Select(staged.Final)));

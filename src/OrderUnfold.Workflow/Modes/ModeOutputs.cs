@@ -15,6 +15,10 @@ public static class ModeOutputs
     /// <summary>File name of the per-line table.</summary>
     public const string CsvFileName = "modes.csv";
 
+    /// <summary>File name of the web page (modes.html, not report.html: the modes files usually share the folder of the
+    /// unfold they read, whose report.html they must not replace).</summary>
+    public const string HtmlFileName = "modes.html";
+
     /// <summary>File name of the plot.</summary>
     public const string PngFileName = "modes.png";
 

@@ -120,14 +120,23 @@ public sealed class HtmlPage
         return html.ToString();
     }
 
-    /// <summary>Writes the page into <paramref name="directory"/> as <see cref="FileName"/> (atomically, or directly into a
-    /// staging folder when <paramref name="staged"/>); returns its path.</summary>
-    public string Write(string directory, string? toolVersion, string createdUtc, bool staged = false)
+    /// <summary>Writes the page into <paramref name="directory"/> as <paramref name="fileName"/> (default <see cref="FileName"/>;
+    /// atomically, or directly into a staging folder when <paramref name="staged"/>); returns its path.</summary>
+    public string Write(string directory, string? toolVersion, string createdUtc, bool staged = false, string fileName = FileName)
     {
-        var path = Path.Combine(directory, FileName);
+        var path = Path.Combine(directory, fileName);
         AtomicFile.WriteAllText(path, Render(toolVersion, createdUtc), staged);
         return path;
     }
+
+    /// <summary>The time a page is written, in the outputs' format (UTC, to the second).</summary>
+    public static string Now() => DateTime.UtcNow.ToString("yyyy-MM-dd'T'HH:mm:ss'Z'", System.Globalization.CultureInfo.InvariantCulture);
+
+    /// <summary>Size and SHA-256 of input files (those that exist; a file that has gone is left out), for the inputs table of
+    /// a command that records no hashes of its own.</summary>
+    public static IReadOnlyList<Outputs.InputFileRecord> Describe(params (string Role, string Path)[] files) =>
+        files.Where(f => File.Exists(f.Path)).DistinctBy(f => Path.GetFullPath(f.Path))
+            .Select(f => UnfoldPipeline.Describe(f.Role, f.Path)).Select(i => new Outputs.InputFileRecord(i.Role, i.Path, i.Bytes, i.Sha256)).ToList();
 
     private void CloseSection()
     {

@@ -43,6 +43,7 @@ internal static class HtmlStyle
         caption { text-align: left; font-weight: 600; padding: 4px 0; color: var(--head); }
         th { background: var(--tint); text-align: left; padding: 5px 8px; border-bottom: 2px solid var(--line); white-space: nowrap; }
         td { padding: 4px 8px; border-bottom: 1px solid var(--line); vertical-align: top; }
+        td.short { white-space: nowrap; }
         td.num { text-align: right; font-variant-numeric: tabular-nums; white-space: nowrap; }
         td.good { color: var(--good); } td.warn { color: var(--warn-edge); font-weight: 600; } td.bad { color: var(--bad); font-weight: 600; }
         td.hash { font-family: "DejaVu Sans Mono", monospace; font-size: 12px; word-break: break-all; }

@@ -19,6 +19,9 @@ public sealed record HtmlCell(string Text, double? Value = null, string? Tone = 
 /// page's small script when scripts run; a plain table without it.</summary>
 public sealed record HtmlTable(string Caption, IReadOnlyList<string> Headers, IReadOnlyList<IReadOnlyList<HtmlCell>> Rows)
 {
+    /// <summary>Text cells up to this many characters are kept on one line (ids, time stamps, names).</summary>
+    private const int ShortText = 32;
+
     /// <summary>What the table says when it has no rows.</summary>
     public string Empty { get; init; } = "none";
 
@@ -52,6 +55,7 @@ public sealed record HtmlTable(string Caption, IReadOnlyList<string> Headers, IR
     {
         var classes = new List<string>();
         if (cell.Value is not null) classes.Add("num");
+        else if (cell.Text.Length <= ShortText) classes.Add("short");
         if (cell.Tone is not null) classes.Add(cell.Tone);
         html.Append("<td");
         if (classes.Count > 0) html.Append(" class=\"").Append(string.Join(' ', classes)).Append('"');

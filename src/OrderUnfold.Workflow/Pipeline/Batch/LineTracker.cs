@@ -50,6 +50,27 @@ public static class LineTracker
     public static TrackResult Run(string batchDirectory, string? outDirectory = null, TrackOptions? options = null)
     {
         options ??= new TrackOptions();
+        var (dir, follower, origin, warnings) = Follow(batchDirectory, options);
+        var outDir = Path.GetFullPath(outDirectory ?? Path.Combine(dir, "track"));
+        var summaries = follower.Summaries();
+        var files = TrackFiles.Write(outDir, follower.Points, summaries, follower.Hops, follower.Series);
+        if (options.Figures is { } figures) files.AddRange(Draw(figures, outDir, PlotInputs(origin, follower, summaries, options, warnings)));
+        return new TrackResult(follower.Series, summaries, follower.Hops, files, warnings, origin) { Points = follower.Points };
+    }
+
+    /// <summary>The track and SMSR figures of the batch in <paramref name="batchDirectory"/> as inline SVG (for its
+    /// report.html; nothing is written), or an empty list when no item finished.</summary>
+    public static IReadOnlyList<SvgFigure> Svg(string batchDirectory, IFigureWriter figures, TrackOptions? options = null)
+    {
+        options ??= new TrackOptions();
+        var (_, follower, origin, warnings) = Follow(batchDirectory, options);
+        var (track, smsr) = PlotInputs(origin, follower, follower.Summaries(), options, warnings);
+        return smsr is null ? [figures.DrawTrack(track)] : [figures.DrawTrack(track), figures.DrawSeries(smsr)];
+    }
+
+    /// <summary>Reads the summary and follows the lines of its finished items; InputException when there is nothing to track.</summary>
+    private static (string Dir, TrackFollower Follower, DateTimeOffset? Origin, List<string> Warnings) Follow(string batchDirectory, TrackOptions options)
+    {
         if (!(options.ToleranceHz > 0)) throw new InputException($"the tolerance must be a positive frequency but got {options.ToleranceHz} Hz");
         var dir = Path.GetFullPath(batchDirectory);
         var summaryPath = Path.Combine(dir, BatchLayout.SummaryFile);
@@ -57,17 +78,13 @@ public static class LineTracker
             throw new InputException(Directory.Exists(Path.Combine(dir, BatchLayout.ShardsFolder))
                 ? $"no summary.csv in {dir}: this batch ran in shards; run 'orderunfold merge {dir}' first"
                 : $"no summary.csv in {dir}: expected the output folder of 'orderunfold batch'", dir);
-        var outDir = Path.GetFullPath(outDirectory ?? Path.Combine(dir, "track"));
         var warnings = new List<string>();
         var (items, origin) = TimedItems(summaryPath, warnings);
         var follower = new TrackFollower(dir, options, origin, warnings);
         for (var k = 0; k < items.Count; k++) follower.Add(k, items[k]);
 
         if (follower.Series.Count == 0) throw new InputException($"no finished item to track in {summaryPath}", summaryPath);
-        var summaries = follower.Summaries();
-        var files = TrackFiles.Write(outDir, follower.Points, summaries, follower.Hops, follower.Series);
-        if (options.Figures is { } figures) files.AddRange(Draw(figures, outDir, origin, follower.Series, follower.Points, summaries, follower.Hops, options, warnings));
-        return new TrackResult(follower.Series, summaries, follower.Hops, files, warnings, origin) { Points = follower.Points };
+        return (dir, follower, origin, warnings);
     }
 
     /// <summary>The summary's finished items in time order (id order, one unit apart, when none has a time stamp), and the
@@ -105,35 +122,39 @@ public static class LineTracker
 
     private static TimedItem Item(SummaryRow row, double t) => new(row.Id, row.Timestamp, t, row.SmsrDb, row.ModeSpacingHz);
 
-    /// <summary>track.png and (when any item has an SMSR) smsr.png; returns their paths.</summary>
-    private static List<string> Draw(IFigureWriter figures, string outDir, DateTimeOffset? origin, List<SeriesPoint> series, List<TrackPoint> points,
-        List<TrackSummary> tracks, List<ModeHop> hops, TrackOptions options, List<string> warnings)
+    /// <summary>What track.png and (when any item has an SMSR) smsr.png show.</summary>
+    private static (TrackPlotInput Track, SeriesPlotInput? Smsr) PlotInputs(DateTimeOffset? origin, TrackFollower follower, List<TrackSummary> tracks,
+        TrackOptions options, List<string> warnings)
     {
-        var files = new List<string>();
+        var (series, points, hops) = (follower.Series, follower.Points, follower.Hops);
         var hopTimes = hops.Select(h => h.TimeS).ToArray();
         var frameText = options.Frame == TrackFrame.Scan
             ? "frequency on the scan axis, relative to the first item's strongest line"
             : "frequency relative to each item's strongest line";
-        var trackPng = Path.Combine(outDir, "track.png");
-        figures.WriteTrack(trackPng, new TrackPlotInput(
+        var track = new TrackPlotInput(
             $"Lines over time ({series.Count} items, {tracks.Count} tracks, {hops.Count} mode hop{(hops.Count == 1 ? "" : "s")})",
             frameText, points.Select(p => p.TimeS).ToArray(), points.Select(p => p.FrequencyHz).ToArray(),
-            points.Select(p => p.Intensity > 0 ? 10 * Math.Log10(p.Intensity) : double.NaN).ToArray(), hopTimes, origin));
-        files.Add(trackPng);
+            points.Select(p => p.Intensity > 0 ? 10 * Math.Log10(p.Intensity) : double.NaN).ToArray(), hopTimes, origin);
         var smsr = series.Where(s => s.SmsrDb is not null).ToList();
-        if (smsr.Count > 0)
-        {
-            var smsrPng = Path.Combine(outDir, "smsr.png");
-            var source = smsr.All(s => s.SmsrFromSummary) ? "from the mode analysis" : smsr.Any(s => s.SmsrFromSummary) ? "mode analysis where given, else strongest ÷ second-strongest line" : "strongest ÷ second-strongest line";
-            figures.WriteSeries(smsrPng, new SeriesPlotInput("Side-mode suppression over time", source, "SMSR (dB)",
-                smsr.Select(s => s.TimeS).ToArray(), smsr.Select(s => s.SmsrDb!.Value).ToArray(), hopTimes, origin));
-            files.Add(smsrPng);
-        }
-        else
+        if (smsr.Count == 0)
         {
             warnings.Add("no item has two or more lines or an smsr_db value: smsr.png not drawn");
+            return (track, null);
         }
 
-        return files;
+        var source = smsr.All(s => s.SmsrFromSummary) ? "from the mode analysis" : smsr.Any(s => s.SmsrFromSummary) ? "mode analysis where given, else strongest ÷ second-strongest line" : "strongest ÷ second-strongest line";
+        return (track, new SeriesPlotInput("Side-mode suppression over time", source, "SMSR (dB)",
+            smsr.Select(s => s.TimeS).ToArray(), smsr.Select(s => s.SmsrDb!.Value).ToArray(), hopTimes, origin));
+    }
+
+    /// <summary>Writes track.png and (when drawn) smsr.png; returns their paths.</summary>
+    private static List<string> Draw(IFigureWriter figures, string outDir, (TrackPlotInput Track, SeriesPlotInput? Smsr) inputs)
+    {
+        var trackPng = Path.Combine(outDir, "track.png");
+        figures.WriteTrack(trackPng, inputs.Track);
+        if (inputs.Smsr is null) return [trackPng];
+        var smsrPng = Path.Combine(outDir, "smsr.png");
+        figures.WriteSeries(smsrPng, inputs.Smsr);
+        return [trackPng, smsrPng];
     }
 }
