@@ -20,7 +20,7 @@ public static class UnfoldHtml
             .Messages("Warnings", report.Warnings, "warnings", "No warnings: every check of the run passed.")
             .Messages("Notes", report.Notes, "notes", "No notes.")
             .Facts(Verdicts(report));
-        page.Section("lines", "Lines").Paragraph($"Frequencies {report.Frequencies}; the same values as lines.csv.").Table(LineTable(report));
+        page.Section("lines", "Lines").Paragraph($"The same values as lines.csv, which gives them as numbers (frequencies {report.Frequencies}); here each with its unit.").Table(LineTable(report));
         page.Section("spectrum", "Spectrum").Figures(Pick(figures, FigureTopic.Spectrum, FigureTopic.Other));
         page.Section("sweeps", "Sweeps and their fits").Table(SweepTable(report.Sweeps)).Figures(Pick(figures, FigureTopic.Sweep));
         page.Section("calibration", "Calibration evidence");
