@@ -61,7 +61,7 @@ public static class ModesHtml
                 (Cells.FrequencyText(c.RmsResidualHz, 3) is { } rms ? $", residual RMS {rms}" : ""));
         yield return ("modes within " + (Cells.NumberText(r.ModeCount.WithinDb, "0.#") ?? "?") + " dB", $"{r.ModeCount.Total} ({r.ModeCount.MainComb} main comb, " +
             $"{r.ModeCount.SecondFamily} second family, {r.ModeCount.OffComb} off comb)");
-        yield return ("side-mode suppression", (r.Smsr.ValueDb is { } db ? PlusMinus(Cells.NumberText(db, "F1") + " dB", r.Smsr.SigmaDb is { } sd ? Cells.NumberText(sd, "F1") + " dB" : null) : "not measured")
+        yield return ("side-mode suppression", (r.Smsr.ValueDb is { } db ? PlusMinus(Cells.NumberText(db, "F2") + " dB", r.Smsr.SigmaDb is { } sd ? Cells.NumberText(sd, "G2") + " dB" : null) : "not measured")
             + $" ({r.Smsr.Kind}): {r.Smsr.Explanation}");
         var e = r.Envelope;
         yield return ("gain envelope", e.Fitted
