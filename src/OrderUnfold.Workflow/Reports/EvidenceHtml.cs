@@ -22,12 +22,17 @@ internal static class EvidenceHtml
     public static void Axes(HtmlPage page, IReadOnlyList<AxisEvidence> axes)
     {
         page.Heading("Scan axes");
-        page.Table(new HtmlTable("Calibrated scan axes (calibration peaks fitted by a polynomial in the scan coordinate)",
-            ["instrument", "ramp", "from", "method", "degree", "points", "repeat pairs used", "pairs rejected", "residual RMS", "largest residual",
-                "finesse", "σ finesse"],
+        var pairs = axes.Any(a => a.PairsUsed is not null || a.PairsRejected is not null); // self-calibrated axes only
+        var headers = new List<string> { "instrument", "ramp", "from", "method", "degree", "points" };
+        if (pairs) headers.AddRange(["repeat pairs used", "pairs rejected"]);
+        headers.AddRange(["residual RMS", "largest residual", "finesse", "σ finesse"]);
+        page.Table(new HtmlTable("Calibrated scan axes (calibration peaks fitted by a polynomial in the scan coordinate)", headers,
             axes.Select(a => (IReadOnlyList<HtmlCell>)[a.Instrument, Direction(a.Direction), a.Source, a.Method, Cells.Count(a.Degree), Cells.Count(a.Points),
-                Cells.Count(a.PairsUsed), Cells.Count(a.PairsRejected), Cells.Frequency(a.ResidualRmsHz, 3), Cells.Frequency(a.MaxResidualHz, 3),
-                Cells.Number(a.Finesse, "F1"), Cells.Number(a.FinesseSigma, "F2")]).ToList()) { Empty = "no axis was calibrated in this run" });
+                .. pairs ? (HtmlCell[])[Cells.Count(a.PairsUsed), Cells.Count(a.PairsRejected)] : [],
+                Cells.Frequency(a.ResidualRmsHz, 3), Cells.Frequency(a.MaxResidualHz, 3), Cells.Number(a.Finesse, "F1"), Cells.Number(a.FinesseSigma, "F2")]).ToList())
+        {
+            Empty = "no axis was calibrated in this run",
+        });
         foreach (var a in axes)
         {
             var name = $"{a.Instrument}, {Direction(a.Direction)} ramp";
@@ -50,7 +55,7 @@ internal static class EvidenceHtml
     {
         page.Heading("Transverse families");
         var with = instruments.Where(i => i.TransverseFamilies.Count > 0).ToList();
-        if (with.Count == 0) page.Paragraph("No instrument shows a transverse family: every peak group repeats once per FSR.", "quiet");
+        if (with.Count == 0) page.Paragraph("No instrument has a transverse family in this run.", "quiet");
         foreach (var i in with) page.Table(FamilyTable($"Transverse families of {i.Name}", i.TransverseFamilies));
     }
 
