@@ -24,7 +24,7 @@ internal sealed class MergeCommand : VerbCommand
         Exit codes: 0 all items ok, 1 some items failed, 2 shards missing, unfinished or inconsistent.
         """;
 
-    protected override int Run(ParseResult parse)
+    protected override int Run(ParseResult parse, CancellationToken cancellationToken)
     {
         var result = BatchMerge.Run(parse.GetValue(_folders)!, parse.GetValue(_out));
         foreach (var w in result.Warnings) Error.WriteLine($"warning: {w}");

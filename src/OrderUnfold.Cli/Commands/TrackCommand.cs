@@ -38,7 +38,7 @@ internal sealed class TrackCommand : VerbCommand
         modulo its FSR.
         """;
 
-    protected override int Run(ParseResult parse)
+    protected override int Run(ParseResult parse, CancellationToken cancellationToken)
     {
         var dir = parse.GetValue(_folder)!;
         var options = new TrackOptions
@@ -54,7 +54,7 @@ internal sealed class TrackCommand : VerbCommand
         {
             r = LineTracker.Run(dir, staged.Path, options);
             outputs = staged.Target;
-            staged.Publish("series.csv");
+            staged.Publish("series.csv", cancellationToken);
         }
 
         foreach (var w in r.Warnings) Error.WriteLine($"warning: {w}");

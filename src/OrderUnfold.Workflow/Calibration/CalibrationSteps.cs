@@ -140,9 +140,10 @@ public static class CalibrationSteps
     /// <param name="calibrations">Axes from calibration sweeps so far (companions and fallbacks of the source sweeps).</param>
     /// <param name="progress">Progress messages.</param>
     /// <param name="readSegments">Reads a file's segments the way the pipeline does (time relative to each segment's start).</param>
+    /// <param name="cancellationToken">Stops the self-calibrations (<see cref="OperationCanceledException"/>).</param>
     /// <exception cref="InputException">A segment cannot be self-calibrated and has no other calibration to fall back on.</exception>
     public static CalibrationAxes FromSources(Setup setup, IReadOnlyDictionary<string, Instrument> instruments, IReadOnlyList<AxisCalibration> calibrations,
-        IProgress<string>? progress, Func<SweepFileOptions, IReadOnlyList<Sweep>> readSegments)
+        IProgress<string>? progress, Func<SweepFileOptions, IReadOnlyList<Sweep>> readSegments, CancellationToken cancellationToken = default)
     {
         var axes = new List<AxisCalibration>();
         var warnings = new List<string>();
@@ -151,7 +152,7 @@ public static class CalibrationSteps
         foreach (var spec in setup.Sweeps)
         {
             if (!instruments.TryGetValue(spec.Instrument, out var inst)) continue; // the pipeline reports the unknown name
-            var file = FromSourceFile(spec, inst, fromSweeps.Where(c => c.Instrument == spec.Instrument).ToList(), setup.Solve.SelfCalibrate, progress, readSegments);
+            var file = FromSourceFile(spec, inst, fromSweeps.Where(c => c.Instrument == spec.Instrument).ToList(), setup.Solve.SelfCalibrate, progress, readSegments, cancellationToken);
             axes.AddRange(file.Axes);
             warnings.AddRange(file.Warnings);
         }
@@ -162,7 +163,7 @@ public static class CalibrationSteps
     /// <summary>The self-calibrated axes of one source file's segments; a segment that fails uses a calibration sweep's axis
     /// or that of another segment of the same ramp direction, with a warning naming why.</summary>
     private static CalibrationAxes FromSourceFile(SweepSpec spec, Instrument inst, List<AxisCalibration> mine, SelfCalibrationMode mode,
-        IProgress<string>? progress, Func<SweepFileOptions, IReadOnlyList<Sweep>> readSegments)
+        IProgress<string>? progress, Func<SweepFileOptions, IReadOnlyList<Sweep>> readSegments, CancellationToken cancellationToken)
     {
         var warnings = new List<string>();
         var failed = new List<(Sweep Segment, InputException Error)>();
@@ -189,7 +190,7 @@ public static class CalibrationSteps
             var prepared = PrepareForPeakFinding(seg, inst);
             try
             {
-                var result = SelfCalibrator.Calibrate(prepared, inst, new SelfCalibrationOptions { Companion = companion });
+                var result = SelfCalibrator.Calibrate(prepared, inst, new SelfCalibrationOptions { Companion = companion }, cancellationToken);
                 // finesse from the decay time when the peaks ring, with the FSR the period decision settled on (a cavity stated
                 // as confocal that is not has twice the stated FSR, and F = π·FSR·τ)
                 var fsrHz = result.Calibration.PeriodDecision?.PeriodHz ?? inst.FsrHz;
