@@ -68,6 +68,9 @@ public sealed class LayerTests
             const BindingFlags all = BindingFlags.Static | BindingFlags.Public | BindingFlags.NonPublic | BindingFlags.DeclaredOnly;
             foreach (var f in type.GetFields(all))
             {
+                // a read-only field (or a getter-only property's hidden backing field) that holds per-flow or per-thread
+                // state is ambient state all the same: the cancellation token once lived in a static readonly AsyncLocal
+                if (AmbientHolder(f) is { } holder) offences.Add($"{type.FullName}.{f.Name} ({holder})");
                 if (f.IsLiteral || f.IsInitOnly || f.Name.Contains('<')) continue;
                 offences.Add($"{type.FullName}.{f.Name} (a static field that can be assigned)");
             }
@@ -79,6 +82,34 @@ public sealed class LayerTests
         }
 
         Assert.True(offences.Count == 0, string.Join("\n", offences));
+    }
+
+    /// <summary>Why a static field holds ambient state (null: it does not): an AsyncLocal or ThreadLocal value, or a
+    /// [ThreadStatic] field.</summary>
+    private static string? AmbientHolder(FieldInfo field)
+    {
+        if (field.IsDefined(typeof(ThreadStaticAttribute))) return "a [ThreadStatic] field";
+        var t = field.FieldType;
+        if (t.IsGenericType && (t.GetGenericTypeDefinition() == typeof(AsyncLocal<>) || t.GetGenericTypeDefinition() == typeof(ThreadLocal<>)))
+            return $"an ambient {t.Name[..t.Name.IndexOf('`')]} value";
+        return null;
+    }
+
+    [Theory]
+    [InlineData("OrderUnfold.Core")]
+    [InlineData("OrderUnfold.Methods")]
+    public void The_lower_layers_take_their_context_explicitly(string project)
+    {
+        // Cancellation, progress and limits reach Core and Methods as parameters or inside the options and budgets passed
+        // in (DEVELOPERS.md, "Cancellation"): no flow- or thread-local context, wherever it would be declared
+        var ambient = new Regex(@"\b(AsyncLocal|ThreadLocal|ThreadStatic|CallContext)\b|\bExecutionContext\.", RegexOptions.Compiled);
+        var root = Path.Combine(RepoRoot(), "src", project);
+        var offences = Directory.EnumerateFiles(root, "*.cs", SearchOption.AllDirectories).Where(f => !IsBuildOutput(f))
+            .SelectMany(f => StripComments(File.ReadAllText(f)).Split('\n').Select((line, i) => (f, i, line)))
+            .Where(x => ambient.IsMatch(x.line))
+            .Select(x => $"{Path.GetRelativePath(root, x.f)}:{x.i + 1}: {x.line.Trim()}")
+            .ToList();
+        Assert.True(offences.Count == 0, "ambient context in the lower layers:\n" + string.Join("\n", offences));
     }
 
     [Fact]
