@@ -19,7 +19,9 @@ public static class CalibrationSteps
     /// <param name="sweep">The calibration sweep segment.</param>
     /// <param name="instrument">The cavity.</param>
     /// <param name="wavelengthRatio">λ_calibration / λ_source.</param>
-    public static AxisCalibration DescribeCalibrationSweep(AxisCalibration axis, Sweep sweep, Instrument instrument, double wavelengthRatio = 1.0)
+    /// <param name="cancellationToken">Stops the self-calibrations of the checks (<see cref="OperationCanceledException"/>).</param>
+    public static AxisCalibration DescribeCalibrationSweep(AxisCalibration axis, Sweep sweep, Instrument instrument, double wavelengthRatio = 1.0,
+        CancellationToken cancellationToken = default)
     {
         var period = instrument.FsrHz * wavelengthRatio;
         var warnings = axis.Warnings.ToList();
@@ -31,8 +33,8 @@ public static class CalibrationSteps
         var suspicious = transverse.AlternationRatio is < 0.75 || axis.Warnings.Any(w => w.Contains("typical spacings apart", StringComparison.Ordinal));
         var finesse = (FinesseEstimate?)null;
         var fitted = false;
-        if (suspicious && axis.PointCount >= 3) (axis, finesse, fitted) = CheckTwoReadings(axis, sweep, instrument, period, warnings);
-        axis = WithPeriodEvidence(axis, sweep, instrument, period);
+        if (suspicious && axis.PointCount >= 3) (axis, finesse, fitted) = CheckTwoReadings(axis, sweep, instrument, period, warnings, cancellationToken);
+        axis = WithPeriodEvidence(axis, sweep, instrument, period, cancellationToken);
 
         if (!fitted) finesse = FinesseFit.FromSweep(sweep, axis.Axis, period, instrument.Finesse);
         if (finesse is not null) warnings.AddRange(finesse.Warnings.Select(w => $"{sweep.Name}: {w}"));
@@ -56,11 +58,11 @@ public static class CalibrationSteps
     /// on the kept one (<c>Fitted</c> true; the caller does not fit it again).
     /// </summary>
     private static (AxisCalibration Axis, FinesseEstimate? Finesse, bool Fitted) CheckTwoReadings(AxisCalibration axis, Sweep sweep, Instrument instrument,
-        double period, List<string> warnings)
+        double period, List<string> warnings, CancellationToken cancellationToken)
     {
         try
         {
-            var repeats = SelfCalibrator.Calibrate(sweep, instrument, new SelfCalibrationOptions { PeriodHz = period, FitFinesse = false }).Calibration;
+            var repeats = SelfCalibrator.Calibrate(sweep, instrument, new SelfCalibrationOptions { PeriodHz = period, FitFinesse = false }, cancellationToken).Calibration;
             var mid = 0.5 * (repeats.Axis.XMin + repeats.Axis.XMax);
             var scale = repeats.Axis.Derivative(mid) / axis.Axis.Derivative(mid);
             var useRepeats = repeats.ResidualRmsHz < 0.5 * axis.ResidualRmsHz;
@@ -106,13 +108,13 @@ public static class CalibrationSteps
 
     /// <summary>The period decision on the calibration sweep's own peak pattern (candidates, families) as evidence; kept when
     /// it agrees with the numbered axis (same period in Hz, scale within 5 %).</summary>
-    private static AxisCalibration WithPeriodEvidence(AxisCalibration axis, Sweep sweep, Instrument instrument, double period)
+    private static AxisCalibration WithPeriodEvidence(AxisCalibration axis, Sweep sweep, Instrument instrument, double period, CancellationToken cancellationToken)
     {
         if (axis.PeriodDecision is not null || axis.PointCount < 2) return axis;
         try
         {
             var check = SelfCalibrator.Calibrate(PrepareForPeakFinding(sweep, instrument), instrument,
-                new SelfCalibrationOptions { PeriodHz = period, FitFinesse = false }).Calibration;
+                new SelfCalibrationOptions { PeriodHz = period, FitFinesse = false }, cancellationToken).Calibration;
             var mid = 0.5 * (axis.Axis.XMin + axis.Axis.XMax);
             var scale = check.Axis.Derivative(mid) / axis.Axis.Derivative(mid);
             // with few peaks the pattern can settle on a multiple of the spacing; the numbered axis (and the

@@ -66,7 +66,7 @@ internal static class CalibrationStage
             try
             {
                 axis = AxisCalibrator.FromCalibrationSweep(seg, inst, cal.AxisDegree, ratio);
-                axis = CalibrationSteps.DescribeCalibrationSweep(axis, seg, inst, ratio); // Airy finesse fit, transverse modes
+                axis = CalibrationSteps.DescribeCalibrationSweep(axis, seg, inst, ratio, cancellationToken); // Airy finesse fit, transverse modes
             }
             catch (InputException e) when (segments.Count > 1)
             {

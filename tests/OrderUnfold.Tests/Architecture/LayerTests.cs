@@ -47,12 +47,7 @@ public sealed class LayerTests
         // the date (a report's time stamp belongs to the workflow that writes the report).
         var forbidden = new Regex(@"\b(File|Directory|Console|StreamReader|StreamWriter|FileStream)\.|\bnew (StreamReader|StreamWriter|FileStream)\b|\bDateTime(Offset)?\.(Now|UtcNow|Today)\b",
             RegexOptions.Compiled);
-        var root = Path.Combine(RepoRoot(), "src", project);
-        var offences = Directory.EnumerateFiles(root, "*.cs", SearchOption.AllDirectories).Where(f => !IsBuildOutput(f))
-            .SelectMany(f => StripComments(File.ReadAllText(f)).Split('\n').Select((line, i) => (f, i, line)))
-            .Where(x => forbidden.IsMatch(x.line))
-            .Select(x => $"{Path.GetRelativePath(root, x.f)}:{x.i + 1}: {x.line.Trim()}")
-            .ToList();
+        var offences = LinesMatching(project, forbidden);
         Assert.True(offences.Count == 0, string.Join("\n", offences));
     }
 
@@ -103,12 +98,7 @@ public sealed class LayerTests
         // Cancellation, progress and limits reach Core and Methods as parameters or inside the options and budgets passed
         // in (DEVELOPERS.md, "Cancellation"): no flow- or thread-local context, wherever it would be declared
         var ambient = new Regex(@"\b(AsyncLocal|ThreadLocal|ThreadStatic|CallContext)\b|\bExecutionContext\.", RegexOptions.Compiled);
-        var root = Path.Combine(RepoRoot(), "src", project);
-        var offences = Directory.EnumerateFiles(root, "*.cs", SearchOption.AllDirectories).Where(f => !IsBuildOutput(f))
-            .SelectMany(f => StripComments(File.ReadAllText(f)).Split('\n').Select((line, i) => (f, i, line)))
-            .Where(x => ambient.IsMatch(x.line))
-            .Select(x => $"{Path.GetRelativePath(root, x.f)}:{x.i + 1}: {x.line.Trim()}")
-            .ToList();
+        var offences = LinesMatching(project, ambient);
         Assert.True(offences.Count == 0, "ambient context in the lower layers:\n" + string.Join("\n", offences));
     }
 
@@ -123,6 +113,17 @@ public sealed class LayerTests
             var refs = Regex.Matches(csproj, @"<ProjectReference Include=""[^""]*?([\w.]+)\.csproj""").Select(m => m.Groups[1].Value).ToArray();
             Assert.Equal(i == 0 ? [] : new[] { chain[i - 1] }, refs);
         }
+    }
+
+    /// <summary>The code lines (comments stripped) of a project's sources that match <paramref name="pattern"/>, as file:line: text.</summary>
+    private static List<string> LinesMatching(string project, Regex pattern)
+    {
+        var root = Path.Combine(RepoRoot(), "src", project);
+        return Directory.EnumerateFiles(root, "*.cs", SearchOption.AllDirectories).Where(f => !IsBuildOutput(f))
+            .SelectMany(f => StripComments(File.ReadAllText(f)).Split('\n').Select((line, i) => (f, i, line)))
+            .Where(x => pattern.IsMatch(x.line))
+            .Select(x => $"{Path.GetRelativePath(root, x.f)}:{x.i + 1}: {x.line.Trim()}")
+            .ToList();
     }
 
     private static string StripComments(string text) =>
