@@ -52,7 +52,7 @@ internal sealed class TrackCommand : VerbCommand
         string outputs;
         using (var staged = Io.StagedFolder.Create(parse.GetValue(_out) ?? Path.Combine(dir, "track"))) // complete or absent
         {
-            r = LineTracker.Run(dir, staged.Path, options);
+            r = LineTracker.Run(dir, staged.Path, options, cancellationToken);
             outputs = staged.Target;
             staged.Publish("series.csv", cancellationToken);
         }
