@@ -1,4 +1,4 @@
-namespace OrderUnfold.Cli;
+namespace OrderUnfold.Io;
 
 /// <summary>
 /// Next-command hints in the form that works where the program runs: the command the repository's
