@@ -44,18 +44,6 @@ public static class Program
             return;
         }
 
-        if (args.Length >= 1 && args[0] == "--nested-oracle")
-        {
-            NestedProbe.Oracle(Console.Out, args.Contains("--warm-face"), args.Contains("--exact-zeros"));
-            return;
-        }
-
-        if (args.Length >= 3 && args[0] == "--nested-probe")
-        {
-            NestedProbe.Run(Console.Out, int.Parse(args[1], System.Globalization.CultureInfo.InvariantCulture), double.Parse(args[2], System.Globalization.CultureInfo.InvariantCulture), args.Length > 3 && args[3] == "--warm-face");
-            return;
-        }
-
         if (args.Length == 2 && args[0] == "--export-dense")
         {
             // the dense-support problems of DenseNnlsBenchmarks as dense arrays, for tests/reference/dense_nnls_reference.py

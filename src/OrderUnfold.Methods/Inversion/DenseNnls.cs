@@ -51,10 +51,6 @@ public static class DenseNnls
 
         /// <summary>Most conjugate-gradient steps per face.</summary>
         public int MaxCgSteps { get; init; } = 1000;
-
-        /// <summary>Experiment: from a given start, the first Newton step uses the start's binding set instead of the
-        /// unconstrained first step along the conjugate-gradient path.</summary>
-        internal bool WarmFace { get; init; }
     }
 
     private const double Armijo = 1e-4;

@@ -100,7 +100,6 @@ public static class ProjectedNewtonNnls
         private double[] _x, _gx, _xt, _gxt;
         private double _objective;
         private int _products, _iterations, _cgSteps, _stalls, _safeguards;
-        private readonly bool _warm;
 
         public Run(INormalEquations eq, INormalPreconditioner pre, DenseNnls.Options options, ReadOnlySpan<double> start)
         {
@@ -112,7 +111,6 @@ public static class ProjectedNewtonNnls
             _free = new bool[n];
             for (var j = 0; j < n; j++) _free[j] = eq.IsFree(j);
             _x = StartingPoint(start);
-            _warm = options.WarmFace && start.Length == n;
             _gx = new double[n];
             _g = new double[n];
             Product(_x, _gx);
@@ -206,7 +204,7 @@ public static class ProjectedNewtonNnls
             {
                 // the first step ignores the bounds (an unconstrained Newton step, projected by the search): from a cold
                 // start every entry is at zero and the binding set would be every bin with a positive gradient
-                _bound[j] = (_iterations > 1 || _warm) && !_free[j] && _x[j] <= 0 && _g[j] > 0;
+                _bound[j] = _iterations > 1 && !_free[j] && _x[j] <= 0 && _g[j] > 0;
                 _r[j] = _bound[j] ? 0 : -_g[j];
                 rMax = Math.Max(rMax, Math.Abs(_r[j]));
                 _d[j] = 0;
@@ -254,7 +252,7 @@ public static class ProjectedNewtonNnls
                     norm = Math.Max(norm, Math.Abs(r[j]));
                 }
 
-                if (_iterations == 1 && !_warm) _path.Add((double[])d.Clone());
+                if (_iterations == 1) _path.Add((double[])d.Clone());
                 if (norm <= stop) break;
                 PreconditionOnFace();
                 var rzNew = 0.0;
