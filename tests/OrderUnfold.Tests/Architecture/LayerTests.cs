@@ -19,7 +19,7 @@ public sealed class LayerTests
     [Fact]
     public void Inside_the_methods_layer_no_namespace_uses_a_later_one()
     {
-        var root = Path.Combine(RepoRoot(), "src", "OrderUnfold.Methods");
+        var root = Path.Combine(RepositoryRoot.Folder, "src", "OrderUnfold.Methods");
         var offences = new List<string>();
         foreach (var file in Directory.EnumerateFiles(root, "*.cs", SearchOption.AllDirectories).Where(f => !IsBuildOutput(f)))
         {
@@ -109,7 +109,7 @@ public sealed class LayerTests
         string[] chain = ["OrderUnfold.Core", "OrderUnfold.Methods", "OrderUnfold.Workflow", "OrderUnfold.Plotting", "OrderUnfold.Cli"];
         for (var i = 0; i < chain.Length; i++)
         {
-            var csproj = File.ReadAllText(Path.Combine(RepoRoot(), "src", chain[i], chain[i] + ".csproj"));
+            var csproj = File.ReadAllText(Path.Combine(RepositoryRoot.Folder, "src", chain[i], chain[i] + ".csproj"));
             var refs = Regex.Matches(csproj, @"<ProjectReference Include=""[^""]*?([\w.]+)\.csproj""").Select(m => m.Groups[1].Value).ToArray();
             Assert.Equal(i == 0 ? [] : new[] { chain[i - 1] }, refs);
         }
@@ -118,7 +118,7 @@ public sealed class LayerTests
     /// <summary>The code lines (comments stripped) of a project's sources that match <paramref name="pattern"/>, as file:line: text.</summary>
     private static List<string> LinesMatching(string project, Regex pattern)
     {
-        var root = Path.Combine(RepoRoot(), "src", project);
+        var root = Path.Combine(RepositoryRoot.Folder, "src", project);
         return Directory.EnumerateFiles(root, "*.cs", SearchOption.AllDirectories).Where(f => !IsBuildOutput(f))
             .SelectMany(f => StripComments(File.ReadAllText(f)).Split('\n').Select((line, i) => (f, i, line)))
             .Where(x => pattern.IsMatch(x.line))
@@ -131,14 +131,4 @@ public sealed class LayerTests
 
     private static bool IsBuildOutput(string path) =>
         path.Contains($"{Path.DirectorySeparatorChar}obj{Path.DirectorySeparatorChar}") || path.Contains($"{Path.DirectorySeparatorChar}bin{Path.DirectorySeparatorChar}");
-
-    private static string RepoRoot()
-    {
-        for (var d = new DirectoryInfo(AppContext.BaseDirectory); d is not null; d = d.Parent)
-        {
-            if (File.Exists(Path.Combine(d.FullName, "OrderUnfold.sln"))) return d.FullName;
-        }
-
-        throw new DirectoryNotFoundException($"OrderUnfold.sln not found above {AppContext.BaseDirectory}");
-    }
 }

@@ -168,7 +168,7 @@ public sealed class ExplicitCancellationTests(CancellationFixture fx) : IClassFi
     [Fact]
     public void The_pipeline_stops_and_a_staged_folder_is_not_published_on_a_cancelled_token()
     {
-        var setup = Path.Combine(SignalTests.DemoData(), "setup.toml");
+        var setup = Path.Combine(RepositoryRoot.Folder, "data", "demo", "setup.toml");
         Assert.ThrowsAny<OperationCanceledException>(() => UnfoldPipeline.Run(setup, cancellationToken: Cancelled()));
 
         var target = Path.Combine(Path.GetTempPath(), $"orderunfold-cancel-{Guid.NewGuid():N}");

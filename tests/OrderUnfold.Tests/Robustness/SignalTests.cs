@@ -13,7 +13,7 @@ public class SignalTests(ITestOutputHelper output)
 {
     private static string CliDll => Path.Combine(AppContext.BaseDirectory, "OrderUnfold.Cli.dll");
 
-    internal static string DemoData()
+    private static string DemoData()
     {
         for (var dir = new DirectoryInfo(AppContext.BaseDirectory); dir is not null; dir = dir.Parent)
             if (File.Exists(Path.Combine(dir.FullName, "data", "demo", "setup.toml"))) return Path.Combine(dir.FullName, "data", "demo");
