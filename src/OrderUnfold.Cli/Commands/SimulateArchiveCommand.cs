@@ -1,3 +1,4 @@
+using OrderUnfold.Io;
 using System.CommandLine;
 using OrderUnfold.Cli.CommandLine;
 using OrderUnfold.Pipeline.Batch;

@@ -1,3 +1,4 @@
+using OrderUnfold.Io;
 using System.CommandLine;
 using System.Globalization;
 using OrderUnfold.Cli.CommandLine;

@@ -19,7 +19,7 @@ public sealed class LayerTests
     [Fact]
     public void Inside_the_methods_layer_no_namespace_uses_a_later_one()
     {
-        var root = Path.Combine(RepoRoot(), "src", "OrderUnfold.Methods");
+        var root = Path.Combine(RepositoryRoot.Folder, "src", "OrderUnfold.Methods");
         var offences = new List<string>();
         foreach (var file in Directory.EnumerateFiles(root, "*.cs", SearchOption.AllDirectories).Where(f => !IsBuildOutput(f)))
         {
@@ -47,7 +47,7 @@ public sealed class LayerTests
         // the date (a report's time stamp belongs to the workflow that writes the report).
         var forbidden = new Regex(@"\b(File|Directory|Console|StreamReader|StreamWriter|FileStream)\.|\bnew (StreamReader|StreamWriter|FileStream)\b|\bDateTime(Offset)?\.(Now|UtcNow|Today)\b",
             RegexOptions.Compiled);
-        var root = Path.Combine(RepoRoot(), "src", project);
+        var root = Path.Combine(RepositoryRoot.Folder, "src", project);
         var offences = Directory.EnumerateFiles(root, "*.cs", SearchOption.AllDirectories).Where(f => !IsBuildOutput(f))
             .SelectMany(f => StripComments(File.ReadAllText(f)).Split('\n').Select((line, i) => (f, i, line)))
             .Where(x => forbidden.IsMatch(x.line))
@@ -88,7 +88,7 @@ public sealed class LayerTests
         string[] chain = ["OrderUnfold.Core", "OrderUnfold.Methods", "OrderUnfold.Workflow", "OrderUnfold.Plotting", "OrderUnfold.Cli"];
         for (var i = 0; i < chain.Length; i++)
         {
-            var csproj = File.ReadAllText(Path.Combine(RepoRoot(), "src", chain[i], chain[i] + ".csproj"));
+            var csproj = File.ReadAllText(Path.Combine(RepositoryRoot.Folder, "src", chain[i], chain[i] + ".csproj"));
             var refs = Regex.Matches(csproj, @"<ProjectReference Include=""[^""]*?([\w.]+)\.csproj""").Select(m => m.Groups[1].Value).ToArray();
             Assert.Equal(i == 0 ? [] : new[] { chain[i - 1] }, refs);
         }
@@ -99,14 +99,4 @@ public sealed class LayerTests
 
     private static bool IsBuildOutput(string path) =>
         path.Contains($"{Path.DirectorySeparatorChar}obj{Path.DirectorySeparatorChar}") || path.Contains($"{Path.DirectorySeparatorChar}bin{Path.DirectorySeparatorChar}");
-
-    private static string RepoRoot()
-    {
-        for (var d = new DirectoryInfo(AppContext.BaseDirectory); d is not null; d = d.Parent)
-        {
-            if (File.Exists(Path.Combine(d.FullName, "OrderUnfold.sln"))) return d.FullName;
-        }
-
-        throw new DirectoryNotFoundException($"OrderUnfold.sln not found above {AppContext.BaseDirectory}");
-    }
 }

@@ -92,7 +92,7 @@ public static class BatchMerge
     private static List<ShardOutput> CheckedShards(List<ShardOutput> shards, List<string> inputs, List<string> warnings)
     {
         if (shards.Count == 0)
-            throw new InputException($"no shard outputs (shards/shard-i-of-N.json) in {string.Join(", ", inputs)}; run 'orderunfold batch ... --shard i/N' first");
+            throw new InputException($"no shard outputs (shards/shard-i-of-N.json) in {string.Join(", ", inputs)}; run '{Hint.Command("batch MANIFEST --out DIR --shard i/N")}' first");
         var counts = shards.Select(s => s.Status.Shard.Count).Distinct().ToList();
         if (counts.Count > 1)
             throw new InputException($"the shards come from runs split into different numbers of shards ({string.Join(", ", counts.Order())}); merge the shards of one split only");

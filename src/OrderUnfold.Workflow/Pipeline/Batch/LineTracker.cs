@@ -1,3 +1,4 @@
+using OrderUnfold.Io;
 namespace OrderUnfold.Pipeline.Batch;
 
 /// <summary>Which frame the tracked frequencies are given in.</summary>
@@ -55,8 +56,8 @@ public static class LineTracker
         var summaryPath = Path.Combine(dir, BatchLayout.SummaryFile);
         if (!File.Exists(summaryPath))
             throw new InputException(Directory.Exists(Path.Combine(dir, BatchLayout.ShardsFolder))
-                ? $"no summary.csv in {dir}: this batch ran in shards; run 'orderunfold merge {dir}' first"
-                : $"no summary.csv in {dir}: expected the output folder of 'orderunfold batch'", dir);
+                ? $"no summary.csv in {dir}: this batch ran in shards; run '{Hint.Command("merge " + Hint.Quote(dir))}' first"
+                : $"no summary.csv in {dir}: expected the output folder of '{Hint.Command("batch")}'", dir);
         var outDir = Path.GetFullPath(outDirectory ?? Path.Combine(dir, "track"));
         var warnings = new List<string>();
         var (items, origin) = TimedItems(summaryPath, warnings);
