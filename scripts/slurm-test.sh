@@ -112,17 +112,9 @@ say "$(sinfo -V), one node of $cpus CPUs on localhost: $(sinfo -h -o '%P %t %c')
 end_phase "cluster start" "munged, slurmctld, slurmd until the node is idle"
 
 # --- the tool, an archive and the single-machine reference ---
-if [ -x "$repo/orderunfold" ]; then
-  PATH="$repo:$PATH"
-else   # until the repository's launcher lands: the same command, run from the Release build
-  mkdir -p "$work/bin"
-  printf '#!/bin/sh\nexec dotnet "%s/src/OrderUnfold.Cli/bin/Release/net10.0/OrderUnfold.Cli.dll" "$@"\n' "$repo" > "$work/bin/orderunfold"
-  chmod +x "$work/bin/orderunfold"
-  PATH="$work/bin:$PATH"
-fi
-export PATH
+export PATH="$repo:$PATH"   # the repository's launcher: `orderunfold` in the tasks, as a user installs it
 start_phase
-dotnet build -c Release src/OrderUnfold.Cli --nologo -v q >/dev/null   # once, before the tasks start
+orderunfold --version >/dev/null   # builds the command line (Release) if needed: once, before the tasks start
 orderunfold simulate-archive --out "$work/archive" --items "$items" >/dev/null
 end_phase build "Release build of the command line, archive of $items simulated items"
 start_phase
