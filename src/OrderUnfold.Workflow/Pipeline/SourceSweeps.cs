@@ -23,7 +23,7 @@ internal sealed record SourceSweepSet(IReadOnlyList<CalibratedSweep> Sweeps, IRe
 /// </summary>
 internal static class SourceSweeps
 {
-    public static SourceSweepSet Read(Setup setup, SettledInstruments settled, IProgress<string>? progress)
+    public static SourceSweepSet Read(Setup setup, SettledInstruments settled, IProgress<string>? progress, CancellationToken cancellationToken)
     {
         var sweeps = new List<CalibratedSweep>();
         var raw = new List<Sweep>();
@@ -39,7 +39,7 @@ internal static class SourceSweeps
             if (spec.File.RampFile is { } rampFile) inputs.Add(UnfoldPipeline.Describe("ramp", rampFile));
             // a fast sweep through a high-finesse cavity rings after each peak: the swept responses are replaced by their
             // static profiles at the resonance crossings before anything is fitted (Calibration/RingdownHandling.cs)
-            foreach (var prepared in RingdownHandling.PrepareAll(UnfoldPipeline.ReadSegments(spec.File)))
+            foreach (var prepared in RingdownHandling.PrepareAll(UnfoldPipeline.ReadSegments(spec.File, cancellationToken)))
             {
                 if (prepared.Corrected) notes.Add($"{prepared.Sweep.Name}: {prepared.Method}");
                 var axis = FindAxis(settled.Calibrations, spec.Instrument, prepared.Sweep, warnings)

@@ -44,17 +44,18 @@ internal static class UnfoldStages
     /// Vernier ratio and/or the known interval) and the sweeps come back at the refined FSRs; otherwise a source wider than
     /// the default window is caught and the window widened (Pipeline/WindowWidening.cs).
     /// </summary>
-    public static GridStage SolveOnGrid(IReadOnlyList<CalibratedSweep> sweeps, UnfoldOptions options, SolveOptions solve, IProgress<string>? progress)
+    public static GridStage SolveOnGrid(IReadOnlyList<CalibratedSweep> sweeps, UnfoldOptions options, SolveOptions solve, IProgress<string>? progress,
+        CancellationToken cancellationToken)
     {
         if (solve.RefineFsr || solve.KnownIntervalHz is not null)
         {
             progress?.Report("refining the FSRs from the lines");
             var (refined, result, fsrRefinement) = FsrRefiner.UnfoldWithRefinement(sweeps, options,
-                new FsrRefineOptions { RefineRatio = solve.RefineFsr, KnownIntervalHz = solve.KnownIntervalHz }, progress);
+                new FsrRefineOptions { RefineRatio = solve.RefineFsr, KnownIntervalHz = solve.KnownIntervalHz }, progress, cancellationToken);
             return new GridStage(refined, result, fsrRefinement, null, fsrRefinement.Warnings);
         }
 
-        var (widened, window) = WindowWidening.Run(o => Unfolder.Run(sweeps, o, progress), options, sweeps.Select(c => c.Instrument).ToList(), progress);
+        var (widened, window) = WindowWidening.Run(o => Unfolder.Run(sweeps, o, progress, cancellationToken), options, sweeps.Select(c => c.Instrument).ToList(), progress);
         return new GridStage(sweeps, widened, null, window, []);
     }
 
@@ -64,7 +65,8 @@ internal static class UnfoldStages
     /// when it fits as well (Pipeline/FewestLines.cs). Without the refinement nothing checks the orders: a window wider
     /// than the unambiguous range holds aliases, which a warning says.
     /// </summary>
-    public static LineStage RefineLines(GridStage grid, UnfoldOptions options, SolveOptions solve, IProgress<string>? progress)
+    public static LineStage RefineLines(GridStage grid, UnfoldOptions options, SolveOptions solve, IProgress<string>? progress,
+        CancellationToken cancellationToken)
     {
         var result = grid.Result;
         var warnings = new List<string>();
@@ -86,14 +88,14 @@ internal static class UnfoldStages
         };
         if (FewestLines.Applies(grid.Sweeps, result, grid.Window))
         {
-            var (fewest, fewestRefinement, finding) = FewestLines.Run(grid.Sweeps, result, options, grid.Window!.HalfWidthHz, refineOptions, progress);
+            var (fewest, fewestRefinement, finding) = FewestLines.Run(grid.Sweeps, result, options, grid.Window!.HalfWidthHz, refineOptions, progress, cancellationToken);
             progress?.Report($"fewest lines: {(finding.Kept ? "kept" : "not kept")}: {finding.Reason}");
             if (finding.Kept && fewestRefinement is not null) return new LineStage(fewest, fewestRefinement, warnings);
             if (finding.Kept) result = fewest;
             else warnings.Add($"a fewest-lines explanation of the widened window ({finding.Proposed} line(s)) was tried and not kept: {finding.Reason}");
         }
 
-        var (refined, refinement) = LineRefiner.Refine(grid.Sweeps, result, refineOptions, progress);
+        var (refined, refinement) = LineRefiner.Refine(grid.Sweeps, result, refineOptions, progress, cancellationToken);
         return new LineStage(refined, refinement, warnings);
     }
 }

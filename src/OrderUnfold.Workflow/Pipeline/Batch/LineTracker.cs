@@ -1,3 +1,4 @@
+using OrderUnfold.Io;
 namespace OrderUnfold.Pipeline.Batch;
 
 /// <summary>Which frame the tracked frequencies are given in.</summary>
@@ -46,11 +47,12 @@ public sealed record TrackResult(IReadOnlyList<SeriesPoint> Series, IReadOnlyLis
 /// <remarks>Holds one small record per item and per line in memory (for ordering by time and for the plots).</remarks>
 public static class LineTracker
 {
-    /// <summary>Tracks the batch in <paramref name="batchDirectory"/> and writes into <paramref name="outDirectory"/> (default: DIR/track).</summary>
-    public static TrackResult Run(string batchDirectory, string? outDirectory = null, TrackOptions? options = null)
+    /// <summary>Tracks the batch in <paramref name="batchDirectory"/> and writes into <paramref name="outDirectory"/> (default: DIR/track);
+    /// a cancelled <paramref name="cancellationToken"/> stops it while it reads the summary or the items.</summary>
+    public static TrackResult Run(string batchDirectory, string? outDirectory = null, TrackOptions? options = null, CancellationToken cancellationToken = default)
     {
         options ??= new TrackOptions();
-        var (dir, follower, origin, warnings) = Follow(batchDirectory, options);
+        var (dir, follower, origin, warnings) = Follow(batchDirectory, options, cancellationToken);
         var outDir = Path.GetFullPath(outDirectory ?? Path.Combine(dir, "track"));
         var summaries = follower.Summaries();
         var files = TrackFiles.Write(outDir, follower.Points, summaries, follower.Hops, follower.Series);
@@ -59,29 +61,34 @@ public static class LineTracker
     }
 
     /// <summary>The track and SMSR figures of the batch in <paramref name="batchDirectory"/> as inline SVG (for its
-    /// report.html; nothing is written), or an empty list when no item finished.</summary>
-    public static IReadOnlyList<SvgFigure> Svg(string batchDirectory, IFigureWriter figures, TrackOptions? options = null)
+    /// report.html; nothing is written); InputException when no item finished.</summary>
+    public static IReadOnlyList<SvgFigure> Svg(string batchDirectory, IFigureWriter figures, TrackOptions? options = null, CancellationToken cancellationToken = default)
     {
         options ??= new TrackOptions();
-        var (_, follower, origin, warnings) = Follow(batchDirectory, options);
+        var (_, follower, origin, warnings) = Follow(batchDirectory, options, cancellationToken);
         var (track, smsr) = PlotInputs(origin, follower, follower.Summaries(), options, warnings);
         return smsr is null ? [figures.DrawTrack(track)] : [figures.DrawTrack(track), figures.DrawSeries(smsr)];
     }
 
     /// <summary>Reads the summary and follows the lines of its finished items; InputException when there is nothing to track.</summary>
-    private static (string Dir, TrackFollower Follower, DateTimeOffset? Origin, List<string> Warnings) Follow(string batchDirectory, TrackOptions options)
+    private static (string Dir, TrackFollower Follower, DateTimeOffset? Origin, List<string> Warnings) Follow(string batchDirectory, TrackOptions options,
+        CancellationToken cancellationToken)
     {
         if (!(options.ToleranceHz > 0)) throw new InputException($"the tolerance must be a positive frequency but got {options.ToleranceHz} Hz");
         var dir = Path.GetFullPath(batchDirectory);
         var summaryPath = Path.Combine(dir, BatchLayout.SummaryFile);
         if (!File.Exists(summaryPath))
             throw new InputException(Directory.Exists(Path.Combine(dir, BatchLayout.ShardsFolder))
-                ? $"no summary.csv in {dir}: this batch ran in shards; run 'orderunfold merge {dir}' first"
-                : $"no summary.csv in {dir}: expected the output folder of 'orderunfold batch'", dir);
+                ? $"no summary.csv in {dir}: this batch ran in shards; run '{Hint.Command("merge " + Hint.Quote(dir))}' first"
+                : $"no summary.csv in {dir}: expected the output folder of '{Hint.Command("batch")}'", dir);
         var warnings = new List<string>();
-        var (items, origin) = TimedItems(summaryPath, warnings);
+        var (items, origin) = TimedItems(summaryPath, warnings, cancellationToken);
         var follower = new TrackFollower(dir, options, origin, warnings);
-        for (var k = 0; k < items.Count; k++) follower.Add(k, items[k]);
+        for (var k = 0; k < items.Count; k++)
+        {
+            cancellationToken.ThrowIfCancellationRequested();
+            follower.Add(k, items[k]);
+        }
 
         if (follower.Series.Count == 0) throw new InputException($"no finished item to track in {summaryPath}", summaryPath);
         return (dir, follower, origin, warnings);
@@ -89,11 +96,11 @@ public static class LineTracker
 
     /// <summary>The summary's finished items in time order (id order, one unit apart, when none has a time stamp), and the
     /// time origin.</summary>
-    private static (List<TimedItem> Items, DateTimeOffset? Origin) TimedItems(string summaryPath, List<string> warnings)
+    private static (List<TimedItem> Items, DateTimeOffset? Origin) TimedItems(string summaryPath, List<string> warnings, CancellationToken cancellationToken)
     {
         var rows = new List<(SummaryRow Row, DateTimeOffset? When)>();
         var failed = 0;
-        foreach (var r in SummaryTable.Read(summaryPath))
+        foreach (var r in SummaryTable.Read(summaryPath, cancellationToken))
         {
             if (r.Status != ItemStatus.Ok)
             {
