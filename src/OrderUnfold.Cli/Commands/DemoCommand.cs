@@ -46,7 +46,7 @@ internal sealed class DemoCommand : VerbCommand
         var truthPath = Path.Combine(dataDir, "truth.csv");
         if (File.Exists(truthPath)) CompareWithTruth(run, SimulationFiles.ReadTruth(truthPath));
         Out.WriteLine($"outputs: {outDir}");
-        Out.WriteLine($"report: {Path.Combine(outDir, Reports.HtmlPage.FileName)}");
+        if (!quiet) Out.WriteLine($"report: {Path.Combine(outDir, Reports.HtmlPage.FileName)}");
         return ExitCodes.Ok;
     }
 

@@ -50,7 +50,7 @@ internal sealed class UnfoldCommand : VerbCommand
         if (quiet) Summary.UnfoldBrief(run, Out);
         else Summary.Unfold(run, Out);
         Out.WriteLine($"outputs: {Path.GetFullPath(outDir)}");
-        Out.WriteLine($"report: {Path.Combine(Path.GetFullPath(outDir), Reports.HtmlPage.FileName)}");
+        if (!quiet) Out.WriteLine($"report: {Path.Combine(Path.GetFullPath(outDir), Reports.HtmlPage.FileName)}"); // --quiet stays at two lines
         return ExitCodes.Ok;
     }
 }
