@@ -61,15 +61,15 @@ internal static class InstrumentSettlement
     }
 
     /// <summary>
-    /// The instruments and axes at the FSRs the refinement from the lines settled on (<see cref="FsrRefiner"/>): the
-    /// refinement decides each instrument's FSR after the first unfold, so its instruments and axes are built here, from
-    /// the settled ones before it, at the refined FSR — each axis once, by the ratio of refined to settled FSR.
+    /// The instruments and axes at the FSRs the decision from the lines settled on (<see cref="FsrDecisionStage"/>): the
+    /// decision comes before any sweep of the results is built, and each instrument's axes are put at its decided FSR here,
+    /// once, by the ratio of decided to settled FSR (the axes were made at the settled FSR).
     /// </summary>
-    public static SettledInstruments WithRefinedFsr(SettledInstruments settled, FsrRefinement refinement)
+    public static SettledInstruments WithDecidedFsr(SettledInstruments settled, FsrRefinement decision)
     {
         var instruments = settled.Instruments.ToDictionary(p => p.Key, p => p.Value);
         var calibrations = settled.Calibrations.ToList();
-        foreach (var s in refinement.Instruments)
+        foreach (var s in decision.Instruments)
         {
             if (!instruments.TryGetValue(s.Instrument, out var inst) || s.RelativeChange == 0) continue;
             var factor = s.RefinedFsrHz / inst.FsrHz;

@@ -20,19 +20,19 @@ public sealed class InstrumentSettlementTests
     private static FsrRefinement Refinement(params InstrumentScale[] scales) => new(scales, [], 1, 1, 1, [], [], []);
 
     [Fact]
-    public void The_refined_FSR_gives_new_instruments_and_axes_and_leaves_the_settled_ones_unchanged()
+    public void The_decided_FSR_gives_new_instruments_and_axes_and_leaves_the_settled_ones_unchanged()
     {
         var cavity = new Instrument("cav", Fsr, 600);
         var other = new Instrument("other", 2 * Fsr, 600);
         var axes = new List<AxisCalibration> { Axis("cav"), Axis("other") };
         var settled = new SettledInstruments(new Dictionary<string, Instrument> { ["cav"] = cavity, ["other"] = other }, axes, []);
-        var refined = InstrumentSettlement.WithRefinedFsr(settled, Refinement(
+        var refined = InstrumentSettlement.WithDecidedFsr(settled, Refinement(
             new InstrumentScale("cav", Fsr, 1.005 * Fsr, 1e5, 0.005, "known interval"),
             new InstrumentScale("other", 2 * Fsr, 2 * Fsr, 0, 0, "reference (stated FSR)")));
 
         Assert.Equal(1.005 * Fsr, refined.Instruments["cav"].FsrHz, 1e-6);
         Assert.Same(other, refined.Instruments["other"]);
-        // the axis of the refined cavity is built at the refined FSR: its slope (Hz per unit x) scales with it
+        // the axis of the cavity is put at the decided FSR: its slope (Hz per unit x) scales with it
         Assert.Equal(1.005 * Fsr, refined.Calibrations[0].Axis.Derivative(0.5), 1e-3);
         Assert.Contains("FSR refined by +0.500 %", refined.Calibrations[0].Method, StringComparison.Ordinal);
         Assert.Same(axes[1], refined.Calibrations[1]);
