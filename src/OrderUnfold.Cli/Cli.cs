@@ -32,10 +32,9 @@ public static class Cli
         }
 
         using var limitScope = InputLimits.Use(tree.Limits(parse));
-        using var cancelScope = Cancellation.Use(cancel);
         try
         {
-            return Invoke(parse, stdout, stderr);
+            return Invoke(parse, stdout, stderr, cancel);
         }
         catch (Exception e) when (cancel.IsCancellationRequested && IsCancellation(e))
         {
@@ -47,19 +46,21 @@ public static class Cli
     private static bool IsCancellation(Exception e) =>
         e is OperationCanceledException || (e is AggregateException a && a.Flatten().InnerExceptions.All(i => i is OperationCanceledException));
 
-    /// <summary>Runs the parsed command; bad input of any kind becomes one message and exit code 2.</summary>
-    private static int Invoke(ParseResult parse, TextWriter stdout, TextWriter stderr)
+    /// <summary>Runs the parsed command, handing it <paramref name="cancel"/>; bad input of any kind becomes one message and exit code 2.</summary>
+    private static int Invoke(ParseResult parse, TextWriter stdout, TextWriter stderr, CancellationToken cancel)
     {
         var name = parse.CommandResult.Command.Name;
         try
         {
-            // System.CommandLine's own exception handler and Ctrl-C handling are off: both are this program's (Program.cs)
-            return parse.Invoke(new InvocationConfiguration { Output = stdout, Error = stderr, EnableDefaultExceptionHandler = false, ProcessTerminationTimeout = null });
+            // System.CommandLine's own exception handler and Ctrl-C handling are off: both are this program's (Program.cs),
+            // which cancels the token handed to the command's action here. The actions run synchronously on this thread.
+            var configuration = new InvocationConfiguration { Output = stdout, Error = stderr, EnableDefaultExceptionHandler = false, ProcessTerminationTimeout = null };
+            return parse.InvokeAsync(configuration, cancel).GetAwaiter().GetResult();
         }
-        catch (Exception e) when (e is IOException or UnauthorizedAccessException or InputException && Cancellation.Token.IsCancellationRequested)
+        catch (Exception e) when (e is IOException or UnauthorizedAccessException or InputException && cancel.IsCancellationRequested)
         {
             // a file vanished under a stopping run (its staging folder is being removed): that is the stop, not bad input
-            throw new OperationCanceledException("stopped", e, Cancellation.Token);
+            throw new OperationCanceledException("stopped", e, cancel);
         }
         catch (UsageException e)
         {

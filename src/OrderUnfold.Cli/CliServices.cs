@@ -13,8 +13,9 @@ public sealed record CliServices
     /// <summary>The services of the program as shipped: the unfold pipeline and the laser-mode analysis.</summary>
     public static CliServices Default { get; } = new();
 
-    /// <summary>Runs the unfold for a setup file and returns its line list for <c>modes SETUP.toml</c>.</summary>
-    public Func<string, ModeInput> UnfoldForModes { get; init; } = path => ModeInputs.FromRun(UnfoldPipeline.Run(path));
+    /// <summary>Runs the unfold for a setup file (stopped by the token) and returns its line list for <c>modes SETUP.toml</c>.</summary>
+    public Func<string, CancellationToken, ModeInput> UnfoldForModes { get; init; } =
+        (path, cancellationToken) => ModeInputs.FromRun(UnfoldPipeline.Run(path, cancellationToken: cancellationToken));
 
     /// <summary>The per-item analysis whose numbers fill the batch summary's mode columns.</summary>
     public IItemAnalysis BatchItemAnalysis { get; init; } = ModeItemAnalysis.Instance;

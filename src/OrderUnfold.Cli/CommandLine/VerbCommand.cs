@@ -11,7 +11,8 @@ internal abstract class VerbCommand : Command
     protected VerbCommand(string name, string summary, CliContext cli) : base(name, summary)
     {
         Context = cli;
-        SetAction(parse => Run(parse));
+        // the token is the run's (Ctrl-C / SIGTERM, Program.cs), given by Cli.Run to the invocation
+        SetAction((parse, cancellationToken) => Task.FromResult(Run(parse, cancellationToken)));
     }
 
     /// <summary>Where the command prints, and the services it uses.</summary>
@@ -28,9 +29,10 @@ internal abstract class VerbCommand : Command
 
     /// <summary>
     /// Runs the command on parsed values and returns the exit code. Bad input throws <see cref="InputException"/>,
-    /// options that cannot go together throw <see cref="UsageException"/>; both give exit code 2.
+    /// options that cannot go together throw <see cref="UsageException"/>; both give exit code 2. Long work is handed
+    /// <paramref name="cancellationToken"/>; a cancelled run throws <see cref="OperationCanceledException"/> (exit 130/143).
     /// </summary>
-    protected abstract int Run(ParseResult parse);
+    protected abstract int Run(ParseResult parse, CancellationToken cancellationToken);
 
     /// <summary>Adds the command's options, in the order its help lists them.</summary>
     protected void AddOptions(IEnumerable<Option> options)

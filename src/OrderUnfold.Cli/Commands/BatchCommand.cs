@@ -1,3 +1,4 @@
+using OrderUnfold.Io;
 using System.CommandLine;
 using OrderUnfold.Cli.CommandLine;
 using OrderUnfold.Pipeline.Batch;
@@ -64,7 +65,7 @@ internal sealed class BatchCommand : VerbCommand
         See docs/batch.md.
         """;
 
-    protected override int Run(ParseResult parse)
+    protected override int Run(ParseResult parse, CancellationToken cancellationToken)
     {
         if (parse.GetValue(_plots) && parse.GetValue(_noPlots)) throw new UsageException("--plots and --no-plots contradict each other; give one");
         var outDir = parse.GetValue(_out)!;
@@ -86,7 +87,7 @@ internal sealed class BatchCommand : VerbCommand
         BatchResult result;
         try
         {
-            result = BatchRunner.Run(parse.GetValue(_manifest)!, outDir, options, display, Cancellation.Token);
+            result = BatchRunner.Run(parse.GetValue(_manifest)!, outDir, options, display, cancellationToken);
         }
         finally
         {

@@ -42,7 +42,7 @@ internal sealed class CalibrateCommand : VerbCommand
         Options override the [solve] keys of the same name. Exit codes: 0 success, 2 bad input.
         """;
 
-    protected override int Run(ParseResult parse)
+    protected override int Run(ParseResult parse, CancellationToken cancellationToken)
     {
         var setupPath = parse.GetValue(_setup)!;
         var outDir = parse.GetValue(_out) ?? Path.Combine(Path.GetDirectoryName(Path.GetFullPath(setupPath)) ?? ".", "calibrate-out");
@@ -57,13 +57,13 @@ internal sealed class CalibrateCommand : VerbCommand
             },
         };
         var progress = new StderrProgress(Error, parse.GetValue(_quiet));
-        var set = UnfoldPipeline.Calibrate(setup, progress, out var calibrationWarnings);
+        var set = UnfoldPipeline.Calibrate(setup, progress, out var calibrationWarnings, cancellationToken);
         var warnings = calibrationWarnings.ToList();
         FsrRefinement? fsr = null;
         if (setup.Solve.RefineFsr || setup.Solve.KnownIntervalHz is not null)
         {
             // a trial unfold on this calibration, without the line refinement, gives the lines the FSRs are refined from
-            var trial = UnfoldPipeline.Run(setup with { Solve = setup.Solve with { Refine = false } }, progress, set);
+            var trial = UnfoldPipeline.Run(setup with { Solve = setup.Solve with { Refine = false } }, progress, set, cancellationToken);
             fsr = trial.FsrRefinement;
             set = new CalibrationSet(trial.Instruments, trial.Calibrations, set.Source);
             warnings.AddRange(trial.Warnings.Where(w => !warnings.Contains(w)));
@@ -76,7 +76,7 @@ internal sealed class CalibrateCommand : VerbCommand
             CalibrationFile.Write(Path.Combine(staged.Path, CalibrationReport.CalibrationFileName), set);
             plots = parse.GetValue(_noPlots) ? [] : CalibrationPlots.Write(set.Axes, staged.Path);
             CalibrationReport.Write(Path.Combine(staged.Path, CalibrationReport.FileName), CalibrationReport.Build(set, stated, warnings, fsr, Cli.Version));
-            staged.Publish(CalibrationReport.FileName);
+            staged.Publish(CalibrationReport.FileName, cancellationToken);
         }
 
         PrintCalibration(set, fsr);

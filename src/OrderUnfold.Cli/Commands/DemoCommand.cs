@@ -25,7 +25,7 @@ internal sealed class DemoCommand : VerbCommand
         lines found beside the simulated truth.
         """;
 
-    protected override int Run(ParseResult parse)
+    protected override int Run(ParseResult parse, CancellationToken cancellationToken)
     {
         var quiet = parse.GetValue(_quiet);
         var dataDir = parse.GetValue(_data) ?? LocateDemo() ??
@@ -34,11 +34,11 @@ internal sealed class DemoCommand : VerbCommand
         var outDir = Path.GetFullPath(parse.GetValue(_out) ?? "demo-output");
         Out.WriteLine("OrderUnfold demo: SIMULATED data (a dual-wavelength fibre laser under test, an invented scenario)");
         Out.WriteLine($"data: {dataDir}");
-        var run = UnfoldPipeline.Run(setup, new StderrProgress(Error, quiet));
+        var run = UnfoldPipeline.Run(setup, new StderrProgress(Error, quiet), cancellationToken: cancellationToken);
         using (var staged = Io.StagedFolder.Create(outDir)) // complete or absent (Io/StagedFolder.cs)
         {
             UnfoldOutputs.Write(run, staged.Path, figures: parse.GetValue(_noPlots) ? null : new FigureWriter(), toolVersion: Cli.Version);
-            staged.Publish(OutputNames.Report);
+            staged.Publish(OutputNames.Report, cancellationToken);
         }
 
         if (quiet) Summary.UnfoldBrief(run, Out);

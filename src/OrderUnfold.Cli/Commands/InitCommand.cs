@@ -21,7 +21,7 @@ internal sealed class InitCommand : VerbCommand
         unless --force is given (exit code 2).
         """;
 
-    protected override int Run(ParseResult parse)
+    protected override int Run(ParseResult parse, CancellationToken cancellationToken)
     {
         var path = parse.GetValue(_path) ?? "setup.toml";
         if (File.Exists(path) && !parse.GetValue(_force))

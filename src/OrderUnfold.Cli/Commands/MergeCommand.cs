@@ -24,9 +24,9 @@ internal sealed class MergeCommand : VerbCommand
         Exit codes: 0 all items ok, 1 some items failed, 2 shards missing, unfinished or inconsistent.
         """;
 
-    protected override int Run(ParseResult parse)
+    protected override int Run(ParseResult parse, CancellationToken cancellationToken)
     {
-        var result = BatchMerge.Run(parse.GetValue(_folders)!, parse.GetValue(_out));
+        var result = BatchMerge.Run(parse.GetValue(_folders)!, parse.GetValue(_out), cancellationToken);
         foreach (var w in result.Warnings) Error.WriteLine($"warning: {w}");
         Out.WriteLine($"merged {result.Shards} shard(s): {result.Rows} item(s), {result.Ok} ok, {result.Failed} failed" +
                       (result.CopiedItems > 0 ? $"; {result.CopiedItems} item folder(s) copied" : ""));

@@ -48,7 +48,7 @@ internal sealed class ModesCommand : VerbCommand
         Exit codes: 0 PASS (or no requirement stated), 1 FAIL of a stated requirement, 2 bad input.
         """;
 
-    protected override int Run(ParseResult parse)
+    protected override int Run(ParseResult parse, CancellationToken cancellationToken)
     {
         var options = new ModeAnalysisOptions
         {
@@ -62,7 +62,7 @@ internal sealed class ModesCommand : VerbCommand
         if (options.SpacingMinHz is { } lo && options.SpacingMaxHz is { } hi && lo >= hi)
             throw new UsageException($"--spacing-min ({Quantity.FormatFrequency(lo)}) must be below --spacing-max ({Quantity.FormatFrequency(hi)})");
         var requirements = new ModeRequirements(parse.GetValue(_requireSmsr), parse.GetValue(_requireMaxModes));
-        var (input, source, defaultOut) = ReadInput(parse.GetValue(_target)!);
+        var (input, source, defaultOut) = ReadInput(parse.GetValue(_target)!, cancellationToken);
         var outDir = parse.GetValue(_out) ?? defaultOut;
 
         var analysis = LaserModes.Analyse(input, options);
@@ -85,14 +85,14 @@ internal sealed class ModesCommand : VerbCommand
     }
 
     /// <summary>The line list of a result folder, or of a setup unfolded first (by the service the program was given).</summary>
-    private (ModeInput Input, string Source, string DefaultOut) ReadInput(string target)
+    private (ModeInput Input, string Source, string DefaultOut) ReadInput(string target, CancellationToken cancellationToken)
     {
         if (Directory.Exists(target))
             return (ModeInputReader.FromResultDirectory(target), Path.Combine(target, ModeInputReader.LinesFileName), target);
         if (target.EndsWith(".toml", StringComparison.OrdinalIgnoreCase))
         {
             if (!File.Exists(target)) throw new InputException("the setup file does not exist", target);
-            return (Context.Services.UnfoldForModes(target), target, DefaultSetupOutput);
+            return (Context.Services.UnfoldForModes(target, cancellationToken), target, DefaultSetupOutput);
         }
 
         throw new InputException(File.Exists(target)

@@ -39,19 +39,19 @@ internal sealed class PlanCommand : VerbCommand
         public IReadOnlyList<DesignEvaluation> All => Triples is null ? Ranked : Ranked.Concat(Triples).ToList();
     }
 
-    protected override int Run(ParseResult parse)
+    protected override int Run(ParseResult parse, CancellationToken cancellationToken)
     {
         var request = PlanInputs.Read(parse, _options);
         PrintHeader(request);
-        var search = request.Candidates is null ? Judge(request) : Search(request, request.Candidates);
+        var search = request.Candidates is null ? Judge(request) : Search(request, request.Candidates, cancellationToken);
         var chosen = search.Chosen;
 
         // the what-if runs before the verdict is printed: a design whose own simulation shows ghost or missing lines
         // is not reported as ok
-        var whatIf = request.WhatIfLines is { } lines ? WhatIf.Run(chosen.Instruments, lines, request.WhatIfOptions, new Progress(Error)) : null;
+        var whatIf = request.WhatIfLines is { } lines ? WhatIf.Run(chosen.Instruments, lines, request.WhatIfOptions, new Progress(Error), cancellationToken) : null;
         var confirmed = whatIf is null || whatIf.Passes;
         PrintVerdict(request, chosen, whatIf);
-        WriteFiles(request, search, confirmed);
+        WriteFiles(request, search, confirmed, cancellationToken);
         if (whatIf is not null)
         {
             var o = request.WhatIfOptions;
@@ -87,12 +87,12 @@ internal sealed class PlanCommand : VerbCommand
     }
 
     /// <summary>Ranks the candidates as an added cavity; extends the best pairs by a third when asked or when no pair passes.</summary>
-    private PlanSearch Search(PlanRequest request, CandidateSet candidates)
+    private PlanSearch Search(PlanRequest request, CandidateSet candidates, CancellationToken cancellationToken)
     {
         var (fixedCavities, family, settings, top) = (request.FixedCavities, request.Family, request.Settings, request.Top);
         Out.WriteLine($"Candidates: {candidates.Description}; {family.Geometry.ToString().ToLowerInvariant()}, finesse {PlanOptions.Number(family.Finesse)}" +
                       (request.ToleranceM > 0 ? $", tolerance ±{Quantity.FormatLength(request.ToleranceM)}" : ", no length tolerance"));
-        var ranked = Planner.RankAddedCavity(fixedCavities, candidates.Lengths, family, settings, fixedCavities.Count == 1 ? "second" : "added");
+        var ranked = Planner.RankAddedCavity(fixedCavities, candidates.Lengths, family, settings, fixedCavities.Count == 1 ? "second" : "added", cancellationToken);
         Out.WriteLine();
         Out.WriteLine($"{(fixedCavities.Count == 1 ? "Two" : (fixedCavities.Count + 1).ToString(CultureInfo.InvariantCulture))}-cavity designs, best {Math.Min(top, ranked.Count)} of {ranked.Count}:");
         Out.Write(PlanReport.Table(ranked, top));
@@ -100,7 +100,7 @@ internal sealed class PlanCommand : VerbCommand
         if (fixedCavities.Count > 1 || (!request.SearchThird && ranked[0].Passes)) return new PlanSearch(ranked, null, chosen);
 
         if (!ranked[0].Passes) Out.WriteLine($"No two-cavity design meets the margin; trying a third cavity on the best {PairsExtended}.");
-        var triples = Planner.RankThirdCavity(ranked.Take(PairsExtended).ToList(), candidates.Lengths, family, settings, top);
+        var triples = Planner.RankThirdCavity(ranked.Take(PairsExtended).ToList(), candidates.Lengths, family, settings, top, cancellationToken: cancellationToken);
         Out.WriteLine();
         Out.WriteLine($"Three-cavity designs (third cavity added to the best {PairsExtended} pairs), best {triples.Count}:");
         Out.Write(PlanReport.Table(triples, top));
@@ -128,7 +128,7 @@ internal sealed class PlanCommand : VerbCommand
     }
 
     /// <summary>plan.csv, and unless --no-plots the margin curve and the candidate map; complete or absent (Io/StagedFolder.cs).</summary>
-    private void WriteFiles(PlanRequest request, PlanSearch search, bool confirmed)
+    private void WriteFiles(PlanRequest request, PlanSearch search, bool confirmed, CancellationToken cancellationToken)
     {
         using var staged = StagedFolder.Create(request.OutDir);
         var written = new List<string> { Path.Combine(staged.Path, "plan.csv") };
@@ -144,7 +144,7 @@ internal sealed class PlanCommand : VerbCommand
             }
         }
 
-        staged.Publish("plan.csv");
+        staged.Publish("plan.csv", cancellationToken);
         Out.WriteLine();
         Out.WriteLine("Wrote " + string.Join(", ", written.Select(staged.Final)));
     }

@@ -1,3 +1,4 @@
+using OrderUnfold.Io;
 using System.CommandLine;
 using OrderUnfold.Cli.CommandLine;
 using OrderUnfold.Pipeline.Batch;
@@ -31,7 +32,7 @@ internal sealed class SimulateArchiveCommand : VerbCommand
           {Hint.Command("track RESULTS")}
         """;
 
-    protected override int Run(ParseResult parse)
+    protected override int Run(ParseResult parse, CancellationToken cancellationToken)
     {
         var outDir = parse.GetValue(_out)!;
         var items = parse.GetValue(_items) ?? Defaults.Items;
@@ -45,9 +46,9 @@ internal sealed class SimulateArchiveCommand : VerbCommand
         string manifest, calibration, truth;
         using (var staged = Io.StagedFolder.Create(outDir)) // complete or absent (Io/StagedFolder.cs)
         {
-            var output = DemoArchive.Write(staged.Path, spec);
+            var output = DemoArchive.Write(staged.Path, spec, cancellationToken);
             (manifest, calibration, truth) = (staged.Final(output.ManifestPath), staged.Final(output.CalibrationPath), staged.Final(output.Simulation.TruthPath));
-            staged.Publish(Path.GetFileName(output.ManifestPath));
+            staged.Publish(Path.GetFileName(output.ManifestPath), cancellationToken);
         }
 
         Out.WriteLine($"wrote a simulated archive of {items} item(s) (SIMULATED DATA) to {Path.GetFullPath(outDir)}");

@@ -1,3 +1,4 @@
+using OrderUnfold.Io;
 using System.CommandLine;
 using System.Globalization;
 using OrderUnfold.Cli.CommandLine;
@@ -54,7 +55,7 @@ internal sealed class SimulateCommand : VerbCommand
         errors, one channel per file): docs/simulate.md.
         """;
 
-    protected override int Run(ParseResult parse)
+    protected override int Run(ParseResult parse, CancellationToken cancellationToken)
     {
         var spec = Spec(parse);
         string setupPath;
@@ -64,7 +65,7 @@ internal sealed class SimulateCommand : VerbCommand
             var output = SimulationFiles.WriteScenario(spec, staged.Path);
             setupPath = staged.Final(output.SetupPath);
             files = output.Files;
-            staged.Publish(Path.GetFileName(output.SetupPath));
+            staged.Publish(Path.GetFileName(output.SetupPath), cancellationToken);
         }
 
         Out.WriteLine($"wrote {files.Count} files (simulated data) to {Path.GetFullPath(parse.GetValue(_out)!)}:");

@@ -38,7 +38,7 @@ internal sealed class TrackCommand : VerbCommand
         modulo its FSR.
         """;
 
-    protected override int Run(ParseResult parse)
+    protected override int Run(ParseResult parse, CancellationToken cancellationToken)
     {
         var dir = parse.GetValue(_folder)!;
         var options = new TrackOptions
@@ -52,9 +52,9 @@ internal sealed class TrackCommand : VerbCommand
         string outputs;
         using (var staged = Io.StagedFolder.Create(parse.GetValue(_out) ?? Path.Combine(dir, "track"))) // complete or absent
         {
-            r = LineTracker.Run(dir, staged.Path, options);
+            r = LineTracker.Run(dir, staged.Path, options, cancellationToken);
             outputs = staged.Target;
-            staged.Publish("series.csv");
+            staged.Publish("series.csv", cancellationToken);
         }
 
         foreach (var w in r.Warnings) Error.WriteLine($"warning: {w}");

@@ -33,18 +33,18 @@ internal sealed class UnfoldCommand : VerbCommand
         Exit codes: 0 success, 2 bad input, 130/143 when stopped by Ctrl-C/SIGTERM.
         """;
 
-    protected override int Run(ParseResult parse)
+    protected override int Run(ParseResult parse, CancellationToken cancellationToken)
     {
         var setup = parse.GetValue(_setup)!;
         var quiet = parse.GetValue(_quiet);
         var outDir = parse.GetValue(_out) ?? Path.Combine(Path.GetDirectoryName(Path.GetFullPath(setup)) ?? ".", "unfold-out");
         var reuse = parse.GetValue(_calibration) is string calibration ? SavedCalibration.Read(calibration) : null;
-        var run = UnfoldPipeline.Run(setup, new StderrProgress(Error, quiet), reuse);
+        var run = UnfoldPipeline.Run(setup, new StderrProgress(Error, quiet), reuse, cancellationToken);
         // outputs are complete or absent: written into a staging folder, published by rename (Io/StagedFolder.cs)
         using (var staged = Io.StagedFolder.Create(outDir))
         {
             UnfoldOutputs.Write(run, staged.Path, figures: parse.GetValue(_noPlots) ? null : new FigureWriter(), toolVersion: Cli.Version);
-            staged.Publish(OutputNames.Report);
+            staged.Publish(OutputNames.Report, cancellationToken);
         }
 
         if (quiet) Summary.UnfoldBrief(run, Out);

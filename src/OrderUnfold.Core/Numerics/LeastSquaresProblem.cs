@@ -110,4 +110,7 @@ public sealed record LmSettings
 
     /// <summary>Asked before each iteration; false stops the fit where it is, with <see cref="LmExit.Budget"/>.</summary>
     public Func<bool>? KeepGoing { get; init; }
+
+    /// <summary>Checked before each iteration: once cancelled, the fit throws <see cref="OperationCanceledException"/>.</summary>
+    public CancellationToken CancellationToken { get; init; }
 }

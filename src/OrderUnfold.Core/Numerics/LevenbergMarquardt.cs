@@ -20,12 +20,13 @@ public static class LevenbergMarquardt
     /// <param name="stepTolerance">Stop when no parameter moves by more than this many of its scales (relative to its size when that is larger).</param>
     /// <param name="chiSquareTolerance">Stop when a full step would lower χ² by less than this (absolute; χ² differences below it carry no information).</param>
     /// <param name="budget">Shared work limits (null: only <paramref name="maxIterations"/>); each iteration spends one.</param>
+    /// <param name="cancellationToken">Checked before each iteration (<see cref="LmSettings.CancellationToken"/>).</param>
     public static LmOutcome Minimise(ILeastSquaresProblem problem, double[] p0, double[] scales, bool[]? isFixed, int maxIterations,
-        double stepTolerance = 1e-9, double chiSquareTolerance = 1e-9, WorkBudget? budget = null) =>
+        double stepTolerance = 1e-9, double chiSquareTolerance = 1e-9, WorkBudget? budget = null, CancellationToken cancellationToken = default) =>
         Minimise(problem, p0, new LmSettings
         {
             Scales = scales, IsFixed = isFixed, MaxIterations = maxIterations, StepTolerance = stepTolerance,
-            ChiSquareTolerance = chiSquareTolerance, Budget = budget,
+            ChiSquareTolerance = chiSquareTolerance, Budget = budget, CancellationToken = cancellationToken,
         });
 
     /// <summary>Minimises χ² of <paramref name="problem"/> from <paramref name="p0"/> (not modified) under <paramref name="settings"/>.</summary>

@@ -74,7 +74,7 @@ internal sealed class LevenbergMarquardtRun
         for (var u = 0; u < _f; u++) _d[u] = Math.Max(_d[u], 1e-12 * dMax);
         for (var iteration = 1; iteration <= _settings.MaxIterations; iteration++)
         {
-            Cancellation.ThrowIfRequested(); // Ctrl-C / SIGTERM (Cancellation.cs)
+            _settings.CancellationToken.ThrowIfCancellationRequested(); // the caller's stop (a shared budget's token: budget.Spend)
             if (_settings.KeepGoing is { } keepGoing && !keepGoing()) return Outcome(LmExit.Budget, iteration - 1);
             if (_settings.Budget is { } budget && !budget.Spend()) return Outcome(LmExit.Budget, iteration - 1);
             var exit = Iterate();

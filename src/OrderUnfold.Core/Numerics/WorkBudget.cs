@@ -4,7 +4,9 @@ namespace OrderUnfold.Numerics;
 /// The work limits shared by every fit of one analysis stage: a count of iterations (each Levenberg–Marquardt solve,
 /// each Gauss–Newton step of a quick refit, each bootstrap replicate's iterations) and a limit on the CPU time of the
 /// calling thread. When either is used up, <see cref="Exhausted"/> says which and every fit that shares the budget
-/// stops at its next iteration. Progress messages are passed on at most about once per second of wall time.
+/// stops at its next iteration. Progress messages are passed on at most about once per second of wall time. The stage's
+/// cancellation token rides with the budget: <see cref="Spend"/> throws <see cref="OperationCanceledException"/> once it is
+/// cancelled, so every fit that shares the budget stops without a token parameter of its own.
 /// </summary>
 public sealed class WorkBudget
 {
@@ -16,8 +18,10 @@ public sealed class WorkBudget
     /// <param name="iterations">Iterations allowed in all (≤ 0: none).</param>
     /// <param name="cpuSeconds">CPU seconds of the calling thread allowed (not finite or ≤ 0: no limit).</param>
     /// <param name="progress">Where progress lines go.</param>
-    public WorkBudget(int iterations, double cpuSeconds, IProgress<string>? progress = null)
+    /// <param name="cancellationToken">Stops the work: <see cref="Spend"/> throws once it is cancelled.</param>
+    public WorkBudget(int iterations, double cpuSeconds, IProgress<string>? progress = null, CancellationToken cancellationToken = default)
     {
+        CancellationToken = cancellationToken;
         IterationLimit = iterations;
         CpuLimitSeconds = cpuSeconds;
         _progress = progress;
@@ -32,6 +36,9 @@ public sealed class WorkBudget
     /// <summary>Most CPU seconds they may take together.</summary>
     public double CpuLimitSeconds { get; }
 
+    /// <summary>The token of the stage that made the budget, checked by <see cref="Spend"/>.</summary>
+    public CancellationToken CancellationToken { get; }
+
     /// <summary>Iterations spent so far.</summary>
     public int Used { get; private set; }
 
@@ -42,8 +49,10 @@ public sealed class WorkBudget
     public double CpuSeconds => ThreadCpuSeconds() - _cpuStart;
 
     /// <summary>Counts <paramref name="iterations"/>; false (and <see cref="Exhausted"/> set) when a limit is reached.</summary>
+    /// <exception cref="OperationCanceledException"><see cref="CancellationToken"/> was cancelled.</exception>
     public bool Spend(int iterations = 1)
     {
+        CancellationToken.ThrowIfCancellationRequested();
         if (Exhausted is not null) return false;
         Used += iterations;
         if (Used > IterationLimit)

@@ -44,17 +44,20 @@ public static class FamilyFit
     /// <param name="result">The refined unfold.</param>
     /// <param name="instrument">Instrument name.</param>
     /// <param name="maxIterations">Iteration limit.</param>
-    public static FamilyFitResult? Fit(IReadOnlyList<CalibratedSweep> sweeps, UnfoldResult result, string instrument, int maxIterations = 40)
+    /// <param name="cancellationToken">Checked before each iteration and each sweep's pass (<see cref="OperationCanceledException"/>).</param>
+    public static FamilyFitResult? Fit(IReadOnlyList<CalibratedSweep> sweeps, UnfoldResult result, string instrument, int maxIterations = 40,
+        CancellationToken cancellationToken = default)
     {
         var idx = Enumerable.Range(0, Math.Min(sweeps.Count, result.Sweeps.Count)).Where(k => sweeps[k].Instrument.Name == instrument).ToList();
         if (idx.Count == 0 || result.Lines.Count == 0) return null;
         var inst = sweeps[idx[0]].Instrument;
         if (inst.Families.Count == 0) return null;
-        var problem = new FamilyProblem(idx.Select(k => sweeps[k]).ToList(), idx.Select(k => result.Sweeps[k].OffsetHz).ToArray(), result.Lines, inst);
+        var problem = new FamilyProblem(idx.Select(k => sweeps[k]).ToList(), idx.Select(k => result.Sweeps[k].OffsetHz).ToArray(), result.Lines, inst, cancellationToken);
         var p0 = problem.Start(inst.Families);
         var before = problem.ChiSquare(p0);
         var scales = problem.Scales(p0);
-        var outcome = LevenbergMarquardt.Minimise(problem, p0, scales, null, maxIterations, StepTolerance, ChiSquareTolerance);
+        var outcome = LevenbergMarquardt.Minimise(problem, p0, scales, null, maxIterations, StepTolerance, ChiSquareTolerance,
+            cancellationToken: cancellationToken);
         var p = outcome.P;
         var n = problem.Count;
         var dof = Math.Max(1, problem.Samples - n);
@@ -90,9 +93,12 @@ public static class FamilyFit
         private readonly IReadOnlyList<UnfoldedLine> _lines;
         private readonly LineShape[] _shapes;
         private readonly int _families;
+        private readonly CancellationToken _cancellationToken;
 
-        public FamilyProblem(List<CalibratedSweep> sweeps, double[] phi, IReadOnlyList<UnfoldedLine> lines, Instrument inst)
+        public FamilyProblem(List<CalibratedSweep> sweeps, double[] phi, IReadOnlyList<UnfoldedLine> lines, Instrument inst,
+            CancellationToken cancellationToken)
         {
+            _cancellationToken = cancellationToken;
             _sweeps = sweeps;
             _phi = phi;
             _lines = lines;
@@ -207,7 +213,7 @@ public static class FamilyFit
             double chi = 0;
             for (var k = 0; k < _sweeps.Count; k++)
             {
-                Cancellation.ThrowIfRequested();
+                _cancellationToken.ThrowIfCancellationRequested();
                 var s = _sweeps[k];
                 var w = 1 / (s.NoiseSigma * s.NoiseSigma);
                 for (var i = 0; i < s.Signal.Length; i++)

@@ -145,9 +145,10 @@ public static class LineRefiner
 {
     /// <summary>Refines <paramref name="grid"/>'s lines against <paramref name="sweeps"/> (the same sweeps, in the same
     /// order, that produced the grid result). Progress lines go to <paramref name="progress"/> at least about once a
-    /// second of wall time while fits run.</summary>
+    /// second of wall time while fits run. A cancelled <paramref name="cancellationToken"/> stops every fit at its next
+    /// iteration (it rides with the refinement's <see cref="WorkBudget"/>) with <see cref="OperationCanceledException"/>.</summary>
     public static (UnfoldResult Result, RefinementDiagnostics Diagnostics) Refine(IReadOnlyList<CalibratedSweep> sweeps, UnfoldResult grid, RefineOptions? options = null,
-        IProgress<string>? progress = null)
+        IProgress<string>? progress = null, CancellationToken cancellationToken = default)
     {
         ArgumentNullException.ThrowIfNull(sweeps);
         ArgumentNullException.ThrowIfNull(grid);
@@ -156,7 +157,8 @@ public static class LineRefiner
         if (sweeps.Count != grid.Sweeps.Count)
             throw new ArgumentException($"the grid result has {grid.Sweeps.Count} sweep fits but {sweeps.Count} sweeps were given", nameof(grid));
 
-        var budget = new WorkBudget(options.IterationBudget, options.CpuBudgetSeconds, progress);
+        cancellationToken.ThrowIfCancellationRequested();
+        var budget = new WorkBudget(options.IterationBudget, options.CpuBudgetSeconds, progress, cancellationToken);
         var samples = new SweepSamples(sweeps) { CutoffLinewidths = options.JacobianCutoffLinewidths };
         var context = new RefinementContext(sweeps, grid, options, samples, Threshold(options, samples.Count), grid.Warnings.ToList(), budget);
         if (grid.Lines.Count == 0) return UnrefinedResults.NoGridLines(context);

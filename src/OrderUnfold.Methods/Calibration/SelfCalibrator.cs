@@ -31,10 +31,14 @@ public static class SelfCalibrator
             RepeatPeriodChoice.DecidePeriod(chosen, runs, Peaks, Sweep, Instrument, Period, XLo, XHi);
     }
 
-    /// <summary>Self-calibrates one sweep segment (x relative to the segment start for time scans).</summary>
+    /// <summary>Self-calibrates one sweep segment (x relative to the segment start for time scans); a cancelled
+    /// <paramref name="cancellationToken"/> stops it between its pairing runs.</summary>
     /// <exception cref="InputException">The sweep is too short, has no repeats, or the constraints cannot support the axis.</exception>
-    public static SelfCalibrationResult Calibrate(Sweep sweep, Instrument instrument, SelfCalibrationOptions? options = null)
+    /// <exception cref="OperationCanceledException"><paramref name="cancellationToken"/> was cancelled.</exception>
+    public static SelfCalibrationResult Calibrate(Sweep sweep, Instrument instrument, SelfCalibrationOptions? options = null,
+        CancellationToken cancellationToken = default)
     {
+        cancellationToken.ThrowIfCancellationRequested();
         var setting = Prepare(sweep, instrument, options ?? new SelfCalibrationOptions());
         var warnings = new List<string>();
         var (starts, initialPeriodSamples) = StartingAxes(setting);
@@ -42,6 +46,7 @@ public static class SelfCalibrator
         InputException? firstError = null;
         foreach (var (axis0, rms0) in starts)
         {
+            cancellationToken.ThrowIfCancellationRequested();
             try
             {
                 runs.Add(setting.Rounds(axis0, rms0));
@@ -53,6 +58,7 @@ public static class SelfCalibrator
         }
 
         if (runs.All(r => r.Fit is null)) throw firstError ?? setting.NoRepeats();
+        cancellationToken.ThrowIfCancellationRequested();
         var chosen = RepeatPeriodChoice.Choose(runs, setting.Peaks, setting.Delta, setting.XLo, setting.XHi);
         if (chosen.Fit is null || chosen.Pairs.Count == 0) throw setting.NoRepeats();
         var decision = SettlePeriod(setting, runs, ref chosen);

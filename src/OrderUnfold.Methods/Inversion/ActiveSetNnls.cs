@@ -74,10 +74,12 @@ public static class ActiveSetNnls
     }
 
     /// <summary>Solves from scratch, or warm-started from a previous solution <paramref name="start"/>
-    /// (its positive entries form the first active set; useful when the problem changed a little).</summary>
-    public static NnlsResult Solve(INormalEquations eq, Options? options = null, ReadOnlySpan<double> start = default)
+    /// (its positive entries form the first active set; useful when the problem changed a little). A cancelled
+    /// <paramref name="cancellationToken"/> stops the solve at its next iteration with <see cref="OperationCanceledException"/>.</summary>
+    public static NnlsResult Solve(INormalEquations eq, Options? options = null, ReadOnlySpan<double> start = default,
+        CancellationToken cancellationToken = default)
     {
-        var run = new Run(eq, options ?? new Options());
+        var run = new Run(eq, options ?? new Options(), cancellationToken);
         run.Start(start);
         return run.Iterate();
     }
@@ -88,6 +90,7 @@ public static class ActiveSetNnls
     {
         private readonly INormalEquations _eq;
         private readonly Options _options;
+        private readonly CancellationToken _cancellationToken;
         private readonly int _n;
         private readonly double[] _b;
         private readonly double[] _x;
@@ -106,10 +109,11 @@ public static class ActiveSetNnls
         private double[] _workingGx = [];
         private double _floor; // the working set held every violator down to this gradient
 
-        public Run(INormalEquations eq, Options options)
+        public Run(INormalEquations eq, Options options, CancellationToken cancellationToken)
         {
             _eq = eq;
             _options = options;
+            _cancellationToken = cancellationToken;
             _n = eq.Count;
             _b = eq.RightHandSide.ToArray();
             _x = new double[_n];
@@ -152,7 +156,7 @@ public static class ActiveSetNnls
             var handedOver = false;
             while (iterations < _options.MaxIterations)
             {
-                Cancellation.ThrowIfRequested(); // Ctrl-C / SIGTERM (Cancellation.cs)
+                _cancellationToken.ThrowIfCancellationRequested();
                 var bestValue = _options.Tolerance;
                 int best;
                 if (_working is null)

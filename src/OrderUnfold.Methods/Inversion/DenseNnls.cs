@@ -59,8 +59,10 @@ public static class DenseNnls
     /// (the rule of Moré &amp; Toraldo, with a smaller factor).</summary>
     private const double CgStop = 1e-3;
 
-    /// <summary>Solves for dense support: projected Newton with the Toeplitz preconditioner where the equations provide one, else gradient projection; KKT checked at the end with a fresh product.</summary>
-    public static NnlsResult Solve(INormalEquations eq, Options? options = null, ReadOnlySpan<double> start = default)
+    /// <summary>Solves for dense support: projected Newton with the Toeplitz preconditioner where the equations provide one, else gradient projection; KKT checked at the end with a fresh product.
+    /// A cancelled <paramref name="cancellationToken"/> stops the solve before its next iteration (<see cref="OperationCanceledException"/>).</summary>
+    public static NnlsResult Solve(INormalEquations eq, Options? options = null, ReadOnlySpan<double> start = default,
+        CancellationToken cancellationToken = default)
     {
         options ??= new Options();
         // the unfolding problem's Toeplitz structure gives a preconditioner strong enough for a projected Newton method;
@@ -71,13 +73,13 @@ public static class DenseNnls
             var toeplitz = ToeplitzPreconditioner.TryCreate(problem, out var why);
             if (toeplitz is not null)
             {
-                var newton = ProjectedNewtonNnls.Solve(eq, toeplitz, options, start, "Toeplitz");
+                var newton = ProjectedNewtonNnls.Solve(eq, toeplitz, options, start, "Toeplitz", cancellationToken);
                 if (newton.Status != SolverStatus.InvalidValues && newton.Status != SolverStatus.Converged)
                 {
                     // the projected Newton method did not settle (many entries moving between zero and positive, long
                     // conjugate-gradient runs): gradient projection continues from its iterate with its own product budget,
                     // so the answer is never worse than gradient projection alone and the cost stays bounded (two budgets)
-                    var finish = SolveByGradientProjection(eq, options, newton.Solution);
+                    var finish = SolveByGradientProjection(eq, options, newton.Solution, cancellationToken);
                     return finish with
                     {
                         Message = $"{finish.Message} (projected Newton did not converge: {newton.Message}; gradient projection continued from its iterate)",
@@ -92,12 +94,13 @@ public static class DenseNnls
             fallback = $" (gradient projection: no Toeplitz preconditioner, {why})";
         }
 
-        var result = SolveByGradientProjection(eq, options, start);
+        var result = SolveByGradientProjection(eq, options, start, cancellationToken);
         return fallback.Length == 0 ? result : result with { Message = result.Message + fallback };
     }
 
-    private static NnlsResult SolveByGradientProjection(INormalEquations eq, Options options, ReadOnlySpan<double> start) =>
-        new GradientProjectionRun(eq, options, start).Solve();
+    private static NnlsResult SolveByGradientProjection(INormalEquations eq, Options options, ReadOnlySpan<double> start,
+        CancellationToken cancellationToken) =>
+        new GradientProjectionRun(eq, options, start).Solve(cancellationToken);
 
     /// <summary>The checks before each outer iteration of the dense solvers, in order: non-finite values, the KKT
     /// conditions within the tolerance, the iteration and product limits. True (with the status and message) when the
@@ -220,7 +223,7 @@ public static class DenseNnls
         // g = Gx − b is kept with gx, so the violation is the one every solver's final check uses
         private double Violation() => NnlsResult.KktViolationOf(_b, _gx, _x, _free).Violation;
 
-        public NnlsResult Solve()
+        public NnlsResult Solve(CancellationToken cancellationToken)
         {
             SolverStatus status;
             string message;
@@ -228,6 +231,7 @@ public static class DenseNnls
             var stalls = 0;
             while (true)
             {
+                cancellationToken.ThrowIfCancellationRequested();
                 var violation = Violation();
                 if (StopsBeforeIteration(double.IsFinite(violation) && double.IsFinite(_q), violation, _tol, iterations,
                         _products, _options, out status, out message)) break;

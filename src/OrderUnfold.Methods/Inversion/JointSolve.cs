@@ -16,7 +16,7 @@ internal static class JointSolve
 {
     /// <summary>Runs the rounds from the origins of the offset search and the first gains.</summary>
     internal static JointSolution Run(IReadOnlyList<CalibratedSweep> sweeps, Unfolder.GridLayout layout, double[] offsets, double[] gains,
-        UnfoldOptions options, IProgress<string>? progress)
+        UnfoldOptions options, IProgress<string>? progress, CancellationToken cancellationToken)
     {
         var thresholds = options.Thresholds;
         UnfoldProblem problem = null!;
@@ -39,7 +39,7 @@ internal static class JointSolve
             }
 
             nnls = NnlsSolver.Solve(problem, options.Solver, Unfolder.SolverOptions(problem, thresholds), problem.L1Weight, problem.SmoothnessWeight,
-                round == 0 ? default : nnls.Solution);
+                round == 0 ? default : nnls.Solution, cancellationToken: cancellationToken);
             progress?.Report($"NNLS round {round + 1}: {nnls.ActiveCount} active entries after {nnls.Iterations} iterations ({nnls.Status})");
             if (round == rounds) break;
             (offsets, var moved) = StepOffsets(sweeps, problem, nnls.Solution, offsets, thresholds);

@@ -70,10 +70,11 @@ public static class OffsetSearch
 
     /// <summary>
     /// Finds the origins of all sweeps. <paramref name="gains"/> are the provisional gains (relative to sweep 0),
-    /// <paramref name="grid"/> the unfold's grid (the user's window), <paramref name="step"/> its step.
+    /// <paramref name="grid"/> the unfold's grid (the user's window), <paramref name="step"/> its step. A cancelled
+    /// <paramref name="cancellationToken"/> stops the pair solves (<see cref="OperationCanceledException"/>).
     /// </summary>
     public static Result Run(IReadOnlyList<CalibratedSweep> sweeps, IReadOnlyList<double> gains, FrequencyGrid grid, double step,
-        UnfoldOptions options, IProgress<string>? progress)
+        UnfoldOptions options, IProgress<string>? progress, CancellationToken cancellationToken = default)
     {
         var offsets = new double[sweeps.Count];
         var folded = sweeps.Select(Unfolder.FoldedPeaks).ToArray();
@@ -91,7 +92,7 @@ public static class OffsetSearch
         var peaks = folded.Sum(f => f.Count);
         var wholeCap = WholeSolveIterationsPerPeak * peaks + WholeSolveBaseIterations;
         var settings = new PairSettings(options, grid, step, sweeps.Min(s => s.Instrument.LinewidthHz), wholeCap,
-            Math.Min(wholeCap, ScreenIterationsPerPeak * peaks + ScreenBaseIterations));
+            Math.Min(wholeCap, ScreenIterationsPerPeak * peaks + ScreenBaseIterations), cancellationToken);
         for (var k = 1; k < sweeps.Count; k++)
         {
             var sibling = Enumerable.Range(0, k).FirstOrDefault(r => SameInstrument(sweeps[r].Instrument, sweeps[k].Instrument), -1);
@@ -112,8 +113,9 @@ public static class OffsetSearch
     }
 
     /// <summary>What every pair search of one run shares: the unfold's options, grid and step, the narrowest linewidth,
-    /// and the iteration budgets of a whole and of a short (screening) pair solve.</summary>
-    private sealed record PairSettings(UnfoldOptions Options, FrequencyGrid Grid, double Step, double NarrowestLinewidthHz, int Cap, int ScreenCap);
+    /// the iteration budgets of a whole and of a short (screening) pair solve, and the run's cancellation token.</summary>
+    private sealed record PairSettings(UnfoldOptions Options, FrequencyGrid Grid, double Step, double NarrowestLinewidthHz, int Cap, int ScreenCap,
+        CancellationToken CancellationToken);
 
     /// <summary>The origin of one sweep against the reference sweep: coarse candidates from the score, pair solves of the
     /// best-ranked ones, Gauss–Newton refinement of the winner.</summary>
@@ -175,7 +177,7 @@ public static class OffsetSearch
                 _weights = (pr.L1Weight, pr.SmoothnessWeight);
             }
 
-            var r = ActiveSetNnls.Solve(pr, Unfolder.SolverOptions(pr) with { MaxIterations = iterations }, start);
+            var r = ActiveSetNnls.Solve(pr, Unfolder.SolverOptions(pr) with { MaxIterations = iterations }, start, _settings.CancellationToken);
             return (Unfolder.ChiSquare(pr, r.Solution, _pair), r.Solution, pr, r.Status == SolverStatus.Converged);
         }
 

@@ -37,10 +37,11 @@ public static class ProjectedNewtonNnls
     /// while the bound set is still changing.</summary>
     private const int RestrictedCgSteps = 50;
 
-    /// <summary>Bertsekas' projected Newton method with conjugate-gradient directions preconditioned by <paramref name="pre"/> (named <paramref name="preconditionerName"/> in the result's message), from <paramref name="start"/> when given.</summary>
+    /// <summary>Bertsekas' projected Newton method with conjugate-gradient directions preconditioned by <paramref name="pre"/> (named <paramref name="preconditionerName"/> in the result's message), from <paramref name="start"/> when given;
+    /// a cancelled <paramref name="cancellationToken"/> stops it before its next iteration (<see cref="OperationCanceledException"/>).</summary>
     public static NnlsResult Solve(INormalEquations eq, INormalPreconditioner pre, DenseNnls.Options options, ReadOnlySpan<double> start,
-        string preconditionerName) =>
-        new Run(eq, pre, options, start).Solve(preconditionerName);
+        string preconditionerName, CancellationToken cancellationToken = default) =>
+        new Run(eq, pre, options, start).Solve(preconditionerName, cancellationToken);
 
 
     /// <summary>Deletes row and column k from the lower Cholesky factor L (row-major, row stride
@@ -162,12 +163,13 @@ public static class ProjectedNewtonNnls
         // g = Gx − b is kept with gx, so the violation is the one every solver's final check uses
         private double Violation() => NnlsResult.KktViolationOf(_b, _gx, _x, _free).Violation;
 
-        public NnlsResult Solve(string preconditionerName)
+        public NnlsResult Solve(string preconditionerName, CancellationToken cancellationToken)
         {
             SolverStatus status;
             string message;
             while (true)
             {
+                cancellationToken.ThrowIfCancellationRequested();
                 var violation = Violation();
                 if (DenseNnls.StopsBeforeIteration(double.IsFinite(violation), violation, _tol, _iterations, _products, _options,
                         out status, out message)) break;

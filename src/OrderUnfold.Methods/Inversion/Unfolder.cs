@@ -14,11 +14,14 @@ public static class Unfolder
     /// Unfolds <paramref name="sweeps"/> in named stages: the checks of the input (<see cref="CheckSweeps"/>), the grid and
     /// its memory estimate (<see cref="LayOutGrid"/>), the first gains (<see cref="InitialGains"/>), the sweep origins
     /// (<see cref="OffsetSearch"/>), the joint solve with its gain and offset rounds (<see cref="JointSolve"/>), the fit of
-    /// each sweep (<see cref="FitSweeps"/>) and the lines relative to the strongest (<see cref="AnchorLines"/>).
+    /// each sweep (<see cref="FitSweeps"/>) and the lines relative to the strongest (<see cref="AnchorLines"/>). A cancelled
+    /// <paramref name="cancellationToken"/> stops it between stages and inside the NNLS solves (<see cref="OperationCanceledException"/>).
     /// </summary>
-    public static UnfoldResult Run(IReadOnlyList<CalibratedSweep> sweeps, UnfoldOptions? options = null, IProgress<string>? progress = null)
+    public static UnfoldResult Run(IReadOnlyList<CalibratedSweep> sweeps, UnfoldOptions? options = null, IProgress<string>? progress = null,
+        CancellationToken cancellationToken = default)
     {
         options ??= new UnfoldOptions();
+        cancellationToken.ThrowIfCancellationRequested();
         CheckSweeps(sweeps);
         var warnings = new List<string>();
         var layout = LayOutGrid(sweeps, options);
@@ -29,10 +32,10 @@ public static class Unfolder
         // origins of the sweeps, coarse to fine (OffsetSearch): the cross-correlation of folded profiles scores every
         // origin at once, pair solves on a bounded sub-window check the best few
         progress?.Report("finding sweep offsets");
-        var search = OffsetSearch.Run(sweeps, gains, layout.Grid, layout.StepHz, options, progress);
+        var search = OffsetSearch.Run(sweeps, gains, layout.Grid, layout.StepHz, options, progress, cancellationToken);
 
         progress?.Report("solving NNLS on all sweeps");
-        var joint = JointSolve.Run(sweeps, layout, search.OffsetsHz, gains, options, progress);
+        var joint = JointSolve.Run(sweeps, layout, search.OffsetsHz, gains, options, progress, cancellationToken);
         var nnls = joint.Nnls;
         if (nnls.Status != SolverStatus.Converged) warnings.Add($"NNLS did not converge: {nnls.Message} (KKT violation {nnls.KktViolation:G3})");
 

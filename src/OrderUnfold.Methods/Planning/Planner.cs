@@ -30,10 +30,11 @@ public static class Planner
 
     /// <summary>
     /// Tries each candidate length as one more cavity next to <paramref name="fixedCavities"/> and returns every
-    /// design, ranked (best first).
+    /// design, ranked (best first). A cancelled <paramref name="cancellationToken"/> stops the search before its next
+    /// candidate (<see cref="OperationCanceledException"/>).
     /// </summary>
     public static IReadOnlyList<DesignEvaluation> RankAddedCavity(IReadOnlyList<DesignCavity> fixedCavities, IReadOnlyList<CandidateLength> candidates,
-        CavityFamily family, PlanSettings settings, string name = "candidate")
+        CavityFamily family, PlanSettings settings, string name = "candidate", CancellationToken cancellationToken = default)
     {
         settings.Validate();
         if (fixedCavities.Count == 0) throw new InputException("the plan needs at least one existing cavity");
@@ -43,6 +44,7 @@ public static class Planner
         var results = new List<DesignEvaluation>(candidates.Count);
         foreach (var cand in candidates)
         {
+            cancellationToken.ThrowIfCancellationRequested();
             var cav = family.Make(name, cand);
             cav.Validate();
             results.Add(EvaluateCore([.. fixedCavities, cav], settings, buffer));
@@ -56,10 +58,11 @@ public static class Planner
     /// <see cref="RankAddedCavity"/>) extended by each candidate length. Returns the best <paramref name="keep"/>,
     /// ranked. Candidates are evaluated in order of their nominal margin and the search stops once no remaining
     /// candidate can enter the kept list (the worst margin within tolerance never exceeds the nominal one), so
-    /// the result is the same as evaluating all.
+    /// the result is the same as evaluating all. A cancelled <paramref name="cancellationToken"/> stops the search
+    /// (<see cref="OperationCanceledException"/>).
     /// </summary>
     public static IReadOnlyList<DesignEvaluation> RankThirdCavity(IReadOnlyList<DesignEvaluation> pairs, IReadOnlyList<CandidateLength> candidates,
-        CavityFamily family, PlanSettings settings, int keep = 10, string name = "third")
+        CavityFamily family, PlanSettings settings, int keep = 10, string name = "third", CancellationToken cancellationToken = default)
     {
         settings.Validate();
         if (candidates.Count == 0) throw new InputException("no candidate lengths to try");
@@ -68,6 +71,7 @@ public static class Planner
         var nominal = new List<(IReadOnlyList<DesignCavity> Cavities, double Margin, double Length)>();
         foreach (var pair in pairs)
         {
+            cancellationToken.ThrowIfCancellationRequested();
             foreach (var cand in candidates)
             {
                 if (pair.Added.Any(a => a.Instrument.LengthM is double l && Math.Abs(l - cand.LengthM) <= 1e-12 * l)) continue;
@@ -83,6 +87,7 @@ public static class Planner
         var kept = new List<DesignEvaluation>();
         foreach (var item in nominal.OrderByDescending(n => Rounded(n.Margin)).ThenBy(n => n.Length))
         {
+            cancellationToken.ThrowIfCancellationRequested();
             if (kept.Count >= keep)
             {
                 var worstKept = Rounded(kept[^1].Robust.MarginLinewidths);

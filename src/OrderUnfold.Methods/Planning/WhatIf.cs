@@ -94,9 +94,10 @@ public sealed record WhatIfResult
 /// </summary>
 public static class WhatIf
 {
-    /// <summary>Runs the simulation and the unfold. Lines are given on any origin; intensities must be positive.</summary>
+    /// <summary>Runs the simulation and the unfold. Lines are given on any origin; intensities must be positive. A cancelled
+    /// <paramref name="cancellationToken"/> stops the unfold (<see cref="OperationCanceledException"/>).</summary>
     public static WhatIfResult Run(IReadOnlyList<Instrument> instruments, IReadOnlyList<SimulatedLine> lines, WhatIfOptions? options = null,
-        IProgress<string>? progress = null)
+        IProgress<string>? progress = null, CancellationToken cancellationToken = default)
     {
         options ??= new WhatIfOptions();
         Validate(instruments, lines, options);
@@ -115,7 +116,7 @@ public static class WhatIf
 
         var unfoldOptions = (options.Unfold ?? new UnfoldOptions()) with { WindowStartHz = start, WindowEndHz = end };
         progress?.Report("unfolding");
-        var result = Unfolder.Run(sweeps, unfoldOptions, progress);
+        var result = Unfolder.Run(sweeps, unfoldOptions, progress, cancellationToken);
 
         var tol = options.MatchToleranceHz ?? instruments.Min(i => i.LinewidthHz);
         var found = result.Lines;

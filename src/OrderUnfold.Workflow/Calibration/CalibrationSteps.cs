@@ -19,7 +19,9 @@ public static class CalibrationSteps
     /// <param name="sweep">The calibration sweep segment.</param>
     /// <param name="instrument">The cavity.</param>
     /// <param name="wavelengthRatio">λ_calibration / λ_source.</param>
-    public static AxisCalibration DescribeCalibrationSweep(AxisCalibration axis, Sweep sweep, Instrument instrument, double wavelengthRatio = 1.0)
+    /// <param name="cancellationToken">Stops the self-calibrations of the checks (<see cref="OperationCanceledException"/>).</param>
+    public static AxisCalibration DescribeCalibrationSweep(AxisCalibration axis, Sweep sweep, Instrument instrument, double wavelengthRatio = 1.0,
+        CancellationToken cancellationToken = default)
     {
         var period = instrument.FsrHz * wavelengthRatio;
         var warnings = axis.Warnings.ToList();
@@ -31,8 +33,8 @@ public static class CalibrationSteps
         var suspicious = transverse.AlternationRatio is < 0.75 || axis.Warnings.Any(w => w.Contains("typical spacings apart", StringComparison.Ordinal));
         var finesse = (FinesseEstimate?)null;
         var fitted = false;
-        if (suspicious && axis.PointCount >= 3) (axis, finesse, fitted) = CheckTwoReadings(axis, sweep, instrument, period, warnings);
-        axis = WithPeriodEvidence(axis, sweep, instrument, period);
+        if (suspicious && axis.PointCount >= 3) (axis, finesse, fitted) = CheckTwoReadings(axis, sweep, instrument, period, warnings, cancellationToken);
+        axis = WithPeriodEvidence(axis, sweep, instrument, period, cancellationToken);
 
         if (!fitted) finesse = FinesseFit.FromSweep(sweep, axis.Axis, period, instrument.Finesse);
         if (finesse is not null) warnings.AddRange(finesse.Warnings.Select(w => $"{sweep.Name}: {w}"));
@@ -56,11 +58,11 @@ public static class CalibrationSteps
     /// on the kept one (<c>Fitted</c> true; the caller does not fit it again).
     /// </summary>
     private static (AxisCalibration Axis, FinesseEstimate? Finesse, bool Fitted) CheckTwoReadings(AxisCalibration axis, Sweep sweep, Instrument instrument,
-        double period, List<string> warnings)
+        double period, List<string> warnings, CancellationToken cancellationToken)
     {
         try
         {
-            var reading = SelfCalibrator.Calibrate(sweep, instrument, new SelfCalibrationOptions { PeriodHz = period, FitFinesse = false }).Calibration;
+            var reading = SelfCalibrator.Calibrate(sweep, instrument, new SelfCalibrationOptions { PeriodHz = period, FitFinesse = false }, cancellationToken).Calibration;
             // the repeats reading is compared (and kept) in Hz at the FSR its own peak pattern implies; its period decision is
             // not carried into the kept axis, which counts as built at the stated FSR like the numbered reading
             var repeats = reading.DecidedFsrHz is double own ? reading.AtFsr(own, instrument.FsrHz) with { BuiltAtFsrHz = instrument.FsrHz } : reading;
@@ -109,13 +111,13 @@ public static class CalibrationSteps
 
     /// <summary>The period decision on the calibration sweep's own peak pattern (candidates, families) as evidence; kept when
     /// it agrees with the numbered axis (same period in Hz, scale within 5 %).</summary>
-    private static AxisCalibration WithPeriodEvidence(AxisCalibration axis, Sweep sweep, Instrument instrument, double period)
+    private static AxisCalibration WithPeriodEvidence(AxisCalibration axis, Sweep sweep, Instrument instrument, double period, CancellationToken cancellationToken)
     {
         if (axis.PeriodDecision is not null || axis.PointCount < 2) return axis;
         try
         {
             var check = SelfCalibrator.Calibrate(PrepareForPeakFinding(sweep, instrument), instrument,
-                new SelfCalibrationOptions { PeriodHz = period, FitFinesse = false }).Calibration;
+                new SelfCalibrationOptions { PeriodHz = period, FitFinesse = false }, cancellationToken).Calibration;
             var mid = 0.5 * (axis.Axis.XMin + axis.Axis.XMax);
             var scale = check.Axis.Derivative(mid) / axis.Axis.Derivative(mid);
             // with few peaks the pattern can settle on a multiple of the spacing; the numbered axis (and the
@@ -145,9 +147,10 @@ public static class CalibrationSteps
     /// <param name="calibrations">Axes from calibration sweeps so far (companions and fallbacks of the source sweeps).</param>
     /// <param name="progress">Progress messages.</param>
     /// <param name="readSegments">Reads a file's segments the way the pipeline does (time relative to each segment's start).</param>
+    /// <param name="cancellationToken">Stops the self-calibrations (<see cref="OperationCanceledException"/>).</param>
     /// <exception cref="InputException">A segment cannot be self-calibrated and has no other calibration to fall back on.</exception>
     public static CalibrationAxes FromSources(Setup setup, IReadOnlyDictionary<string, Instrument> instruments, IReadOnlyList<AxisCalibration> calibrations,
-        IProgress<string>? progress, Func<SweepFileOptions, IReadOnlyList<Sweep>> readSegments)
+        IProgress<string>? progress, Func<SweepFileOptions, IReadOnlyList<Sweep>> readSegments, CancellationToken cancellationToken = default)
     {
         var axes = new List<AxisCalibration>();
         var warnings = new List<string>();
@@ -156,7 +159,7 @@ public static class CalibrationSteps
         foreach (var spec in setup.Sweeps)
         {
             if (!instruments.TryGetValue(spec.Instrument, out var inst)) continue; // the pipeline reports the unknown name
-            var file = FromSourceFile(spec, inst, fromSweeps.Where(c => c.Instrument == spec.Instrument).ToList(), setup.Solve.SelfCalibrate, progress, readSegments);
+            var file = FromSourceFile(spec, inst, fromSweeps.Where(c => c.Instrument == spec.Instrument).ToList(), setup.Solve.SelfCalibrate, progress, readSegments, cancellationToken);
             axes.AddRange(file.Axes);
             warnings.AddRange(file.Warnings);
         }
@@ -167,7 +170,7 @@ public static class CalibrationSteps
     /// <summary>The self-calibrated axes of one source file's segments; a segment that fails uses a calibration sweep's axis
     /// or that of another segment of the same ramp direction, with a warning naming why.</summary>
     private static CalibrationAxes FromSourceFile(SweepSpec spec, Instrument inst, List<AxisCalibration> mine, SelfCalibrationMode mode,
-        IProgress<string>? progress, Func<SweepFileOptions, IReadOnlyList<Sweep>> readSegments)
+        IProgress<string>? progress, Func<SweepFileOptions, IReadOnlyList<Sweep>> readSegments, CancellationToken cancellationToken)
     {
         var warnings = new List<string>();
         var failed = new List<(Sweep Segment, InputException Error)>();
@@ -194,7 +197,7 @@ public static class CalibrationSteps
             var prepared = PrepareForPeakFinding(seg, inst);
             try
             {
-                var result = SelfCalibrator.Calibrate(prepared, inst, new SelfCalibrationOptions { Companion = companion });
+                var result = SelfCalibrator.Calibrate(prepared, inst, new SelfCalibrationOptions { Companion = companion }, cancellationToken);
                 // finesse from the decay time when the peaks ring, with the FSR the period decision settled on (a cavity stated
                 // as confocal that is not has twice the stated FSR, and F = π·FSR·τ)
                 var fsrHz = result.Calibration.PeriodDecision?.PeriodHz ?? inst.FsrHz;

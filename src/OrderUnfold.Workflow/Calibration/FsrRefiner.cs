@@ -30,7 +30,9 @@ public static class FsrRefiner
     /// <param name="unfoldOptions">Options of the trial unfolds.</param>
     /// <param name="options">What to refine.</param>
     /// <param name="progress">Progress messages.</param>
-    public static FsrRefinement Decide(IReadOnlyList<CalibratedSweep> sweeps, UnfoldOptions? unfoldOptions, FsrRefineOptions options, IProgress<string>? progress = null)
+    /// <param name="cancellationToken">Stops the trial unfolds and the rounds (<see cref="OperationCanceledException"/>).</param>
+    public static FsrRefinement Decide(IReadOnlyList<CalibratedSweep> sweeps, UnfoldOptions? unfoldOptions, FsrRefineOptions options, IProgress<string>? progress = null,
+        CancellationToken cancellationToken = default)
     {
         unfoldOptions ??= new UnfoldOptions();
         var names = sweeps.Select(s => s.Instrument.Name).Distinct().ToList();
@@ -38,8 +40,8 @@ public static class FsrRefiner
         var scan = FsrPrescan.Run(sweeps, unfoldOptions, options with { ReferenceInstrument = reference }, names.Count > 1 && options.RefineRatio);
         var current = sweeps.Select(s => AtTrialScale(s, scan.Scales.GetValueOrDefault(s.Instrument.Name, 1.0))).ToList();
         progress?.Report("unfolding with the pre-scanned FSRs");
-        var first = Unfolder.Run(current, unfoldOptions, progress);
-        var rounds = new RefinementRounds(sweeps, scan.Scales, scan.Basis, current, first, unfoldOptions, options, progress, scan.Notes, scan.Warnings);
+        var first = Unfolder.Run(current, unfoldOptions, progress, cancellationToken);
+        var rounds = new RefinementRounds(sweeps, scan.Scales, scan.Basis, current, first, unfoldOptions, options, progress, scan.Notes, scan.Warnings, cancellationToken);
         return rounds.Run();
     }
 
@@ -59,6 +61,7 @@ public static class FsrRefiner
         private readonly UnfoldOptions _unfoldOptions;
         private readonly FsrRefineOptions _options;
         private readonly IProgress<string>? _progress;
+        private readonly CancellationToken _cancellationToken;
         private readonly List<string> _names;
         private readonly Dictionary<string, double> _nominal;
         private readonly string _reference;
@@ -75,8 +78,9 @@ public static class FsrRefiner
 
         public RefinementRounds(IReadOnlyList<CalibratedSweep> sweeps, IReadOnlyDictionary<string, double> startScale, IReadOnlyDictionary<string, string> startBasis,
             IReadOnlyList<CalibratedSweep> current, UnfoldResult result, UnfoldOptions unfoldOptions, FsrRefineOptions options, IProgress<string>? progress,
-            IEnumerable<string> startNotes, IEnumerable<string> startWarnings)
+            IEnumerable<string> startNotes, IEnumerable<string> startWarnings, CancellationToken cancellationToken)
         {
+            _cancellationToken = cancellationToken;
             (_sweeps, _current, _currentResult, _first, _unfoldOptions, _options, _progress) = (sweeps, current, result, result, unfoldOptions, options, progress);
             _names = sweeps.Select(s => s.Instrument.Name).Distinct().ToList();
             _nominal = _names.ToDictionary(n => n, n => sweeps.First(s => s.Instrument.Name == n).Instrument.FsrHz);
@@ -97,7 +101,7 @@ public static class FsrRefiner
                 return Finish();
             }
 
-            var budget = new WorkBudget(int.MaxValue, _options.CpuBudgetSeconds, _progress);
+            var budget = new WorkBudget(int.MaxValue, _options.CpuBudgetSeconds, _progress, _cancellationToken);
             for (var round = 0; round < _options.MaxRounds; round++)
                 if (!Round(round, budget)) break;
             return Finish();
@@ -149,7 +153,7 @@ public static class FsrRefiner
             var previous = (Current: _current, Result: _currentResult, Scale: new Dictionary<string, double>(_scale));
             foreach (var (n, v) in est.Scales) previous.Scale[n] /= v.Scale;
             _current = _sweeps.Select(s => AtTrialScale(s, _scale[s.Instrument.Name])).ToList();
-            _currentResult = Unfolder.Run(_current, _unfoldOptions, _progress);
+            _currentResult = Unfolder.Run(_current, _unfoldOptions, _progress, _cancellationToken);
             var before = previous.Result.Sweeps.Sum(f => f.ChiSquare);
             var after = _currentResult.Sweeps.Sum(f => f.ChiSquare);
             if (after > before)

@@ -25,7 +25,6 @@ public static class AtomicFile
     /// </summary>
     public static void WriteStaged(string path, string content)
     {
-        Cancellation.ThrowIfRequested(); // a stopping run writes nothing more (Ctrl-C / SIGTERM)
         File.WriteAllText(path, content, Utf8NoBom);
     }
 
@@ -46,7 +45,6 @@ public static class AtomicFile
     /// <summary>Writes through a callback that receives the temporary stream.</summary>
     public static void Write(string path, Action<Stream> write)
     {
-        Cancellation.ThrowIfRequested(); // a stopping run writes nothing more (Ctrl-C / SIGTERM)
         var full = Path.GetFullPath(path);
         var dir = Path.GetDirectoryName(full)!;
         Directory.CreateDirectory(dir);

@@ -54,11 +54,7 @@ public static class CsvTable
         {
             using var csv = OpenWriter(stream);
             csv.WriteHeader<T>();
-            foreach (var row in rows)
-            {
-                Cancellation.ThrowIfRequested();
-                csv.WriteRecord(row);
-            }
+            foreach (var row in rows) csv.WriteRecord(row);
         });
     }
 
@@ -76,10 +72,10 @@ public static class CsvTable
     /// that does not read as its column's type, a row with too few or too many cells, or a broken quote is an
     /// <see cref="InputException"/> naming the file, line and column and what was expected there.
     /// </summary>
-    public static IEnumerable<T> Read<T>(string path, string what)
+    public static IEnumerable<T> Read<T>(string path, string what, CancellationToken cancellationToken = default)
     {
         CheckTable(path, what);
-        return ReadRows<T>(path, what, HeaderOf<T>().Split(','));
+        return ReadRows<T>(path, what, HeaderOf<T>().Split(','), cancellationToken);
     }
 
     /// <summary>
@@ -97,10 +93,10 @@ public static class CsvTable
     /// Streams rows of <typeparamref name="T"/> from a table that may hold other columns too, in any order (each column
     /// <typeparamref name="T"/> reads must be there): for files written by other parts of the tool.
     /// </summary>
-    public static IEnumerable<T> ReadColumns<T>(string path, string what)
+    public static IEnumerable<T> ReadColumns<T>(string path, string what, CancellationToken cancellationToken = default)
     {
         CheckTable(path, what);
-        return ReadRows<T>(path, what, null);
+        return ReadRows<T>(path, what, null, cancellationToken);
     }
 
     /// <summary>Opens a reader of a table after <see cref="InputLimits.CheckFile"/> (for tables read with hand-made mappers).</summary>
@@ -110,7 +106,7 @@ public static class CsvTable
         return CsvReader.FromFile(path, ReaderOptions);
     }
 
-    private static IEnumerable<T> ReadRows<T>(string path, string what, string[]? exactHeader)
+    private static IEnumerable<T> ReadRows<T>(string path, string what, string[]? exactHeader, CancellationToken cancellationToken)
     {
         using var csv = CsvReader.FromFile(path, ReaderOptions);
         var header = Located(path, () => csv.Headers.ToArray());
@@ -128,7 +124,7 @@ public static class CsvTable
 
         while (Located(path, csv.Read))
         {
-            Cancellation.ThrowIfRequested();
+            cancellationToken.ThrowIfCancellationRequested();
             yield return Located(path, () => csv.GetRecord(mapper), header);
         }
     }

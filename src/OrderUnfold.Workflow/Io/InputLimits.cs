@@ -73,27 +73,29 @@ public sealed record InputLimits
     }
 
     /// <summary>Reads a whole text file after <see cref="CheckFile"/>, refusing a line longer than
-    /// <see cref="MaxLineChars"/> (with its line and column) as soon as it is met; checks for cancellation as it goes.</summary>
-    public static string ReadAllText(string path, string what = "file")
+    /// <see cref="MaxLineChars"/> (with its line and column) as soon as it is met; checks <paramref name="cancellationToken"/>
+    /// before each block it reads.</summary>
+    public static string ReadAllText(string path, string what = "file", CancellationToken cancellationToken = default)
     {
         CheckFile(path, what);
         var sb = new StringBuilder();
-        foreach (var block in Blocks(path, what)) sb.Append(block.Span);
+        foreach (var block in Blocks(path, what, cancellationToken)) sb.Append(block.Span);
         return sb.ToString();
     }
 
-    /// <summary>Streams the lines of a text file after <see cref="CheckFile"/>, with the line-length limit.</summary>
-    public static IEnumerable<string> ReadLines(string path, string what = "file")
+    /// <summary>Streams the lines of a text file after <see cref="CheckFile"/>, with the line-length limit; checks
+    /// <paramref name="cancellationToken"/> before each block it reads.</summary>
+    public static IEnumerable<string> ReadLines(string path, string what = "file", CancellationToken cancellationToken = default)
     {
         CheckFile(path, what);
-        return Lines(path, what);
+        return Lines(path, what, cancellationToken);
     }
 
-    private static IEnumerable<string> Lines(string path, string what)
+    private static IEnumerable<string> Lines(string path, string what, CancellationToken cancellationToken)
     {
         var line = new StringBuilder();
         var pendingCr = false;
-        foreach (var block in Blocks(path, what))
+        foreach (var block in Blocks(path, what, cancellationToken))
         {
             for (var i = 0; i < block.Length; i++)
             {
@@ -120,7 +122,7 @@ public sealed record InputLimits
         if (line.Length > 0) yield return line.ToString();
     }
 
-    private static IEnumerable<ReadOnlyMemory<char>> Blocks(string path, string what)
+    private static IEnumerable<ReadOnlyMemory<char>> Blocks(string path, string what, CancellationToken cancellationToken)
     {
         var limits = Current;
         var buffer = new char[1 << 16];
@@ -140,7 +142,7 @@ public sealed record InputLimits
             long read = 0;
             while (true)
             {
-                Cancellation.ThrowIfRequested();
+                cancellationToken.ThrowIfCancellationRequested();
                 int n;
                 try
                 {

@@ -47,11 +47,12 @@ public sealed class StagedFolder : IDisposable
     /// Flushes the staged files to disk and moves them into <see cref="Target"/>. A target that does not exist (or is
     /// empty) is replaced by the staging folder in one rename; into an existing folder the files are moved one by one,
     /// <paramref name="completeMarker"/> (for example report.json) removed first and moved last, so its presence still
-    /// means the folder is complete.
+    /// means the folder is complete. A cancelled <paramref name="cancellationToken"/> (a stopping run) publishes nothing:
+    /// <see cref="OperationCanceledException"/>, and disposing the folder removes what was staged.
     /// </summary>
-    public void Publish(string? completeMarker = null)
+    public void Publish(string? completeMarker = null, CancellationToken cancellationToken = default)
     {
-        Cancellation.ThrowIfRequested();
+        cancellationToken.ThrowIfCancellationRequested();
         foreach (var file in Directory.EnumerateFiles(Path, "*", SearchOption.AllDirectories)) AtomicFile.FlushToDisk(file);
         if (Directory.Exists(Target) && !Directory.EnumerateFileSystemEntries(Target).Any()) Directory.Delete(Target);
         if (!Directory.Exists(Target))

@@ -16,19 +16,20 @@ public static class SweepReader
     /// <summary>Fewest samples a trace must have.</summary>
     public const int MinSamples = 16;
 
-    /// <summary>Reads a trace. Throws <see cref="InputException"/> with file, line and column on bad input.</summary>
-    public static RawTrace Read(SweepFileOptions options)
+    /// <summary>Reads a trace. Throws <see cref="InputException"/> with file, line and column on bad input, and
+    /// <see cref="OperationCanceledException"/> when <paramref name="cancellationToken"/> is cancelled while it reads.</summary>
+    public static RawTrace Read(SweepFileOptions options, CancellationToken cancellationToken = default)
     {
         ArgumentNullException.ThrowIfNull(options);
         CheckOptions(options);
-        return options.RampFile is null ? ReadOne(options, out _) : ReadWithRampFile(options);
+        return options.RampFile is null ? ReadOne(options, out _, cancellationToken) : ReadWithRampFile(options, cancellationToken);
     }
 
     /// <summary>Reads one file; <paramref name="xColumn"/> is the 1-based column x came from (null: rebuilt from the interval).</summary>
-    private static RawTrace ReadOne(SweepFileOptions options, out int? xColumn)
+    private static RawTrace ReadOne(SweepFileOptions options, out int? xColumn, CancellationToken cancellationToken)
     {
         var path = options.Path;
-        var text = ReadText(path);
+        var text = ReadText(path, cancellationToken);
         if (string.IsNullOrWhiteSpace(text)) throw new InputException("the file is empty", path);
 
         DataLayout layout;
@@ -44,7 +45,7 @@ public static class SweepReader
 
         var columns = ResolveColumns(options, layout);
         xColumn = columns.X + 1;
-        var (xs, ys, rs, lines) = Extract(text, layout, columns, path);
+        var (xs, ys, rs, lines) = Extract(text, layout, columns, path, cancellationToken);
 
         if (ys.Count == 0)
             throw new InputException(
@@ -83,13 +84,13 @@ public static class SweepReader
     /// Both time columns must increase strictly; the signal's record must lie within the ramp's (half a ramp sample
     /// interval of slack at either end), else the reader refuses, naming the first signal line outside.
     /// </summary>
-    private static RawTrace ReadWithRampFile(SweepFileOptions options)
+    private static RawTrace ReadWithRampFile(SweepFileOptions options, CancellationToken cancellationToken)
     {
         if (options.RampColumn is not null)
             throw new InputException(
                 "both a ramp column and a ramp file are named; the ramp comes from one of them, so give ramp_column or ramp_file",
                 options.Path);
-        var signal = ReadOne(options with { Scan = ScanCoordinate.Time, RampFile = null }, out var timeColumn);
+        var signal = ReadOne(options with { Scan = ScanCoordinate.Time, RampFile = null }, out var timeColumn, cancellationToken);
         var rampOptions = new SweepFileOptions
         {
             Path = options.RampFile!,
@@ -101,7 +102,7 @@ public static class SweepReader
         RawTrace ramp;
         try
         {
-            ramp = ReadOne(rampOptions, out _);
+            ramp = ReadOne(rampOptions, out _, cancellationToken);
         }
         catch (InputException e) when (e.Message.StartsWith("time in ", StringComparison.Ordinal) && e.Message.Contains("not strictly increasing", StringComparison.Ordinal))
         {
@@ -270,7 +271,8 @@ public static class SweepReader
     }
 
     /// <summary>Read and split in one call.</summary>
-    public static IReadOnlyList<Sweep> ReadSweeps(SweepFileOptions options) => Split(Read(options), options.Directions);
+    public static IReadOnlyList<Sweep> ReadSweeps(SweepFileOptions options, CancellationToken cancellationToken = default) =>
+        Split(Read(options, cancellationToken), options.Directions);
 
     // ---------------------------------------------------------------------------------------------------------
 
@@ -286,10 +288,10 @@ public static class SweepReader
                 $"delimiter must be ',', ';' or tab but got {(char.IsControl(d) ? $"U+{(int)d:X4}" : $"'{d}'")}", o.Path);
     }
 
-    private static string ReadText(string path)
+    private static string ReadText(string path, CancellationToken cancellationToken)
     {
         // type, size and line-length limits, checked before and while reading (Io/InputLimits.cs)
-        return InputLimits.ReadAllText(path, "sweep file");
+        return InputLimits.ReadAllText(path, "sweep file", cancellationToken);
     }
 
     private static Columns ResolveColumns(SweepFileOptions o, DataLayout layout)
@@ -385,7 +387,7 @@ public static class SweepReader
     }
 
     private static (List<double> X, List<double> Y, List<double>? Ramp, List<int> Lines) Extract(
-        string text, DataLayout layout, Columns columns, string path)
+        string text, DataLayout layout, Columns columns, string path, CancellationToken cancellationToken)
     {
         var xs = new List<double>();
         var ys = new List<double>();
@@ -403,7 +405,7 @@ public static class SweepReader
         {
             foreach (var row in DelimitedText.CellRows(text, layout.Delimiter))
             {
-                Cancellation.ThrowIfRequested(); // Ctrl-C / SIGTERM (Cancellation.cs)
+                cancellationToken.ThrowIfCancellationRequested();
                 if (row.Line < layout.FirstDataLine) continue;
                 if (row.IsBlank)
                 {

@@ -39,7 +39,7 @@ public static class ModeInputReader
             throw new InputException("the result folder does not exist", dir);
         var linesPath = Path.Combine(dir, LinesFileName);
         if (!File.Exists(linesPath))
-            throw new InputException($"no {LinesFileName} in the result folder; run 'orderunfold unfold' first", dir);
+            throw new InputException($"no {LinesFileName} in the result folder; run '{Hint.Command("unfold SETUP --out " + Hint.Quote(dir))}' first", dir);
 
         var linesText = InputLimits.ReadAllText(linesPath, LinesFileName);
         var reportPath = Path.Combine(dir, ReportFileName);

@@ -18,7 +18,7 @@ internal sealed record CalibrationOutcome(SettledInstruments Settled, IReadOnlyL
 /// </summary>
 internal static class CalibrationStage
 {
-    public static CalibrationOutcome Run(Setup setup, IProgress<string>? progress, CalibrationSet? reuse)
+    public static CalibrationOutcome Run(Setup setup, IProgress<string>? progress, CalibrationSet? reuse, CancellationToken cancellationToken)
     {
         var instruments = setup.Instruments.ToDictionary(i => i.Name, i => i.ToInstrument());
         var calibrations = new List<AxisCalibration>();
@@ -36,12 +36,13 @@ internal static class CalibrationStage
             {
                 progress?.Report($"calibrating {cal.Instrument} from {Path.GetFileName(cal.File.Path)}");
                 inputs.Add(UnfoldPipeline.Describe("calibration", cal.File.Path));
-                var file = FromCalibrationFile(cal, UnfoldPipeline.Lookup(instruments, cal.Instrument, cal.File.Path), WavelengthRatio(cal, setup));
+                var file = FromCalibrationFile(cal, UnfoldPipeline.Lookup(instruments, cal.Instrument, cal.File.Path), WavelengthRatio(cal, setup), cancellationToken);
                 calibrations.AddRange(file.Axes);
                 warnings.AddRange(file.Warnings);
             }
 
-            var sources = CalibrationSteps.FromSources(setup, instruments, calibrations, progress, UnfoldPipeline.ReadSegments);
+            var sources = CalibrationSteps.FromSources(setup, instruments, calibrations, progress,
+                file => UnfoldPipeline.ReadSegments(file, cancellationToken), cancellationToken);
             calibrations.AddRange(sources.Axes);
             warnings.AddRange(sources.Warnings);
         }
@@ -52,10 +53,10 @@ internal static class CalibrationStage
 
     /// <summary>The axes of one calibration file, one per ramp direction (the segment with the most calibration points);
     /// a segment that fails is skipped with a warning when the file has others.</summary>
-    private static CalibrationSteps.CalibrationAxes FromCalibrationFile(CalibrationSpec cal, Instrument inst, double ratio)
+    private static CalibrationSteps.CalibrationAxes FromCalibrationFile(CalibrationSpec cal, Instrument inst, double ratio, CancellationToken cancellationToken)
     {
         // calibration sweeps ring too when swept fast: the same preparation as the source sweeps
-        var segments = RingdownHandling.PrepareAll(UnfoldPipeline.ReadSegments(cal.File)).Select(p => p.Sweep).ToList();
+        var segments = RingdownHandling.PrepareAll(UnfoldPipeline.ReadSegments(cal.File, cancellationToken)).Select(p => p.Sweep).ToList();
         var byDirection = new Dictionary<RampDirection, AxisCalibration>();
         var warnings = new List<string>();
         var reasons = new List<string>();
@@ -65,7 +66,7 @@ internal static class CalibrationStage
             try
             {
                 axis = AxisCalibrator.FromCalibrationSweep(seg, inst, cal.AxisDegree, ratio);
-                axis = CalibrationSteps.DescribeCalibrationSweep(axis, seg, inst, ratio); // Airy finesse fit, transverse modes
+                axis = CalibrationSteps.DescribeCalibrationSweep(axis, seg, inst, ratio, cancellationToken); // Airy finesse fit, transverse modes
             }
             catch (InputException e) when (segments.Count > 1)
             {

@@ -17,7 +17,8 @@ internal static class FamilyFitting
     /// offset by more than a linewidth from the calibration's measurement (else the measured values stay, with a warning).
     /// The lines are not refitted: the families they were solved with are the measured ones.
     /// </summary>
-    public static FamilyFitOutcome Fit(IReadOnlyList<CalibratedSweep> sweeps, UnfoldResult result, IReadOnlyDictionary<string, Instrument> settled)
+    public static FamilyFitOutcome Fit(IReadOnlyList<CalibratedSweep> sweeps, UnfoldResult result, IReadOnlyDictionary<string, Instrument> settled,
+        CancellationToken cancellationToken = default)
     {
         var instruments = settled.ToDictionary(p => p.Key, p => p.Value);
         var warnings = new List<string>();
@@ -26,7 +27,7 @@ internal static class FamilyFitting
         {
             var inst = instruments[name];
             if (inst.Families.Count == 0) continue;
-            var fit = FamilyFit.Fit(sweeps, result, name);
+            var fit = FamilyFit.Fit(sweeps, result, name, cancellationToken: cancellationToken);
             if (fit is null) continue;
             var lw = inst.LinewidthHz / inst.FsrHz;
             var measured = inst.Families;

@@ -56,14 +56,14 @@ public static class FewestLines
     /// <summary>Proposes the fewest-lines explanation, refines it and keeps it when it fits at least as well as the grid.</summary>
     public static (UnfoldResult Result, RefinementDiagnostics? Refinement, FewestLinesFinding Finding) Run(
         IReadOnlyList<CalibratedSweep> sweeps, UnfoldResult grid, UnfoldOptions options, double halfWidthHz, RefineOptions refineOptions,
-        IProgress<string>? progress)
+        IProgress<string>? progress, CancellationToken cancellationToken = default)
     {
         progress?.Report($"fewest lines: the grid solution has {grid.Lines.Count} lines; pairing the cavities' folded lines");
-        var proposed = Propose(sweeps, grid, options, halfWidthHz, progress);
+        var proposed = Propose(sweeps, grid, options, halfWidthHz, progress, cancellationToken);
         if (proposed is null)
             return (grid, null, new FewestLinesFinding(grid.Lines.Count, 0, grid.ReducedChiSquare, double.NaN, false, "the folded lines could not be paired"));
         progress?.Report($"fewest lines: {proposed.Lines.Count} line(s) proposed; refining them against the raw sweeps");
-        var (refined, diag) = LineRefiner.Refine(sweeps, proposed, refineOptions, progress);
+        var (refined, diag) = LineRefiner.Refine(sweeps, proposed, refineOptions, progress, cancellationToken);
         var chi = refined.ReducedChiSquare;
         if (diag.BudgetExhausted is not null || !(chi <= grid.ReducedChiSquare))
             return (grid, null, new FewestLinesFinding(grid.Lines.Count, proposed.Lines.Count, grid.ReducedChiSquare, chi, false,
@@ -80,14 +80,14 @@ public static class FewestLines
     /// <summary>The paired lines as a grid-like result (frequencies relative to the strongest pair, sweep offsets in the same
     /// frame, the grid's gains and backgrounds), or null when nothing pairs.</summary>
     internal static UnfoldResult? Propose(IReadOnlyList<CalibratedSweep> sweeps, UnfoldResult grid, UnfoldOptions options, double halfWidthHz,
-        IProgress<string>? progress)
+        IProgress<string>? progress, CancellationToken cancellationToken = default)
     {
         var fsrs = sweeps.Select(s => s.Instrument.FsrHz).Distinct().ToArray();
         if (fsrs.Length != 2) return null;
         var first = Enumerable.Range(0, sweeps.Count).First(k => sweeps[k].Instrument.FsrHz == fsrs[0]);
         var second = Enumerable.Range(0, sweeps.Count).First(k => sweeps[k].Instrument.FsrHz == fsrs[1]);
-        var a = FoldedLines(sweeps[first], grid.Sweeps[first].OffsetHz, options, progress);
-        var b = FoldedLines(sweeps[second], grid.Sweeps[second].OffsetHz, options, progress);
+        var a = FoldedLines(sweeps[first], grid.Sweeps[first].OffsetHz, options, progress, cancellationToken);
+        var b = FoldedLines(sweeps[second], grid.Sweeps[second].OffsetHz, options, progress, cancellationToken);
         if (a.Count == 0 || b.Count == 0 || a.Count > MaxFoldedLines || b.Count > MaxFoldedLines) return null;
         var tol = PairToleranceLinewidths * sweeps.Max(s => s.Instrument.LinewidthHz);
         var (pairs, centre) = PairGreedily(a, b, fsrs[0], fsrs[1], tol, halfWidthHz, options.MinSnr);
@@ -188,12 +188,13 @@ public static class FewestLines
 
     /// <summary>A sweep's folded lines: the sweep unfolded alone within one FSR, positions in the joint frame (the grid's
     /// offset <paramref name="jointOffsetHz"/> of this sweep), intensities relative to their sum.</summary>
-    private static List<Folded> FoldedLines(CalibratedSweep sweep, double jointOffsetHz, UnfoldOptions options, IProgress<string>? progress)
+    private static List<Folded> FoldedLines(CalibratedSweep sweep, double jointOffsetHz, UnfoldOptions options, IProgress<string>? progress,
+        CancellationToken cancellationToken)
     {
         UnfoldResult alone;
         try
         {
-            alone = Unfolder.Run([sweep], options with { WindowStartHz = null, WindowEndHz = null });
+            alone = Unfolder.Run([sweep], options with { WindowStartHz = null, WindowEndHz = null }, cancellationToken: cancellationToken);
         }
         catch (InputException e)
         {

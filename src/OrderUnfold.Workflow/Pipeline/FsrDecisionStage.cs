@@ -16,11 +16,12 @@ namespace OrderUnfold.Pipeline;
 internal static class FsrDecisionStage
 {
     /// <summary>The FSR decision, or null when the setup asks for none (the calibration's settlement stands).</summary>
-    public static FsrRefinement? Run(Setup setup, SourceSegments segments, SettledInstruments settled, UnfoldOptions options, IProgress<string>? progress)
+    public static FsrRefinement? Run(Setup setup, SourceSegments segments, SettledInstruments settled, UnfoldOptions options, IProgress<string>? progress,
+        CancellationToken cancellationToken)
     {
         if (!setup.Solve.RefineFsr && setup.Solve.KnownIntervalHz is null) return null;
         progress?.Report("refining the FSRs from the lines");
         var trial = SourceSweeps.Build(setup, segments, settled);
-        return FsrRefiner.Decide(trial.Sweeps, options, new FsrRefineOptions { RefineRatio = setup.Solve.RefineFsr, KnownIntervalHz = setup.Solve.KnownIntervalHz }, progress);
+        return FsrRefiner.Decide(trial.Sweeps, options, new FsrRefineOptions { RefineRatio = setup.Solve.RefineFsr, KnownIntervalHz = setup.Solve.KnownIntervalHz }, progress, cancellationToken);
     }
 }

@@ -31,7 +31,7 @@ internal sealed record SourceSegments(IReadOnlyList<(SweepSpec Spec, IReadOnlyLi
 internal static class SourceSweeps
 {
     /// <summary>Reads and prepares every source file of the setup (each instrument named must exist).</summary>
-    public static SourceSegments ReadFiles(Setup setup, IReadOnlyDictionary<string, Instrument> instruments, IProgress<string>? progress)
+    public static SourceSegments ReadFiles(Setup setup, IReadOnlyDictionary<string, Instrument> instruments, IProgress<string>? progress, CancellationToken cancellationToken)
     {
         var files = new List<(SweepSpec, IReadOnlyList<RingdownPreparation>)>();
         var inputs = new List<InputFile>();
@@ -43,7 +43,7 @@ internal static class SourceSweeps
             if (spec.File.RampFile is { } rampFile) inputs.Add(UnfoldPipeline.Describe("ramp", rampFile));
             // a fast sweep through a high-finesse cavity rings after each peak: the swept responses are replaced by their
             // static profiles at the resonance crossings before anything is fitted (Calibration/RingdownHandling.cs)
-            files.Add((spec, RingdownHandling.PrepareAll(UnfoldPipeline.ReadSegments(spec.File))));
+            files.Add((spec, RingdownHandling.PrepareAll(UnfoldPipeline.ReadSegments(spec.File, cancellationToken))));
         }
 
         return new SourceSegments(files, inputs);

@@ -33,15 +33,17 @@ public static class UnfoldPipeline
     public const double MismatchReducedChiSquare = 60;
 
     /// <summary>Reads a setup file and runs it.</summary>
-    public static UnfoldRun Run(string setupPath, IProgress<string>? progress = null, CalibrationSet? reuse = null) => Run(SetupReader.Read(setupPath), progress, reuse);
+    public static UnfoldRun Run(string setupPath, IProgress<string>? progress = null, CalibrationSet? reuse = null, CancellationToken cancellationToken = default) =>
+        Run(SetupReader.Read(setupPath), progress, reuse, cancellationToken);
 
     /// <summary>Runs a setup. With <paramref name="reuse"/>, the setup's calibration sweeps are skipped and the saved axes
-    /// and instrument parameters are used instead (archived sweeps of one session share one calibration).</summary>
-    public static UnfoldRun Run(Setup setup, IProgress<string>? progress = null, CalibrationSet? reuse = null)
+    /// and instrument parameters are used instead (archived sweeps of one session share one calibration). A cancelled
+    /// <paramref name="cancellationToken"/> stops the run in whichever stage it is (<see cref="OperationCanceledException"/>).</summary>
+    public static UnfoldRun Run(Setup setup, IProgress<string>? progress = null, CalibrationSet? reuse = null, CancellationToken cancellationToken = default)
     {
         try
         {
-            return RunSetup(setup, progress, reuse);
+            return RunSetup(setup, progress, reuse, cancellationToken);
         }
         catch (InputException e) when (e.File is null && setup.Path is not null)
         {
@@ -49,30 +51,30 @@ public static class UnfoldPipeline
         }
     }
 
-    private static UnfoldRun RunSetup(Setup setup, IProgress<string>? progress, CalibrationSet? reuse)
+    private static UnfoldRun RunSetup(Setup setup, IProgress<string>? progress, CalibrationSet? reuse, CancellationToken cancellationToken)
     {
         var setupFile = setup.Path is not null ? new[] { Describe("setup", setup.Path) } : [];
-        var calibration = CalibrationStage.Run(setup, progress, reuse);
-        var segments = SourceSweeps.ReadFiles(setup, calibration.Settled.Instruments, progress);
+        var calibration = CalibrationStage.Run(setup, progress, reuse, cancellationToken);
+        var segments = SourceSweeps.ReadFiles(setup, calibration.Settled.Instruments, progress, cancellationToken);
         var options = UnfoldStages.OptionsFor(setup.Solve);
         // with refine_fsr or a known interval the FSRs are decided from the lines (a search with trial unfolds of its own)
         // before any sweep of the results exists; the axes are put at the decided FSRs once and the sweeps built from them
-        var fsrDecision = FsrDecisionStage.Run(setup, segments, calibration.Settled, options, progress);
+        var fsrDecision = FsrDecisionStage.Run(setup, segments, calibration.Settled, options, progress, cancellationToken);
         var settled = fsrDecision is null ? calibration.Settled : InstrumentSettlement.WithDecidedFsr(calibration.Settled, fsrDecision);
         var sources = SourceSweeps.Build(setup, segments, settled);
-        var grid = UnfoldStages.SolveOnGrid(sources.Sweeps, options, fsrDecision, progress);
+        var grid = UnfoldStages.SolveOnGrid(sources.Sweeps, options, fsrDecision, progress, cancellationToken);
         var sweeps = grid.Sweeps;
         var fsrRefined = fsrDecision is not null;
 
         // a grid fit this poor cannot be polished into a right answer: refuse before spending the refinement's budget
         RunChecks.RefuseMismatch(grid.Result, sweeps, "grid", fsrRefined, setup.Path);
-        var lines = UnfoldStages.RefineLines(grid, options, setup.Solve, progress);
+        var lines = UnfoldStages.RefineLines(grid, options, setup.Solve, progress, cancellationToken);
         RunChecks.RefuseExhaustedBudget(lines, grid, settled, setup.Path);
         RunChecks.RefuseMismatch(lines.Result, sweeps, lines.Refinement is null ? "grid" : "line", fsrRefined, setup.Path);
         if (lines.Refinement is { FellBackToGrid: false }) RunChecks.RefuseWorseThanGrid(grid.Result, lines.Result, setup.Path!);
 
         // the cavity's transverse families fitted to the sweeps with the refined lines held (Analysis/FamilyFit.cs)
-        var families = lines.Refinement is not null ? FamilyFitting.Fit(sweeps, lines.Result, settled.Instruments) : new FamilyFitOutcome(settled.Instruments, [], []);
+        var families = lines.Refinement is not null ? FamilyFitting.Fit(sweeps, lines.Result, settled.Instruments, cancellationToken) : new FamilyFitOutcome(settled.Instruments, [], []);
         var (fewer, fewerWarning) = RunChecks.FewerLines(lines.Result, setup.Solve.MinSnr);
         // a weak line on a family's peaks of a stronger line is that family's residue when one cavity measured it (FamilyResidue.cs)
         var sweepInstruments = sweeps.Select(c => families.Instruments.TryGetValue(c.Instrument.Name, out var i) ? i : c.Instrument).ToList();
@@ -98,18 +100,19 @@ public static class UnfoldPipeline
     }
 
     /// <summary>Calibration only: the axes and instruments a setup's calibration sweeps give (for <c>calibrate</c>).</summary>
-    public static CalibrationSet Calibrate(Setup setup, IProgress<string>? progress, out IReadOnlyList<string> warnings)
+    public static CalibrationSet Calibrate(Setup setup, IProgress<string>? progress, out IReadOnlyList<string> warnings,
+        CancellationToken cancellationToken = default)
     {
-        var calibration = CalibrationStage.Run(setup, progress, null);
+        var calibration = CalibrationStage.Run(setup, progress, null, cancellationToken);
         warnings = calibration.Warnings;
         return new CalibrationSet(calibration.Settled.Instruments.Values.ToList(), calibration.Settled.Calibrations.ToList(), setup.Path ?? "setup");
     }
 
     /// <summary>Reads a file's segments; for time scans x is made relative to each segment's start, so that a
     /// calibration made on one segment applies to another segment of the same direction.</summary>
-    internal static IReadOnlyList<Sweep> ReadSegments(SweepFileOptions file)
+    internal static IReadOnlyList<Sweep> ReadSegments(SweepFileOptions file, CancellationToken cancellationToken = default)
     {
-        var segments = SweepReader.ReadSweeps(file);
+        var segments = SweepReader.ReadSweeps(file, cancellationToken);
         if (segments.Count == 0) throw new InputException("no sweep segment of the requested ramp direction was found", file.Path);
         foreach (var seg in segments)
             if (InvertedSignal(seg.Y) is { } why)

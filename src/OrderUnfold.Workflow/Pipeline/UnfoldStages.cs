@@ -44,15 +44,16 @@ internal static class UnfoldStages
     /// (<paramref name="fsrDecision"/>, Pipeline/FsrDecisionStage.cs), the grid is solved on the window as set; otherwise a
     /// source wider than the default window is caught and the window widened (Pipeline/WindowWidening.cs).
     /// </summary>
-    public static GridStage SolveOnGrid(IReadOnlyList<CalibratedSweep> sweeps, UnfoldOptions options, FsrRefinement? fsrDecision, IProgress<string>? progress)
+    public static GridStage SolveOnGrid(IReadOnlyList<CalibratedSweep> sweeps, UnfoldOptions options, FsrRefinement? fsrDecision, IProgress<string>? progress,
+        CancellationToken cancellationToken)
     {
         if (fsrDecision is not null)
         {
             progress?.Report("unfolding with the decided FSRs");
-            return new GridStage(sweeps, Unfolder.Run(sweeps, options, progress), fsrDecision, null, fsrDecision.Warnings);
+            return new GridStage(sweeps, Unfolder.Run(sweeps, options, progress, cancellationToken), fsrDecision, null, fsrDecision.Warnings);
         }
 
-        var (widened, window) = WindowWidening.Run(o => Unfolder.Run(sweeps, o, progress), options, sweeps.Select(c => c.Instrument).ToList(), progress);
+        var (widened, window) = WindowWidening.Run(o => Unfolder.Run(sweeps, o, progress, cancellationToken), options, sweeps.Select(c => c.Instrument).ToList(), progress);
         return new GridStage(sweeps, widened, null, window, []);
     }
 
@@ -62,7 +63,8 @@ internal static class UnfoldStages
     /// when it fits as well (Pipeline/FewestLines.cs). Without the refinement nothing checks the orders: a window wider
     /// than the unambiguous range holds aliases, which a warning says.
     /// </summary>
-    public static LineStage RefineLines(GridStage grid, UnfoldOptions options, SolveOptions solve, IProgress<string>? progress)
+    public static LineStage RefineLines(GridStage grid, UnfoldOptions options, SolveOptions solve, IProgress<string>? progress,
+        CancellationToken cancellationToken)
     {
         var result = grid.Result;
         var warnings = new List<string>();
@@ -84,14 +86,14 @@ internal static class UnfoldStages
         };
         if (FewestLines.Applies(grid.Sweeps, result, grid.Window))
         {
-            var (fewest, fewestRefinement, finding) = FewestLines.Run(grid.Sweeps, result, options, grid.Window!.HalfWidthHz, refineOptions, progress);
+            var (fewest, fewestRefinement, finding) = FewestLines.Run(grid.Sweeps, result, options, grid.Window!.HalfWidthHz, refineOptions, progress, cancellationToken);
             progress?.Report($"fewest lines: {(finding.Kept ? "kept" : "not kept")}: {finding.Reason}");
             if (finding.Kept && fewestRefinement is not null) return new LineStage(fewest, fewestRefinement, warnings);
             if (finding.Kept) result = fewest;
             else warnings.Add($"a fewest-lines explanation of the widened window ({finding.Proposed} line(s)) was tried and not kept: {finding.Reason}");
         }
 
-        var (refined, refinement) = LineRefiner.Refine(grid.Sweeps, result, refineOptions, progress);
+        var (refined, refinement) = LineRefiner.Refine(grid.Sweeps, result, refineOptions, progress, cancellationToken);
         return new LineStage(refined, refinement, warnings);
     }
 }

@@ -147,9 +147,10 @@ public static class ArchiveSimulator
 
     /// <summary>
     /// Writes <c>sweeps/&lt;id&gt;.csv</c> per item, <c>calibration-laser.csv</c>, <c>setup.toml</c> and
-    /// <c>truth.csv</c> into <paramref name="directory"/>. The same spec always writes the same bytes.
+    /// <c>truth.csv</c> into <paramref name="directory"/>. The same spec always writes the same bytes. A cancelled
+    /// <paramref name="cancellationToken"/> stops it before the next item (<see cref="OperationCanceledException"/>).
     /// </summary>
-    public static ArchiveOutput Write(ArchiveSpec spec, string directory)
+    public static ArchiveOutput Write(ArchiveSpec spec, string directory, CancellationToken cancellationToken = default)
     {
         ArgumentNullException.ThrowIfNull(spec);
         if (spec.Items < 1) throw new ArgumentOutOfRangeException(nameof(spec), spec.Items, "an archive needs at least one item");
@@ -170,6 +171,7 @@ public static class ArchiveSimulator
         var position = spec.StartPositionHz;
         for (var k = 0; k < spec.Items; k++)
         {
+            cancellationToken.ThrowIfCancellationRequested();
             var id = $"sweep-{k + 1:D4}";
             var t = k * spec.IntervalS;
             if (k > 0) position += spec.DriftHzPerS * spec.IntervalS + spec.JitterHz * Simulator.Gaussian(rng);

@@ -72,22 +72,12 @@ public sealed class CodeSizeTests
 
     public static IEnumerable<string> SourceFiles()
     {
-        var src = Path.Combine(RepoRoot(), "src");
+        var src = Path.Combine(RepositoryRoot.Folder, "src");
         var sep = Path.DirectorySeparatorChar;
         return Directory.EnumerateFiles(src, "*.cs", SearchOption.AllDirectories)
             .Where(f => !f.Contains($"{sep}obj{sep}") && !f.Contains($"{sep}bin{sep}"))
             .Order(StringComparer.Ordinal);
     }
 
-    private static string Relative(string file) => Path.GetRelativePath(RepoRoot(), file);
-
-    private static string RepoRoot()
-    {
-        for (var d = new DirectoryInfo(AppContext.BaseDirectory); d is not null; d = d.Parent)
-        {
-            if (File.Exists(Path.Combine(d.FullName, "OrderUnfold.sln"))) return d.FullName;
-        }
-
-        throw new DirectoryNotFoundException($"OrderUnfold.sln not found above {AppContext.BaseDirectory}");
-    }
+    private static string Relative(string file) => Path.GetRelativePath(RepositoryRoot.Folder, file);
 }

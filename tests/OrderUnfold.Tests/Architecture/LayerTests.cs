@@ -19,7 +19,7 @@ public sealed class LayerTests
     [Fact]
     public void Inside_the_methods_layer_no_namespace_uses_a_later_one()
     {
-        var root = Path.Combine(RepoRoot(), "src", "OrderUnfold.Methods");
+        var root = Path.Combine(RepositoryRoot.Folder, "src", "OrderUnfold.Methods");
         var offences = new List<string>();
         foreach (var file in Directory.EnumerateFiles(root, "*.cs", SearchOption.AllDirectories).Where(f => !IsBuildOutput(f)))
         {
@@ -47,12 +47,7 @@ public sealed class LayerTests
         // the date (a report's time stamp belongs to the workflow that writes the report).
         var forbidden = new Regex(@"\b(File|Directory|Console|StreamReader|StreamWriter|FileStream)\.|\bnew (StreamReader|StreamWriter|FileStream)\b|\bDateTime(Offset)?\.(Now|UtcNow|Today)\b",
             RegexOptions.Compiled);
-        var root = Path.Combine(RepoRoot(), "src", project);
-        var offences = Directory.EnumerateFiles(root, "*.cs", SearchOption.AllDirectories).Where(f => !IsBuildOutput(f))
-            .SelectMany(f => StripComments(File.ReadAllText(f)).Split('\n').Select((line, i) => (f, i, line)))
-            .Where(x => forbidden.IsMatch(x.line))
-            .Select(x => $"{Path.GetRelativePath(root, x.f)}:{x.i + 1}: {x.line.Trim()}")
-            .ToList();
+        var offences = LinesMatching(project, forbidden);
         Assert.True(offences.Count == 0, string.Join("\n", offences));
     }
 
@@ -68,6 +63,9 @@ public sealed class LayerTests
             const BindingFlags all = BindingFlags.Static | BindingFlags.Public | BindingFlags.NonPublic | BindingFlags.DeclaredOnly;
             foreach (var f in type.GetFields(all))
             {
+                // a read-only field (or a getter-only property's hidden backing field) that holds per-flow or per-thread
+                // state is ambient state all the same: the cancellation token once lived in a static readonly AsyncLocal
+                if (AmbientHolder(f) is { } holder) offences.Add($"{type.FullName}.{f.Name} ({holder})");
                 if (f.IsLiteral || f.IsInitOnly || f.Name.Contains('<')) continue;
                 offences.Add($"{type.FullName}.{f.Name} (a static field that can be assigned)");
             }
@@ -81,6 +79,29 @@ public sealed class LayerTests
         Assert.True(offences.Count == 0, string.Join("\n", offences));
     }
 
+    /// <summary>Why a static field holds ambient state (null: it does not): an AsyncLocal or ThreadLocal value, or a
+    /// [ThreadStatic] field.</summary>
+    private static string? AmbientHolder(FieldInfo field)
+    {
+        if (field.IsDefined(typeof(ThreadStaticAttribute))) return "a [ThreadStatic] field";
+        var t = field.FieldType;
+        if (t.IsGenericType && (t.GetGenericTypeDefinition() == typeof(AsyncLocal<>) || t.GetGenericTypeDefinition() == typeof(ThreadLocal<>)))
+            return $"an ambient {t.Name[..t.Name.IndexOf('`')]} value";
+        return null;
+    }
+
+    [Theory]
+    [InlineData("OrderUnfold.Core")]
+    [InlineData("OrderUnfold.Methods")]
+    public void The_lower_layers_take_their_context_explicitly(string project)
+    {
+        // Cancellation, progress and limits reach Core and Methods as parameters or inside the options and budgets passed
+        // in (DEVELOPERS.md, "Cancellation"): no flow- or thread-local context, wherever it would be declared
+        var ambient = new Regex(@"\b(AsyncLocal|ThreadLocal|ThreadStatic|CallContext)\b|\bExecutionContext\.", RegexOptions.Compiled);
+        var offences = LinesMatching(project, ambient);
+        Assert.True(offences.Count == 0, "ambient context in the lower layers:\n" + string.Join("\n", offences));
+    }
+
     [Fact]
     public void Each_project_references_only_the_layer_below_it()
     {
@@ -88,10 +109,21 @@ public sealed class LayerTests
         string[] chain = ["OrderUnfold.Core", "OrderUnfold.Methods", "OrderUnfold.Workflow", "OrderUnfold.Plotting", "OrderUnfold.Cli"];
         for (var i = 0; i < chain.Length; i++)
         {
-            var csproj = File.ReadAllText(Path.Combine(RepoRoot(), "src", chain[i], chain[i] + ".csproj"));
+            var csproj = File.ReadAllText(Path.Combine(RepositoryRoot.Folder, "src", chain[i], chain[i] + ".csproj"));
             var refs = Regex.Matches(csproj, @"<ProjectReference Include=""[^""]*?([\w.]+)\.csproj""").Select(m => m.Groups[1].Value).ToArray();
             Assert.Equal(i == 0 ? [] : new[] { chain[i - 1] }, refs);
         }
+    }
+
+    /// <summary>The code lines (comments stripped) of a project's sources that match <paramref name="pattern"/>, as file:line: text.</summary>
+    private static List<string> LinesMatching(string project, Regex pattern)
+    {
+        var root = Path.Combine(RepositoryRoot.Folder, "src", project);
+        return Directory.EnumerateFiles(root, "*.cs", SearchOption.AllDirectories).Where(f => !IsBuildOutput(f))
+            .SelectMany(f => StripComments(File.ReadAllText(f)).Split('\n').Select((line, i) => (f, i, line)))
+            .Where(x => pattern.IsMatch(x.line))
+            .Select(x => $"{Path.GetRelativePath(root, x.f)}:{x.i + 1}: {x.line.Trim()}")
+            .ToList();
     }
 
     private static string StripComments(string text) =>
@@ -99,14 +131,4 @@ public sealed class LayerTests
 
     private static bool IsBuildOutput(string path) =>
         path.Contains($"{Path.DirectorySeparatorChar}obj{Path.DirectorySeparatorChar}") || path.Contains($"{Path.DirectorySeparatorChar}bin{Path.DirectorySeparatorChar}");
-
-    private static string RepoRoot()
-    {
-        for (var d = new DirectoryInfo(AppContext.BaseDirectory); d is not null; d = d.Parent)
-        {
-            if (File.Exists(Path.Combine(d.FullName, "OrderUnfold.sln"))) return d.FullName;
-        }
-
-        throw new DirectoryNotFoundException($"OrderUnfold.sln not found above {AppContext.BaseDirectory}");
-    }
 }

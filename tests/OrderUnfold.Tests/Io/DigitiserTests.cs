@@ -104,7 +104,7 @@ public sealed class DigitiserTests
     public void Demo_sweeps_have_the_8_bit_step_and_no_clipping()
     {
         // data/demo: simulated, 8-bit over 8 % below the offset to 115 % of the largest signal above it (Simulator.Trace)
-        var setup = SetupReader.Read(Path.Combine(RepoRoot(), "data", "demo", "setup.toml"));
+        var setup = SetupReader.Read(Path.Combine(RepositoryRoot.Folder, "data", "demo", "setup.toml"));
         foreach (var file in setup.Sweeps.Select(s => s.File).Concat(setup.Calibrations.Select(c => c.File)))
         {
             var sweeps = SweepReader.ReadSweeps(file);
@@ -114,12 +114,5 @@ public sealed class DigitiserTests
             var step = sweeps[0].QuantisationStep!.Value;
             Assert.InRange((y.Max() - y.Min()) / step, 50, 255); // the record spans part of the 255 steps
         }
-    }
-
-    private static string RepoRoot()
-    {
-        var dir = new DirectoryInfo(AppContext.BaseDirectory);
-        while (dir is not null && !File.Exists(Path.Combine(dir.FullName, "OrderUnfold.sln"))) dir = dir.Parent;
-        return dir!.FullName;
     }
 }

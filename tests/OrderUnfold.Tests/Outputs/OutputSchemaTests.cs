@@ -10,12 +10,7 @@ namespace OrderUnfold.Tests.Outputs;
 /// </summary>
 public sealed class OutputSchemaTests
 {
-    private static string SchemaDirectory()
-    {
-        var dir = new DirectoryInfo(AppContext.BaseDirectory);
-        while (dir is not null && !File.Exists(Path.Combine(dir.FullName, "OrderUnfold.sln"))) dir = dir.Parent;
-        return Path.Combine(dir?.FullName ?? throw new InvalidOperationException("repository root (OrderUnfold.sln) not found"), "docs", "schema");
-    }
+    private static string SchemaDirectory() => Path.Combine(RepositoryRoot.Folder, "docs", "schema");
 
     public static TheoryData<string> SchemaFiles() => new(OutputSchemas.All.Select(s => s.SchemaFile));
 

@@ -105,8 +105,7 @@ public sealed class FuzzTests(FuzzTemplates t, ITestOutputHelper output) : IClas
         };
         counts.Tried++;
         if (kind == Kind.Pipeline) counts.PipelineRuns++;
-        using var budget = new CancellationTokenSource(InputBudget);
-        using var scope = Cancellation.Use(budget.Token);
+        using var budget = new CancellationTokenSource(InputBudget); // handed to the readers and the pipeline, whose loops check it
         var allocated = GC.GetAllocatedBytesForCurrentThread();
         try
         {
@@ -114,16 +113,16 @@ public sealed class FuzzTests(FuzzTemplates t, ITestOutputHelper output) : IClas
             switch (kind)
             {
                 case Kind.Sweep:
-                    SweepReader.ReadSweeps(t.SweepOptions with { Path = path });
+                    SweepReader.ReadSweeps(t.SweepOptions with { Path = path }, budget.Token);
                     break;
                 case Kind.Pipeline:
-                    UnfoldPipeline.Run(Path.Combine(folder, "setup.toml"));
+                    UnfoldPipeline.Run(Path.Combine(folder, "setup.toml"), cancellationToken: budget.Token);
                     break;
                 case Kind.Setup:
                     SetupReader.ReadText(text, path);
                     break;
                 case Kind.Manifest:
-                    foreach (var _ in Manifest.ReadLines(path, InputLimits.ReadLines(path, "manifest"))) { }
+                    foreach (var _ in Manifest.ReadLines(path, InputLimits.ReadLines(path, "manifest", budget.Token))) { }
                     break;
                 default:
                     SavedCalibration.Read(path);

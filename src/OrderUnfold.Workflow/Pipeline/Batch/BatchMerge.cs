@@ -23,8 +23,9 @@ public static class BatchMerge
     /// <summary>One shard's output: its status, the folder it wrote into, its summary and its status file.</summary>
     private sealed record ShardOutput(BatchStatus Status, string Dir, string Summary, string StatusPath);
 
-    /// <summary>Merges the shards found under <c>shards/</c> in each of <paramref name="inputDirectories"/> into <paramref name="outDirectory"/>.</summary>
-    public static MergeResult Run(IReadOnlyList<string> inputDirectories, string? outDirectory = null)
+    /// <summary>Merges the shards found under <c>shards/</c> in each of <paramref name="inputDirectories"/> into <paramref name="outDirectory"/>.
+    /// A cancelled <paramref name="cancellationToken"/> stops it before the next row (the summary is then not written).</summary>
+    public static MergeResult Run(IReadOnlyList<string> inputDirectories, string? outDirectory = null, CancellationToken cancellationToken = default)
     {
         if (inputDirectories.Count == 0) throw new InputException("merge needs at least one batch output folder");
         var inputs = inputDirectories.Select(Path.GetFullPath).Distinct().ToList();
@@ -41,8 +42,9 @@ public static class BatchMerge
         long rows = 0, ok = 0, failed = 0, copied = 0;
         IEnumerable<SummaryRow> Merged()
         {
-            foreach (var (row, k) in MergedRows(shards, n))
+            foreach (var (row, k) in MergedRows(shards, n, cancellationToken))
             {
+                cancellationToken.ThrowIfCancellationRequested();
                 rows++;
                 if (row.Status == ItemStatus.Ok) ok++;
                 else failed++;
@@ -92,7 +94,7 @@ public static class BatchMerge
     private static List<ShardOutput> CheckedShards(List<ShardOutput> shards, List<string> inputs, List<string> warnings)
     {
         if (shards.Count == 0)
-            throw new InputException($"no shard outputs (shards/shard-i-of-N.json) in {string.Join(", ", inputs)}; run 'orderunfold batch ... --shard i/N' first");
+            throw new InputException($"no shard outputs (shards/shard-i-of-N.json) in {string.Join(", ", inputs)}; run '{Hint.Command("batch MANIFEST --out DIR --shard i/N")}' first");
         var counts = shards.Select(s => s.Status.Shard.Count).Distinct().ToList();
         if (counts.Count > 1)
             throw new InputException($"the shards come from runs split into different numbers of shards ({string.Join(", ", counts.Order())}); merge the shards of one split only");
@@ -116,7 +118,7 @@ public static class BatchMerge
     /// The rows of the shard summaries (each sorted by id) in id order, with the shard each came from: one streaming
     /// k-way merge. A shard summary out of order, or an id in two shards, is an InputException.
     /// </summary>
-    private static IEnumerable<(SummaryRow Row, int Shard)> MergedRows(List<ShardOutput> shards, int n)
+    private static IEnumerable<(SummaryRow Row, int Shard)> MergedRows(List<ShardOutput> shards, int n, CancellationToken cancellationToken)
     {
         var readers = new List<IEnumerator<SummaryRow>>();
         try
@@ -125,7 +127,7 @@ public static class BatchMerge
             for (var k = 0; k < shards.Count; k++)
             {
                 if (!File.Exists(shards[k].Summary)) throw new InputException($"shard summary not found: {shards[k].Summary}", shards[k].StatusPath);
-                readers.Add(SummaryTable.Read(shards[k].Summary).GetEnumerator());
+                readers.Add(SummaryTable.Read(shards[k].Summary, cancellationToken).GetEnumerator());
                 if (readers[k].MoveNext()) queue.Enqueue(k, readers[k].Current.Id);
             }
 

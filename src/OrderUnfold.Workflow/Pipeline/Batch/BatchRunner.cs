@@ -77,18 +77,19 @@ public sealed record BatchResult(long Rows, long Ok, long Failed, long Skipped, 
 /// </summary>
 public static class BatchRunner
 {
-    /// <summary>Runs the batch; throws <see cref="InputException"/> only for problems with the batch as a whole (manifest, defaults).</summary>
+    /// <summary>Runs the batch; throws <see cref="InputException"/> only for problems with the batch as a whole (manifest, defaults).
+    /// A cancelled <paramref name="cancellationToken"/> stops the items in flight (each item's unfold receives the run's token)
+    /// and starts no new one; the summary of what finished is still written.</summary>
     public static BatchResult Run(string manifestPath, string outDirectory, BatchOptions? options = null, IProgress<BatchProgress>? progress = null,
-        CancellationToken cancel = default)
+        CancellationToken cancellationToken = default)
     {
         options ??= new BatchOptions();
-        var (context, total, manifestSha) = Prepare(manifestPath, outDirectory, options);
+        var (context, total, manifestSha) = Prepare(manifestPath, outDirectory, options, cancellationToken);
         var clock = Stopwatch.StartNew();
         var counts = new Counts(total);
-        var complete = RunItems(context, counts, clock, progress, cancel);
+        var complete = RunItems(context, counts, clock, progress, cancellationToken);
 
-        // the summary of what finished is written even when the run was stopped
-        using var summaryScope = Cancellation.Use(CancellationToken.None);
+        // the summary of what finished is written even when the run was stopped (its writers take no token)
         counts.Finished.Sort(ItemId.Order);
         var shard = options.Shard;
         var summary = BatchLayout.Summary(context.OutDir, shard);
@@ -103,7 +104,8 @@ public static class BatchRunner
 
     /// <summary>Checks the settings, the default files and the manifest (header, rows of this shard, hash; streamed), then
     /// makes the output and staging folders.</summary>
-    private static (BatchContext Context, long Total, string ManifestSha) Prepare(string manifestPath, string outDirectory, BatchOptions options)
+    private static (BatchContext Context, long Total, string ManifestSha) Prepare(string manifestPath, string outDirectory, BatchOptions options,
+        CancellationToken cancellationToken)
     {
         if (options.Jobs < 1) throw new InputException($"--jobs must be at least 1 but got {options.Jobs}");
         var manifest = Path.GetFullPath(manifestPath);
@@ -111,7 +113,7 @@ public static class BatchRunner
         if (defaultSetup is not null && !File.Exists(defaultSetup)) throw new InputException($"setup file not found: {defaultSetup}", options.Setup);
         var defaultCalibration = options.Calibration is null ? null : Path.GetFullPath(options.Calibration);
         if (defaultCalibration is not null && !File.Exists(defaultCalibration)) throw new InputException($"calibration file not found: {defaultCalibration}", options.Calibration);
-        var total = Manifest.Read(manifestPath).LongCount(row => options.Shard.Contains(row.IdText));
+        var total = Manifest.Read(manifestPath, cancellationToken).LongCount(row => options.Shard.Contains(row.IdText));
         var manifestSha = ItemPlanner.Sha256OfFile(manifest);
 
         var outDir = Path.GetFullPath(outDirectory);
@@ -133,10 +135,10 @@ public static class BatchRunner
     }
 
     /// <summary>The manifest rows of this shard, a repeated id turned into a problem row.</summary>
-    private static IEnumerable<ManifestRow> ShardRows(string manifestPath, Shard shard)
+    private static IEnumerable<ManifestRow> ShardRows(string manifestPath, Shard shard, CancellationToken cancellationToken)
     {
         var firstLine = new Dictionary<string, long>(StringComparer.Ordinal);
-        foreach (var row in Manifest.Read(manifestPath))
+        foreach (var row in Manifest.Read(manifestPath, cancellationToken))
         {
             if (!shard.Contains(row.IdText)) continue;
             if (row.IdAccepted && !firstLine.TryAdd(row.IdText, row.Line))
@@ -151,21 +153,21 @@ public static class BatchRunner
 
     /// <summary>Runs the shard's rows in parallel and publishes them; false when the run was stopped before every row finished.
     /// A failure of the output folder itself (disk full, permissions) is rethrown.</summary>
-    private static bool RunItems(BatchContext context, Counts counts, Stopwatch clock, IProgress<BatchProgress>? progress, CancellationToken cancel)
+    private static bool RunItems(BatchContext context, Counts counts, Stopwatch clock, IProgress<BatchProgress>? progress, CancellationToken cancellationToken)
     {
         var options = context.Options;
-        using var stop = CancellationTokenSource.CreateLinkedTokenSource(cancel);
-        var ambient = Cancellation.Use(stop.Token); // the items' reading, solving and refining loops check it
+        // stopped by the caller or by a failure to publish; the items' reading, solving and refining loops check it
+        using var stop = CancellationTokenSource.CreateLinkedTokenSource(cancellationToken);
         var publisher = new BatchPublisher(context.Staging, 4 * options.Jobs + 4, stop);
         var complete = true;
         try
         {
             Parallel.ForEach(
-                Partitioner.Create(ShardRows(context.Manifest, options.Shard), EnumerablePartitionerOptions.NoBuffering),
+                Partitioner.Create(ShardRows(context.Manifest, options.Shard, stop.Token), EnumerablePartitionerOptions.NoBuffering),
                 new ParallelOptions { MaxDegreeOfParallelism = options.Jobs, CancellationToken = stop.Token },
                 row =>
                 {
-                    var report = Count(counts, Process(row, context, publisher), clock);
+                    var report = Count(counts, Process(row, context, publisher, stop.Token), clock);
                     progress?.Report(report);
                 });
         }
@@ -185,7 +187,6 @@ public static class BatchRunner
         finally
         {
             publisher.Finish(); // items handed over are published before the summary is written
-            ambient.Dispose();
         }
 
         // the output folder itself failed while publishing (disk full, permissions): nothing more can be written
@@ -209,7 +210,7 @@ public static class BatchRunner
 
     /// <summary>Runs (or skips) one row; never throws for a problem of the item itself. A run item is handed to
     /// <paramref name="publisher"/>.</summary>
-    private static (ItemRecord Record, bool Skipped) Process(ManifestRow row, BatchContext ctx, BatchPublisher publisher)
+    private static (ItemRecord Record, bool Skipped) Process(ManifestRow row, BatchContext ctx, BatchPublisher publisher, CancellationToken cancellationToken)
     {
         var clock = Stopwatch.StartNew();
         var folder = row.Folder;
@@ -234,7 +235,7 @@ public static class BatchRunner
         if (Directory.Exists(stage)) Directory.Delete(stage, recursive: true);
         Directory.CreateDirectory(stage);
         var baseRecord = new ItemRecord { Id = folder, Key = plan.Key, Status = ItemStatus.Failed, ManifestLine = row.Line, Timestamp = row.Timestamp };
-        var record = plan.Error is not null ? baseRecord with { Error = plan.Error } : Unfold(plan, ctx, stage, baseRecord);
+        var record = plan.Error is not null ? baseRecord with { Error = plan.Error } : Unfold(plan, ctx, stage, baseRecord, cancellationToken);
         record = record with { Seconds = clock.Elapsed.TotalSeconds };
         record.Write(Path.Combine(stage, BatchLayout.DoneFile), staged: true);
         publisher.Add(stage, target);
@@ -242,11 +243,11 @@ public static class BatchRunner
     }
 
     /// <summary>Unfolds one planned item into <paramref name="stage"/>; its record (failed, with the error, when the unfold failed).</summary>
-    private static ItemRecord Unfold(ItemPlanner.ItemPlan plan, BatchContext ctx, string stage, ItemRecord baseRecord)
+    private static ItemRecord Unfold(ItemPlanner.ItemPlan plan, BatchContext ctx, string stage, ItemRecord baseRecord, CancellationToken cancellationToken)
     {
         try
         {
-            var run = UnfoldPipeline.Run(plan.Setup!, null, plan.Calibration);
+            var run = UnfoldPipeline.Run(plan.Setup!, null, plan.Calibration, cancellationToken);
             UnfoldOutputs.Write(run, stage, ctx.Options.Figures, ctx.Options.ToolVersion, staged: true);
             var analysis = ctx.Analysis.Analyse(run);
             var first = run.Result.Sweeps.Count > 0 ? run.Result.Sweeps[0] : null;
@@ -264,7 +265,7 @@ public static class BatchRunner
                 Analysis = analysis,
             };
         }
-        catch (Exception e) when (e is OperationCanceledException && Cancellation.Token.IsCancellationRequested)
+        catch (Exception e) when (e is OperationCanceledException && cancellationToken.IsCancellationRequested)
         {
             // stopped by Ctrl-C or SIGTERM: the item is dropped unpublished and runs again on resume
             Directory.Delete(stage, recursive: true);

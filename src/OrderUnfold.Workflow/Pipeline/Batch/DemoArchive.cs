@@ -19,13 +19,14 @@ public sealed record DemoArchiveOutput(string ManifestPath, string CalibrationPa
 /// </summary>
 public static class DemoArchive
 {
-    /// <summary>Writes the archive into <paramref name="directory"/>; the same spec gives the same files.</summary>
-    public static DemoArchiveOutput Write(string directory, ArchiveSpec? spec = null)
+    /// <summary>Writes the archive into <paramref name="directory"/>; the same spec gives the same files. A cancelled
+    /// <paramref name="cancellationToken"/> stops it (<see cref="OperationCanceledException"/>).</summary>
+    public static DemoArchiveOutput Write(string directory, ArchiveSpec? spec = null, CancellationToken cancellationToken = default)
     {
         spec ??= new ArchiveSpec();
         var root = Path.GetFullPath(directory);
-        var sim = ArchiveSimulator.Write(spec, root);
-        var set = UnfoldPipeline.Calibrate(sim.Setup, null, out _);
+        var sim = ArchiveSimulator.Write(spec, root, cancellationToken);
+        var set = UnfoldPipeline.Calibrate(sim.Setup, null, out _, cancellationToken);
         var calibrationPath = Path.Combine(root, "calibration.json");
         CalibrationFile.Write(calibrationPath, set with { Source = "setup.toml (calibration-laser.csv)" });
 

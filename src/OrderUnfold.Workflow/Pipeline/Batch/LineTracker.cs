@@ -1,3 +1,4 @@
+using OrderUnfold.Io;
 namespace OrderUnfold.Pipeline.Batch;
 
 /// <summary>Which frame the tracked frequencies are given in.</summary>
@@ -46,8 +47,9 @@ public sealed record TrackResult(IReadOnlyList<SeriesPoint> Series, IReadOnlyLis
 /// <remarks>Holds one small record per item and per line in memory (for ordering by time and for the plots).</remarks>
 public static class LineTracker
 {
-    /// <summary>Tracks the batch in <paramref name="batchDirectory"/> and writes into <paramref name="outDirectory"/> (default: DIR/track).</summary>
-    public static TrackResult Run(string batchDirectory, string? outDirectory = null, TrackOptions? options = null)
+    /// <summary>Tracks the batch in <paramref name="batchDirectory"/> and writes into <paramref name="outDirectory"/> (default: DIR/track);
+    /// a cancelled <paramref name="cancellationToken"/> stops it while it reads the summary or the items.</summary>
+    public static TrackResult Run(string batchDirectory, string? outDirectory = null, TrackOptions? options = null, CancellationToken cancellationToken = default)
     {
         options ??= new TrackOptions();
         if (!(options.ToleranceHz > 0)) throw new InputException($"the tolerance must be a positive frequency but got {options.ToleranceHz} Hz");
@@ -55,13 +57,17 @@ public static class LineTracker
         var summaryPath = Path.Combine(dir, BatchLayout.SummaryFile);
         if (!File.Exists(summaryPath))
             throw new InputException(Directory.Exists(Path.Combine(dir, BatchLayout.ShardsFolder))
-                ? $"no summary.csv in {dir}: this batch ran in shards; run 'orderunfold merge {dir}' first"
-                : $"no summary.csv in {dir}: expected the output folder of 'orderunfold batch'", dir);
+                ? $"no summary.csv in {dir}: this batch ran in shards; run '{Hint.Command("merge " + Hint.Quote(dir))}' first"
+                : $"no summary.csv in {dir}: expected the output folder of '{Hint.Command("batch")}'", dir);
         var outDir = Path.GetFullPath(outDirectory ?? Path.Combine(dir, "track"));
         var warnings = new List<string>();
-        var (items, origin) = TimedItems(summaryPath, warnings);
+        var (items, origin) = TimedItems(summaryPath, warnings, cancellationToken);
         var follower = new TrackFollower(dir, options, origin, warnings);
-        for (var k = 0; k < items.Count; k++) follower.Add(k, items[k]);
+        for (var k = 0; k < items.Count; k++)
+        {
+            cancellationToken.ThrowIfCancellationRequested();
+            follower.Add(k, items[k]);
+        }
 
         if (follower.Series.Count == 0) throw new InputException($"no finished item to track in {summaryPath}", summaryPath);
         var summaries = follower.Summaries();
@@ -72,11 +78,11 @@ public static class LineTracker
 
     /// <summary>The summary's finished items in time order (id order, one unit apart, when none has a time stamp), and the
     /// time origin.</summary>
-    private static (List<TimedItem> Items, DateTimeOffset? Origin) TimedItems(string summaryPath, List<string> warnings)
+    private static (List<TimedItem> Items, DateTimeOffset? Origin) TimedItems(string summaryPath, List<string> warnings, CancellationToken cancellationToken)
     {
         var rows = new List<(SummaryRow Row, DateTimeOffset? When)>();
         var failed = 0;
-        foreach (var r in SummaryTable.Read(summaryPath))
+        foreach (var r in SummaryTable.Read(summaryPath, cancellationToken))
         {
             if (r.Status != ItemStatus.Ok)
             {

@@ -40,11 +40,11 @@ public static class Manifest
     private static readonly Regex IsoTime = new(
         @"^\d{4}-\d{2}-\d{2}([T ]\d{2}:\d{2}(:\d{2}(\.\d{1,7})?)?)?(Z|[+-]\d{2}:?\d{2})?$", RegexOptions.CultureInvariant | RegexOptions.Compiled);
 
-    /// <summary>Streams the rows of the manifest at <paramref name="path"/>.</summary>
-    public static IEnumerable<ManifestRow> Read(string path)
+    /// <summary>Streams the rows of the manifest at <paramref name="path"/>, checking <paramref name="cancellationToken"/> as it reads.</summary>
+    public static IEnumerable<ManifestRow> Read(string path, CancellationToken cancellationToken = default)
     {
         if (string.IsNullOrWhiteSpace(path)) throw new InputException("expected the path of a manifest (CSV) but got an empty name");
-        return ReadLines(path, Io.InputLimits.ReadLines(path, "manifest")); // type, size and line-length limits
+        return ReadLines(path, Io.InputLimits.ReadLines(path, "manifest", cancellationToken)); // type, size and line-length limits
     }
 
     /// <summary>Streams the rows of manifest text given as lines (<paramref name="path"/> names it in messages).</summary>

@@ -124,6 +124,8 @@ public static class SummaryTable
     /// <summary>Writes the rows as they come (for merging summaries already in order).</summary>
     public static void Write(string path, IEnumerable<SummaryRow> rows) => CsvTable.WriteFile(path, rows);
 
-    /// <summary>Streams the rows of a summary.csv (InputException naming file, line and column when it is not one).</summary>
-    public static IEnumerable<SummaryRow> Read(string path) => CsvTable.Read<SummaryRow>(path, What);
+    /// <summary>Streams the rows of a summary.csv (InputException naming file, line and column when it is not one), checking
+    /// <paramref name="cancellationToken"/> before each row.</summary>
+    public static IEnumerable<SummaryRow> Read(string path, CancellationToken cancellationToken = default) =>
+        CsvTable.Read<SummaryRow>(path, What, cancellationToken);
 }

@@ -175,7 +175,7 @@ public sealed class ModesCommandTests : IDisposable
         string? seen = null;
         var services = new CliServices
         {
-            UnfoldForModes = path =>
+            UnfoldForModes = (path, _) =>
             {
                 seen = path;
                 return new ModeInput([new(0, 1e6, 1, 0.01, null), new(3e10, 1e6, 1e-4, 1e-5, null)], 1e-5, true, null, null);
