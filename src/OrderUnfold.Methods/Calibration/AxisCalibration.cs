@@ -70,9 +70,35 @@ public sealed record AxisCalibration(
     /// <summary>Transverse-mode families seen in a calibration sweep, when checked.</summary>
     public TransverseModeReport? TransverseModes { get; init; }
 
-    /// <summary>The same axis with every frequency scaled by <paramref name="factor"/> (the FSR it rests on changed by that
-    /// factor): the polynomial, the points, the residuals and the shape uncertainty.</summary>
-    public AxisCalibration Scaled(double factor) => this with
+    /// <summary>
+    /// The instrument FSR (Hz, at the source's wavelength) that the frequencies of this axis were built at: <see cref="Axis"/>
+    /// divided by it is the axis in units of the period (fractions of an FSR), which is what the peaks and repeats measure.
+    /// Calibration builds every axis at the stated FSR and leaves it there, whatever the period decision found; the settlement
+    /// converts it to the FSR it decided, once (<see cref="AtFsr"/>). Null for an axis that states none (a hand-built one).
+    /// </summary>
+    public double? BuiltAtFsrHz { get; init; }
+
+    /// <summary>The FSR this axis's own period decision implies (<see cref="BuiltAtFsrHz"/> times the decided multiple of the
+    /// period the repeats were fitted at; the decided period itself when the repeats were fitted at the built-at FSR); null
+    /// without a decision or a built-at FSR.</summary>
+    public double? DecidedFsrHz => PeriodDecision is { } d && BuiltAtFsrHz is double built
+        ? (d.StatedFsrHz == built ? d.PeriodHz : built * (d.PeriodHz / d.StatedFsrHz))
+        : null;
+
+    /// <summary>
+    /// The axis with one period standing for <paramref name="fsrHz"/>: every frequency (the polynomial, the points, the
+    /// residuals, the shape uncertainty) converted from the FSR it was built at. The settlement's one conversion of an axis
+    /// to the FSR it decided; the axis itself (the same object) when that is the FSR it was built at.
+    /// </summary>
+    /// <param name="fsrHz">The decided FSR, Hz.</param>
+    /// <param name="statedFsrHz">The FSR an axis that states no <see cref="BuiltAtFsrHz"/> was built at (its instrument's).</param>
+    public AxisCalibration AtFsr(double fsrHz, double statedFsrHz)
+    {
+        var built = BuiltAtFsrHz ?? statedFsrHz;
+        return fsrHz == built ? this : Scaled(fsrHz / built) with { BuiltAtFsrHz = fsrHz };
+    }
+
+    private AxisCalibration Scaled(double factor) => this with
     {
         Axis = Axis.Scaled(factor),
         PointHz = PointHz.Select(v => v * factor).ToArray(),
@@ -123,6 +149,7 @@ public static class AxisCalibrator
         return new AxisCalibration(instrument.Name, sweep.Direction, sweep.Name, "calibration sweep", best, px, pf, residuals, rms,
             finesse, finesseSigma, warnings)
         {
+            BuiltAtFsrHz = instrument.FsrHz,
             ShapeCovariance = shapeCovariance,
             AxisSigmaHz = shapeCovariance is null ? null : AxisPolynomial.ShapeSigmaRms(shapeCovariance, best.Degree),
         };

@@ -322,7 +322,9 @@ public static class RingdownHandling
         var name = preparation.Sweep.Name;
         var warnings = calibration.Warnings.ToList();
         warnings.AddRange(preparation.Warnings);
-        var f = FinesseOnAxis(preparation, calibration.Axis, fsrHz);
+        // the decay time gives F = π·FSR·τ with the FSR the period decision settled on, and the chirp check needs the axis in Hz
+        // at that FSR: the axis is read at it (the calibration itself stays as built; the settlement converts it)
+        var f = FinesseOnAxis(preparation, calibration.AtFsr(fsrHz, fsrHz).Axis, fsrHz);
         if (f is null)
         {
             warnings.Add($"{name}: the peaks ring down ({preparation.Evidence.Summary}) but no decay time could be measured well enough for a finesse; the finesse below is from the corrected peak widths");

@@ -238,13 +238,13 @@ public static class SelfCalibrator
             ShapeCovariance = fit.ShapeCovariance,
             FinesseDetail = finesse,
             PeriodDecision = decision,
+            BuiltAtFsrHz = instrument.FsrHz,
         };
+        // the data may say the period is another multiple of the stated FSR (a near-confocal cavity whose TEM00 repeats every
+        // c/2L): the axis stays in units of the period it was fitted at and the decision goes with it; the settlement puts
+        // it at the FSR it decides, once (AxisCalibration.AtFsr)
         if (decision is not null && Math.Abs(decision.PeriodHz / period - 1) > 1e-9)
-        {
-            // the data say the period is another multiple of the stated FSR (a near-confocal cavity whose TEM00 repeats
-            // every c/2L): the whole axis scales with it
-            calibration = calibration.Scaled(decision.PeriodHz / period) with { Warnings = calibration.Warnings.Append($"{sweep.Name}: {decision.Basis}").ToList() };
-        }
+            calibration = calibration with { Warnings = calibration.Warnings.Append($"{sweep.Name}: {decision.Basis}").ToList() };
 
         var reportPairs = allPairs.Select(c => new RepeatPair(c.FirstX, c.RepeatX, c.FirstHeight, c.RepeatHeight, c.Delta, c.Sigma, c.Origin, c.Residual, c.Used)).ToList();
         var candidates = runs.Select(r => new PeriodCandidate(r.PeriodSamples, r.Pairs.Count(c => c.Used), r.Coverage, r.HeightMismatch, ReferenceEquals(r, chosen))).ToList();

@@ -62,7 +62,10 @@ public static class CalibrationSteps
     {
         try
         {
-            var repeats = SelfCalibrator.Calibrate(sweep, instrument, new SelfCalibrationOptions { PeriodHz = period, FitFinesse = false }, cancellationToken).Calibration;
+            var reading = SelfCalibrator.Calibrate(sweep, instrument, new SelfCalibrationOptions { PeriodHz = period, FitFinesse = false }, cancellationToken).Calibration;
+            // the repeats reading is compared (and kept) in Hz at the FSR its own peak pattern implies; its period decision is
+            // not carried into the kept axis, which counts as built at the stated FSR like the numbered reading
+            var repeats = reading.DecidedFsrHz is double own ? reading.AtFsr(own, instrument.FsrHz) with { BuiltAtFsrHz = instrument.FsrHz } : reading;
             var mid = 0.5 * (repeats.Axis.XMin + repeats.Axis.XMax);
             var scale = repeats.Axis.Derivative(mid) / axis.Axis.Derivative(mid);
             var useRepeats = repeats.ResidualRmsHz < 0.5 * axis.ResidualRmsHz;
@@ -138,7 +141,9 @@ public static class CalibrationSteps
     /// mode and returns their axes (Source = the segment's name) with their warnings.
     /// </summary>
     /// <param name="setup">The setup.</param>
-    /// <param name="instruments">Instruments by name (as stated or calibrated so far).</param>
+    /// <param name="instruments">Instruments by name, as stated: their FSR is the period the repeats are fitted at (the axes
+    /// stay in units of it) and their finesse only a starting value (the lag hint and the Airy fit's start); both are
+    /// settled afterwards from what the peaks measured (Pipeline/InstrumentSettlement.cs).</param>
     /// <param name="calibrations">Axes from calibration sweeps so far (companions and fallbacks of the source sweeps).</param>
     /// <param name="progress">Progress messages.</param>
     /// <param name="readSegments">Reads a file's segments the way the pipeline does (time relative to each segment's start).</param>
@@ -239,26 +244,36 @@ public static class CalibrationSteps
     public static Sweep PrepareForPeakFinding(Sweep sweep, Instrument instrument) => sweep;
 
     /// <summary>Instruments and axes with what the calibrations measured about each cavity, and the warnings that say so.</summary>
-    public sealed record CavitySettlement(IReadOnlyDictionary<string, Instrument> Instruments, IReadOnlyList<AxisCalibration> Calibrations, IReadOnlyList<string> Warnings);
+    public sealed record CavitySettlement(IReadOnlyDictionary<string, Instrument> Instruments, IReadOnlyList<AxisCalibration> Calibrations, IReadOnlyList<string> Warnings)
+    {
+        /// <summary>The same axes as calibration built them (at the stated FSR, with the period decisions as settled), in the
+        /// same order: a later decision of the FSR converts these, not <see cref="Calibrations"/>.</summary>
+        public IReadOnlyList<AxisCalibration> Built { get; init; } = [];
+    }
 
     /// <summary>
     /// Carries what the calibrations measured about each cavity into its instrument: the period decided from the peak
     /// pattern (the FSR, when the data show it is another multiple of the stated one), the transverse families (median
     /// over the axes that found them; part of the instrument response from here on), and whether the finesse was
     /// measured. Where it was not, warns, says which value is used and flags the instrument so the refinement can widen
-    /// its uncertainties. Axes made with another FSR than the decided one are rebuilt at the decided FSR.
+    /// its uncertainties. Every axis, built at the stated FSR, is converted to the decided FSR here, once
+    /// (<see cref="AxisCalibration.AtFsr"/>); <see cref="CavitySettlement.Built"/> keeps them as built.
     /// </summary>
     /// <exception cref="InputException">The axes of one instrument disagree on the period.</exception>
     public static CavitySettlement SettleCavityProperties(IReadOnlyDictionary<string, Instrument> instruments, IReadOnlyList<AxisCalibration> calibrations,
         Func<string, bool>? finesseFixed = null)
     {
         var settled = instruments.ToDictionary(p => p.Key, p => p.Value);
+        var built = calibrations.ToList();
         var axes = calibrations.ToList();
         var warnings = new List<string>();
         foreach (var name in settled.Keys.ToList())
         {
             var inst = settled[name];
-            var period = SettlePeriod(name, inst, axes, warnings);
+            var period = SettlePeriod(name, inst, built, warnings);
+            // every axis of the instrument was built at the stated FSR: it is converted to the settled FSR here, once
+            for (var i = 0; i < axes.Count; i++)
+                if (built[i].Instrument == name) axes[i] = built[i].AtFsr(period ?? inst.FsrHz, inst.FsrHz);
             if (period is double fsr) inst = inst with { FsrHz = fsr };
             var mine = axes.Where(c => c.Instrument == name).ToList();
             var decided = mine.Where(c => c.PeriodDecision is not null).Select(c => c.PeriodDecision!).ToList();
@@ -281,53 +296,45 @@ public static class CalibrationSteps
             settled[name] = inst with { Families = families, FinesseMeasured = measured };
         }
 
-        return new CavitySettlement(settled, axes, warnings);
+        return new CavitySettlement(settled, axes, warnings) { Built = built };
     }
 
     /// <summary>
     /// The period (FSR in Hz) of one instrument that its axes decided from their peak patterns, or null when it stays as
-    /// stated. The sweeps whose period explains every peak decide (c/4L or c/2L for a stated confocal cavity); a sweep whose
-    /// pattern was explained only in part (noise, ring-down) follows them, its axis rescaled; axes not decided from the
-    /// pattern (calibration sweeps, made with the stated FSR) are rescaled to the decided period. Works on this stage's own
-    /// copy of the axes, <paramref name="axes"/>.
+    /// stated. Each decision is read as the FSR it implies for the source (<see cref="AxisCalibration.DecidedFsrHz"/>: a
+    /// calibration laser at another wavelength repeats every FSR·λ_cal/λ_source, which is still one FSR). The sweeps whose
+    /// period explains every peak decide (c/4L or c/2L for a stated confocal cavity); a sweep whose pattern was explained
+    /// only in part (noise, ring-down) follows them (its decision says so). No axis is converted here: the caller puts every
+    /// axis of the instrument at the period returned, once. Works on this stage's own copy of the axes, <paramref name="axes"/>.
     /// </summary>
     private static double? SettlePeriod(string name, Instrument inst, List<AxisCalibration> axes, List<string> warnings)
     {
-        var decided = axes.Where(c => c.Instrument == name && c.PeriodDecision is not null).Select(c => c.PeriodDecision!).ToList();
-        var sure = decided.Where(d => d.Candidates.Any(c => c.Chosen && c.Consistent)).ToList();
-        var surePeriods = sure.Select(d => d.PeriodHz).Distinct().ToList();
+        static double Implied(AxisCalibration c) => c.DecidedFsrHz ?? c.PeriodDecision!.PeriodHz;
+        var decided = axes.Where(c => c.Instrument == name && c.PeriodDecision is not null).ToList();
+        var sure = decided.Where(c => c.PeriodDecision!.Candidates.Any(k => k.Chosen && k.Consistent)).ToList();
+        var surePeriods = sure.Select(Implied).Distinct().ToList();
         if (surePeriods.Count == 1)
         {
             for (var i = 0; i < axes.Count; i++)
             {
                 var c = axes[i];
-                if (c.Instrument != name || c.PeriodDecision is not { } d || sure.Contains(d) || d.PeriodHz == surePeriods[0]) continue;
-                var f = surePeriods[0] / d.PeriodHz;
+                if (c.Instrument != name || c.PeriodDecision is not { } d || sure.Contains(c) || Implied(c) == surePeriods[0]) continue;
                 warnings.Add($"{c.Source}: its peak pattern did not decide the FSR; it follows the sweeps that did ({Quantity.FormatFrequency(surePeriods[0])})");
-                axes[i] = c.Scaled(f) with
+                axes[i] = c with
                 {
-                    PeriodDecision = d with { PeriodHz = surePeriods[0], Basis = d.Basis + $"; the FSR follows the sweeps that decided it ({Quantity.FormatFrequency(surePeriods[0])})" },
+                    PeriodDecision = d with { PeriodHz = d.StatedFsrHz == c.BuiltAtFsrHz ? surePeriods[0] : d.PeriodHz * surePeriods[0] / Implied(c), Basis = d.Basis + $"; the FSR follows the sweeps that decided it ({Quantity.FormatFrequency(surePeriods[0])})" },
                 };
             }
 
-            decided = axes.Where(c => c.Instrument == name && c.PeriodDecision is not null).Select(c => c.PeriodDecision!).ToList();
+            decided = axes.Where(c => c.Instrument == name && c.PeriodDecision is not null).ToList();
         }
 
-        var periods = decided.Select(d => d.PeriodHz).Distinct().ToList();
+        var periods = decided.Select(Implied).Distinct().ToList();
         if (periods.Count > 1)
-            throw new InputException($"instrument '{name}': the sweeps disagree on the period: {string.Join(" vs ", decided.Select(d => $"{Quantity.FormatFrequency(d.PeriodHz)} ({d.Basis})"))}; " +
+            throw new InputException($"instrument '{name}': the sweeps disagree on the period: {string.Join(" vs ", decided.Select(c => $"{Quantity.FormatFrequency(Implied(c))} ({c.PeriodDecision!.Basis})"))}; " +
                                      "a [[calibration]] sweep, the mirror radii (mirror_radius) or a stated interval would settle it");
         if (periods.Count != 1 || !(Math.Abs(periods[0] / inst.FsrHz - 1) > 1e-9)) return null;
-        warnings.Add($"instrument '{name}': the data decide an FSR of {Quantity.FormatFrequency(periods[0])} instead of the stated {Quantity.FormatFrequency(inst.FsrHz)} ({decided[0].Basis})");
-        // axes not decided from the pattern (calibration sweeps) were made with the stated FSR
-        var factor = periods[0] / inst.FsrHz;
-        for (var i = 0; i < axes.Count; i++)
-        {
-            var c = axes[i];
-            if (c.Instrument != name || c.PeriodDecision is not null) continue;
-            axes[i] = c.Scaled(factor);
-        }
-
+        warnings.Add($"instrument '{name}': the data decide an FSR of {Quantity.FormatFrequency(periods[0])} instead of the stated {Quantity.FormatFrequency(inst.FsrHz)} ({decided[0].PeriodDecision!.Basis})");
         return periods[0];
     }
 

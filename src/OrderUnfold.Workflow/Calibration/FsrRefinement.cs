@@ -62,13 +62,13 @@ public sealed record LineShift(double BeforeHz, double AfterHz)
     public double ShiftHz => AfterHz - BeforeHz;
 }
 
-/// <summary>What <see cref="FsrRefiner.RefineAndRerun"/> did.</summary>
-/// <param name="Instruments">Refined FSR per instrument.</param>
+/// <summary>What the FSR decision from the lines (<see cref="FsrRefiner.Decide"/>) decided, and how the search got there.</summary>
+/// <param name="Instruments">Decided FSR per instrument, with its basis and uncertainty.</param>
 /// <param name="Intervals">Line pairs matched to the known interval.</param>
-/// <param name="Rounds">Refine-and-unfold rounds run.</param>
-/// <param name="ReducedChiSquareBefore">Reduced χ² of the unfold with the nominal FSRs.</param>
-/// <param name="ReducedChiSquareAfter">Reduced χ² with the refined FSRs.</param>
-/// <param name="LineShifts">Each line of the refined result with its nearest line before refinement.</param>
+/// <param name="Rounds">Refine-and-unfold rounds of the search run.</param>
+/// <param name="ReducedChiSquareBefore">Reduced χ² of the search's first trial unfold (at the pre-scanned FSRs).</param>
+/// <param name="ReducedChiSquareAfter">Reduced χ² of its last trial unfold.</param>
+/// <param name="LineShifts">Each line of the last trial unfold, with where it would sit on the reference's settled FSR scale.</param>
 /// <param name="Warnings">What looked wrong.</param>
 /// <param name="Notes">What was done, in plain words.</param>
 public sealed record FsrRefinement(IReadOnlyList<InstrumentScale> Instruments, IReadOnlyList<IntervalMatch> Intervals, int Rounds,

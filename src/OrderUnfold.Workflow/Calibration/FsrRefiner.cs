@@ -4,55 +4,49 @@ using OrderUnfold.Units;
 namespace OrderUnfold.Calibration;
 
 /// <summary>
-/// Refines the FSRs of the instruments. Each instrument's sweeps are fitted on their own with the lines of the
-/// joint unfold as the starting point (positions, intensities, one offset, gain and background per sweep), so
-/// every instrument gives the line positions in its own frequency scale. A wrong FSR stretches that scale: the
-/// slope of one instrument's positions against the reference's is the FSR ratio correction (the Vernier
-/// pattern). A known interval (RF sidebands at a stated frequency, a known splitting) between matched lines
-/// fixes the absolute scale. The sweeps are then rescaled (axis and FSR together) and unfolded again; rounds
-/// repeat until the correction no longer moves the farthest line by a fifth of a linewidth.
+/// Decides the FSRs of the instruments from the lines, before the unfold whose results are reported. Each instrument's
+/// sweeps are fitted on their own with the lines of a trial unfold as the starting point (positions, intensities, one
+/// offset, gain and background per sweep), so every instrument gives the line positions in its own frequency scale. A
+/// wrong FSR stretches that scale: the slope of one instrument's positions against the reference's is the FSR ratio
+/// correction (the Vernier pattern). A known interval (RF sidebands at a stated frequency, a known splitting) between
+/// matched lines fixes the absolute scale. The trial sweeps are then put at the corrected trial scale (axis and FSR
+/// together) and unfolded again; rounds repeat until the correction no longer moves the farthest line by a fifth of a
+/// linewidth. Only the decided FSRs leave the search (<see cref="FsrRefinement"/>): the pipeline builds its axes and
+/// sweeps at them once (Pipeline/FsrDecisionStage.cs).
 /// The stages: <see cref="FsrPrescan"/> (folded peaks, before any unfold), <see cref="FsrScaleEstimator"/> (one round's
 /// estimate, with <see cref="InstrumentLineFitter"/>), and the rounds here.
 /// </summary>
 public static class FsrRefiner
 {
     /// <summary>
-    /// Unfolds with refined FSRs: a scan of the folded peak positions first corrects FSR errors of up to
-    /// <see cref="FsrRefineOptions.MaxScaleError"/> (with a known interval, each instrument on its own; without
-    /// one, the ratio to the reference), so that the first unfold already sees consistent instruments; then
-    /// rounds of per-instrument line fits polish the ratios and the absolute scale, each followed by an unfold.
+    /// Decides the FSRs from the lines: a scan of the folded peak positions first corrects FSR errors of up to
+    /// <see cref="FsrRefineOptions.MaxScaleError"/> (with a known interval, each instrument on its own; without one, the
+    /// ratio to the reference), so that the first trial unfold already sees consistent instruments; then rounds of
+    /// per-instrument line fits polish the ratios and the absolute scale, each followed by a trial unfold. The trial
+    /// sweeps at trial scales are the search's own; what it hands on is the decision (FSR, basis and uncertainty per
+    /// instrument), from which the caller builds its axes and sweeps once.
     /// </summary>
-    /// <param name="sweeps">Calibrated sweeps with the stated FSRs (their axes are in units of those FSRs).</param>
-    /// <param name="unfoldOptions">Options of the unfolds.</param>
+    /// <param name="sweeps">Calibrated sweeps at the FSRs settled before the search (their axes are in units of those FSRs).</param>
+    /// <param name="unfoldOptions">Options of the trial unfolds.</param>
     /// <param name="options">What to refine.</param>
     /// <param name="progress">Progress messages.</param>
-    /// <param name="cancellationToken">Stops the unfolds and the rounds (<see cref="OperationCanceledException"/>).</param>
-    public static (IReadOnlyList<CalibratedSweep> Sweeps, UnfoldResult Result, FsrRefinement Refinement) UnfoldWithRefinement(
-        IReadOnlyList<CalibratedSweep> sweeps, UnfoldOptions? unfoldOptions, FsrRefineOptions options, IProgress<string>? progress = null,
+    /// <param name="cancellationToken">Stops the trial unfolds and the rounds (<see cref="OperationCanceledException"/>).</param>
+    public static FsrRefinement Decide(IReadOnlyList<CalibratedSweep> sweeps, UnfoldOptions? unfoldOptions, FsrRefineOptions options, IProgress<string>? progress = null,
         CancellationToken cancellationToken = default)
     {
         unfoldOptions ??= new UnfoldOptions();
         var names = sweeps.Select(s => s.Instrument.Name).Distinct().ToList();
         var reference = options.ReferenceInstrument ?? names[0];
         var scan = FsrPrescan.Run(sweeps, unfoldOptions, options with { ReferenceInstrument = reference }, names.Count > 1 && options.RefineRatio);
-        var current = sweeps.Select(s => Rescale(s, scan.Scales.GetValueOrDefault(s.Instrument.Name, 1.0))).ToList();
+        var current = sweeps.Select(s => AtTrialScale(s, scan.Scales.GetValueOrDefault(s.Instrument.Name, 1.0))).ToList();
         progress?.Report("unfolding with the pre-scanned FSRs");
         var first = Unfolder.Run(current, unfoldOptions, progress, cancellationToken);
         var rounds = new RefinementRounds(sweeps, scan.Scales, scan.Basis, current, first, unfoldOptions, options, progress, scan.Notes, scan.Warnings, cancellationToken);
         return rounds.Run();
     }
 
-    /// <summary>Refines the FSRs from an unfold made with the stated FSRs and re-runs the unfold. The stated FSRs
-    /// must already be close (the lines must come out of <paramref name="result"/>); otherwise use
-    /// <see cref="UnfoldWithRefinement"/>.</summary>
-    public static (IReadOnlyList<CalibratedSweep> Sweeps, UnfoldResult Result, FsrRefinement Refinement) RefineAndRerun(
-        IReadOnlyList<CalibratedSweep> sweeps, UnfoldResult result, UnfoldOptions? unfoldOptions, FsrRefineOptions options, IProgress<string>? progress = null,
-        CancellationToken cancellationToken = default) =>
-        new RefinementRounds(sweeps, new Dictionary<string, double>(), new Dictionary<string, string>(), sweeps, result, unfoldOptions ?? new UnfoldOptions(), options, progress, [], [],
-            cancellationToken).Run();
-
-    /// <summary>A sweep with its FSR and axis scaled by the same factor.</summary>
-    public static CalibratedSweep Rescale(CalibratedSweep s, double factor) =>
+    /// <summary>A trial sweep of the search: the sweep with its FSR and axis scaled by the same trial factor.</summary>
+    public static CalibratedSweep AtTrialScale(CalibratedSweep s, double factor) =>
         factor == 1 ? s : s with
         {
             Instrument = s.Instrument with { FsrHz = s.Instrument.FsrHz * factor },
@@ -99,18 +93,18 @@ public static class FsrRefiner
             _basis = _names.ToDictionary(n => n, n => startBasis.GetValueOrDefault(n, n == _reference ? "reference (stated FSR)" : "stated FSR"));
         }
 
-        public (IReadOnlyList<CalibratedSweep> Sweeps, UnfoldResult Result, FsrRefinement Refinement) Run()
+        public FsrRefinement Run()
         {
             if (_names.Count < 2 && _options.KnownIntervalHz is null)
             {
                 _notes.Add("one instrument and no known interval: nothing to refine the FSR against");
-                return (_current, _currentResult, Finish());
+                return Finish();
             }
 
             var budget = new WorkBudget(int.MaxValue, _options.CpuBudgetSeconds, _progress, _cancellationToken);
             for (var round = 0; round < _options.MaxRounds; round++)
                 if (!Round(round, budget)) break;
-            return (_current, _currentResult, Finish());
+            return Finish();
         }
 
         /// <summary>One round; false when the rounds end.</summary>
@@ -144,12 +138,8 @@ public static class FsrRefiner
             }
 
             if (est.Intervals.Count > 0) _intervals = est.Intervals;
-            if (biggest * farthest < 0.02 * narrow)
-            {
-                // the correction moves no line by a fiftieth of a linewidth: keep this unfold, carry the scales
-                _current = _sweeps.Select(s => Rescale(s, _scale[s.Instrument.Name])).ToList();
-                return false;
-            }
+            // the correction moves no line by a fiftieth of a linewidth: no trial unfold, the scales as corrected are decided
+            if (biggest * farthest < 0.02 * narrow) return false;
 
             return UnfoldAgain(round, est) && !(biggest * farthest < 0.2 * narrow);
         }
@@ -162,7 +152,7 @@ public static class FsrRefiner
             _progress?.Report($"unfolding with refined FSRs (round {round + 1})");
             var previous = (Current: _current, Result: _currentResult, Scale: new Dictionary<string, double>(_scale));
             foreach (var (n, v) in est.Scales) previous.Scale[n] /= v.Scale;
-            _current = _sweeps.Select(s => Rescale(s, _scale[s.Instrument.Name])).ToList();
+            _current = _sweeps.Select(s => AtTrialScale(s, _scale[s.Instrument.Name])).ToList();
             _currentResult = Unfolder.Run(_current, _unfoldOptions, _progress, _cancellationToken);
             var before = previous.Result.Sweeps.Sum(f => f.ChiSquare);
             var after = _currentResult.Sweeps.Sum(f => f.ChiSquare);

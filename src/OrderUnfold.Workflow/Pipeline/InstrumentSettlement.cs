@@ -8,7 +8,12 @@ namespace OrderUnfold.Pipeline;
 /// <param name="Instruments">Instruments by name, in the setup's order.</param>
 /// <param name="Calibrations">The axes, at the settled FSRs.</param>
 /// <param name="Warnings">What the settlement decided that the user should know.</param>
-public sealed record SettledInstruments(IReadOnlyDictionary<string, Instrument> Instruments, IReadOnlyList<AxisCalibration> Calibrations, IReadOnlyList<string> Warnings);
+public sealed record SettledInstruments(IReadOnlyDictionary<string, Instrument> Instruments, IReadOnlyList<AxisCalibration> Calibrations, IReadOnlyList<string> Warnings)
+{
+    /// <summary>The axes as calibration built them, in the order of <see cref="Calibrations"/> (empty: those are as built);
+    /// a later decision of the FSR converts these once (<see cref="InstrumentSettlement.WithDecidedFsr"/>).</summary>
+    public IReadOnlyList<AxisCalibration> Built { get; init; } = [];
+}
 
 /// <summary>
 /// The one stage that decides each instrument's finesse and FSR from the calibration evidence and hands the settled
@@ -27,7 +32,7 @@ internal static class InstrumentSettlement
         var warnings = new List<string>();
         var withFinesse = instruments.ToDictionary(p => p.Key, p => SettleFinesse(p.Value, specs[p.Key].FixFinesse, calibrations, setup.Path, warnings));
         var cavity = CalibrationSteps.SettleCavityProperties(withFinesse, calibrations, n => specs[n].FixFinesse);
-        return new SettledInstruments(cavity.Instruments, cavity.Calibrations, [.. warnings, .. cavity.Warnings]);
+        return new SettledInstruments(cavity.Instruments, cavity.Calibrations, [.. warnings, .. cavity.Warnings]) { Built = cavity.Built };
     }
 
     /// <summary>
@@ -61,24 +66,27 @@ internal static class InstrumentSettlement
     }
 
     /// <summary>
-    /// The instruments and axes at the FSRs the refinement from the lines settled on (<see cref="FsrRefiner"/>): the
-    /// refinement decides each instrument's FSR after the first unfold, so its instruments and axes are built here, from
-    /// the settled ones before it, at the refined FSR — each axis once, by the ratio of refined to settled FSR.
+    /// The instruments and axes at the FSRs the decision from the lines settled on (<see cref="FsrDecisionStage"/>): the
+    /// decision comes before any sweep of the results is built, and each instrument's axes are converted here from the FSR
+    /// calibration built them at to the decided FSR, once (<see cref="AxisCalibration.AtFsr"/>). The method text names the
+    /// change from the FSR settled before the decision.
     /// </summary>
-    public static SettledInstruments WithRefinedFsr(SettledInstruments settled, FsrRefinement refinement)
+    public static SettledInstruments WithDecidedFsr(SettledInstruments settled, FsrRefinement decision)
     {
         var instruments = settled.Instruments.ToDictionary(p => p.Key, p => p.Value);
         var calibrations = settled.Calibrations.ToList();
-        foreach (var s in refinement.Instruments)
+        var built = settled.Built.Count == calibrations.Count ? settled.Built : settled.Calibrations;
+        foreach (var s in decision.Instruments)
         {
             if (!instruments.TryGetValue(s.Instrument, out var inst) || s.RelativeChange == 0) continue;
-            var factor = s.RefinedFsrHz / inst.FsrHz;
+            var change = s.RefinedFsrHz / inst.FsrHz - 1;
             instruments[s.Instrument] = inst with { FsrHz = s.RefinedFsrHz };
             for (var i = 0; i < calibrations.Count; i++)
             {
-                var c = calibrations[i];
+                var c = built[i];
                 if (c.Instrument != s.Instrument) continue;
-                calibrations[i] = c.Scaled(factor) with { Method = c.Method + $"; FSR refined by {100 * (factor - 1):+0.000;-0.000} % ({s.Basis})" };
+                // an axis that states no built-at FSR is taken to be at the FSR settled before the decision
+                calibrations[i] = c.AtFsr(s.RefinedFsrHz, inst.FsrHz) with { Method = calibrations[i].Method + $"; FSR refined by {100 * change:+0.000;-0.000} % ({s.Basis})" };
             }
         }
 

@@ -15,31 +15,52 @@ namespace OrderUnfold.Pipeline;
 internal sealed record SourceSweepSet(IReadOnlyList<CalibratedSweep> Sweeps, IReadOnlyList<Sweep> Raw, IReadOnlyList<AxisCalibration> Axes,
     IReadOnlyList<string> Warnings, IReadOnlyList<string> Notes, IReadOnlyList<InputFile> Inputs);
 
+/// <summary>The source files as read and prepared, before any axis is applied.</summary>
+/// <param name="Files">Each [[sweep]] table with its segments (ring-down replaced by the static response).</param>
+/// <param name="Inputs">The sweep and ramp files read.</param>
+internal sealed record SourceSegments(IReadOnlyList<(SweepSpec Spec, IReadOnlyList<RingdownPreparation> Segments)> Files, IReadOnlyList<InputFile> Inputs);
+
 /// <summary>
-/// The stage that turns the setup's source files into calibrated sweeps with the settled instruments: each file's segments
-/// (ring-down replaced by the static response), their axis, the samples the axis covers and the digitiser did not clip,
-/// and the noise; then the response of sources whose lines are broader than the calibration laser
-/// (<see cref="SourceLineWidth"/>), and the partial ramps that cover less than one FSR left out.
+/// The stage that turns the setup's source files into calibrated sweeps with the settled instruments. The files are read
+/// once (<see cref="ReadFiles"/>: each file's segments, ring-down replaced by the static response); <see cref="Build"/> puts
+/// them on the settled axes: the samples the axis covers and the digitiser did not clip, and the noise; then the response of
+/// sources whose lines are broader than the calibration laser (<see cref="SourceLineWidth"/>), and the partial ramps that
+/// cover less than one FSR left out. The FSR decision builds trial sweeps this way before the FSRs are decided
+/// (<see cref="FsrDecisionStage"/>); the sweeps of the results are built once, at the decided FSRs.
 /// </summary>
 internal static class SourceSweeps
 {
-    public static SourceSweepSet Read(Setup setup, SettledInstruments settled, IProgress<string>? progress, CancellationToken cancellationToken)
+    /// <summary>Reads and prepares every source file of the setup (each instrument named must exist).</summary>
+    public static SourceSegments ReadFiles(Setup setup, IReadOnlyDictionary<string, Instrument> instruments, IProgress<string>? progress, CancellationToken cancellationToken)
+    {
+        var files = new List<(SweepSpec, IReadOnlyList<RingdownPreparation>)>();
+        var inputs = new List<InputFile>();
+        foreach (var spec in setup.Sweeps)
+        {
+            progress?.Report($"reading {Path.GetFileName(spec.File.Path)}");
+            inputs.Add(UnfoldPipeline.Describe("sweep", spec.File.Path));
+            UnfoldPipeline.Lookup(instruments, spec.Instrument, spec.File.Path);
+            if (spec.File.RampFile is { } rampFile) inputs.Add(UnfoldPipeline.Describe("ramp", rampFile));
+            // a fast sweep through a high-finesse cavity rings after each peak: the swept responses are replaced by their
+            // static profiles at the resonance crossings before anything is fitted (Calibration/RingdownHandling.cs)
+            files.Add((spec, RingdownHandling.PrepareAll(UnfoldPipeline.ReadSegments(spec.File, cancellationToken))));
+        }
+
+        return new SourceSegments(files, inputs);
+    }
+
+    /// <summary>The segments of <paramref name="read"/> on the axes of <paramref name="settled"/>, with its instruments.</summary>
+    public static SourceSweepSet Build(Setup setup, SourceSegments read, SettledInstruments settled)
     {
         var sweeps = new List<CalibratedSweep>();
         var raw = new List<Sweep>();
         var axes = new List<AxisCalibration>();
         var warnings = new List<string>();
         var notes = new List<string>();
-        var inputs = new List<InputFile>();
-        foreach (var spec in setup.Sweeps)
+        foreach (var (spec, segments) in read.Files)
         {
-            progress?.Report($"reading {Path.GetFileName(spec.File.Path)}");
-            inputs.Add(UnfoldPipeline.Describe("sweep", spec.File.Path));
             var inst = UnfoldPipeline.Lookup(settled.Instruments, spec.Instrument, spec.File.Path);
-            if (spec.File.RampFile is { } rampFile) inputs.Add(UnfoldPipeline.Describe("ramp", rampFile));
-            // a fast sweep through a high-finesse cavity rings after each peak: the swept responses are replaced by their
-            // static profiles at the resonance crossings before anything is fitted (Calibration/RingdownHandling.cs)
-            foreach (var prepared in RingdownHandling.PrepareAll(UnfoldPipeline.ReadSegments(spec.File, cancellationToken)))
+            foreach (var prepared in segments)
             {
                 if (prepared.Corrected) notes.Add($"{prepared.Sweep.Name}: {prepared.Method}");
                 var axis = FindAxis(settled.Calibrations, spec.Instrument, prepared.Sweep, warnings)
@@ -57,7 +78,7 @@ internal static class SourceSweeps
         foreach (var w in findings)
             notes.Add($"instrument '{w.Instrument}': the source's peaks are broader than the calibration laser's (apparent finesse {w.ApparentFinesse:F1} ± {w.ApparentSigma:F1} from {w.PeaksFitted} peaks, cavity {w.CavityFinesse:F1}): " +
                       $"its lines have a width of their own, about {Quantity.FormatFrequency(w.LineWidthHz)} FWHM (Lorentzian), and the source sweeps are solved with the broadened response");
-        var set = new SourceSweepSet(broadened, raw, axes, warnings, notes, inputs);
+        var set = new SourceSweepSet(broadened, raw, axes, warnings, notes, read.Inputs);
         return DropPartialRamps(set, setup.Path);
     }
 

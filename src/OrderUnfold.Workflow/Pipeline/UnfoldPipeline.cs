@@ -9,8 +9,9 @@ namespace OrderUnfold.Pipeline;
 
 /// <summary>
 /// One unfold from a setup, in named stages: calibration and the settled instruments (<see cref="CalibrationStage"/>,
-/// <see cref="InstrumentSettlement"/>), the source sweeps on their axes (<see cref="SourceSweeps"/>), the grid solve and the
-/// line refinement (<see cref="UnfoldStages"/>), the refusals of a model that cannot explain the data
+/// <see cref="InstrumentSettlement"/>), the source files read (<see cref="SourceSweeps.ReadFiles"/>), the FSRs decided from
+/// the lines when asked (<see cref="FsrDecisionStage"/>), the source sweeps built once on the axes at the decided FSRs
+/// (<see cref="SourceSweeps.Build"/>), the grid solve and the line refinement (<see cref="UnfoldStages"/>), the refusals of a model that cannot explain the data
 /// (<see cref="RunChecks"/>), and the cavity properties and line-list choices after the fit (<see cref="FamilyFitting"/>,
 /// <see cref="FamilyResidue"/>, <see cref="ExtrapolationShare"/>).
 /// </summary>
@@ -54,13 +55,16 @@ public static class UnfoldPipeline
     {
         var setupFile = setup.Path is not null ? new[] { Describe("setup", setup.Path) } : [];
         var calibration = CalibrationStage.Run(setup, progress, reuse, cancellationToken);
-        var sources = SourceSweeps.Read(setup, calibration.Settled, progress, cancellationToken);
+        var segments = SourceSweeps.ReadFiles(setup, calibration.Settled.Instruments, progress, cancellationToken);
         var options = UnfoldStages.OptionsFor(setup.Solve);
-        var grid = UnfoldStages.SolveOnGrid(sources.Sweeps, options, setup.Solve, progress, cancellationToken);
-        // the FSR refinement decides the FSRs from the lines of the first unfold: the instruments and axes at those FSRs
-        var settled = grid.FsrRefinement is { } fsr ? InstrumentSettlement.WithRefinedFsr(calibration.Settled, fsr) : calibration.Settled;
+        // with refine_fsr or a known interval the FSRs are decided from the lines (a search with trial unfolds of its own)
+        // before any sweep of the results exists; the axes are put at the decided FSRs once and the sweeps built from them
+        var fsrDecision = FsrDecisionStage.Run(setup, segments, calibration.Settled, options, progress, cancellationToken);
+        var settled = fsrDecision is null ? calibration.Settled : InstrumentSettlement.WithDecidedFsr(calibration.Settled, fsrDecision);
+        var sources = SourceSweeps.Build(setup, segments, settled);
+        var grid = UnfoldStages.SolveOnGrid(sources.Sweeps, options, fsrDecision, progress, cancellationToken);
         var sweeps = grid.Sweeps;
-        var fsrRefined = grid.FsrRefinement is not null;
+        var fsrRefined = fsrDecision is not null;
 
         // a grid fit this poor cannot be polished into a right answer: refuse before spending the refinement's budget
         RunChecks.RefuseMismatch(grid.Result, sweeps, "grid", fsrRefined, setup.Path);

@@ -24,7 +24,7 @@ public sealed record UnfoldRun
     /// <summary>The axes, at the settled FSRs.</summary>
     public required IReadOnlyList<AxisCalibration> Calibrations { get; init; }
 
-    /// <summary>The sweeps as unfolded (at the refined FSRs when the FSR refinement ran).</summary>
+    /// <summary>The sweeps as unfolded (built at the decided FSRs when the FSRs were decided from the lines).</summary>
     public required IReadOnlyList<CalibratedSweep> Sweeps { get; init; }
 
     /// <summary>Raw sweeps in the same order as <see cref="Sweeps"/> (scan coordinate for plots and reports).</summary>
@@ -36,7 +36,7 @@ public sealed record UnfoldRun
     /// <summary>Diagnostics of the off-grid line refinement, when it ran.</summary>
     public Analysis.RefinementDiagnostics? Refinement { get; init; }
 
-    /// <summary>FSR refinement (Vernier ratio, known interval), when it ran.</summary>
+    /// <summary>The FSR decision from the lines (Vernier ratio, known interval), when it ran.</summary>
     public FsrRefinement? FsrRefinement { get; init; }
 
     /// <summary>Warnings from reading and calibrating (the result's own warnings are in <see cref="Result"/>).</summary>

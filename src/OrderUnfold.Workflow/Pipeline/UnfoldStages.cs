@@ -7,11 +7,11 @@ using OrderUnfold.Units;
 namespace OrderUnfold.Pipeline;
 
 /// <summary>The grid stage's result.</summary>
-/// <param name="Sweeps">The sweeps the grid was solved with (rescaled to the refined FSRs when the FSR refinement ran).</param>
+/// <param name="Sweeps">The sweeps the grid was solved with (built at the decided FSRs when the FSRs were decided from the lines).</param>
 /// <param name="Result">The grid unfold.</param>
-/// <param name="FsrRefinement">The FSR refinement, when it ran.</param>
+/// <param name="FsrRefinement">The FSR decision from the lines, when it ran (Pipeline/FsrDecisionStage.cs).</param>
 /// <param name="Window">The window check, when the window was widened.</param>
-/// <param name="Warnings">The FSR refinement's warnings.</param>
+/// <param name="Warnings">The FSR decision's warnings.</param>
 internal sealed record GridStage(IReadOnlyList<CalibratedSweep> Sweeps, UnfoldResult Result, FsrRefinement? FsrRefinement, WindowFinding? Window, IReadOnlyList<string> Warnings);
 
 /// <summary>The line stage's result.</summary>
@@ -20,7 +20,7 @@ internal sealed record GridStage(IReadOnlyList<CalibratedSweep> Sweeps, UnfoldRe
 /// <param name="Warnings">The stage's warnings (orders unchecked, a fewest-lines explanation not kept).</param>
 internal sealed record LineStage(UnfoldResult Result, RefinementDiagnostics? Refinement, IReadOnlyList<string> Warnings);
 
-/// <summary>The solving stages of an unfold: the options from [solve], the grid solve (with the FSR refinement or the window
+/// <summary>The solving stages of an unfold: the options from [solve], the grid solve (at the decided FSRs, or with the window
 /// check), and the off-grid line refinement (with the fewest-lines explanation on a widened two-cavity window).</summary>
 internal static class UnfoldStages
 {
@@ -40,19 +40,17 @@ internal static class UnfoldStages
     };
 
     /// <summary>
-    /// The grid unfold. With refine_fsr or a known interval, the FSRs are refined from the lines (Calibration/FsrRefiner.cs:
-    /// Vernier ratio and/or the known interval) and the sweeps come back at the refined FSRs; otherwise a source wider than
-    /// the default window is caught and the window widened (Pipeline/WindowWidening.cs).
+    /// The grid unfold on sweeps built at the settled FSRs. When the FSRs were decided from the lines
+    /// (<paramref name="fsrDecision"/>, Pipeline/FsrDecisionStage.cs), the grid is solved on the window as set; otherwise a
+    /// source wider than the default window is caught and the window widened (Pipeline/WindowWidening.cs).
     /// </summary>
-    public static GridStage SolveOnGrid(IReadOnlyList<CalibratedSweep> sweeps, UnfoldOptions options, SolveOptions solve, IProgress<string>? progress,
+    public static GridStage SolveOnGrid(IReadOnlyList<CalibratedSweep> sweeps, UnfoldOptions options, FsrRefinement? fsrDecision, IProgress<string>? progress,
         CancellationToken cancellationToken)
     {
-        if (solve.RefineFsr || solve.KnownIntervalHz is not null)
+        if (fsrDecision is not null)
         {
-            progress?.Report("refining the FSRs from the lines");
-            var (refined, result, fsrRefinement) = FsrRefiner.UnfoldWithRefinement(sweeps, options,
-                new FsrRefineOptions { RefineRatio = solve.RefineFsr, KnownIntervalHz = solve.KnownIntervalHz }, progress, cancellationToken);
-            return new GridStage(refined, result, fsrRefinement, null, fsrRefinement.Warnings);
+            progress?.Report("unfolding with the decided FSRs");
+            return new GridStage(sweeps, Unfolder.Run(sweeps, options, progress, cancellationToken), fsrDecision, null, fsrDecision.Warnings);
         }
 
         var (widened, window) = WindowWidening.Run(o => Unfolder.Run(sweeps, o, progress, cancellationToken), options, sweeps.Select(c => c.Instrument).ToList(), progress);

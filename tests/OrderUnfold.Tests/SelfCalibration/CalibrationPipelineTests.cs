@@ -76,6 +76,9 @@ public sealed class CalibrationPipelineTests(ITestOutputHelper output) : IDispos
         var i0 = (int)Math.Round(x0 / spec.SampleIntervalS);
         var trueSlope = (src.TrueScanHz[i0 + 1] - src.TrueScanHz[i0 - 1]) / (2 * spec.SampleIntervalS);
         Assert.InRange(up.Axis.Derivative(x0) / trueSlope, 0.995, 1.005);
+        // the reference's peaks repeat every FSR·λ_cal/λ_source on the source's axis: that period is still one FSR of the
+        // cavity, so the settled FSR is the stated one
+        Assert.Equal(cav.Instrument.FsrHz, set.Instruments.Single().FsrHz, 1e-3);
     }
 
     /// <summary>Writes a simulated record as a scope export: preamble, leading NaN rows, 8-bit steps (from the simulator).</summary>

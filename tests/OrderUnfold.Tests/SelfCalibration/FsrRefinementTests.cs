@@ -19,29 +19,47 @@ public sealed class FsrRefinementTests(ITestOutputHelper output)
     /// with the stated FSRs, as the pipeline would.</summary>
     private static (List<CalibratedSweep> Sweeps, Instrument TrueA, Instrument TrueB, SimulatedLine[] Lines) Scenario()
     {
+        var (sweeps, trueA, trueB, lines, _) = ScenarioWithAxes();
+        return (sweeps, trueA, trueB, lines);
+    }
+
+    /// <summary>The scenario with each sweep's segment, stated instrument and axis, so that sweeps can be built again at
+    /// decided FSRs as the pipeline builds them.</summary>
+    private static (List<CalibratedSweep> Sweeps, Instrument TrueA, Instrument TrueB, SimulatedLine[] Lines, List<(Sweep Segment, Instrument Stated, AxisPolynomial Axis)> Parts) ScenarioWithAxes()
+    {
         var lines = new[] { new SimulatedLine(-2 * Rf, 0.08), new SimulatedLine(-Rf, 0.4), new SimulatedLine(0, 1.0), new SimulatedLine(Rf, 0.4), new SimulatedLine(2 * Rf, 0.08) };
         var a = Cavity("A", 0.1, finesse: 200, samples: 5000, spanFsr: 4.5);
         var b = Cavity("B", 0.0937, finesse: 200, samples: 5000, spanFsr: 4.5, quadratic: 0.04, cubic: -0.02, gain: 1.1);
         var spec = new SimulationSpec { Lines = lines, Cavities = [a, b], Seed = 5, Triangle = false };
         var rng = new Random(5);
         var sweeps = new List<CalibratedSweep>();
+        var parts = new List<(Sweep, Instrument, AxisPolynomial)>();
         foreach (var cav in spec.Cavities)
         {
             var trace = Simulator.Trace(spec, cav, false, rng);
             var stated = cav.Instrument.Name == "A" ? cav.Instrument with { FsrHz = cav.Instrument.FsrHz * 1.005 } : cav.Instrument;
             var seg = SimulatedSweeps.Halves(trace, cav.Instrument.Name, false)[0];
-            sweeps.Add(OnAxis(seg, stated, SelfCalibrator.Calibrate(seg, stated).Calibration.Axis));
+            var axis = SelfCalibrator.Calibrate(seg, stated).Calibration.Axis;
+            sweeps.Add(OnAxis(seg, stated, axis));
+            parts.Add((seg, stated, axis));
         }
 
-        return (sweeps, a.Instrument, b.Instrument, lines);
+        return (sweeps, a.Instrument, b.Instrument, lines, parts);
     }
 
     [Fact]
     public void Known_interval_calibrates_an_FSR_that_is_half_a_percent_off_to_better_than_0_01_percent()
     {
-        var (sweeps, trueA, trueB, lines) = Scenario();
+        var (sweeps, trueA, trueB, lines, parts) = ScenarioWithAxes();
         var options = new UnfoldOptions { WindowStartHz = -6e9, WindowEndHz = 6e9 };
-        var (refined, result, r) = FsrRefiner.UnfoldWithRefinement(sweeps, options, new FsrRefineOptions { KnownIntervalHz = Rf });
+        var r = FsrRefiner.Decide(sweeps, options, new FsrRefineOptions { KnownIntervalHz = Rf });
+        // as the pipeline does: the axes put at the decided FSRs once, the sweeps built from them, then the unfold
+        var refined = parts.Select(p =>
+        {
+            var fsr = r.Instruments.Single(s => s.Instrument == p.Stated.Name).RefinedFsrHz;
+            return OnAxis(p.Segment, p.Stated with { FsrHz = fsr }, p.Axis.Scaled(fsr / p.Stated.FsrHz));
+        }).ToList();
+        var result = Unfolder.Run(refined, options);
         foreach (var s in r.Instruments)
             output.WriteLine($"{s.Instrument}: {s.NominalFsrHz / 1e6:F4} MHz -> {s.RefinedFsrHz / 1e6:F4} ± {s.SigmaHz / 1e3:F1} kHz ({s.Basis})");
         foreach (var n in r.Notes) output.WriteLine("note: " + n);
@@ -56,7 +74,7 @@ public sealed class FsrRefinementTests(ITestOutputHelper output)
         Assert.InRange(a.RelativeChange, -0.0055, -0.0045); // it found the 0.5 % error
         Assert.True(a.SigmaHz > 0 && a.SigmaHz < 1e-4 * a.RefinedFsrHz);
         Assert.Contains(r.Warnings, w => w.Contains("instrument 'A'") && w.Contains("update the setup"));
-        // the refined sweeps carry the refined FSR, and the lines come back at the stated sideband frequencies
+        // the sweeps built at the decided FSRs carry them, and the lines come back at the stated sideband frequencies
         Assert.Equal(a.RefinedFsrHz, refined.First(s => s.Instrument.Name == "A").Instrument.FsrHz);
         var lw = trueA.LinewidthHz;
         var main = MainLines(result);

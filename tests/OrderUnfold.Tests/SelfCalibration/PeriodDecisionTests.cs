@@ -166,7 +166,10 @@ public sealed class PeriodDecisionTests(ITestOutputHelper output)
         output.WriteLine(d.Summary);
         Assert.Equal(2 * inst.FsrHz, d.PeriodHz, 3);
         Assert.Contains("not exactly confocal", d.Basis);
-        var spacings = SpacingsInPeriods(c, sweep.Count, 3.3, 2 * inst.FsrHz);
+        // the axis stays in units of the stated period it was fitted at; the settlement converts it to the decided FSR
+        Assert.Equal(inst.FsrHz, c.BuiltAtFsrHz);
+        Assert.Equal(d.PeriodHz, c.DecidedFsrHz);
+        var spacings = SpacingsInPeriods(c.AtFsr(d.PeriodHz, inst.FsrHz), sweep.Count, 3.3, 2 * inst.FsrHz);
         Assert.NotEmpty(spacings);
         Assert.All(spacings, s => Assert.InRange(s, 0.99, 1.01));
         var odd = Assert.Single(d.Families, f => f.N == 1);
