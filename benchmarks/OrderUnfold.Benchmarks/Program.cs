@@ -8,6 +8,8 @@ namespace OrderUnfold.Benchmarks;
 /// <c>-- --cpu-time-refine</c> only its line-refinement part (the nine-mode comb of <see cref="RefineCombBenchmark"/>);
 /// <c>-- --unfold-probe [--marks]</c> the whole unfold at 10⁴–10⁶ bins in CPU time (with the progress marks);
 /// <c>-- --working-set-probe</c> one NNLS solve at those sizes with and without the active set's working set;
+/// <c>-- --dense-probe [--with-active-set] [--family standard|fine|wide]</c> the dense solver's CPU-time probe on one
+/// family of sizes (see <see cref="DenseNnlsBenchmarks.Probe(TextWriter, bool, string)"/>);
 /// <c>-- --export-dense DIR</c> writes the dense-support problems for the scipy reference script.
 /// </summary>
 public static class Program
@@ -40,7 +42,9 @@ public static class Program
 
         if (args.Length >= 1 && args[0] == "--dense-probe")
         {
-            DenseNnlsBenchmarks.Probe(Console.Out, args.Length > 1 && args[1] == "--with-active-set");
+            // --dense-probe [--with-active-set] [--family standard|fine|wide]
+            var family = Array.IndexOf(args, "--family") is var i and > 0 && i + 1 < args.Length ? args[i + 1] : "standard";
+            DenseNnlsBenchmarks.Probe(Console.Out, args.Contains("--with-active-set"), family);
             return;
         }
 
