@@ -35,6 +35,16 @@ public class DenseNnlsBenchmarks
     /// </summary>
     public static void Probe(TextWriter output, bool withActiveSet) => Probe(output, withActiveSet, "standard");
 
+    /// <summary>The window of a family's problem with <paramref name="bins"/> bins, in quarter linewidths (see
+    /// <see cref="Probe(TextWriter, bool, string)"/>).</summary>
+    public static int FamilyWindow(string family, int bins) => family switch
+    {
+        "standard" => bins,
+        "fine" => Sizes[0].Bins,
+        "wide" => Sizes[^1].Bins,
+        _ => throw new ArgumentException($"unknown family '{family}' (standard, fine, wide)", nameof(family)),
+    };
+
     /// <summary>
     /// The probe on one family of the three sizes (samples 4k / 8k / 16k, bins 1k / 2k / 4k): <c>standard</c> (step a
     /// quarter linewidth, the window grows with the bins: 2.5 / 5 / 10 GHz), <c>fine</c> (the window fixed at the
@@ -43,13 +53,7 @@ public class DenseNnlsBenchmarks
     /// </summary>
     public static void Probe(TextWriter output, bool withActiveSet, string family)
     {
-        int Window(int bins) => family switch
-        {
-            "standard" => bins,
-            "fine" => Sizes[0].Bins,
-            "wide" => Sizes[^1].Bins,
-            _ => throw new ArgumentException($"unknown family '{family}' (standard, fine, wide)", nameof(family)),
-        };
+        int Window(int bins) => FamilyWindow(family, bins);
 
         using var process = System.Diagnostics.Process.GetCurrentProcess();
         if (OperatingSystem.IsLinux() || OperatingSystem.IsWindows()) process.ProcessorAffinity = 1;

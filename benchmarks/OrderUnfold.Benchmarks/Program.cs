@@ -10,7 +10,7 @@ namespace OrderUnfold.Benchmarks;
 /// <c>-- --working-set-probe</c> one NNLS solve at those sizes with and without the active set's working set;
 /// <c>-- --dense-probe [--with-active-set] [--family standard|fine|wide]</c> the dense solver's CPU-time probe on one
 /// family of sizes (see <see cref="DenseNnlsBenchmarks.Probe(TextWriter, bool, string)"/>);
-/// <c>-- --export-dense DIR</c> writes the dense-support problems for the scipy reference script.
+/// <c>-- --export-dense DIR [--family F]</c> writes the dense-support problems (of family F) for the scipy reference script.
 /// </summary>
 public static class Program
 {
@@ -48,13 +48,14 @@ public static class Program
             return;
         }
 
-        if (args.Length == 2 && args[0] == "--export-dense")
+        if ((args.Length == 2 || (args.Length == 4 && args[2] == "--family")) && args[0] == "--export-dense")
         {
             // the dense-support problems of DenseNnlsBenchmarks as dense arrays, for tests/reference/dense_nnls_reference.py
+            var family = args.Length == 4 ? args[3] : "standard";
             foreach (var (rows, bins) in DenseNnlsBenchmarks.Sizes)
             {
                 var dir = Path.Combine(args[1], $"{rows}x{bins}");
-                DenseSupportCase.Create(rows, bins).Export(dir);
+                DenseSupportCase.Create(rows, bins, DenseNnlsBenchmarks.FamilyWindow(family, bins)).Export(dir);
                 Console.WriteLine($"wrote {dir}");
             }
 
