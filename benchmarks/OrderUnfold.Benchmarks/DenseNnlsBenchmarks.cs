@@ -33,16 +33,37 @@ public class DenseNnlsBenchmarks
     /// ½‖Ax − y‖² (whitened) that the scipy reference reports, the active count and the KKT violation; with
     /// <paramref name="withActiveSet"/> also the active-set solver (slow at the larger sizes).
     /// </summary>
-    public static void Probe(TextWriter output, bool withActiveSet)
+    public static void Probe(TextWriter output, bool withActiveSet) => Probe(output, withActiveSet, "standard");
+
+    /// <summary>The window of a family's problem with <paramref name="bins"/> bins, in quarter linewidths (see
+    /// <see cref="Probe(TextWriter, bool, string)"/>).</summary>
+    public static int FamilyWindow(string family, int bins) => family switch
     {
+        "standard" => bins,
+        "fine" => Sizes[0].Bins,
+        "wide" => Sizes[^1].Bins,
+        _ => throw new ArgumentException($"unknown family '{family}' (standard, fine, wide)", nameof(family)),
+    };
+
+    /// <summary>
+    /// The probe on one family of the three sizes (samples 4k / 8k / 16k, bins 1k / 2k / 4k): <c>standard</c> (step a
+    /// quarter linewidth, the window grows with the bins: 2.5 / 5 / 10 GHz), <c>fine</c> (the window fixed at the
+    /// smallest case's 2.5 GHz, step 2.5 / 1.25 / 0.625 MHz) or <c>wide</c> (the window fixed at the largest case's
+    /// 10 GHz, step 10 / 5 / 2.5 MHz).
+    /// </summary>
+    public static void Probe(TextWriter output, bool withActiveSet, string family)
+    {
+        int Window(int bins) => FamilyWindow(family, bins);
+
         using var process = System.Diagnostics.Process.GetCurrentProcess();
         if (OperatingSystem.IsLinux() || OperatingSystem.IsWindows()) process.ProcessorAffinity = 1;
         // one untimed solve of the smallest problem first, so that the first row does not carry the JIT compilation
-        DenseNnls.Solve(DenseSupportCase.Create(Sizes[0].Rows, Sizes[0].Bins).Problem());
+        DenseNnls.Solve(DenseSupportCase.Create(Sizes[0].Rows, Sizes[0].Bins, Window(Sizes[0].Bins)).Problem());
+        output.WriteLine($"family {family}: window {Window(1000)}/{Window(2000)}/{Window(4000)} quarter linewidths");
         output.WriteLine("rows\tbins\tsolver\tcpu_s\twall_s\tobjective\tactive\tkkt\ttolerance\tproducts\tstatus\tmessage");
         foreach (var (rows, bins) in Sizes)
         {
-            var c = DenseSupportCase.Create(rows, bins);
+            var c = DenseSupportCase.Create(rows, bins, Window(bins));
             var problem = c.Problem();
             void Run(string name, Func<NnlsResult> solve)
             {

@@ -18,15 +18,24 @@ namespace OrderUnfold.Benchmarks;
 /// </summary>
 public sealed record DenseSupportCase(List<CalibratedSweep> Sweeps, FrequencyGrid Grid, double[] OffsetsHz, double[] Gains, double PeriodicStepHz)
 {
-    public static DenseSupportCase Create(int rows, int bins)
+    public static DenseSupportCase Create(int rows, int bins) => Create(rows, bins, windowQuarterLinewidths: bins);
+
+    /// <summary>
+    /// The same source and cavities over a window of <paramref name="windowQuarterLinewidths"/> quarter linewidths
+    /// (2.50 MHz each) split into <paramref name="bins"/> bins, so the step is window / bins; the lines stay every two
+    /// quarter linewidths (5.0 MHz) across 90 % of the window whatever the step. With window = bins this is
+    /// <see cref="Create(int, int)"/>; a fixed window with more bins is the same measurement on a finer grid.
+    /// </summary>
+    public static DenseSupportCase Create(int rows, int bins, int windowQuarterLinewidths)
     {
         var demo = Scenarios.Demo();
         var lw = demo.Cavities.Min(c => c.Instrument.LinewidthHz);
-        var step = lw / 4;
+        var step = windowQuarterLinewidths == bins ? lw / 4 : lw / 4 * windowQuarterLinewidths / bins;
+        var lineSpacing = 2 * (lw / 4);
         var grid = new FrequencyGrid(-(bins / 2) * step, step, bins);
         var half = 0.45 * bins * step;
         var lines = new List<SimulatedLine>();
-        for (var f = -half; f <= half; f += 2 * step)
+        for (var f = -half; f <= half; f += lineSpacing)
         {
             var u = f / half;
             var envelope = 0.3 + 0.7 * Math.Exp(-2 * u * u) + 0.1 * Math.Sin(7 * u);
