@@ -1,6 +1,6 @@
 #!/usr/bin/env bash
 # Compares two batch outputs (folders holding summary.csv and items/) apart from timing: the summary's seconds
-# column, report.json's created_utc and done.json's seconds are left out; everything else (every summary cell, the
+# column, report.json's created_utc, done.json's seconds and the time stamps in report.html are left out; everything else (every summary cell, the
 # list of item files and their bytes) must be equal. Prints "N items" and exits 0 when they are; otherwise prints
 # the first differences and exits 1. Used by scripts/kill-test.sh and scripts/slurm-test.sh.
 # Usage: scripts/compare-batch.sh REFERENCE OTHER
@@ -19,8 +19,11 @@ normalise() {
   # one process per kind of file, not per file: the hash of each plain file, the lines of the records (prefixed by
   # their file) less their timing lines; a difference shows which file and line
   (cd "$dir/items" && {
-    { grep -Ev '/(report|done)\.json$' "$out/files.txt" || true; } | xargs -r -d '\n' sha256sum
+    { grep -Ev '/(report|done)\.json$|/report\.html$' "$out/files.txt" || true; } | xargs -r -d '\n' sha256sum
     { grep -E '/report\.json$' "$out/files.txt" || true; } | xargs -r -d '\n' grep -H -v '"created_utc"'
+    # the page states when it was written (header, run facts, footer): each UTC time stamp becomes <time>
+    { grep -E '/report\.html$' "$out/files.txt" || true; } | xargs -r -d '\n' awk \
+      '{ gsub(/[0-9][0-9][0-9][0-9]-[0-9][0-9]-[0-9][0-9]T[0-9][0-9]:[0-9][0-9]:[0-9][0-9]Z/, "<time>"); print FILENAME ": " $0 }'
     { grep -E '/done\.json$' "$out/files.txt" || true; } | xargs -r -d '\n' grep -H -v '"seconds"'
   }) > "$out/content.txt"
 }
