@@ -30,7 +30,7 @@ public class BatchBenchmark
     public void Setup()
     {
         _root = Path.Combine(Path.GetTempPath(), "ou-batch-bench-" + Guid.NewGuid().ToString("N")[..8]);
-        var spec = new ArchiveSpec { Items = Items, HopAt = Items * 3 / 5, Defects = new ArchiveSpec().Defects.Where(d => d.Key < Items).ToDictionary() };
+        var spec = new ArchiveSpec { Items = Items, Laser = new ArchiveLaser { HopAt = Items * 3 / 5 }, Defects = new ArchiveSpec().Defects.Where(d => d.Key < Items).ToDictionary() };
         _manifest = DemoArchive.Write(Path.Combine(_root, "archive"), spec).ManifestPath;
     }
 

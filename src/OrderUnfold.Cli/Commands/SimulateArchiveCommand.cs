@@ -40,7 +40,7 @@ internal sealed class SimulateArchiveCommand : VerbCommand
         {
             Items = items,
             Seed = parse.GetValue(_seed) ?? Defaults.Seed,
-            HopAt = parse.GetValue(_noHop) ? -1 : (int)Math.Round(Defaults.HopAt * (items / (double)Defaults.Items)),
+            Laser = Defaults.Laser with { HopAt = parse.GetValue(_noHop) ? -1 : (int)Math.Round(Defaults.Laser.HopAt * (items / (double)Defaults.Items)) },
             Defects = Defaults.Defects.Where(d => d.Key < items).ToDictionary(),
         };
         string manifest, calibration, truth;

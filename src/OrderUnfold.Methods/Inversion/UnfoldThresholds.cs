@@ -50,6 +50,16 @@ public sealed record UnfoldThresholds
     /// its trace.</summary>
     public int EdgeBins { get; init; } = 2;
 
+    /// <summary>The grid solve's weights and the active-set solver's tolerance and iteration limits.</summary>
+    public GridSolveThresholds Solve { get; init; } = new();
+}
+
+/// <summary>
+/// The fixed numbers of the grid solve in <see cref="Unfolder.Run"/> (part of <see cref="UnfoldThresholds"/>): how the
+/// scale of the L1 and smoothness weights is measured, and the active-set solver's tolerance and iteration limits.
+/// </summary>
+public sealed record GridSolveThresholds
+{
     /// <summary>Grid columns sampled (evenly) to measure the median column norm that scales the L1 and smoothness
     /// weights. Default 33: the median of 33 samples is stable to a few per cent for the slowly varying norms of a
     /// sweep operator, at negligible cost.</summary>
@@ -57,21 +67,21 @@ public sealed record UnfoldThresholds
 
     /// <summary>KKT tolerance of the active-set solver relative to the L1 weight. Default 10⁻³: a thousandth of the
     /// penalty's own scale is far below what changes a line (common practice).</summary>
-    public double SolverToleranceRelative { get; init; } = 1e-3;
+    public double ToleranceRelative { get; init; } = 1e-3;
 
     /// <summary>Smallest absolute KKT tolerance of the active-set solver (when the L1 weight is zero). Default 10⁻⁹.</summary>
-    public double SolverToleranceFloor { get; init; } = 1e-9;
+    public double ToleranceFloor { get; init; } = 1e-9;
 
     /// <summary>Fewest and most iterations of the active-set solver; between them a quarter of the grid bins. The active
     /// set of a line spectrum stays far below this; a model that does not fit the data (wrong axis, wrong instrument)
     /// keeps adding bins, and the cap keeps the cost finite: the result then says it did not converge. Defaults 500 and
     /// 2500; <see cref="UnfoldMemory.EstimateUnfoldBytes"/> assumes the same cap.</summary>
-    public int SolverMinIterations { get; init; } = 500;
+    public int MinIterations { get; init; } = 500;
 
-    /// <inheritdoc cref="SolverMinIterations"/>
-    public int SolverMaxIterations { get; init; } = 2500;
+    /// <inheritdoc cref="MinIterations"/>
+    public int MaxIterations { get; init; } = 2500;
 
-    /// <summary>Grid bins per solver iteration allowed between <see cref="SolverMinIterations"/> and
-    /// <see cref="SolverMaxIterations"/>. Default 4.</summary>
-    public int BinsPerSolverIteration { get; init; } = 4;
+    /// <summary>Grid bins per solver iteration allowed between <see cref="MinIterations"/> and
+    /// <see cref="MaxIterations"/>. Default 4.</summary>
+    public int BinsPerIteration { get; init; } = 4;
 }

@@ -233,7 +233,7 @@ public static class Unfolder
         // first pass without penalties to measure the typical column norm, then the weighted problem
         var probe = new UnfoldProblem(sweeps, grid, offsets, gains, 0, 0, periodicStep);
         var norms = new List<double>();
-        var count = Math.Min(options.Thresholds.ColumnNormProbes, grid.Count);
+        var count = Math.Min(options.Thresholds.Solve.ColumnNormProbes, grid.Count);
         for (var i = 0; i < count; i++)
         {
             var j = (int)((long)i * (grid.Count - 1) / Math.Max(1, count - 1));
@@ -247,12 +247,12 @@ public static class Unfolder
     }
 
     /// <summary>The active-set solver's tolerance and iteration cap for <paramref name="problem"/> (see
-    /// <see cref="UnfoldThresholds.SolverMaxIterations"/> for why the cap).</summary>
+    /// <see cref="GridSolveThresholds.MaxIterations"/> for why the cap).</summary>
     public static ActiveSetNnls.Options SolverOptions(UnfoldProblem problem, UnfoldThresholds? thresholds = null)
     {
         thresholds ??= new UnfoldThresholds();
-        var tol = Math.Max(thresholds.SolverToleranceRelative * problem.L1Weight, thresholds.SolverToleranceFloor);
-        var iterations = Math.Min(thresholds.SolverMaxIterations, Math.Max(thresholds.SolverMinIterations, problem.Grid.Count / thresholds.BinsPerSolverIteration));
+        var tol = Math.Max(thresholds.Solve.ToleranceRelative * problem.L1Weight, thresholds.Solve.ToleranceFloor);
+        var iterations = Math.Min(thresholds.Solve.MaxIterations, Math.Max(thresholds.Solve.MinIterations, problem.Grid.Count / thresholds.Solve.BinsPerIteration));
         return new ActiveSetNnls.Options { Tolerance = tol, MaxIterations = iterations };
     }
 

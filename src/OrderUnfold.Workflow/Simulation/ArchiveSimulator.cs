@@ -33,7 +33,7 @@ public enum ArchiveDefect
 /// <summary>
 /// A simulated monitoring archive: one laser watched through one scanning cavity every
 /// <see cref="IntervalS"/> seconds. The laser runs on one longitudinal mode with weaker neighbours
-/// <see cref="ModeSpacingHz"/> apart, drifts slowly, and at item <see cref="HopAt"/> hops to the next mode
+/// <see cref="ArchiveLaser.ModeSpacingHz"/> apart, drifts slowly, and at item <see cref="ArchiveLaser.HopAt"/> hops to the next mode
 /// up; as the hop approaches, the upper neighbour grows (the side-mode suppression falls) and after the hop
 /// the old mode fades. Everything is invented (simulated data) and fixed by <see cref="Seed"/>.
 /// </summary>
@@ -66,31 +66,11 @@ public sealed record ArchiveSpec
     /// <summary>Quadratic and cubic piezo non-linearity (as in <see cref="SimulatedCavity"/>).</summary>
     public double Quadratic { get; init; } = 0.04;
 
+    /// <inheritdoc cref="Quadratic"/>
     public double Cubic { get; init; }
 
-    /// <summary>Spacing of the laser's longitudinal modes, Hz.</summary>
-    public double ModeSpacingHz { get; init; } = 410e6;
-
-    /// <summary>Position of the lasing mode on the cavity's scan axis at the first item, Hz (within one FSR).</summary>
-    public double StartPositionHz { get; init; } = 0.45e9;
-
-    /// <summary>Slow linear drift of the laser, Hz/s.</summary>
-    public double DriftHzPerS { get; init; } = 20e3;
-
-    /// <summary>Random-walk step of the laser frequency per item (σ), Hz.</summary>
-    public double JitterHz { get; init; } = 0.3e6;
-
-    /// <summary>Index (0-based) of the first item after the mode hop; negative: no hop.</summary>
-    public int HopAt { get; init; } = 180;
-
-    /// <summary>Side-mode suppression far from the hop, dB.</summary>
-    public double QuietSmsrDb { get; init; } = 20;
-
-    /// <summary>Side-mode suppression of the growing neighbour just before the hop, dB.</summary>
-    public double NearHopSmsrDb { get; init; } = 4;
-
-    /// <summary>Items over which the neighbour grows before the hop (and the old mode fades after it).</summary>
-    public int HopRampItems { get; init; } = 40;
+    /// <summary>The monitored laser: its modes, drift and mode hop.</summary>
+    public ArchiveLaser Laser { get; init; } = new();
 
     /// <summary>Gaussian noise σ as a fraction of the strongest mode's peak signal.</summary>
     public double NoiseFraction { get; init; } = 0.003;
@@ -115,6 +95,37 @@ public sealed record ArchiveSpec
     public int Seed { get; init; } = 20250314;
 
     public string Label { get; init; } = "SIMULATED DATA: OrderUnfold demo archive (laser monitored through one scanning cavity, invented scenario)";
+}
+
+/// <summary>
+/// The laser of a simulated archive (<see cref="ArchiveSpec"/>): where its lasing mode starts on the cavity's scan axis,
+/// how it drifts and jitters from item to item, and the mode hop with the side-mode suppression around it.
+/// </summary>
+public sealed record ArchiveLaser
+{
+    /// <summary>Spacing of the laser's longitudinal modes, Hz.</summary>
+    public double ModeSpacingHz { get; init; } = 410e6;
+
+    /// <summary>Position of the lasing mode on the cavity's scan axis at the first item, Hz (within one FSR).</summary>
+    public double StartPositionHz { get; init; } = 0.45e9;
+
+    /// <summary>Slow linear drift of the laser, Hz/s.</summary>
+    public double DriftHzPerS { get; init; } = 20e3;
+
+    /// <summary>Random-walk step of the laser frequency per item (σ), Hz.</summary>
+    public double JitterHz { get; init; } = 0.3e6;
+
+    /// <summary>Index (0-based) of the first item after the mode hop; negative: no hop.</summary>
+    public int HopAt { get; init; } = 180;
+
+    /// <summary>Side-mode suppression far from the hop, dB.</summary>
+    public double QuietSmsrDb { get; init; } = 20;
+
+    /// <summary>Side-mode suppression of the growing neighbour just before the hop, dB.</summary>
+    public double NearHopSmsrDb { get; init; } = 4;
+
+    /// <summary>Items over which the neighbour grows before the hop (and the old mode fades after it).</summary>
+    public int HopRampItems { get; init; } = 40;
 }
 
 /// <summary>One simulated item and what was simulated for it.</summary>
@@ -168,19 +179,19 @@ public static class ArchiveSimulator
         AtomicFile.WriteAllText(calPath, Csv(spec, "calibration laser", cal));
 
         var items = new List<ArchiveItem>(spec.Items);
-        var position = spec.StartPositionHz;
+        var position = spec.Laser.StartPositionHz;
         for (var k = 0; k < spec.Items; k++)
         {
             cancellationToken.ThrowIfCancellationRequested();
             var id = $"sweep-{k + 1:D4}";
             var t = k * spec.IntervalS;
-            if (k > 0) position += spec.DriftHzPerS * spec.IntervalS + spec.JitterHz * Simulator.Gaussian(rng);
+            if (k > 0) position += spec.Laser.DriftHzPerS * spec.IntervalS + spec.Laser.JitterHz * Simulator.Gaussian(rng);
             var defect = spec.Defects.TryGetValue(k, out var d) ? d : ArchiveDefect.None;
             var (lasing, intensities) = ModeIntensities(spec, k);
-            var modes = Modes.Select((m, i) => (Position: position + m * spec.ModeSpacingHz, Intensity: intensities[i])).ToArray();
+            var modes = Modes.Select((m, i) => (Position: position + m * spec.Laser.ModeSpacingHz, Intensity: intensities[i])).ToArray();
             var sorted = intensities.OrderByDescending(v => v).ToArray();
             var smsr = 10 * Math.Log10(sorted[0] / sorted[1]);
-            var lasingPosition = position + lasing * spec.ModeSpacingHz;
+            var lasingPosition = position + lasing * spec.Laser.ModeSpacingHz;
             var file = Path.Combine(sweepDir, id + ".csv");
             var stamp = spec.Start.AddSeconds(t).ToString("yyyy-MM-dd'T'HH:mm:ss'Z'", CultureInfo.InvariantCulture);
             // every item draws the same amount of noise so that a defect does not change the items after it
@@ -245,7 +256,7 @@ public static class ArchiveSimulator
     public static string TruthCsv(ArchiveSpec spec, IReadOnlyList<ArchiveItem> items)
     {
         var c = CultureInfo.InvariantCulture;
-        var sb = new StringBuilder($"# {spec.Label}\n# mode spacing {spec.ModeSpacingHz.ToString("R", c)} Hz; drift {spec.DriftHzPerS.ToString("R", c)} Hz/s\n");
+        var sb = new StringBuilder($"# {spec.Label}\n# mode spacing {spec.Laser.ModeSpacingHz.ToString("R", c)} Hz; drift {spec.Laser.DriftHzPerS.ToString("R", c)} Hz/s\n");
         sb.Append("id,time_s,lasing_mode,lasing_position_hz,smsr_db,defect\n");
         foreach (var i in items)
             sb.Append(i.Id).Append(',').Append(i.TimeS.ToString("R", c)).Append(',').Append(i.LasingMode.ToString(c)).Append(',')
@@ -258,13 +269,13 @@ public static class ArchiveSimulator
     internal static (int Lasing, double[] Intensities) ModeIntensities(ArchiveSpec spec, int k)
     {
         double Level(double db) => Math.Pow(10, -db / 10);
-        var quiet = Level(spec.QuietSmsrDb);
-        var far = Level(spec.QuietSmsrDb + 6);
-        var hop = spec.HopAt >= 0 && k >= spec.HopAt;
+        var quiet = Level(spec.Laser.QuietSmsrDb);
+        var far = Level(spec.Laser.QuietSmsrDb + 6);
+        var hop = spec.Laser.HopAt >= 0 && k >= spec.Laser.HopAt;
         // 0 far from the hop, 1 right at it (before or after)
-        var distance = spec.HopAt < 0 ? int.MaxValue : hop ? k - spec.HopAt : spec.HopAt - 1 - k;
-        var closeness = Math.Clamp(1 - distance / (double)Math.Max(1, spec.HopRampItems), 0, 1);
-        var neighbourDb = spec.QuietSmsrDb + (spec.NearHopSmsrDb - spec.QuietSmsrDb) * closeness * closeness;
+        var distance = spec.Laser.HopAt < 0 ? int.MaxValue : hop ? k - spec.Laser.HopAt : spec.Laser.HopAt - 1 - k;
+        var closeness = Math.Clamp(1 - distance / (double)Math.Max(1, spec.Laser.HopRampItems), 0, 1);
+        var neighbourDb = spec.Laser.QuietSmsrDb + (spec.Laser.NearHopSmsrDb - spec.Laser.QuietSmsrDb) * closeness * closeness;
         return hop
             // modes −1, 0 (old, fading), 1 (lasing), 2
             ? (1, [far * 0.5, Level(neighbourDb), 1.0, quiet * 0.8])

@@ -22,8 +22,7 @@ public sealed class BatchArchiveFixture : IDisposable
         var spec = new ArchiveSpec
         {
             Items = Items,
-            HopAt = HopAt,
-            HopRampItems = 5,
+            Laser = new ArchiveLaser { HopAt = HopAt, HopRampItems = 5 },
             Defects = new Dictionary<int, ArchiveDefect>
             {
                 [3] = ArchiveDefect.EmptyFile,
@@ -301,7 +300,7 @@ public class BatchTests(BatchArchiveFixture fx, ITestOutputHelper output) : ICla
         var hop = Assert.Single(r.Hops);
         Assert.Equal("sweep-0015", hop.ToId);
         Assert.Equal("sweep-0014", hop.FromId);
-        var spacing = new ArchiveSpec().ModeSpacingHz;
+        var spacing = new ArchiveSpec().Laser.ModeSpacingHz;
         Assert.InRange(hop.JumpHz, spacing - 5e6, spacing + 5e6);
         // the lasing mode's track before the hop: drift positive, of the simulated order (20 kHz/s plus a random walk)
         var main = r.Tracks.Single(t => t.Track == r.Points.First(p => p.Strongest).Track);

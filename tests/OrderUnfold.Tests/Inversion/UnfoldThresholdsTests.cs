@@ -26,6 +26,6 @@ public class UnfoldThresholdsTests
         var c = DenseSupportCase.Create(4000, 1000);
         var problem = Unfolder.BuildProblem(c.Sweeps, c.Grid, c.OffsetsHz, c.Gains, new UnfoldOptions(), c.PeriodicStepHz);
         Assert.Equal(Math.Min(2500, Math.Max(500, c.Grid.Count / 4)), Unfolder.SolverOptions(problem).MaxIterations);
-        Assert.Equal(7, Unfolder.SolverOptions(problem, new UnfoldThresholds { SolverMinIterations = 7, SolverMaxIterations = 7 }).MaxIterations);
+        Assert.Equal(7, Unfolder.SolverOptions(problem, new UnfoldThresholds { Solve = new GridSolveThresholds { MinIterations = 7, MaxIterations = 7 } }).MaxIterations);
     }
 }

@@ -3,22 +3,26 @@ using OrderUnfold.Io;
 
 namespace OrderUnfold.Pipeline.Batch;
 
-/// <summary>One line of one item, placed on a track: a row of track.csv.</summary>
-[CsvRecord]
-public sealed partial record TrackPoint
+/// <summary>The first three columns of track.csv and series.csv: when the item was taken and which it is.</summary>
+public abstract record ItemTime
 {
     /// <summary>Seconds since the first item (or the item's index when no item has a time stamp).</summary>
     [CsvColumn("time_s"), CsvConverter(typeof(NumberCell))]
     public double TimeS { get; init; }
 
-    /// <summary>UTC time stamp of <see cref="TimeS"/>, or null when the items have none.</summary>
+    /// <summary>UTC time stamp of <see cref="TimeS"/> (the item's, from the summary), or null when the items have none.</summary>
     [CsvColumn("timestamp"), CsvConverter(typeof(OptionalTextCell))]
     public string? Timestamp { get; init; }
 
     /// <summary>Item id.</summary>
     [CsvColumn("id"), CsvConverter(typeof(TextCell))]
     public string Id { get; init; } = "";
+}
 
+/// <summary>One line of one item, placed on a track: a row of track.csv.</summary>
+[CsvRecord]
+public sealed partial record TrackPoint : ItemTime
+{
     /// <summary>Track number (1-based).</summary>
     [CsvColumn("track"), CsvConverter(typeof(WholeNumberCell<int>))]
     public int Track { get; init; }
@@ -126,20 +130,8 @@ public enum SmsrSource
 
 /// <summary>Per-item values over time: a row of series.csv.</summary>
 [CsvRecord]
-public sealed partial record SeriesPoint
+public sealed partial record SeriesPoint : ItemTime
 {
-    /// <summary>Seconds since the first item.</summary>
-    [CsvColumn("time_s"), CsvConverter(typeof(NumberCell))]
-    public double TimeS { get; init; }
-
-    /// <summary>The item's time stamp from the summary.</summary>
-    [CsvColumn("timestamp"), CsvConverter(typeof(OptionalTextCell))]
-    public string? Timestamp { get; init; }
-
-    /// <summary>Item id.</summary>
-    [CsvColumn("id"), CsvConverter(typeof(TextCell))]
-    public string Id { get; init; } = "";
-
     /// <summary>Lines of the item.</summary>
     [CsvColumn("lines"), CsvConverter(typeof(WholeNumberCell<int>))]
     public int Lines { get; init; }
