@@ -34,7 +34,7 @@ public static partial class Quantity
         [Dimension.Decibel] = [("dB", 1)],
     };
 
-    [GeneratedRegex(@"^\s*(?<num>[+-]?(\d+(\.\d*)?|\.\d+)([eE][+-]?\d+)?)\s*(?<unit>[A-Za-zµ]*)\s*$")]
+    [GeneratedRegex(@"^\s*(?<num>[+-]?([0-9]+(\.[0-9]*)?|\.[0-9]+)([eE][+-]?[0-9]+)?)\s*(?<unit>[A-Za-zµ]*)\s*$")]
     private static partial Regex Pattern();
 
     /// <summary>The units accepted for a dimension, as written in messages ("Hz, kHz, MHz, GHz, THz").</summary>

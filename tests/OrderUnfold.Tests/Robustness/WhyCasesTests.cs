@@ -262,6 +262,22 @@ public class WhyCasesTests(RobustnessFolder fx) : IClassFixture<RobustnessFolder
     public void CsvCellGuardFollowsTheOwaspRule(string cell, string expected) => Assert.Equal(expected, CsvCell.Guard(cell));
 
     [Fact]
+    public void ASavedInstrumentWithoutAPositiveFsrIsRefusedNamingTheCalibrationFile()
+    {
+        // found by the random-seed fuzz run (Calibration kind): the instrument's own refusal carried no file name
+        var dir = fx.NewPath("zero-fsr");
+        Directory.CreateDirectory(dir);
+        var path = Path.Combine(dir, "calibration.json");
+        var text = File.ReadAllText(fx.Calibration);
+        var zeroed = System.Text.RegularExpressions.Regex.Replace(text, "\"fsr_hz\": [0-9.eE+-]+", "\"fsr_hz\": 0");
+        Assert.NotEqual(text, zeroed);
+        File.WriteAllText(path, zeroed);
+        var e = Assert.Throws<InputException>(() => OrderUnfold.Pipeline.SavedCalibration.Read(path));
+        Assert.Equal(path, e.File);
+        Assert.Contains("FSR must be positive", e.Message);
+    }
+
+    [Fact]
     public void NextCommandHintsWorkWithoutAnInstalledCommand()
     {
         var output = fx.NewPath("hint");

@@ -62,6 +62,17 @@ public class QuantityTests
     }
 
     [Theory]
+    [InlineData("\u0967\u0966\u0966 mm")] // Devanagari digits: a regex \d matches them, double.Parse does not (found by the fuzz run)
+    [InlineData("\u0661.5 GHz")] // an Arabic-Indic one
+    [InlineData("1\uFF10 mm")] // a fullwidth zero
+    public void DigitsOtherThanAsciiAreRefusedNotCrashed(string text)
+    {
+        var e = Assert.Throws<InputException>(() => Quantity.Parse(text, text.EndsWith("GHz", StringComparison.Ordinal) ? Dimension.Frequency : Dimension.Length, "cavity length"));
+        Assert.StartsWith("cavity length: ", e.Message);
+        Assert.False(Quantity.TryParse(text, Dimension.Length, out _, out _));
+    }
+
+    [Theory]
     [InlineData("1.5", Dimension.Frequency, "Hz, kHz, MHz, GHz, THz")]
     [InlineData("50", Dimension.Length, "m, cm, mm, um, nm, pm")]
     [InlineData("2", Dimension.Time, "s, ms, us, ns, ps")]

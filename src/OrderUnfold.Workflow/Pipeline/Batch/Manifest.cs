@@ -38,7 +38,7 @@ public static class Manifest
     public static IReadOnlyList<string> Columns { get; } = ["id", "setup", "files", "calibration", "timestamp"];
 
     private static readonly Regex IsoTime = new(
-        @"^\d{4}-\d{2}-\d{2}([T ]\d{2}:\d{2}(:\d{2}(\.\d{1,7})?)?)?(Z|[+-]\d{2}:?\d{2})?$", RegexOptions.CultureInvariant | RegexOptions.Compiled);
+        @"^[0-9]{4}-[0-9]{2}-[0-9]{2}([T ][0-9]{2}:[0-9]{2}(:[0-9]{2}(\.[0-9]{1,7})?)?)?(Z|[+-][0-9]{2}:?[0-9]{2})?$", RegexOptions.CultureInvariant | RegexOptions.Compiled);
 
     /// <summary>Streams the rows of the manifest at <paramref name="path"/>, checking <paramref name="cancellationToken"/> as it reads.</summary>
     public static IEnumerable<ManifestRow> Read(string path, CancellationToken cancellationToken = default)
