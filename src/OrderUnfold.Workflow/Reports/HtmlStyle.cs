@@ -66,6 +66,11 @@ internal static class HtmlStyle
           section { break-inside: auto; } figure, tr, .box { break-inside: avoid; }
           th.sortable-head::after { content: ""; }
           .scroll { overflow: visible; }
+          table { font-size: 8pt; width: 100%; }
+          th { white-space: normal; }
+          th, td { padding: 2px 4px; }
+          h2, h3 { break-after: avoid; }
+          td:not(.short):not(.num) { overflow-wrap: anywhere; }
         }
 
         """;
