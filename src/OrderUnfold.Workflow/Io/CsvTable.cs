@@ -99,6 +99,23 @@ public static class CsvTable
         return ReadRows<T>(path, what, null, cancellationToken);
     }
 
+    /// <summary>The header and the rows of a table's text as they stand (every cell as text, quotes removed), for
+    /// showing a table the tool wrote; read with the same options as <see cref="Read{T}"/>.</summary>
+    public static (string[] Header, List<string[]> Rows) ReadText(string text)
+    {
+        using var csv = CsvReader.FromText(text, ReaderOptions);
+        var header = csv.Headers.ToArray();
+        var rows = new List<string[]>();
+        while (csv.Read())
+        {
+            var row = new string[csv.FieldCount];
+            for (var i = 0; i < row.Length; i++) row[i] = csv[i].ToString();
+            rows.Add(row);
+        }
+
+        return (header, rows);
+    }
+
     /// <summary>Opens a reader of a table after <see cref="InputLimits.CheckFile"/> (for tables read with hand-made mappers).</summary>
     public static CsvReader OpenReader(string path, string what)
     {

@@ -16,15 +16,15 @@ public static class BatchHtml
         var summaryPath = Path.Combine(directory, BatchLayout.SummaryFile);
         var statusPath = BatchLayout.Status(directory, Shard.All);
         var status = File.Exists(statusPath) ? BatchStatus.Read(statusPath) : null;
-        var csv = InputLimits.ReadAllText(summaryPath, "summary");
-        var (header, rows) = CsvHtml.Parse(csv);
+        var table = CsvTable.ReadText(InputLimits.ReadAllText(summaryPath, "summary"));
+        var (header, rows) = table;
         var statusColumn = Array.IndexOf(header, "status");
         var errorColumn = Array.IndexOf(header, "error");
         var failed = rows.Where(r => statusColumn >= 0 && r[statusColumn] != "ok").ToList();
         var page = new HtmlPage("Batch report", directory);
         page.Section("verdicts", "Counts and failures").Facts(Counts(status, rows.Count, failed.Count))
             .Messages("Failed items", failed.Select(r => $"{r[0]}: {(errorColumn >= 0 ? r[errorColumn] : "failed")}"), "refusals", "No item failed.");
-        page.Section("summary", "Summary").Table(CsvHtml.Table("Items, failed ones first (summary.csv; each item's folder under items/ holds its report.html)", csv,
+        page.Section("summary", "Summary").Table(CsvHtml.Table("Items, failed ones first (summary.csv; each item's folder under items/ holds its report.html)", table,
             (_, all) => all.OrderBy(r => statusColumn >= 0 && r[statusColumn] == "ok" ? 1 : 0), maxRows: 2000));
         page.Section("tracks", "Lines over time").Figures(figures is null ? null : Tracks(directory, figures, page));
         page.Section("inputs", "Inputs").Table(EvidenceHtml.InputTable(status is null ? [] : HtmlPage.Describe(("manifest", status.Manifest))));

@@ -1,5 +1,5 @@
 using System.Globalization;
-using Microsoft.VisualBasic.FileIO;
+using OrderUnfold.Io;
 
 namespace OrderUnfold.Reports;
 
@@ -13,28 +13,17 @@ public static class CsvHtml
     /// <summary>The table of <paramref name="csv"/>; with <paramref name="order"/> the rows are reordered (it receives the
     /// header and the rows); at most <paramref name="maxRows"/> rows are shown, and the caption says so when more exist.</summary>
     public static HtmlTable Table(string caption, string csv, Func<string[], IEnumerable<string[]>, IEnumerable<string[]>>? order = null,
-        int maxRows = 500)
+        int maxRows = 500) => Table(caption, CsvTable.ReadText(csv), order, maxRows);
+
+    /// <summary>The table of a CSV text already read (<see cref="CsvTable.ReadText"/>); see the overload that reads it.</summary>
+    public static HtmlTable Table(string caption, (string[] Header, List<string[]> Rows) table,
+        Func<string[], IEnumerable<string[]>, IEnumerable<string[]>>? order = null, int maxRows = 500)
     {
-        var (header, rows) = Parse(csv);
+        var (header, rows) = table;
         var ordered = (order is null ? rows : order(header, rows)).ToList();
         var shown = ordered.Take(maxRows).Select(r => (IReadOnlyList<HtmlCell>)header.Select((h, i) => Cell(h, i < r.Length ? r[i] : "")).ToList()).ToList();
         var note = ordered.Count > maxRows ? $" (the first {maxRows} of {ordered.Count} rows; the CSV file holds them all)" : "";
         return new HtmlTable(caption + note, header.Select(Header).ToList(), shown);
-    }
-
-    /// <summary>The header and the rows of a CSV text (quoted fields allowed).</summary>
-    public static (string[] Header, List<string[]> Rows) Parse(string csv)
-    {
-        using var parser = new TextFieldParser(new StringReader(csv)) { TextFieldType = FieldType.Delimited, HasFieldsEnclosedInQuotes = true };
-        parser.SetDelimiters(",");
-        var header = parser.ReadFields() ?? [];
-        var rows = new List<string[]>();
-        while (!parser.EndOfData)
-        {
-            if (parser.ReadFields() is { } fields) rows.Add(fields);
-        }
-
-        return (header, rows);
     }
 
     /// <summary>A column name for people: words instead of underscores, the unit in brackets where the cells do not show it.</summary>

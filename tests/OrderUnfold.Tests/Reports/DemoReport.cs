@@ -26,7 +26,7 @@ public sealed class DemoReport : IDisposable
     /// <summary>The rows of its lines.csv, by column name.</summary>
     public IReadOnlyList<Dictionary<string, string>> LinesCsv()
     {
-        var (header, rows) = CsvHtml.Parse(File.ReadAllText(Path.Combine(Directory, "lines.csv")));
+        var (header, rows) = OrderUnfold.Io.CsvTable.ReadText(File.ReadAllText(Path.Combine(Directory, "lines.csv")));
         return rows.Select(r => header.Select((h, i) => (h, r[i])).ToDictionary(p => p.h, p => p.Item2)).ToList();
     }
 
