@@ -12,12 +12,17 @@ namespace OrderUnfold.Plotting;
 internal sealed record FigurePlan(string FileName, string Caption, FigureTopic Topic, (int Width, int Height) Size, Func<PlotModel>? Model,
     Func<byte[]>? ComposedPng = null, Func<IReadOnlyList<PlotModel>>? Panels = null, (int Width, int Height)? PanelSize = null)
 {
+    private PlotModel? _model;
+
+    /// <summary>The model, built on first use and kept, so the PNG and the SVG of one plan come from one build.</summary>
+    private PlotModel Built => _model ??= Model!();
+
     /// <summary>Writes the PNG into <paramref name="directory"/> atomically; returns its path.</summary>
     public string Save(string directory)
     {
         var path = Path.Combine(directory, FileName);
         if (ComposedPng is not null) AtomicFile.WriteAllBytes(path, ComposedPng());
-        else Figure.Save(path, Model!(), Size);
+        else Figure.Save(path, Built, Size);
         return path;
     }
 
@@ -34,6 +39,6 @@ internal sealed record FigurePlan(string FileName, string Caption, FigureTopic T
             yield break;
         }
 
-        yield return new SvgFigure(caption, Figure.RenderSvg(Model!(), Size.Width, Size.Height), Size.Width, Topic);
+        yield return new SvgFigure(caption, Figure.RenderSvg(Built, Size.Width, Size.Height), Size.Width, Topic);
     }
 }

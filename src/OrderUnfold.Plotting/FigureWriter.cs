@@ -7,14 +7,12 @@ namespace OrderUnfold.Plotting;
 public sealed class FigureWriter : IFigureWriter
 {
     /// <inheritdoc/>
-    public IReadOnlyList<string> WriteUnfold(UnfoldRun run, string directory)
+    public UnfoldFigures WriteUnfold(UnfoldRun run, string directory)
     {
         Directory.CreateDirectory(directory);
-        return UnfoldFigures(run).Select(f => f.Save(directory)).ToList();
+        var plans = Plans(run);
+        return new UnfoldFigures(plans.Select(f => f.Save(directory)).ToList(), plans.SelectMany(f => f.Svg()).ToList());
     }
-
-    /// <inheritdoc/>
-    public IReadOnlyList<SvgFigure> DrawUnfold(UnfoldRun run) => UnfoldFigures(run).SelectMany(f => f.Svg()).ToList();
 
     /// <inheritdoc/>
     public SvgFigure DrawTrack(TrackPlotInput input) =>
@@ -32,7 +30,7 @@ public sealed class FigureWriter : IFigureWriter
 
     /// <summary>An unfold's figures in the order of the report: each sweep's fit, the spectrum (linear and dB), the line
     /// groups, the axis calibrations.</summary>
-    private static List<FigurePlan> UnfoldFigures(UnfoldRun run)
+    private static List<FigurePlan> Plans(UnfoldRun run)
     {
         var figures = new List<FigurePlan>();
         var r = run.Result;

@@ -8,11 +8,9 @@ namespace OrderUnfold.Pipeline;
 public interface IFigureWriter
 {
     /// <summary>Draws an unfold run's figures (each sweep's fit, the spectrum, the line plots, the axis calibrations)
-    /// into <paramref name="directory"/>; returns the paths written.</summary>
-    IReadOnlyList<string> WriteUnfold(UnfoldRun run, string directory);
-
-    /// <summary>The same figures as <see cref="WriteUnfold"/>, as inline SVG for report.html (nothing is written).</summary>
-    IReadOnlyList<SvgFigure> DrawUnfold(UnfoldRun run);
+    /// into <paramref name="directory"/> as PNG, and the same figures as inline SVG for report.html (each figure built once
+    /// for both); returns the paths written and the SVGs.</summary>
+    UnfoldFigures WriteUnfold(UnfoldRun run, string directory);
 
     /// <summary>The track figure as inline SVG (nothing is written).</summary>
     SvgFigure DrawTrack(TrackPlotInput input);
@@ -50,6 +48,11 @@ public enum FigureTopic
     /// <summary>The calibration evidence (axis, finesse, peak shape).</summary>
     Calibration,
 }
+
+/// <summary>An unfold's figures as drawn: the PNG files written and the same figures as inline SVG.</summary>
+/// <param name="Paths">PNG files written, in the report's order.</param>
+/// <param name="Svg">The figures as inline SVG, in the same order (a composed figure gives one per panel).</param>
+public sealed record UnfoldFigures(IReadOnlyList<string> Paths, IReadOnlyList<SvgFigure> Svg);
 
 /// <summary>Lines of a time series: one point per line per item.</summary>
 /// <param name="Title">Plot title.</param>

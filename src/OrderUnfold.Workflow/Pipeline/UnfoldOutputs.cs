@@ -35,9 +35,10 @@ public static class UnfoldOutputs
         var report = Report(run, toolVersion);
         Text(OutputNames.Lines, LinesCsv(run, report));
         Text(OutputNames.Spectrum, SpectrumCsv(run));
-        if (figures is not null) written.AddRange(figures.WriteUnfold(run, directory));
+        var drawn = figures?.WriteUnfold(run, directory);
+        if (drawn is not null) written.AddRange(drawn.Paths);
         // the page people open: the same record as report.json, the figures inline as SVG (Reports/UnfoldHtml.cs)
-        written.Add(UnfoldHtml.Write(directory, report, figures?.DrawUnfold(run), staged));
+        written.Add(UnfoldHtml.Write(directory, report, drawn?.Svg, staged));
 
         // the report last: its presence means the run's outputs are complete
         Text(OutputNames.Report, OutputJson.Serialize(report, c => c.UnfoldReport));
