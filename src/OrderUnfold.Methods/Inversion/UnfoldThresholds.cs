@@ -45,6 +45,15 @@ public sealed record UnfoldThresholds
     /// a few dozen samples (common practice).</summary>
     public double PoorFitReducedChiSquare { get; init; } = 3;
 
+    /// <summary>Reduced χ² of the final fit of any sweep above which a run is refused (the model cannot explain the data:
+    /// a wrong FSR, a sweep assigned to the wrong instrument, a wrong finesse held fixed). A correct model with an honest
+    /// noise estimate gives about 1. Measured data never match the model exactly: at a signal-to-noise ratio of a few
+    /// hundred, an axis error of a tenth of a linewidth (a sparse calibration of a cubic piezo) or a baseline that drifts
+    /// along the sweep already gives 20–50 while the lines are right (field trace 06, simulated four-FSR sweeps), and the
+    /// run says so in a warning. A wrong FSR ratio or swapped files give 70 and more (ModelMismatchTests). The joint
+    /// rounds stop early on a fit that stays above it (<see cref="JointSolve"/>); the pipeline refuses such a fit.</summary>
+    public const double MismatchReducedChiSquare = 60;
+
     /// <summary>A line whose cluster starts or ends within this many bins of the grid's ends is said to sit at the edge
     /// of the window. Default 2: the cluster then touches the last bins, where a line outside the window would leave
     /// its trace.</summary>

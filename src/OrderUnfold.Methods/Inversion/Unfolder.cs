@@ -38,6 +38,7 @@ public static class Unfolder
         var joint = JointSolve.Run(sweeps, layout, search.OffsetsHz, gains, options, progress, cancellationToken);
         var nnls = joint.Nnls;
         if (nnls.Status != SolverStatus.Converged) warnings.Add($"NNLS did not converge: {nnls.Message} (KKT violation {nnls.KktViolation:G3})");
+        if (joint.StoppedUnexplained is { } stopped) warnings.Add(stopped);
 
         var fits = FitSweeps(sweeps, joint, options.Thresholds, warnings);
         var spectrum = nnls.Solution[..layout.Grid.Count];
@@ -151,7 +152,7 @@ public static class Unfolder
                 chi += r * r / (sweeps[k].NoiseSigma * sweeps[k].NoiseSigma);
             }
 
-            var dof = Math.Max(1, y.Length - 2 - nnls.ActiveCount / sweeps.Count);
+            var dof = SweepDegreesOfFreedom(y.Length, nnls.ActiveCount, sweeps.Count);
             chiTotal += chi;
             samples += y.Length;
             fits.Add(new SweepFit(sweeps[k].Name, sweeps[k].Instrument.Name, joint.OffsetsHz[k], joint.Gains[k],
@@ -162,6 +163,10 @@ public static class Unfolder
 
         return new SweepFits(fits, chiTotal, samples);
     }
+
+    /// <summary>Degrees of freedom of one sweep's fit: its samples less its gain and background and its share of the active
+    /// grid bins.</summary>
+    internal static int SweepDegreesOfFreedom(int samples, int activeCount, int sweepCount) => Math.Max(1, samples - 2 - activeCount / sweepCount);
 
     /// <summary>The lines relative to the strongest (the anchor: frequency 0, intensity 1), in frequency order; lines at the
     /// window's edge and an empty line list are named in warnings.</summary>

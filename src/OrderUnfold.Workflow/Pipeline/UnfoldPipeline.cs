@@ -24,13 +24,9 @@ public static class UnfoldPipeline
     /// <summary>Most grid lines reported unrefined when the refinement runs out of its budget; more are refused.</summary>
     public const int MaxUnrefinedLines = 40;
 
-    /// <summary>Reduced χ² of the final fit of any sweep above which the run is refused (the model cannot explain the data:
-    /// a wrong FSR, a sweep assigned to the wrong instrument, a wrong finesse held fixed). A correct model with an honest
-    /// noise estimate gives about 1. Measured data never match the model exactly: at a signal-to-noise ratio of a few
-    /// hundred, an axis error of a tenth of a linewidth (a sparse calibration of a cubic piezo) or a baseline that drifts
-    /// along the sweep already gives 20–50 while the lines are right (field trace 06, simulated four-FSR sweeps), and the
-    /// run says so in a warning. A wrong FSR ratio or swapped files give 70 and more (ModelMismatchTests).</summary>
-    public const double MismatchReducedChiSquare = 60;
+    /// <summary>Reduced χ² of the final fit of any sweep above which the run is refused; see
+    /// <see cref="UnfoldThresholds.MismatchReducedChiSquare"/> for the value and why.</summary>
+    public const double MismatchReducedChiSquare = UnfoldThresholds.MismatchReducedChiSquare;
 
     /// <summary>Reads a setup file and runs it.</summary>
     public static UnfoldRun Run(string setupPath, IProgress<string>? progress = null, CalibrationSet? reuse = null, CancellationToken cancellationToken = default) =>
