@@ -1,8 +1,10 @@
 using System.Security.Cryptography;
+using OrderUnfold.Analysis;
 using OrderUnfold.Calibration;
 using OrderUnfold.Instruments;
 using OrderUnfold.Inversion;
 using OrderUnfold.Io;
+using OrderUnfold.Numerics;
 using OrderUnfold.Units;
 
 namespace OrderUnfold.Pipeline;
@@ -23,6 +25,25 @@ public static class UnfoldPipeline
 
     /// <summary>Most grid lines reported unrefined when the refinement runs out of its budget; more are refused.</summary>
     public const int MaxUnrefinedLines = 40;
+
+    /// <summary>
+    /// CPU seconds of one run up to the end of the line fit: the line fit gets what the stages before it left, at most
+    /// its own budget (<see cref="RefineOptions.CpuBudgetSeconds"/>, 8 s) and at least <see cref="MinLineFitCpuSeconds"/>.
+    /// Chosen so that no unfold of up to two records of 50 000 samples takes more than 20 s of CPU with the default
+    /// settings, whatever the mismatch between setup and data (issue 15; measured in docs/performance.md with
+    /// scripts/mismatch-cpu-probe.sh: a cavity stated confocal instead of planar took 23 s, 14 of them before the line fit).
+    /// A line fit cut short ends as one that used up its own budget: the lines not yet refined keep their grid values with
+    /// widened uncertainties, or the run is refused when the grid fits poorly (<see cref="RunChecks.RefuseExhaustedBudget"/>).
+    /// </summary>
+    public const double RunCpuBudgetSeconds = 16;
+
+    /// <summary>The least CPU time the line fit gets however long the stages before it took (see
+    /// <see cref="RunCpuBudgetSeconds"/>).</summary>
+    public const double MinLineFitCpuSeconds = 2;
+
+    /// <summary>The line fit's CPU budget after <paramref name="usedSeconds"/> of the run.</summary>
+    public static double LineFitCpuSeconds(double usedSeconds) =>
+        Math.Clamp(RunCpuBudgetSeconds - usedSeconds, MinLineFitCpuSeconds, new RefineOptions().CpuBudgetSeconds);
 
     /// <summary>Reduced χ² of the final fit of any sweep above which the run is refused; see
     /// <see cref="UnfoldThresholds.MismatchReducedChiSquare"/> for the value and why.</summary>
@@ -49,6 +70,7 @@ public static class UnfoldPipeline
 
     private static UnfoldRun RunSetup(Setup setup, IProgress<string>? progress, CalibrationSet? reuse, CancellationToken cancellationToken)
     {
+        var cpuStart = WorkBudget.ThreadCpuSeconds();
         var setupFile = setup.Path is not null ? new[] { Describe("setup", setup.Path) } : [];
         var calibration = CalibrationStage.Run(setup, progress, reuse, cancellationToken);
         var segments = SourceSweeps.ReadFiles(setup, calibration.Settled.Instruments, progress, cancellationToken);
@@ -64,7 +86,8 @@ public static class UnfoldPipeline
 
         // a grid fit this poor cannot be polished into a right answer: refuse before spending the refinement's budget
         RunChecks.RefuseMismatch(grid.Result, sweeps, "grid", fsrRefined, setup.Path);
-        var lines = UnfoldStages.RefineLines(grid, options, setup.Solve, progress, cancellationToken);
+        var lineFitCpu = LineFitCpuSeconds(WorkBudget.ThreadCpuSeconds() - cpuStart);
+        var lines = UnfoldStages.RefineLines(grid, options, setup.Solve, lineFitCpu, progress, cancellationToken);
         RunChecks.RefuseExhaustedBudget(lines, grid, settled, setup.Path);
         RunChecks.RefuseMismatch(lines.Result, sweeps, lines.Refinement is null ? "grid" : "line", fsrRefined, setup.Path);
         if (lines.Refinement is { FellBackToGrid: false }) RunChecks.RefuseWorseThanGrid(grid.Result, lines.Result, setup.Path!);

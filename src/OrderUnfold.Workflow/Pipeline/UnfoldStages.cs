@@ -63,7 +63,7 @@ internal static class UnfoldStages
     /// when it fits as well (Pipeline/FewestLines.cs). Without the refinement nothing checks the orders: a window wider
     /// than the unambiguous range holds aliases, which a warning says.
     /// </summary>
-    public static LineStage RefineLines(GridStage grid, UnfoldOptions options, SolveOptions solve, IProgress<string>? progress,
+    public static LineStage RefineLines(GridStage grid, UnfoldOptions options, SolveOptions solve, double cpuBudgetSeconds, IProgress<string>? progress,
         CancellationToken cancellationToken)
     {
         var result = grid.Result;
@@ -83,6 +83,7 @@ internal static class UnfoldStages
             Bootstrap = solve.Bootstrap,
             MinSnr = solve.MinSnr,
             DoubtfulDeltaChiSquare = solve.DoubtfulDeltaChiSquare,
+            CpuBudgetSeconds = cpuBudgetSeconds,
         };
         if (FewestLines.Applies(grid.Sweeps, result, grid.Window))
         {
