@@ -15,7 +15,10 @@ namespace OrderUnfold.Inversion;
 /// 10⁶ bins over 2.5 THz every origin fitted the demo within 0.5 % in χ². So the search's cost does not grow with the
 /// window.</item>
 /// <item>Coarse: the candidates are the origins that put the reference's strongest line (the anchor, ν = 0) on one of
-/// the sweep's strongest folded peaks. They are ranked, all at once, by the energy of the joint back-projection
+/// the sweep's tallest folded peaks, or on one of its lower ones that is not the image of a taller peak through a known
+/// transverse family (as many again, the best scores first): lines that fold onto one peak of the reference, and so make
+/// it the tallest, can each be lower than other lines in the sweep's cavity (the demo recorded with 50 000 samples per
+/// record: the anchor's line was B's fifth tallest peak, and the unfold explained the sweeps with 427 lines). They are ranked, all at once, by the energy of the joint back-projection
 /// Σ_ν (A₀ᵀy₀)(ν)·(A_kᵀy_k)(ν; φ) over the sub-window, approximated by the folded profiles: the reference profile is laid
 /// over the sub-window, folded onto the sweep's FSR and cross-correlated with the sweep's profile by FFT, which scores
 /// all M origins of the sweep's periodic grid in O(M log M) (<see cref="Score"/>). The score orders the solves but does
@@ -155,8 +158,11 @@ public static class OffsetSearch
         {
             var inst = Sweep.Instrument;
             var count = _settings.Options.OffsetCandidates;
-            var ranked = Candidates(score, inst.FsrHz, inst.LinewidthHz, foldedPeaks.Take(count).Select(u => -u), count);
-            var candidates = ranked.Select(c => c.Phi).ToList();
+            // the pairings with the sweep's tallest folded peaks, and as many again of its other peaks, the best scores first
+            var tallest = Math.Min(count, foldedPeaks.Count);
+            var ranked = Candidates(score, inst.FsrHz, inst.LinewidthHz, foldedPeaks.Select(u => -u), int.MaxValue);
+            var extra = ranked.Where(c => c.Rank >= tallest && !IsFamilyImage(foldedPeaks, c.Rank, inst)).Take(count);
+            var candidates = ranked.Where(c => c.Rank < tallest).Concat(extra).OrderByDescending(c => c.Score).Select(c => c.Phi).ToList();
             if (candidates.Count == 0) candidates.Add(0);
             var (best, full) = Screen(candidates, trials);
             var (phiBest, chiBest) = Refine(best);
@@ -290,25 +296,47 @@ public static class OffsetSearch
         return FoldedProfile.CrossCorrelation(laid, profile);
     }
 
+    /// <summary>True when folded peak <paramref name="index"/> lies a known transverse family's offset (either way round the
+    /// FSR, within a linewidth) from a taller folded peak: paired with the anchor it would put the anchor's line on that
+    /// family's resonance, which the model of the pair solve can fit better than the right origin (a family 21 % tall at
+    /// 0.064 FSR did so in CalibrationFamiliesTests).</summary>
+    private static bool IsFamilyImage(IReadOnlyList<double> foldedPeaks, int index, Instrument inst)
+    {
+        var fsr = inst.FsrHz;
+        for (var q = 0; q < index; q++)
+        {
+            var d = SweepOperator.PositiveMod(foldedPeaks[index] - foldedPeaks[q], fsr);
+            foreach (var f in inst.Families)
+            {
+                var o = SweepOperator.PositiveMod(f.GouyOffsetFsr * fsr, fsr);
+                if (Math.Abs(d - o) < inst.LinewidthHz || Math.Abs(fsr - d - o) < inst.LinewidthHz || Math.Abs(d - o + fsr) < inst.LinewidthHz
+                    || Math.Abs(d + o - fsr) < inst.LinewidthHz) return true;
+            }
+        }
+
+        return false;
+    }
+
     /// <summary>
-    /// Candidate origins, best score first, at most <paramref name="count"/>: the pairings <paramref name="pairings"/> (origins
+    /// Candidate origins, best score first, at most <paramref name="count"/>, with each one's place in <paramref name="pairings"/>
+    /// (Rank): the pairings <paramref name="pairings"/> (origins
     /// that put the anchor line, ν = 0, on one of the sweep's folded peaks), each scored by the highest value of
     /// <paramref name="score"/> within half a linewidth of it. The score alone cannot choose among origins that differ by a
     /// multiple of the reference's FSR: they describe the same spectrum translated by that multiple (the reference sweep
     /// cannot tell), and only the pairing with the anchor fixes the translation.
     /// </summary>
-    public static List<(double Phi, double Score)> Candidates(double[] score, double fsrHz, double linewidthHz, IEnumerable<double> pairings, int count)
+    public static List<(double Phi, double Score, int Rank)> Candidates(double[] score, double fsrHz, double linewidthHz, IEnumerable<double> pairings, int count)
     {
         var m = score.Length;
         var delta = fsrHz / m;
         var radius = Math.Max(0, (int)Math.Floor(linewidthHz / 2 / delta));
-        var list = new List<(double Phi, double Score)>();
+        var list = new List<(double Phi, double Score, int Rank)>();
         foreach (var p in pairings)
         {
             var centre = (int)Math.Round(SweepOperator.PositiveMod(p, fsrHz) / delta);
             var best = double.NegativeInfinity;
             for (var d = -radius; d <= radius; d++) best = Math.Max(best, score[(((centre + d) % m) + m) % m]);
-            list.Add((p, best));
+            list.Add((p, best, list.Count));
         }
 
         return list.OrderByDescending(c => c.Score).Take(Math.Max(1, count)).ToList();

@@ -20,7 +20,8 @@ public sealed record UnfoldOptions
     /// <summary>Lines below this signal-to-noise ratio are dropped.</summary>
     public double MinSnr { get; init; } = 5.0;
 
-    /// <summary>Candidate offsets tried per sweep (its strongest folded peaks).</summary>
+    /// <summary>Candidate offsets per sweep: the pairings of the anchor with this many of its tallest folded peaks, and with
+    /// at most this many of its other peaks, the best scores first (<see cref="OffsetSearch"/>).</summary>
     public int OffsetCandidates { get; init; } = 4;
 
     /// <summary>Most rounds of gain and offset refit after the first joint solve (stops earlier when settled).</summary>
