@@ -14,7 +14,10 @@ namespace OrderUnfold.Pipeline;
 internal static class RunChecks
 {
     /// <summary>A model that cannot explain a sweep at all is not reported as a result: names the worst sweep (reduced χ²
-    /// above <see cref="UnfoldPipeline.MismatchReducedChiSquare"/>) and the likely causes.</summary>
+    /// above <see cref="UnfoldPipeline.MismatchReducedChiSquare"/>) and the likely causes. Two causes are told from the
+    /// sweep itself before the setup is blamed: a misfit held by a few samples (<see cref="GlitchShare"/>: a glitch or a
+    /// spike in the record, which no FSR explains) and peaks sampled too coarsely to be placed
+    /// (<see cref="UndersampledSamplesPerLinewidth"/>).</summary>
     public static void RefuseMismatch(UnfoldResult r, IReadOnlyList<CalibratedSweep> sweeps, string stage, bool fsrRefined, string? setupPath)
     {
         var worst = Enumerable.Range(0, r.Sweeps.Count).MaxBy(k => r.Sweeps[k].ReducedChiSquare);
@@ -22,13 +25,64 @@ internal static class RunChecks
         var fit = r.Sweeps[worst];
         var sweep = sweeps[worst];
         var others = r.Sweeps.Where(f => f.ReducedChiSquare > UnfoldPipeline.MismatchReducedChiSquare).Select(f => f.Name).Distinct().ToList();
-        throw new InputException(
-            $"reduced χ² {fit.ReducedChiSquare:F0} on sweep {fit.Name} (instrument '{fit.Instrument}')" +
-            (others.Count > 1 ? $" and {others.Count - 1} other sweep(s)" : "") +
-            $" after the {stage} fit ({r.Lines.Count} line(s)): the model cannot explain the data, so no line list is reported. " +
-            $"The stated FSR of '{fit.Instrument}' ({Quantity.FormatFrequency(sweep.Instrument.FsrHz, 6)}) or the sweep-to-instrument assignment (which file was taken with which cavity) is probably wrong" +
+        var head = $"reduced χ² {fit.ReducedChiSquare:F0} on sweep {fit.Name} (instrument '{fit.Instrument}')" +
+                   (others.Count > 1 ? $" and {others.Count - 1} other sweep(s)" : "") +
+                   $" after the {stage} fit ({r.Lines.Count} line(s)): the model cannot explain the data, so no line list is reported. ";
+        if (Glitch(fit, sweep) is { } glitch) throw new InputException(head + glitch, setupPath);
+        var perLinewidth = SamplesPerLinewidth(sweep);
+        throw new InputException(head +
+            (perLinewidth < UndersampledSamplesPerLinewidth
+                ? $"The sweep has {perLinewidth:F1} samples per linewidth of '{fit.Instrument}' ({Quantity.FormatFrequency(sweep.Instrument.LinewidthHz)}): its peaks are sampled too coarsely to be placed, which alone can do this; record more samples per sweep or sweep more slowly. Otherwise, the "
+                : "The ") +
+            $"stated FSR of '{fit.Instrument}' ({Quantity.FormatFrequency(sweep.Instrument.FsrHz, 6)}) or the sweep-to-instrument assignment (which file was taken with which cavity) is probably wrong" +
             (fsrRefined ? ", even after the FSR ratio was refined from the data" : "") +
             $"; a noise σ far below the real noise would also do this (σ used: {sweep.NoiseSigma:G3})", setupPath);
+    }
+
+    /// <summary>Share of a sweep's χ² that its <see cref="GlitchSamples"/> largest residuals must hold for the misfit to be
+    /// named a glitch: more than half. A wrong FSR, a wrong assignment or a wrong finesse spread the misfit over every
+    /// peak of the sweep, tens of samples at least (chosen here, not from a reference).</summary>
+    public const double GlitchShare = 0.5;
+
+    /// <summary>Residuals counted by <see cref="GlitchShare"/>.</summary>
+    public const int GlitchSamples = 3;
+
+    /// <summary>Fewer samples per linewidth than this and a sweep's peaks cannot be placed well enough for the model (a peak
+    /// then falls between samples; common practice asks for several samples across a peak's width).</summary>
+    public const double UndersampledSamplesPerLinewidth = 2;
+
+    /// <summary>The misfit explained as a glitch when the largest few residuals hold most of χ², or null.</summary>
+    private static string? Glitch(SweepFit fit, CalibratedSweep sweep)
+    {
+        var y = sweep.Signal;
+        if (fit.Model.Length != y.Length || y.Length < 10 * GlitchSamples || !(sweep.NoiseSigma > 0)) return null;
+        var squares = new double[y.Length];
+        var total = 0.0;
+        for (var i = 0; i < y.Length; i++)
+        {
+            var z = (y[i] - fit.Model[i]) / sweep.NoiseSigma;
+            squares[i] = z * z;
+            total += squares[i];
+        }
+
+        var order = Enumerable.Range(0, y.Length).OrderByDescending(i => squares[i]).Take(GlitchSamples).ToList();
+        var share = order.Sum(i => squares[i]) / total;
+        if (!(share > GlitchShare)) return null;
+        var largest = order[0];
+        return $"{GlitchSamples} of its {y.Length} samples hold {100 * share:F0} % of that χ²; the largest, sample {largest + 1} of the sweep " +
+               $"(value {y[largest]:G6}, the model {fit.Model[largest]:G6}), lies {Math.Sqrt(squares[largest]):G3} σ from the model: a glitch or spike in the record, " +
+               "which no FSR or line explains. Remove or repair those samples (or cut the sweep before them) and run again.";
+    }
+
+    /// <summary>Median number of samples per linewidth along a sweep's calibrated axis.</summary>
+    internal static double SamplesPerLinewidth(CalibratedSweep sweep)
+    {
+        var steps = new List<double>(sweep.ScanHz.Length);
+        for (var i = 1; i < sweep.ScanHz.Length; i++) steps.Add(Math.Abs(sweep.ScanHz[i] - sweep.ScanHz[i - 1]));
+        if (steps.Count == 0) return double.PositiveInfinity;
+        steps.Sort();
+        var median = steps[steps.Count / 2];
+        return median > 0 ? sweep.Instrument.LinewidthHz / median : double.PositiveInfinity;
     }
 
     /// <summary>

@@ -1,4 +1,5 @@
 using OrderUnfold.Inversion;
+using OrderUnfold.Io;
 using OrderUnfold.Pipeline;
 using OrderUnfold.Simulation;
 using OrderUnfold.Tests.Simulation;
@@ -36,6 +37,11 @@ public class WindowWideningMismatchTests
         Assert.Null(finding);
         Assert.Equal(2, rounds);
         Assert.Contains(result.Warnings, w => w.StartsWith("joint rounds stopped", StringComparison.Ordinal));
+        // and the refusal names the glitch, with the sample and its value, instead of blaming the FSR
+        var e = Assert.Throws<InputException>(() => RunChecks.RefuseMismatch(result, sweeps, "grid", false, "setup.toml"));
+        Assert.Contains("glitch or spike", e.Message);
+        Assert.Contains($"sample {signal.Length / 3 + 1} of the sweep", e.Message);
+        Assert.DoesNotContain("stated FSR", e.Message);
     }
 
     /// <summary>The stopping rule itself: a fit stays above the threshold at the last round's rate, or does not.</summary>
