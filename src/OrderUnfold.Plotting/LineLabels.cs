@@ -51,6 +51,21 @@ internal static class LineLabels
         return labels;
     }
 
+    /// <summary>How many labels fit side by side across the plot (<paramref name="xLow"/>…<paramref name="xHigh"/>, axis
+    /// units): the plot width over one label's width (as <see cref="Place"/> spaces them), at least one.</summary>
+    public static int Capacity(List<(double X, double Y, LineMark Line)> labels, double spanUnits, double xLow, double xHigh)
+    {
+        var dx = LabelWidth(labels, spanUnits);
+        return Math.Max(1, (int)Math.Floor((xHigh - xLow) / dx));
+    }
+
+    /// <summary>Horizontal room one label takes (axis units), at least <see cref="ClearanceX"/> of the span.</summary>
+    private static double LabelWidth(List<(double X, double Y, LineMark Line)> labels, double spanUnits)
+    {
+        var widest = labels.Count == 0 ? 0 : labels.Max(l => l.Line.Label.Length);
+        return Math.Max(spanUnits, 1e-12) * Math.Max(ClearanceX, (widest + 1) * CharWidth);
+    }
+
     /// <summary>
     /// Adds one text label above each line marker. Lines closer together than a label width (at least
     /// <see cref="ClearanceX"/> of the span) form a group; a lone line gets its label straight above the marker, a group
@@ -60,8 +75,7 @@ internal static class LineLabels
     public static double Place(PlotModel model, List<(double X, double Y, LineMark Line)> labels, double spanUnits, double yMax,
         double xLow, double xHigh)
     {
-        var widest = labels.Count == 0 ? 0 : labels.Max(l => l.Line.Label.Length);
-        var dx = Math.Max(spanUnits, 1e-12) * Math.Max(ClearanceX, (widest + 1) * CharWidth);
+        var dx = LabelWidth(labels, spanUnits);
         var lift = yMax * LiftY;
         var sorted = labels.OrderBy(l => l.X).ToList();
         var top = 0.0;

@@ -48,7 +48,17 @@ internal static class SpectrumPlot
         var labels = LineLabels.AddMarkers(model, lines, X, scale, ref yMin, ref yMax);
         if (yMax <= 0) yMax = 1;
         var xs = input.GridHz.Where(double.IsFinite).Select(X).Concat(labels.Select(l => l.X)).ToList();
-        var labelTop = LineLabels.Place(model, labels, scale.FromHertz(span), yMax, xs.Count > 0 ? xs.Min() : 0, xs.Count > 0 ? xs.Max() : 1);
+        var (xLow, xHigh) = xs.Count > 0 ? (xs.Min(), xs.Max()) : (0, 1);
+        // more labels than fit across the plot would be spread far beyond it (the axis followed them: 427 lines of a
+        // misfit stretched a 24 GHz window to 720 GHz); the strongest lines keep theirs, and the subtitle says so
+        var capacity = LineLabels.Capacity(labels, scale.FromHertz(span), xLow, xHigh);
+        if (labels.Count > capacity)
+        {
+            labels = labels.OrderByDescending(l => l.Line.Intensity).Take(capacity).ToList();
+            model.Subtitle += $"; labels on the {capacity} strongest";
+        }
+
+        var labelTop = LineLabels.Place(model, labels, scale.FromHertz(span), yMax, xLow, xHigh);
         // Headroom for the line labels above the tallest marker.
         model.Axes.Add(Figure.Axis(AxisPosition.Left, "intensity (relative to strongest line)",
             minimum: yMin < 0 ? yMin * 1.1 : 0, maximum: Math.Max(yMax, labelTop) * 1.18));

@@ -157,6 +157,25 @@ public sealed class PlotsTests : IDisposable
     }
 
     [Fact]
+    public void Spectrum_MoreLinesThanLabelsFitLabelOnlyTheStrongestAndKeepTheAxis()
+    {
+        // 400 lines across the window (invented, as a misfit's grid has them): the labels that fit across the plot go to
+        // the strongest lines, no leader leaves the window, and the subtitle says how many were labelled
+        var input = SimulatedPlotInputs.Spectrum();
+        var lo = input.GridHz[0];
+        var hi = input.GridHz[^1];
+        var lines = Enumerable.Range(0, 400).Select(k => new LineMark(lo + (hi - lo) * (k + 0.5) / 400, 0.01 + 0.002 * (k % 97), $"L{k}")).ToList();
+        var model = SpectrumPlot.Build(input with { Lines = lines });
+        var texts = model.Annotations.OfType<TextAnnotation>().ToList();
+        Assert.InRange(texts.Count, 10, 60);
+        Assert.Contains($"labels on the {texts.Count} strongest", model.Subtitle);
+        var weakestLabelled = lines.Where(l => texts.Any(t => t.Text == l.Label)).Min(l => l.Intensity);
+        Assert.DoesNotContain(lines, l => l.Intensity > weakestLabelled && texts.All(t => t.Text != l.Label));
+        foreach (var leader in model.Series.OfType<LineSeries>().Where(s => !s.RenderInLegend))
+            Assert.All(leader.Points, p => Assert.InRange(p.X, lo / 1e9 - 1e-9, hi / 1e9 + 1e-9));
+    }
+
+    [Fact]
     public void Spectrum_CrowdedLabelsAreSpreadWithLeaders()
     {
         var input = SimulatedPlotInputs.Spectrum();
