@@ -18,13 +18,13 @@ namespace OrderUnfold.Inversion;
 /// the sweep's tallest folded peaks, or on one of its lower ones that is not the image of a taller peak through a known
 /// transverse family (as many again, the best scores first): lines that fold onto one peak of the reference, and so make
 /// it the tallest, can each be lower than other lines in the sweep's cavity (the demo recorded with 50 000 samples per
-/// record: the anchor's line was B's fifth tallest peak, and the unfold explained the sweeps with 427 lines). They are ranked, all at once, by the energy of the joint back-projection
-/// Σ_ν (A₀ᵀy₀)(ν)·(A_kᵀy_k)(ν; φ) over the sub-window, approximated by the folded profiles: the reference profile is laid
-/// over the sub-window, folded onto the sweep's FSR and cross-correlated with the sweep's profile by FFT, which scores
-/// all M origins of the sweep's periodic grid in O(M log M) (<see cref="Score"/>). The score orders the solves but does
-/// not choose: origins that differ by a multiple of the reference's FSR describe the same spectrum translated (only the
-/// pairing with the anchor fixes the translation), and on a many-line comb (field trace 08) chance coincidences lift
-/// wrong origins above the right one.</item>
+/// record: the anchor's line was B's fifth tallest peak, and the unfold explained the sweeps with 427 lines). They are
+/// ranked, all at once, by the energy of the joint back-projection Σ_ν (A₀ᵀy₀)(ν)·(A_kᵀy_k)(ν; φ) over the sub-window,
+/// approximated by the folded profiles: the reference profile is laid over the sub-window, folded onto the sweep's FSR
+/// and cross-correlated with the sweep's profile by FFT, which scores all M origins of the sweep's periodic grid in
+/// O(M log M) (<see cref="Score"/>). The score orders the solves but does not choose: origins that differ by a multiple
+/// of the reference's FSR describe the same spectrum translated (only the pairing with the anchor fixes the translation),
+/// and on a many-line comb (field trace 08) chance coincidences lift wrong origins above the right one.</item>
 /// <item>Fine: the best-ranked candidate gets a full pair solve (L1-weighted NNLS of both sweeps on a grid twice as coarse,
 /// with a heavier L1 weight so that a slightly misaligned model does not pull in hundreds of small bins); the others a
 /// short solve first, and only those whose χ² is then within <see cref="ScreenChiSquareFactor"/> of the best one the full
@@ -303,14 +303,21 @@ public static class OffsetSearch
     private static bool IsFamilyImage(IReadOnlyList<double> foldedPeaks, int index, Instrument inst)
     {
         var fsr = inst.FsrHz;
+        // distance of two points on the circle of one FSR
+        double Apart(double a, double b)
+        {
+            var d = SweepOperator.PositiveMod(a - b, fsr);
+            return Math.Min(d, fsr - d);
+        }
+
         for (var q = 0; q < index; q++)
         {
-            var d = SweepOperator.PositiveMod(foldedPeaks[index] - foldedPeaks[q], fsr);
+            var d = foldedPeaks[index] - foldedPeaks[q];
             foreach (var f in inst.Families)
             {
-                var o = SweepOperator.PositiveMod(f.GouyOffsetFsr * fsr, fsr);
-                if (Math.Abs(d - o) < inst.LinewidthHz || Math.Abs(fsr - d - o) < inst.LinewidthHz || Math.Abs(d - o + fsr) < inst.LinewidthHz
-                    || Math.Abs(d + o - fsr) < inst.LinewidthHz) return true;
+                // the family's resonances sit its offset after TEM00; the scan direction decides which way round they appear
+                var o = f.GouyOffsetFsr * fsr;
+                if (Apart(d, o) < inst.LinewidthHz || Apart(d, -o) < inst.LinewidthHz) return true;
             }
         }
 
