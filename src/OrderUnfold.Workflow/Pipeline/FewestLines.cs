@@ -51,12 +51,27 @@ public static class FewestLines
     /// <summary>Whether the evidence calls for the stage: two distinct cavities, a widened window, and far more grid lines
     /// than either cavity shows folded peaks.</summary>
     public static bool Applies(IReadOnlyList<CalibratedSweep> sweeps, UnfoldResult grid, WindowFinding? window) =>
-        window is { StillWider: false } && grid.OrdersResolved && sweeps.Select(s => s.Instrument.FsrHz).Distinct().Count() == 2 && grid.Lines.Count > 8;
+        window is { StillWider: false } && TwoCavities(sweeps, grid) && grid.Lines.Count > 8;
+
+    /// <summary>
+    /// Whether the stage is tried on a window that was not widened: two distinct cavities and a grid of more lines than a
+    /// line fit checks (<see cref="UnfoldPipeline.MaxUnrefinedLines"/>). At tens of thousands of samples per record and a
+    /// signal-to-noise ratio of a few hundred, the grid's small misfit of a line between two bins (two Airy peaks a quarter
+    /// linewidth apart instead of one) lies far above the noise, and the grid explains it with small bins at alias
+    /// positions: the demo recorded with 50 000–80 000 samples per record (simulated) gave 63–181 grid lines, the six true
+    /// ones among them, and the line fit of them all ran out of its budget. The fewest-lines explanation replaces the grid
+    /// only when it fits at least as well.
+    /// </summary>
+    public static bool AppliesToCrowdedGrid(IReadOnlyList<CalibratedSweep> sweeps, UnfoldResult grid, WindowFinding? window) =>
+        window is null && TwoCavities(sweeps, grid) && grid.Lines.Count > UnfoldPipeline.MaxUnrefinedLines;
+
+    private static bool TwoCavities(IReadOnlyList<CalibratedSweep> sweeps, UnfoldResult grid) =>
+        grid.OrdersResolved && sweeps.Select(s => s.Instrument.FsrHz).Distinct().Count() == 2;
 
     /// <summary>Proposes the fewest-lines explanation, refines it and keeps it when it fits at least as well as the grid.</summary>
     public static (UnfoldResult Result, RefinementDiagnostics? Refinement, FewestLinesFinding Finding) Run(
         IReadOnlyList<CalibratedSweep> sweeps, UnfoldResult grid, UnfoldOptions options, double halfWidthHz, RefineOptions refineOptions,
-        IProgress<string>? progress, CancellationToken cancellationToken = default)
+        IProgress<string>? progress, CancellationToken cancellationToken = default, bool widened = true)
     {
         progress?.Report($"fewest lines: the grid solution has {grid.Lines.Count} lines; pairing the cavities' folded lines");
         var proposed = Propose(sweeps, grid, options, halfWidthHz, progress, cancellationToken);
@@ -70,8 +85,10 @@ public static class FewestLines
                 diag.BudgetExhausted is not null ? $"its refinement ran out of its budget ({diag.BudgetExhausted})" : $"it fits worse (reduced χ² {chi:F3} against {grid.ReducedChiSquare:F3})"));
         var reason = $"{refined.Lines.Count} line(s) fit the sweeps as well as the grid's {grid.Lines.Count} (reduced χ² {chi:F3} against {grid.ReducedChiSquare:F3}): the explanation with fewer lines is kept";
         var warnings = refined.Warnings.ToList();
-        warnings.Add($"the grid solution on the widened window was a mixture of {grid.Lines.Count} lines that two cavities cannot tell from fewer; " +
-                     $"pairing the folded lines of the two cavities gave {proposed.Lines.Count}, and {reason}; the spectrum output shows these lines, not the grid mixture");
+        warnings.Add((widened
+                         ? $"the grid solution on the widened window was a mixture of {grid.Lines.Count} lines that two cavities cannot tell from fewer; "
+                         : $"the grid solution held {grid.Lines.Count} lines, more than a line fit checks ({UnfoldPipeline.MaxUnrefinedLines}); ") +
+                     $"pairing the folded lines of the two cavities gave {proposed.Lines.Count}, and {reason}; the spectrum output shows these lines, not the grid's");
         return (refined with { Warnings = warnings }, diag, new FewestLinesFinding(grid.Lines.Count, proposed.Lines.Count, grid.ReducedChiSquare, chi, true, reason));
     }
 

@@ -27,15 +27,16 @@ public static class UnfoldPipeline
     public const int MaxUnrefinedLines = 40;
 
     /// <summary>
-    /// CPU seconds of one run up to the end of the line fit: the line fit gets what the stages before it left, at most
+    /// CPU seconds of one run up to the end of the line stage: the line stage gets what the stages before it left, at most
     /// its own budget (<see cref="RefineOptions.CpuBudgetSeconds"/>, 8 s) and at least <see cref="MinLineFitCpuSeconds"/>.
     /// Chosen so that no unfold of up to two records of 50 000 samples takes more than 20 s of CPU with the default
     /// settings, whatever the mismatch between setup and data (issue 15; measured in docs/performance.md with
-    /// scripts/mismatch-cpu-probe.sh: a cavity stated confocal instead of planar took 23 s, 14 of them before the line fit).
+    /// scripts/mismatch-cpu-probe.sh: a cavity stated confocal instead of planar took 23 s, 14 of them before the line fit;
+    /// a line stage that tries the fewest-lines explanation first shares this budget with it, UnfoldStages.RefineLines).
     /// A line fit cut short ends as one that used up its own budget: the lines not yet refined keep their grid values with
     /// widened uncertainties, or the run is refused when the grid fits poorly (<see cref="RunChecks.RefuseExhaustedBudget"/>).
     /// </summary>
-    public const double RunCpuBudgetSeconds = 16;
+    public const double RunCpuBudgetSeconds = 15;
 
     /// <summary>The least CPU time the line fit gets however long the stages before it took (see
     /// <see cref="RunCpuBudgetSeconds"/>).</summary>

@@ -1,6 +1,7 @@
 using OrderUnfold.Analysis;
 using OrderUnfold.Calibration;
 using OrderUnfold.Inversion;
+using OrderUnfold.Numerics;
 using OrderUnfold.Io;
 using OrderUnfold.Units;
 
@@ -57,11 +58,17 @@ internal static class UnfoldStages
         return new GridStage(sweeps, widened, null, window, []);
     }
 
+    /// <summary>CPU seconds the line fit keeps however much of the stage's budget a fewest-lines attempt used (its grid
+    /// lines then keep their values with widened uncertainties, or a poor grid is refused).</summary>
+    public const double MinLineFitAfterFewestSeconds = 1;
+
     /// <summary>
-    /// The off-grid line refinement against the raw sweeps when refine = true. On a widened two-cavity window the grid's
-    /// L1 cannot tell the true lines from mixtures of them, so the explanation with the fewest lines is tried first and kept
-    /// when it fits as well (Pipeline/FewestLines.cs). Without the refinement nothing checks the orders: a window wider
-    /// than the unambiguous range holds aliases, which a warning says.
+    /// The off-grid line refinement against the raw sweeps when refine = true, within <paramref name="cpuBudgetSeconds"/>.
+    /// On a widened two-cavity window the grid's L1 cannot tell the true lines from mixtures of them, and a grid of more
+    /// lines than a line fit checks is mostly small alias bins (FewestLines.AppliesToCrowdedGrid), so there the explanation
+    /// with the fewest lines is tried first and kept when it fits as well (Pipeline/FewestLines.cs); the line fit after it
+    /// gets what the attempt left of the budget. Without the refinement nothing checks the orders: a window wider than the
+    /// unambiguous range holds aliases, which a warning says.
     /// </summary>
     public static LineStage RefineLines(GridStage grid, UnfoldOptions options, SolveOptions solve, double cpuBudgetSeconds, IProgress<string>? progress,
         CancellationToken cancellationToken)
@@ -85,13 +92,19 @@ internal static class UnfoldStages
             DoubtfulDeltaChiSquare = solve.DoubtfulDeltaChiSquare,
             CpuBudgetSeconds = cpuBudgetSeconds,
         };
-        if (FewestLines.Applies(grid.Sweeps, result, grid.Window))
+        var widened = FewestLines.Applies(grid.Sweeps, result, grid.Window);
+        if (widened || FewestLines.AppliesToCrowdedGrid(grid.Sweeps, result, grid.Window))
         {
-            var (fewest, fewestRefinement, finding) = FewestLines.Run(grid.Sweeps, result, options, grid.Window!.HalfWidthHz, refineOptions, progress, cancellationToken);
+            var half = grid.Window?.HalfWidthHz ?? result.Grid.Count * result.Grid.StepHz / 2;
+            var cpu0 = WorkBudget.ThreadCpuSeconds();
+            var (fewest, fewestRefinement, finding) = FewestLines.Run(grid.Sweeps, result, options, half, refineOptions, progress, cancellationToken, widened);
             progress?.Report($"fewest lines: {(finding.Kept ? "kept" : "not kept")}: {finding.Reason}");
             if (finding.Kept && fewestRefinement is not null) return new LineStage(fewest, fewestRefinement, warnings);
             if (finding.Kept) result = fewest;
-            else warnings.Add($"a fewest-lines explanation of the widened window ({finding.Proposed} line(s)) was tried and not kept: {finding.Reason}");
+            else warnings.Add($"a fewest-lines explanation {(widened ? "of the widened window" : "of the crowded grid")} ({finding.Proposed} line(s)) was tried and not kept: {finding.Reason}");
+            // the line fit shares the stage's budget with the attempt (at least MinLineFitAfterFewestSeconds)
+            var spent = WorkBudget.ThreadCpuSeconds() - cpu0;
+            refineOptions = refineOptions with { CpuBudgetSeconds = Math.Max(MinLineFitAfterFewestSeconds, cpuBudgetSeconds - spent) };
         }
 
         var (refined, refinement) = LineRefiner.Refine(grid.Sweeps, result, refineOptions, progress, cancellationToken);

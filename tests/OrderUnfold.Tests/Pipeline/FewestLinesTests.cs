@@ -60,4 +60,16 @@ public sealed class FewestLinesTests(ITestOutputHelper output)
         Assert.False(FewestLines.Applies(sweeps.Where(s => s.Instrument.Name == "A").ToList(), many, widened)); // one cavity
         Assert.False(FewestLines.Applies(sweeps, many with { Lines = many.Lines.Take(5).ToList() }, widened)); // few lines
     }
+
+    [Fact]
+    public void A_grid_of_more_lines_than_a_line_fit_checks_tries_the_stage_without_widening()
+    {
+        var (sweeps, _) = Scenario();
+        var grid = Unfolder.Run(sweeps, new UnfoldOptions { WindowStartHz = -150e9, WindowEndHz = 150e9 });
+        var crowded = grid with { Lines = Enumerable.Range(0, UnfoldPipeline.MaxUnrefinedLines + 1).Select(i => new UnfoldedLine(i * 1e9, 0.5, 0.5, 100, i, i)).ToList(), OrdersResolved = true };
+        Assert.True(FewestLines.AppliesToCrowdedGrid(sweeps, crowded, null));
+        Assert.False(FewestLines.AppliesToCrowdedGrid(sweeps, crowded with { Lines = crowded.Lines.Skip(1).ToList() }, null)); // 40 lines: the line fit checks them
+        Assert.False(FewestLines.AppliesToCrowdedGrid(sweeps, crowded, new WindowFinding("simulated", -40e9, 40e9, 150e9, [], false))); // widened: Applies decides
+        Assert.False(FewestLines.AppliesToCrowdedGrid(sweeps.Where(s => s.Instrument.Name == "A").ToList(), crowded, null)); // one cavity
+    }
 }

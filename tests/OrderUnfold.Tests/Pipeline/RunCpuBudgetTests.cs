@@ -14,8 +14,8 @@ public class RunCpuBudgetTests
 {
     [Theory]
     [InlineData(0.5, 8)] // a quick grid: the line fit's own budget
-    [InlineData(10, 6)] // what is left of 16 s
-    [InlineData(14, 2)]
+    [InlineData(10, 5)] // what is left of 15 s
+    [InlineData(14, 2)] // 1 s left: the floor
     [InlineData(40, 2)] // never less than the floor
     public void TheLineFitGetsWhatTheRunLeft(double usedSeconds, double expected)
     {
