@@ -6,10 +6,10 @@ namespace OrderUnfold.Tests.Pipeline;
 
 /// <summary>
 /// The demo scenario recorded with 50 000 samples per record and no digitiser quantisation (SIMULATED DATA,
-/// <c>orderunfold simulate --samples 50000 --bits 0</c>): about 30 samples per linewidth at a signal-to-noise ratio of 250,
-/// where the grid's own misfit of a line between two bins is far above the noise. The grid held 121 lines (the six true
-/// ones and alias bins below 0.6 % of the strongest) and the line fit of them all ran out of its budget, so the run was
-/// refused; the fewest-lines explanation of the crowded grid gives the six lines.
+/// <c>orderunfold simulate --samples 50000 --bits 0</c>): about 30 samples per linewidth at a signal-to-noise ratio of
+/// 250, where the grid's own misfit of a line between two bins is far above the noise. The grid held 121 candidate lines
+/// (the six true ones and alias bins below 0.6 % of the strongest; 63 above min_snr) and their line fit ran out of its
+/// budget, so the run was refused; the fewest-lines explanation of the crowded grid gives the six lines.
 /// </summary>
 public sealed class LongRecordTests : IDisposable
 {
