@@ -1,4 +1,3 @@
-using System.Globalization;
 using OrderUnfold.Calibration;
 using OrderUnfold.Instruments;
 using OrderUnfold.Io;
@@ -12,23 +11,13 @@ namespace OrderUnfold.Tests.Pipeline;
 /// <c>orderunfold simulate --samples 1500</c>: five FSRs a ramp direction, about one sample per 10 MHz linewidth) cannot be
 /// fitted, and the refusal says so instead of blaming only the stated FSR.
 /// </summary>
-public sealed class UndersampledSweepTests : IDisposable
+public class UndersampledSweepTests
 {
-    private readonly string _dir = Directory.CreateTempSubdirectory("orderunfold-undersampled-").FullName;
-
-    public void Dispose()
-    {
-        try { Directory.Delete(_dir, recursive: true); }
-        catch (IOException) { }
-    }
-
     [Fact]
     public void ARefusalOfAnUndersampledSweepNamesTheSampling()
     {
-        var stderr = new StringWriter(CultureInfo.InvariantCulture);
-        var code = OrderUnfold.Cli.Cli.Run(["simulate", "--out", _dir, "--samples", "1500"], new StringWriter(CultureInfo.InvariantCulture), stderr);
-        Assert.True(code == 0, stderr.ToString());
-        var e = Assert.Throws<InputException>(() => UnfoldPipeline.Run(Path.Combine(_dir, "setup.toml")));
+        using var sim = new SimulatedFolder("--samples", "1500");
+        var e = Assert.Throws<InputException>(() => UnfoldPipeline.Run(sim.Setup));
         Assert.Contains("samples per linewidth", e.Message);
         Assert.Contains("sampled too coarsely", e.Message);
     }
