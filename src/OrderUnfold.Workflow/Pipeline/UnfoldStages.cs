@@ -80,6 +80,9 @@ internal static class UnfoldStages
             if (result.OrdersResolved && result.Grid.Count * result.Grid.StepHz > 1.01 * result.UnambiguousRangeHz)
                 warnings.Add($"the window ({Quantity.FormatFrequency(result.Grid.Count * result.Grid.StepHz)}) is wider than the unambiguous range ({Quantity.FormatFrequency(result.UnambiguousRangeHz)}) " +
                              "and the line refinement is off, so no line's order was checked: lines about that range (or a multiple of it) apart may be aliases of one another (refine = true checks them)");
+            if (FewestLines.AppliesToCrowdedGrid(grid.Sweeps, result, grid.Window))
+                warnings.Add($"the grid holds {result.Lines.Count} lines, more than a line fit checks ({UnfoldPipeline.MaxUnrefinedLines}), and the line refinement is off: " +
+                             "with many samples per linewidth most of them can be the grid's own small alias bins rather than lines (refine = true tries the explanation with the fewest lines)");
             return new LineStage(result, null, warnings);
         }
 

@@ -25,5 +25,11 @@ public class LongRecordTests
         // within a tenth of the 10 MHz linewidth (the field-trace tolerance's 0.1 FWHM, shared/field-traces/README.md)
         for (var k = 0; k < expected.Count; k++) Assert.Equal(expected[k], run.Result.Lines[k].FrequencyHz, 1e6);
         Assert.InRange(run.Result.ReducedChiSquare, 0.9, 1.1);
+
+        // without the line refinement the crowded grid is reported as it is, and a warning says what it may hold
+        File.WriteAllText(sim.Setup, File.ReadAllText(sim.Setup).Replace("refine = true", "refine = false", StringComparison.Ordinal));
+        var grid = UnfoldPipeline.Run(sim.Setup);
+        Assert.True(grid.Result.Lines.Count > UnfoldPipeline.MaxUnrefinedLines);
+        Assert.Contains(grid.AllWarnings, w => w.Contains("the grid's own small alias bins", StringComparison.Ordinal));
     }
 }
