@@ -102,16 +102,8 @@ internal static class JointSolve
         var worst = 0.0;
         for (var k = 0; k < sweeps.Count; k++)
         {
-            var y = sweeps[k].Signal;
-            var sigma = sweeps[k].NoiseSigma;
-            var chi = 0.0;
-            for (var i = 0; i < y.Length; i++)
-            {
-                var r = (y[i] - models[k][i]) / sigma;
-                chi += r * r;
-            }
-
-            worst = Math.Max(worst, chi / Unfolder.SweepDegreesOfFreedom(y.Length, nnls.ActiveCount, sweeps.Count));
+            var chi = Unfolder.SweepChiSquare(sweeps[k].Signal, models[k], sweeps[k].NoiseSigma);
+            worst = Math.Max(worst, chi / Unfolder.SweepDegreesOfFreedom(sweeps[k].Signal.Length, nnls.ActiveCount, sweeps.Count));
         }
 
         return worst;

@@ -144,13 +144,9 @@ public static class Unfolder
         {
             var y = sweeps[k].Signal;
             var m = models[k];
-            double chi = 0, ss = 0;
-            for (var i = 0; i < y.Length; i++)
-            {
-                var r = y[i] - m[i];
-                ss += r * r;
-                chi += r * r / (sweeps[k].NoiseSigma * sweeps[k].NoiseSigma);
-            }
+            var chi = SweepChiSquare(y, m, sweeps[k].NoiseSigma);
+            double ss = 0;
+            for (var i = 0; i < y.Length; i++) ss += (y[i] - m[i]) * (y[i] - m[i]);
 
             var dof = SweepDegreesOfFreedom(y.Length, nnls.ActiveCount, sweeps.Count);
             chiTotal += chi;
@@ -162,6 +158,20 @@ public static class Unfolder
         }
 
         return new SweepFits(fits, chiTotal, samples);
+    }
+
+    /// <summary>One sweep's χ²: Σ((y − model)/σ)².</summary>
+    internal static double SweepChiSquare(double[] y, double[] model, double sigma)
+    {
+        var s2 = sigma * sigma;
+        double chi = 0;
+        for (var i = 0; i < y.Length; i++)
+        {
+            var r = y[i] - model[i];
+            chi += r * r / s2;
+        }
+
+        return chi;
     }
 
     /// <summary>Degrees of freedom of one sweep's fit: its samples less its gain and background and its share of the active

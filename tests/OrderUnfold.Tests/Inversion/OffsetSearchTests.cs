@@ -133,6 +133,7 @@ public class OffsetSearchTests
         var strongest = spec.Lines.MaxBy(l => l.Intensity)!.FrequencyHz;
         var truth = spec.Lines.Select(l => l.FrequencyHz - strongest).Order().ToList();
         Assert.Equal(truth.Count, result.Lines.Count);
+        // within a tenth of the linewidth (the field-trace tolerance's 0.1 FWHM, shared/field-traces/README.md)
         for (var k = 0; k < truth.Count; k++) Assert.Equal(truth[k], result.Lines[k].FrequencyHz, 0.1 * lw);
     }
 

@@ -1,4 +1,3 @@
-using System.Globalization;
 using OrderUnfold.Calibration;
 using OrderUnfold.Pipeline;
 using Xunit;
@@ -12,13 +11,11 @@ namespace OrderUnfold.Tests.Pipeline;
 /// </summary>
 public sealed class CalibrationFamiliesTests(ITestOutputHelper output) : IDisposable
 {
-    private readonly string _dir = Directory.CreateTempSubdirectory("orderunfold-calfam-").FullName;
+    private SimulatedFolder? _sim;
 
-    public void Dispose()
-    {
-        try { Directory.Delete(_dir, recursive: true); }
-        catch (IOException) { }
-    }
+    private SimulatedFolder Sim => _sim ?? throw new InvalidOperationException("Simulate first");
+
+    public void Dispose() => _sim?.Dispose();
 
     /// <summary>
     /// A family 60 % as tall as TEM00 at 0.468 FSR after it (the N = 1 family of L = 55 mm, R = 50 mm mirrors: Siegman,
@@ -31,7 +28,7 @@ public sealed class CalibrationFamiliesTests(ITestOutputHelper output) : IDispos
     public void Interleaved_family_peaks_do_not_halve_the_calibration_period()
     {
         Simulate("0.532:0.6, 0.064:0.2", "7");
-        var run = UnfoldPipeline.Run(Path.Combine(_dir, "setup.toml"));
+        var run = UnfoldPipeline.Run(Sim.Setup);
         foreach (var i in run.Instruments) output.WriteLine(i.ToString());
         foreach (var w in run.AllWarnings) output.WriteLine($"warning: {w}");
         Assert.Contains(run.AllWarnings, w => w.Contains("interleaved groups"));
@@ -41,19 +38,13 @@ public sealed class CalibrationFamiliesTests(ITestOutputHelper output) : IDispos
     }
 
     /// <summary>Writes the demo scenario with the given transverse families into the test folder (<c>orderunfold simulate</c>).</summary>
-    private void Simulate(string families, string seed)
-    {
-        var stderr = new StringWriter(CultureInfo.InvariantCulture);
-        var code = OrderUnfold.Cli.Cli.Run(["simulate", "--out", _dir, "--families", families, "--seed", seed], new StringWriter(CultureInfo.InvariantCulture), stderr);
-        Assert.True(code == 0, stderr.ToString());
-    }
+    private void Simulate(string families, string seed) => _sim = new SimulatedFolder("--families", families, "--seed", seed);
 
     /// <summary>The simulated lines (truth.csv written by the simulator), each within a tenth of the 10 MHz linewidth (the
     /// field-trace tolerance's 0.1 FWHM, shared/field-traces/README.md) and its intensity within 10 %; no other line.</summary>
     private void AssertSimulatedLines(UnfoldRun run)
     {
-        var truth = File.ReadLines(Path.Combine(_dir, "truth.csv")).Where(l => l.Length > 0 && (char.IsAsciiDigit(l[0]) || l[0] == '-'))
-            .Select(l => l.Split(',')).Select(f => (Hz: double.Parse(f[0], CultureInfo.InvariantCulture), I: double.Parse(f[1], CultureInfo.InvariantCulture))).ToList();
+        var truth = Sim.Truth();
         Assert.Equal(truth.Count, run.Result.Lines.Count);
         foreach (var (hz, intensity) in truth)
         {
@@ -75,7 +66,7 @@ public sealed class CalibrationFamiliesTests(ITestOutputHelper output) : IDispos
         Simulate("0.25:0.5", "11");
         try
         {
-            var run = UnfoldPipeline.Run(Path.Combine(_dir, "setup.toml"));
+            var run = UnfoldPipeline.Run(Sim.Setup);
             // should the model one day include such a family, the lines must be the simulated ones (truth.csv)
             AssertSimulatedLines(run);
         }
